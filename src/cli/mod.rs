@@ -1,0 +1,124 @@
+//! Command-line layer: flag definitions, output format, exit codes. One file per command.
+//!
+//! Exit codes: 0 success; 1 usage or input error; 2 a budget (states or time) was exceeded.
+
+mod estimate;
+mod exact;
+mod inspect;
+
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+
+use clap::{Parser, Subcommand, ValueEnum};
+use groundcount::{Error, Lattice};
+
+/// Count the arrangements a crystal's local rules allow and report the residual entropy.
+#[derive(Parser, Debug)]
+#[command(name = "groundcount", version, about, long_about = None)]
+pub struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Describe a lattice file: cell, sites, bonds, variables, rules, and the Pauling estimate.
+    Inspect(inspect::Args),
+    /// Count one finite cell exactly.
+    Exact(exact::Args),
+    /// The main job: Pauling estimate and exact counts on growing cells, side by side.
+    Estimate(estimate::Args),
+}
+
+/// Output format shared by every command.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, ValueEnum)]
+pub enum Format {
+    /// Aligned text for reading.
+    #[default]
+    Table,
+    /// One JSON document.
+    Json,
+    /// Comma-separated values.
+    Csv,
+    /// A Markdown table.
+    Markdown,
+}
+
+/// Options every counting command shares.
+#[derive(clap::Args, Debug, Clone)]
+pub struct Common {
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = Format::Table)]
+    format: Format,
+    /// Worker threads (default: all cores).
+    #[arg(long)]
+    threads: Option<usize>,
+    /// No progress messages on standard error.
+    #[arg(long, short)]
+    quiet: bool,
+}
+
+impl Common {
+    fn progress(&self) -> bool {
+        !self.quiet && std::io::stderr().is_terminal()
+    }
+}
+
+/// Run the command line; returns the exit code.
+pub fn run() -> i32 {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            use clap::error::ErrorKind;
+            let code = match e.kind() {
+                ErrorKind::DisplayHelp | ErrorKind::DisplayVersion => 0,
+                _ => 1,
+            };
+            let _ = e.print();
+            return code;
+        }
+    };
+    let result = match cli.command {
+        Command::Inspect(a) => inspect::run(a),
+        Command::Exact(a) => exact::run(a),
+        Command::Estimate(a) => estimate::run(a),
+    };
+    match result {
+        Ok(text) => {
+            print!("{text}");
+            0
+        }
+        Err(e) => {
+            eprintln!("error: {e:#}");
+            match e.downcast_ref::<Error>() {
+                Some(Error::Budget { .. } | Error::Deadline { .. }) => 2,
+                _ => 1,
+            }
+        }
+    }
+}
+
+/// Load a lattice file, or the built-in ice Ih description when none is given.
+fn load(file: Option<&Path>) -> anyhow::Result<Lattice> {
+    Ok(match file {
+        Some(p) => Lattice::from_file(p)?,
+        None => Lattice::from_yaml(groundcount::ICE_IH_YAML, groundcount::spec::embedded_path("ice-ih.yaml"))?,
+    })
+}
+
+/// Run `f` in a rayon pool of the requested size.
+fn with_threads<T: Send>(threads: Option<usize>, f: impl FnOnce() -> T + Send) -> anyhow::Result<T> {
+    let mut b = rayon::ThreadPoolBuilder::new();
+    if let Some(n) = threads {
+        if n == 0 {
+            anyhow::bail!("--threads must be at least 1");
+        }
+        b = b.num_threads(n);
+    }
+    Ok(b.build()?.install(f))
+}
+
+/// The file path as typed, for messages.
+fn shown(p: &Option<PathBuf>) -> String {
+    p.as_ref().map_or_else(|| "built-in ice Ih".to_string(), |p| p.display().to_string())
+}

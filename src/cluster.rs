@@ -1,0 +1,277 @@
+//! A finite piece of the crystal: the unit cell repeated `A×B×C` times, periodic or open
+//! along each axis.
+//!
+//! The cluster numbers its sites and bonds densely and keeps them in a `petgraph` multigraph
+//! (self-loops and doubled edges are kept: on a 1×1 or 2×2 torus a bond may join a site to
+//! itself or repeat another, and each such copy is an independent bond). Along an open axis,
+//! bonds that leave the cell are dropped.
+
+use std::fmt;
+
+use petgraph::graph::UnGraph;
+
+use crate::crystal::{Crystal, Entity, Shift};
+use crate::error::{Error, Result};
+
+/// How many cells along each axis, and which axes are periodic.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Cells {
+    /// Repetitions along a, b, c (unused axes 1).
+    pub counts: [usize; 3],
+    /// Periodic (true) or open (false) along each axis.
+    pub periodic: [bool; 3],
+    /// Number of axes in use.
+    pub dimensions: usize,
+}
+
+const AXES: [char; 3] = ['a', 'b', 'c'];
+
+impl Cells {
+    /// Parse `4x4x2` (and `--open a,b`) for a crystal of the given dimension.
+    ///
+    /// A single number `4` means 4 along every axis.
+    pub fn parse(text: &str, open: Option<&str>, dimensions: usize) -> Result<Cells> {
+        let bad = |why: String| Error::Cells(format!("--cells '{text}': {why}"));
+        let parts: Vec<&str> = text.split(['x', 'X', '×']).map(str::trim).collect();
+        let mut counts = [1usize; 3];
+        let values: Vec<usize> = parts
+            .iter()
+            .map(|p| {
+                p.parse::<usize>()
+                    .map_err(|_| bad(format!("'{p}' is not a whole number; expected e.g. 4x4x2")))
+            })
+            .collect::<Result<_>>()?;
+        match values.len() {
+            1 => counts[..dimensions].fill(values[0]),
+            n if n == dimensions => counts[..dimensions].copy_from_slice(&values),
+            n => {
+                return Err(bad(format!(
+                    "{n} sizes given for a {dimensions}-dimensional crystal; expected {dimensions} (e.g. {})",
+                    ["4", "4x4", "4x4x2"][dimensions - 1]
+                )))
+            }
+        }
+        if let Some(k) = counts[..dimensions].iter().position(|&c| c == 0) {
+            return Err(bad(format!("the size along {} is 0; every size must be at least 1", AXES[k])));
+        }
+        let mut periodic = [true; 3];
+        for axis in open.unwrap_or("").split(',').map(str::trim).filter(|s| !s.is_empty()) {
+            match AXES[..dimensions].iter().position(|a| a.to_string() == axis) {
+                Some(k) => periodic[k] = false,
+                None => {
+                    return Err(Error::Cells(format!(
+                        "--open '{axis}': expected a comma-separated list of axes among {}",
+                        AXES[..dimensions].iter().map(|c| c.to_string()).collect::<Vec<_>>().join(", ")
+                    )))
+                }
+            }
+        }
+        Ok(Cells { counts, periodic, dimensions })
+    }
+
+    /// The same number of cells along every axis, all periodic.
+    pub fn cube(n: usize, dimensions: usize) -> Cells {
+        let mut counts = [1; 3];
+        counts[..dimensions].fill(n);
+        Cells { counts, periodic: [true; 3], dimensions }
+    }
+
+    /// Number of unit cells.
+    pub fn total(&self) -> usize {
+        self.counts.iter().product()
+    }
+}
+
+impl fmt::Display for Cells {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let sizes: Vec<String> = self.counts[..self.dimensions].iter().map(|c| c.to_string()).collect();
+        write!(f, "{}", sizes.join("x"))?;
+        let open: Vec<String> =
+            (0..self.dimensions).filter(|&k| !self.periodic[k]).map(|k| AXES[k].to_string()).collect();
+        if open.is_empty() {
+            write!(f, " periodic")
+        } else if open.len() == self.dimensions {
+            write!(f, " open")
+        } else {
+            write!(f, " open along {}", open.join(","))
+        }
+    }
+}
+
+/// A site of the cluster: which crystal site, in which cell.
+#[derive(Clone, Copy, Debug)]
+pub struct ClusterSite {
+    /// Crystal site index.
+    pub site: usize,
+    /// Cell coordinates.
+    pub cell: [usize; 3],
+}
+
+/// A bond of the cluster.
+#[derive(Clone, Copy, Debug)]
+pub struct ClusterBond {
+    /// Crystal bond index.
+    pub bond: usize,
+    /// Cell of the `from` end.
+    pub cell: [usize; 3],
+    /// Cluster site at the `from` end.
+    pub from: usize,
+    /// Cluster site at the `to` end.
+    pub to: usize,
+}
+
+/// The crystal tiled into a finite cell.
+#[derive(Debug)]
+pub struct Cluster<'c> {
+    /// The crystal.
+    pub crystal: &'c Crystal,
+    /// Size and boundaries.
+    pub cells: Cells,
+    /// Sites, numbered cell by cell.
+    pub sites: Vec<ClusterSite>,
+    /// Bonds that exist in the cluster.
+    pub bonds: Vec<ClusterBond>,
+    /// For each (cell, crystal bond), its cluster bond index, if it exists.
+    bond_index: Vec<Option<usize>>,
+    /// Sites as nodes, bonds as edges (weights are cluster indices).
+    pub graph: UnGraph<usize, usize>,
+}
+
+impl<'c> Cluster<'c> {
+    /// Tile the crystal.
+    pub fn new(crystal: &'c Crystal, cells: Cells) -> Result<Cluster<'c>> {
+        if cells.dimensions != crystal.dimensions {
+            return Err(Error::Cells(format!(
+                "the cell {cells} has {} axes but the crystal has {} dimensions",
+                cells.dimensions, crystal.dimensions
+            )));
+        }
+        let ns = crystal.sites.len();
+        let nb = crystal.bonds.len();
+        let total = cells.total();
+        let mut sites = Vec::with_capacity(total * ns);
+        let mut bonds = Vec::new();
+        let mut bond_index = vec![None; total * nb];
+        let mut cl = Cluster { crystal, cells, sites: Vec::new(), bonds: Vec::new(), bond_index: Vec::new(), graph: UnGraph::default() };
+        for c in 0..total {
+            let cell = cl.cell_coords(c);
+            for s in 0..ns {
+                sites.push(ClusterSite { site: s, cell });
+            }
+        }
+        for c in 0..total {
+            let cell = cl.cell_coords(c);
+            let base = [cell[0] as i64, cell[1] as i64, cell[2] as i64];
+            for (b, bond) in crystal.bonds.iter().enumerate() {
+                let from = c * ns + bond.from;
+                if let Some(to) = cl.site_at(bond.to, base, bond.shift) {
+                    bond_index[c * nb + b] = Some(bonds.len());
+                    bonds.push(ClusterBond { bond: b, cell, from, to });
+                }
+            }
+        }
+        let mut graph = UnGraph::with_capacity(sites.len(), bonds.len());
+        for i in 0..sites.len() {
+            graph.add_node(i);
+        }
+        for (i, b) in bonds.iter().enumerate() {
+            graph.add_edge(petgraph::graph::NodeIndex::new(b.from), petgraph::graph::NodeIndex::new(b.to), i);
+        }
+        cl.sites = sites;
+        cl.bonds = bonds;
+        cl.bond_index = bond_index;
+        cl.graph = graph;
+        Ok(cl)
+    }
+
+    fn cell_coords(&self, c: usize) -> [usize; 3] {
+        let n = self.cells.counts;
+        [c % n[0], (c / n[0]) % n[1], c / (n[0] * n[1])]
+    }
+
+    fn cell_number(&self, u: [usize; 3]) -> usize {
+        let n = self.cells.counts;
+        u[0] + n[0] * (u[1] + n[1] * u[2])
+    }
+
+    /// Wrap (periodic) or reject (open) an unwrapped cell position.
+    fn wrap(&self, base: [i64; 3], shift: Shift) -> Option<[usize; 3]> {
+        let mut u = [0usize; 3];
+        for k in 0..3 {
+            let n = self.cells.counts[k] as i64;
+            let x = base[k] + shift[k];
+            if self.cells.periodic[k] {
+                u[k] = x.rem_euclid(n) as usize;
+            } else if (0..n).contains(&x) {
+                u[k] = x as usize;
+            } else {
+                return None;
+            }
+        }
+        Some(u)
+    }
+
+    fn site_at(&self, site: usize, base: [i64; 3], shift: Shift) -> Option<usize> {
+        self.wrap(base, shift).map(|u| self.cell_number(u) * self.crystal.sites.len() + site)
+    }
+
+    /// The cluster site or bond an entity anchored in cell `cell` refers to, if it lies inside.
+    pub fn locate(&self, entity: Entity, cell: [usize; 3]) -> Option<ClusterEntity> {
+        let base = [cell[0] as i64, cell[1] as i64, cell[2] as i64];
+        match entity {
+            Entity::Site { site, shift } => self.site_at(site, base, shift).map(ClusterEntity::Site),
+            Entity::Bond { bond, shift } => {
+                let u = self.wrap(base, shift)?;
+                self.bond_index[self.cell_number(u) * self.crystal.bonds.len() + bond].map(ClusterEntity::Bond)
+            }
+        }
+    }
+
+    /// Cell coordinates of every cell.
+    pub fn all_cells(&self) -> impl Iterator<Item = [usize; 3]> + '_ {
+        (0..self.cells.total()).map(|c| self.cell_coords(c))
+    }
+
+    /// Formula units in the cluster.
+    pub fn formula_units(&self) -> f64 {
+        use crate::crystal::UnitBasis;
+        match &self.crystal.formula_unit.basis {
+            UnitBasis::Sites(None) => self.sites.len() as f64,
+            UnitBasis::Sites(Some(sp)) => {
+                self.sites.iter().filter(|s| self.crystal.sites[s.site].matches(sp)).count() as f64
+            }
+            UnitBasis::Bonds => self.bonds.len() as f64,
+            UnitBasis::Cell(n) => n * self.cells.total() as f64,
+        }
+    }
+
+    /// Position of a site in cell units (for ordering sweeps).
+    pub fn site_position(&self, i: usize) -> [f64; 3] {
+        let s = self.sites[i];
+        let f = self.crystal.sites[s.site].frac;
+        [0, 1, 2].map(|k| s.cell[k] as f64 + f[k])
+    }
+
+    /// Position of a bond's midpoint in cell units (unwrapped from its `from` end).
+    pub fn bond_position(&self, i: usize) -> [f64; 3] {
+        let b = self.bonds[i];
+        let bond = &self.crystal.bonds[b.bond];
+        let f = self.crystal.sites[bond.from].frac;
+        let t = self.crystal.sites[bond.to].frac;
+        [0, 1, 2].map(|k| b.cell[k] as f64 + 0.5 * (f[k] + t[k] + bond.shift[k] as f64))
+    }
+
+    /// Number of connected pieces of the bond graph.
+    pub fn connected_components(&self) -> usize {
+        petgraph::algo::connected_components(&self.graph)
+    }
+}
+
+/// A site or bond of the cluster.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ClusterEntity {
+    /// Cluster site index.
+    Site(usize),
+    /// Cluster bond index.
+    Bond(usize),
+}

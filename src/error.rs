@@ -1,0 +1,97 @@
+//! Typed errors of the library core.
+//!
+//! Every error carries its culprit: the file and the line and column where the problem sits
+//! (when it comes from a lattice file), or the cell, rule or budget that failed. The binary
+//! turns them into one message on standard error and a non-zero exit code.
+
+use std::fmt;
+use std::path::PathBuf;
+
+/// A position in a lattice file (1-based line and column).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Position {
+    /// 1-based line; 0 when unknown.
+    pub line: u64,
+    /// 1-based column; 0 when unknown.
+    pub column: u64,
+}
+
+impl Position {
+    /// A position, or `None` when the parser did not know it.
+    pub fn known(self) -> Option<Self> {
+        (self.line > 0).then_some(self)
+    }
+}
+
+/// What went wrong.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum Error {
+    /// The lattice file could not be read at all.
+    #[error("{path}: cannot read the lattice file: {reason}")]
+    Read {
+        /// The file.
+        path: PathBuf,
+        /// Why (the operating system's words, or "is a directory", "is empty").
+        reason: String,
+    },
+    /// The file is not YAML of the expected shape (syntax, unknown key, wrong type).
+    #[error("{}: {message}", located(path, *position))]
+    Syntax {
+        /// The file.
+        path: PathBuf,
+        /// Where the parser stopped.
+        position: Position,
+        /// The parser's explanation.
+        message: String,
+    },
+    /// The file is well-formed YAML but describes an impossible or inconsistent crystal.
+    #[error("{}: {message}", located(path, *position))]
+    Invalid {
+        /// The file.
+        path: PathBuf,
+        /// Where the offending value sits.
+        position: Position,
+        /// What is wrong and what was expected.
+        message: String,
+    },
+    /// A cell size or boundary option that cannot be used.
+    #[error("{0}")]
+    Cells(String),
+    /// An exact count whose frontier would exceed the state budget.
+    #[error(
+        "the exact count on {cells} needs more than the state budget: {detail}; \
+         try a smaller cell, raise --max-states, or use a statistical method"
+    )]
+    Budget {
+        /// The cell that was asked for.
+        cells: String,
+        /// How large the state space grew or would grow.
+        detail: String,
+    },
+    /// A time budget ran out before the computation finished.
+    #[error("the computation on {cells} did not finish within the time budget")]
+    Deadline {
+        /// The cell that was being counted.
+        cells: String,
+    },
+    /// A rule whose local table is too large to compile.
+    #[error("{0}")]
+    Model(String),
+}
+
+fn located(path: &std::path::Path, position: Position) -> String {
+    match position.known() {
+        Some(p) => format!("{}:{}:{}", path.display(), p.line, p.column),
+        None => path.display().to_string(),
+    }
+}
+
+impl fmt::Display for Position {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}:{}", self.line, self.column)
+    }
+}
+
+/// Results of the library.
+pub type Result<T> = std::result::Result<T, Error>;

@@ -1,0 +1,98 @@
+//! # groundcount
+//!
+//! Counts the arrangements a crystal allows under local bonding rules (ice rules, spin-ice
+//! rules, dimer coverings, hard-core exclusion, frustrated Ising ground states) and turns the
+//! count into a residual molar entropy S0 = R ln W per formula unit.
+//!
+//! The data flow is one-directional:
+//!
+//! ```text
+//! YAML ─▶ spec::LatticeSpec ─▶ crystal::Crystal ─▶ cluster::Cluster ─▶ model::Model
+//!      ─▶ counters (pauling, exact) ─▶ estimate::Estimate ─▶ report
+//! ```
+//!
+//! ```
+//! use groundcount::{Lattice, cluster::Cells, counters};
+//!
+//! let yaml = r#"
+//! name: square ice
+//! dimensions: 2
+//! cell: {vectors: [[1.0, 0.0], [0.0, 1.0]]}
+//! sites: [{id: O, at: [0.0, 0.0]}]
+//! bonds:
+//!   - {id: h, from: O, to: O, shift: [1, 0]}
+//!   - {id: v, from: O, to: O, shift: [0, 1]}
+//! variables: [{on: bonds, kind: arrow}]
+//! rules: [{kind: inward, at: sites, allowed: [2]}]
+//! formula_unit: {name: H2O, per: sites}
+//! "#;
+//! let lattice = Lattice::from_yaml(yaml, "square-ice.yaml").unwrap();
+//! let pauling = counters::pauling::estimate(&lattice.crystal).unwrap();
+//! assert!((pauling.w_per_unit() - 1.5).abs() < 1e-12); // Pauling 1935
+//! let cells = Cells::parse("3x3", None, 2).unwrap();
+//! let exact = lattice.count_exact(&cells, &Default::default()).unwrap();
+//! assert_eq!(exact.count.unwrap().to_string(), "148"); // OEIS A054759
+//! ```
+
+pub mod cluster;
+pub mod counters;
+pub mod crystal;
+pub mod error;
+pub mod estimate;
+pub mod model;
+pub mod report;
+pub mod spec;
+pub mod thermo;
+
+use std::path::Path;
+
+pub use error::{Error, Result};
+pub use estimate::Estimate;
+
+/// The ice Ih description shipped with the binary.
+pub const ICE_IH_YAML: &str = include_str!("../lattices/ice-ih.yaml");
+
+/// A lattice file, parsed and validated.
+#[derive(Clone, Debug)]
+pub struct Lattice {
+    /// The validated crystal.
+    pub crystal: crystal::Crystal,
+    /// FNV-1a hash of the file's text, to tie results to their input.
+    pub content_hash: String,
+}
+
+impl Lattice {
+    /// Read, parse and validate a lattice file.
+    pub fn from_file(path: &Path) -> Result<Lattice> {
+        let spec = spec::LatticeSpec::from_file(path)?;
+        let text = std::fs::read_to_string(path).unwrap_or_default();
+        Self::from_spec(spec, path, &text)
+    }
+
+    /// Parse and validate YAML text; `name` stands for the file in messages.
+    pub fn from_yaml(text: &str, name: impl AsRef<Path>) -> Result<Lattice> {
+        let spec = spec::LatticeSpec::from_yaml(text, name.as_ref())?;
+        Self::from_spec(spec, name.as_ref(), text)
+    }
+
+    fn from_spec(spec: spec::LatticeSpec, path: &Path, text: &str) -> Result<Lattice> {
+        let crystal = crystal::Crystal::from_spec(spec, path)?;
+        Ok(Lattice { crystal, content_hash: fnv1a(text) })
+    }
+
+    /// Tile, compile and count one cell exactly.
+    pub fn count_exact(&self, cells: &cluster::Cells, config: &counters::exact::ExactConfig) -> Result<Estimate> {
+        let cluster = cluster::Cluster::new(&self.crystal, cells.clone())?;
+        let model = model::Model::new(&cluster)?;
+        counters::exact::count(&model, config)
+    }
+}
+
+fn fnv1a(text: &str) -> String {
+    let mut h: u64 = 0xcbf29ce484222325;
+    for b in text.bytes() {
+        h ^= b as u64;
+        h = h.wrapping_mul(0x100000001b3);
+    }
+    format!("{h:016x}")
+}

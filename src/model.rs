@@ -1,0 +1,211 @@
+//! The intermediate representation every counter reads: variables with their numbers of
+//! states, and constraints, each a scope of variables with a table of allowed local
+//! assignments.
+//!
+//! [`Model::new`] compiles the rules of a [`Cluster`]: every rule instance in every cell
+//! becomes a constraint. A variable may occur more than once in an instance on tiny
+//! periodic cells (a bond that wraps onto itself); the table is built over the distinct
+//! variables, evaluating the rule on every occurrence, so such cells are counted honestly.
+//! Identical tables are shared.
+
+use std::collections::HashMap;
+
+use crate::cluster::{Cluster, ClusterEntity};
+use crate::crystal::{Target, WhenCut};
+use crate::error::{Error, Result};
+
+/// Largest local table, in assignments, a rule may compile to.
+pub const MAX_TABLE: u64 = 1 << 24;
+
+/// One variable.
+#[derive(Clone, Debug)]
+pub struct Variable {
+    /// Number of states.
+    pub states: u32,
+    /// Position in cell units, used to order sweeps.
+    pub position: [f64; 3],
+}
+
+/// A table of allowed assignments of a scope, indexed in mixed radix (first variable
+/// fastest).
+#[derive(Clone, Debug, PartialEq, Eq, Hash)]
+pub struct Table {
+    /// States of each scope variable.
+    pub radices: Vec<u32>,
+    /// Allowed assignments as a bit set.
+    pub bits: Vec<u64>,
+    /// Number of allowed assignments.
+    pub allowed: u64,
+    /// Number of assignments.
+    pub size: u64,
+}
+
+impl Table {
+    /// Whether the assignment with this mixed-radix index is allowed.
+    #[inline]
+    pub fn allows(&self, index: u64) -> bool {
+        (self.bits[(index >> 6) as usize] >> (index & 63)) & 1 == 1
+    }
+}
+
+/// One constraint.
+#[derive(Clone, Debug)]
+pub struct Constraint {
+    /// Distinct variables, in table order.
+    pub scope: Vec<usize>,
+    /// Index into [`Model::tables`].
+    pub table: usize,
+    /// Index of the crystal rule it comes from.
+    pub rule: usize,
+}
+
+/// Variables and constraints of a finite cluster.
+#[derive(Clone, Debug)]
+pub struct Model {
+    /// Variables.
+    pub variables: Vec<Variable>,
+    /// Constraints.
+    pub constraints: Vec<Constraint>,
+    /// Shared tables.
+    pub tables: Vec<Table>,
+    /// Formula units in the cluster.
+    pub formula_units: f64,
+    /// A rule instance that no assignment can satisfy (its scope vanished at an open
+    /// boundary), if any: the count is then zero.
+    pub contradiction: Option<String>,
+    /// Whether some constraint reads one variable more than once (tiny periodic cells).
+    pub has_repeats: bool,
+    /// "4x4 periodic", for reports.
+    pub cells: String,
+}
+
+impl Model {
+    /// Compile a cluster's rules.
+    pub fn new(cluster: &Cluster) -> Result<Model> {
+        let crystal = cluster.crystal;
+        let site_var = crystal.site_variables.map(|k| k.states());
+        let bond_var = crystal.bond_variables.map(|k| k.states());
+        let mut variables = Vec::new();
+        let mut site_offset = None;
+        let mut bond_offset = None;
+        if let Some(q) = site_var {
+            site_offset = Some(variables.len());
+            for i in 0..cluster.sites.len() {
+                variables.push(Variable { states: q, position: cluster.site_position(i) });
+            }
+        }
+        if let Some(q) = bond_var {
+            bond_offset = Some(variables.len());
+            for i in 0..cluster.bonds.len() {
+                variables.push(Variable { states: q, position: cluster.bond_position(i) });
+            }
+        }
+        let mut tables: Vec<Table> = Vec::new();
+        let mut table_ids: HashMap<(usize, Vec<(usize, u32)>, Vec<u32>), usize> = HashMap::new();
+        let mut constraints = Vec::new();
+        let mut contradiction = None;
+        let mut has_repeats = false;
+        for (r, rule) in crystal.rules.iter().enumerate() {
+            for cell in cluster.all_cells() {
+                'instance: for inst in &rule.instances {
+                    // (variable, inward state) per occurrence.
+                    let mut occ: Vec<(usize, u32)> = Vec::with_capacity(inst.slots.len());
+                    for slot in &inst.slots {
+                        let var = match (cluster.locate(slot.entity, cell), rule.target) {
+                            (Some(ClusterEntity::Site(i)), Target::Sites) => site_offset.map(|o| o + i),
+                            (Some(ClusterEntity::Bond(i)), Target::Bonds) => bond_offset.map(|o| o + i),
+                            (None, _) => None,
+                            _ => unreachable!("slots follow the rule's target"),
+                        };
+                        match var {
+                            Some(v) => occ.push((v, slot.inward_state)),
+                            None if inst.when_cut == WhenCut::DropSlots => {}
+                            None => continue 'instance,
+                        }
+                    }
+                    let mut scope: Vec<usize> = Vec::new();
+                    let mut local: Vec<(usize, u32)> = Vec::with_capacity(occ.len());
+                    for &(v, w) in &occ {
+                        let p = scope.iter().position(|&x| x == v).unwrap_or_else(|| {
+                            scope.push(v);
+                            scope.len() - 1
+                        });
+                        local.push((p, w));
+                    }
+                    if scope.len() < occ.len() {
+                        has_repeats = true;
+                    }
+                    let radices: Vec<u32> = scope.iter().map(|&v| variables[v].states).collect();
+                    let key = (r, local, radices);
+                    let table = match table_ids.get(&key) {
+                        Some(&t) => t,
+                        None => {
+                            let t = compile_table(rule, &key.1, &key.2, &inst.label)?;
+                            tables.push(t);
+                            table_ids.insert(key, tables.len() - 1);
+                            tables.len() - 1
+                        }
+                    };
+                    if scope.is_empty() {
+                        if tables[table].allowed == 0 && contradiction.is_none() {
+                            contradiction = Some(format!("{} ({}) has no variables left and cannot be satisfied", inst.label, rule.label));
+                        }
+                        continue;
+                    }
+                    constraints.push(Constraint { scope, table, rule: r });
+                }
+            }
+        }
+        Ok(Model {
+            variables,
+            constraints,
+            tables,
+            formula_units: cluster.formula_units(),
+            contradiction,
+            has_repeats,
+            cells: cluster.cells.to_string(),
+        })
+    }
+
+    /// ln of the number of assignments with no constraint at all.
+    pub fn ln_unconstrained(&self) -> f64 {
+        self.variables.iter().map(|v| (v.states as f64).ln()).sum()
+    }
+}
+
+/// Enumerate the local assignments of a scope and keep those the rule allows.
+fn compile_table(
+    rule: &crate::crystal::Rule,
+    local: &[(usize, u32)],
+    radices: &[u32],
+    label: &str,
+) -> Result<Table> {
+    let size: u64 = radices.iter().map(|&q| q as u64).try_fold(1u64, |a, q| a.checked_mul(q)).unwrap_or(u64::MAX);
+    if size > MAX_TABLE {
+        return Err(Error::Model(format!(
+            "rule '{}' at {label} has {size} local assignments (more than {MAX_TABLE}); split it into smaller rules",
+            rule.label
+        )));
+    }
+    // The rule reads the occurrences that remain (an open boundary may have dropped some).
+    let inward: Vec<u32> = local.iter().map(|&(_, w)| w).collect();
+    let mut bits = vec![0u64; size.div_ceil(64) as usize];
+    let mut values = vec![0u32; radices.len()];
+    let mut occ_values = vec![0u32; local.len()];
+    let mut allowed = 0;
+    for index in 0..size {
+        let mut rest = index;
+        for (v, &q) in values.iter_mut().zip(radices) {
+            *v = (rest % q as u64) as u32;
+            rest /= q as u64;
+        }
+        for (o, &(p, _)) in occ_values.iter_mut().zip(local) {
+            *o = values[p];
+        }
+        if rule.allows(&inward, &occ_values) {
+            bits[(index >> 6) as usize] |= 1 << (index & 63);
+            allowed += 1;
+        }
+    }
+    Ok(Table { radices: radices.to_vec(), bits, allowed, size })
+}
