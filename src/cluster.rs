@@ -48,32 +48,55 @@ impl Cells {
                 return Err(bad(format!(
                     "{n} sizes given for a {dimensions}-dimensional crystal; expected {dimensions} (e.g. {})",
                     ["4", "4x4", "4x4x2"][dimensions - 1]
-                )))
+                )));
             }
         }
         if let Some(k) = counts[..dimensions].iter().position(|&c| c == 0) {
-            return Err(bad(format!("the size along {} is 0; every size must be at least 1", AXES[k])));
+            return Err(bad(format!(
+                "the size along {} is 0; every size must be at least 1",
+                AXES[k]
+            )));
         }
         let mut periodic = [true; 3];
-        for axis in open.unwrap_or("").split(',').map(str::trim).filter(|s| !s.is_empty()) {
-            match AXES[..dimensions].iter().position(|a| a.to_string() == axis) {
+        for axis in open
+            .unwrap_or("")
+            .split(',')
+            .map(str::trim)
+            .filter(|s| !s.is_empty())
+        {
+            match AXES[..dimensions]
+                .iter()
+                .position(|a| a.to_string() == axis)
+            {
                 Some(k) => periodic[k] = false,
                 None => {
                     return Err(Error::Cells(format!(
                         "--open '{axis}': expected a comma-separated list of axes among {}",
-                        AXES[..dimensions].iter().map(|c| c.to_string()).collect::<Vec<_>>().join(", ")
-                    )))
+                        AXES[..dimensions]
+                            .iter()
+                            .map(|c| c.to_string())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    )));
                 }
             }
         }
-        Ok(Cells { counts, periodic, dimensions })
+        Ok(Cells {
+            counts,
+            periodic,
+            dimensions,
+        })
     }
 
     /// The same number of cells along every axis, all periodic.
     pub fn cube(n: usize, dimensions: usize) -> Cells {
         let mut counts = [1; 3];
         counts[..dimensions].fill(n);
-        Cells { counts, periodic: [true; 3], dimensions }
+        Cells {
+            counts,
+            periodic: [true; 3],
+            dimensions,
+        }
     }
 
     /// Number of unit cells.
@@ -84,10 +107,15 @@ impl Cells {
 
 impl fmt::Display for Cells {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        let sizes: Vec<String> = self.counts[..self.dimensions].iter().map(|c| c.to_string()).collect();
+        let sizes: Vec<String> = self.counts[..self.dimensions]
+            .iter()
+            .map(|c| c.to_string())
+            .collect();
         write!(f, "{}", sizes.join("x"))?;
-        let open: Vec<String> =
-            (0..self.dimensions).filter(|&k| !self.periodic[k]).map(|k| AXES[k].to_string()).collect();
+        let open: Vec<String> = (0..self.dimensions)
+            .filter(|&k| !self.periodic[k])
+            .map(|k| AXES[k].to_string())
+            .collect();
         if open.is_empty() {
             write!(f, " periodic")
         } else if open.len() == self.dimensions {
@@ -152,7 +180,14 @@ impl<'c> Cluster<'c> {
         let mut sites = Vec::with_capacity(total * ns);
         let mut bonds = Vec::new();
         let mut bond_index = vec![None; total * nb];
-        let mut cl = Cluster { crystal, cells, sites: Vec::new(), bonds: Vec::new(), bond_index: Vec::new(), graph: UnGraph::default() };
+        let mut cl = Cluster {
+            crystal,
+            cells,
+            sites: Vec::new(),
+            bonds: Vec::new(),
+            bond_index: Vec::new(),
+            graph: UnGraph::default(),
+        };
         for c in 0..total {
             let cell = cl.cell_coords(c);
             for s in 0..ns {
@@ -166,7 +201,12 @@ impl<'c> Cluster<'c> {
                 let from = c * ns + bond.from;
                 if let Some(to) = cl.site_at(bond.to, base, bond.shift) {
                     bond_index[c * nb + b] = Some(bonds.len());
-                    bonds.push(ClusterBond { bond: b, cell, from, to });
+                    bonds.push(ClusterBond {
+                        bond: b,
+                        cell,
+                        from,
+                        to,
+                    });
                 }
             }
         }
@@ -175,7 +215,11 @@ impl<'c> Cluster<'c> {
             graph.add_node(i);
         }
         for (i, b) in bonds.iter().enumerate() {
-            graph.add_edge(petgraph::graph::NodeIndex::new(b.from), petgraph::graph::NodeIndex::new(b.to), i);
+            graph.add_edge(
+                petgraph::graph::NodeIndex::new(b.from),
+                petgraph::graph::NodeIndex::new(b.to),
+                i,
+            );
         }
         cl.sites = sites;
         cl.bonds = bonds;
@@ -212,17 +256,21 @@ impl<'c> Cluster<'c> {
     }
 
     fn site_at(&self, site: usize, base: [i64; 3], shift: Shift) -> Option<usize> {
-        self.wrap(base, shift).map(|u| self.cell_number(u) * self.crystal.sites.len() + site)
+        self.wrap(base, shift)
+            .map(|u| self.cell_number(u) * self.crystal.sites.len() + site)
     }
 
     /// The cluster site or bond an entity anchored in cell `cell` refers to, if it lies inside.
     pub fn locate(&self, entity: Entity, cell: [usize; 3]) -> Option<ClusterEntity> {
         let base = [cell[0] as i64, cell[1] as i64, cell[2] as i64];
         match entity {
-            Entity::Site { site, shift } => self.site_at(site, base, shift).map(ClusterEntity::Site),
+            Entity::Site { site, shift } => {
+                self.site_at(site, base, shift).map(ClusterEntity::Site)
+            }
             Entity::Bond { bond, shift } => {
                 let u = self.wrap(base, shift)?;
-                self.bond_index[self.cell_number(u) * self.crystal.bonds.len() + bond].map(ClusterEntity::Bond)
+                self.bond_index[self.cell_number(u) * self.crystal.bonds.len() + bond]
+                    .map(ClusterEntity::Bond)
             }
         }
     }
@@ -237,9 +285,11 @@ impl<'c> Cluster<'c> {
         use crate::crystal::UnitBasis;
         match &self.crystal.formula_unit.basis {
             UnitBasis::Sites(None) => self.sites.len() as f64,
-            UnitBasis::Sites(Some(sp)) => {
-                self.sites.iter().filter(|s| self.crystal.sites[s.site].matches(sp)).count() as f64
-            }
+            UnitBasis::Sites(Some(sp)) => self
+                .sites
+                .iter()
+                .filter(|s| self.crystal.sites[s.site].matches(sp))
+                .count() as f64,
             UnitBasis::Bonds => self.bonds.len() as f64,
             UnitBasis::Cell(n) => n * self.cells.total() as f64,
         }

@@ -342,7 +342,8 @@ fn norm(a: [f64; 3]) -> f64 {
 }
 
 fn determinant(m: &[[f64; 3]; 3]) -> f64 {
-    m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1]) - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+    m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+        - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
         + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
 }
 
@@ -427,7 +428,10 @@ impl Crystal {
         // Sites.
         let mut sites: Vec<Site> = Vec::new();
         if spec.sites.is_empty() {
-            return ck.err(Position::default(), "the file lists no sites; expected at least one");
+            return ck.err(
+                Position::default(),
+                "the file lists no sites; expected at least one",
+            );
         }
         for s in &spec.sites {
             if sites.iter().any(|o| o.id == s.id.value) {
@@ -557,7 +561,10 @@ impl Crystal {
                     );
                 };
                 if between.value.len() != 2 {
-                    return ck.at(between, "`between` must name exactly two species or site ids");
+                    return ck.at(
+                        between,
+                        "`between` must name exactly two species or site ids",
+                    );
                 }
                 for name in &between.value {
                     if !crystal.sites.iter().any(|s| s.matches(name)) {
@@ -624,7 +631,11 @@ impl Crystal {
         }
         for (i, b) in bonds.iter().enumerate() {
             if bonds[..i].iter().any(|o| o.id == b.id) {
-                let spec_bond = spec.bonds.iter().find(|s| s.id.value == b.id).unwrap_or(&spec.bonds[0]);
+                let spec_bond = spec
+                    .bonds
+                    .iter()
+                    .find(|s| s.id.value == b.id)
+                    .unwrap_or(&spec.bonds[0]);
                 return ck.at(&spec_bond.id, format!("bond id '{}' is used twice", b.id));
             }
             let same = |o: &Bond| {
@@ -632,10 +643,17 @@ impl Crystal {
                     || (o.from == b.to && o.to == b.from && o.shift == sub_shift([0; 3], b.shift))
             };
             if let Some(o) = bonds[..i].iter().find(|o| same(o)) {
-                let spec_bond = spec.bonds.iter().find(|s| s.id.value == b.id).unwrap_or(&spec.bonds[0]);
+                let spec_bond = spec
+                    .bonds
+                    .iter()
+                    .find(|s| s.id.value == b.id)
+                    .unwrap_or(&spec.bonds[0]);
                 return ck.at(
                     &spec_bond.id,
-                    format!("bond '{}' repeats bond '{}' (same sites and shift)", b.id, o.id),
+                    format!(
+                        "bond '{}' repeats bond '{}' (same sites and shift)",
+                        b.id, o.id
+                    ),
                 );
             }
         }
@@ -643,27 +661,50 @@ impl Crystal {
 
         // Groups.
         for g in &spec.groups {
-            if crystal.groups.iter().any(|o| o.id == g.id.value) || ["sites", "bonds"].contains(&g.id.value.as_str()) {
-                return ck.at(&g.id, format!("group id '{}' is used twice or is a reserved word", g.id.value));
+            if crystal.groups.iter().any(|o| o.id == g.id.value)
+                || ["sites", "bonds"].contains(&g.id.value.as_str())
+            {
+                return ck.at(
+                    &g.id,
+                    format!(
+                        "group id '{}' is used twice or is a reserved word",
+                        g.id.value
+                    ),
+                );
             }
             let mut members = Vec::new();
             for m in &g.members.value {
                 let s = site_index(&m.site)?;
                 let shift = read_shift(&m.shift, &format!("a member of group '{}'", g.id.value))?;
                 if members.contains(&(s, shift)) {
-                    return ck.at(&m.site, format!("group '{}' lists site '{}' with the same shift twice", g.id.value, m.site.value));
+                    return ck.at(
+                        &m.site,
+                        format!(
+                            "group '{}' lists site '{}' with the same shift twice",
+                            g.id.value, m.site.value
+                        ),
+                    );
                 }
                 members.push((s, shift));
             }
             if members.len() < 2 {
-                return ck.at(&g.members, format!("group '{}' needs at least two members", g.id.value));
+                return ck.at(
+                    &g.members,
+                    format!("group '{}' needs at least two members", g.id.value),
+                );
             }
-            crystal.groups.push(Group { id: g.id.value.clone(), members });
+            crystal.groups.push(Group {
+                id: g.id.value.clone(),
+                members,
+            });
         }
 
         // Variables.
         if spec.variables.is_empty() {
-            return ck.err(Position::default(), "the file declares no variables; expected e.g. `- {on: bonds, kind: arrow}`");
+            return ck.err(
+                Position::default(),
+                "the file declares no variables; expected e.g. `- {on: bonds, kind: arrow}`",
+            );
         }
         for v in &spec.variables {
             let kind = match v.kind.value.as_str() {
@@ -675,30 +716,47 @@ impl Crystal {
                     Some(q) => return ck.at(q, "a color variable needs `states` of at least 2"),
                     None => return ck.at(&v.kind, "a color variable needs `states: q` (q >= 2)"),
                 },
-                other => {
-                    return ck.at(
-                        &v.kind,
-                        format!("unknown variable kind '{other}'; expected arrow, spin, occupancy or color"),
-                    )
-                }
+                other => return ck.at(
+                    &v.kind,
+                    format!(
+                        "unknown variable kind '{other}'; expected arrow, spin, occupancy or color"
+                    ),
+                ),
             };
             if let (Some(q), false) = (&v.states, matches!(kind, VariableKind::Color(_))) {
                 if q.value != 2 {
-                    return ck.at(q, format!("a {} variable has 2 states; `states` applies to color variables", kind.word()));
+                    return ck.at(
+                        q,
+                        format!(
+                            "a {} variable has 2 states; `states` applies to color variables",
+                            kind.word()
+                        ),
+                    );
                 }
             }
             let slot = match v.on.value.as_str() {
                 "sites" => &mut crystal.site_variables,
                 "bonds" => &mut crystal.bond_variables,
-                other => return ck.at(&v.on, format!("variables live `on: sites` or `on: bonds`, found '{other}'")),
+                other => {
+                    return ck.at(
+                        &v.on,
+                        format!("variables live `on: sites` or `on: bonds`, found '{other}'"),
+                    );
+                }
             };
             if slot.is_some() {
-                return ck.at(&v.on, format!("variables on {} are declared twice", v.on.value));
+                return ck.at(
+                    &v.on,
+                    format!("variables on {} are declared twice", v.on.value),
+                );
             }
             *slot = Some(kind);
         }
         if crystal.bond_variables.is_some() && crystal.bonds.is_empty() {
-            return ck.at(&spec.variables[0].on, "variables are declared on bonds but the file has no bonds");
+            return ck.at(
+                &spec.variables[0].on,
+                "variables are declared on bonds but the file has no bonds",
+            );
         }
         if crystal.site_variables == Some(VariableKind::Arrow) {
             if let Some(s) = spec.sites.iter().find(|s| s.axis.is_none()) {
@@ -708,7 +766,10 @@ impl Crystal {
 
         // Rules.
         if spec.rules.is_empty() {
-            return ck.err(Position::default(), "the file lists no rules; expected at least one");
+            return ck.err(
+                Position::default(),
+                "the file lists no rules; expected at least one",
+            );
         }
         for r in &spec.rules {
             let rule = crystal.validate_rule(r, &ck)?;
@@ -736,11 +797,24 @@ impl Crystal {
             }
             "cell" => match &fu.count {
                 Some(c) if c.value > 0.0 && c.value.is_finite() => UnitBasis::Cell(c.value),
-                Some(c) => return ck.at(c, "`count` must be a positive number of formula units per cell"),
-                None => return ck.at(&fu.per, "`per: cell` needs `count: N` (formula units per cell)"),
+                Some(c) => {
+                    return ck.at(
+                        c,
+                        "`count` must be a positive number of formula units per cell",
+                    );
+                }
+                None => {
+                    return ck.at(
+                        &fu.per,
+                        "`per: cell` needs `count: N` (formula units per cell)",
+                    );
+                }
             },
             other => {
-                return ck.at(&fu.per, format!("formula_unit.per must be sites, bonds or cell, found '{other}'"))
+                return ck.at(
+                    &fu.per,
+                    format!("formula_unit.per must be sites, bonds or cell, found '{other}'"),
+                );
             }
         };
         if fu.species.is_some() && !matches!(basis, UnitBasis::Sites(_)) {
@@ -772,7 +846,8 @@ impl Crystal {
         }
         let pair_ok = |i: usize, j: usize| {
             let (a, b) = (&self.sites[i], &self.sites[j]);
-            (a.matches(&between[0]) && b.matches(&between[1])) || (a.matches(&between[1]) && b.matches(&between[0]))
+            (a.matches(&between[0]) && b.matches(&between[1]))
+                || (a.matches(&between[1]) && b.matches(&between[0]))
         };
         let mut out = Vec::new();
         for i in 0..self.sites.len() {
@@ -815,14 +890,23 @@ impl Crystal {
                 if bond.from == s {
                     let other = (bond.to, add_shift(m, bond.shift));
                     if !members.contains(&other) {
-                        slots.push(Slot { entity: Entity::Bond { bond: b, shift: m }, inward_state: 0 });
+                        slots.push(Slot {
+                            entity: Entity::Bond { bond: b, shift: m },
+                            inward_state: 0,
+                        });
                     }
                 }
                 if bond.to == s {
                     let cell = sub_shift(m, bond.shift);
                     let other = (bond.from, cell);
                     if !members.contains(&other) {
-                        slots.push(Slot { entity: Entity::Bond { bond: b, shift: cell }, inward_state: 1 });
+                        slots.push(Slot {
+                            entity: Entity::Bond {
+                                bond: b,
+                                shift: cell,
+                            },
+                            inward_state: 1,
+                        });
                     }
                 }
             }
@@ -832,14 +916,29 @@ impl Crystal {
 
     /// Neighbouring site occurrences of a site (one per bond end).
     fn neighbour_slots(&self, s: usize) -> Vec<Slot> {
-        let mut slots = vec![Slot { entity: Entity::Site { site: s, shift: [0; 3] }, inward_state: 0 }];
+        let mut slots = vec![Slot {
+            entity: Entity::Site {
+                site: s,
+                shift: [0; 3],
+            },
+            inward_state: 0,
+        }];
         for bond in &self.bonds {
             if bond.from == s {
-                slots.push(Slot { entity: Entity::Site { site: bond.to, shift: bond.shift }, inward_state: 0 });
+                slots.push(Slot {
+                    entity: Entity::Site {
+                        site: bond.to,
+                        shift: bond.shift,
+                    },
+                    inward_state: 0,
+                });
             }
             if bond.to == s {
                 slots.push(Slot {
-                    entity: Entity::Site { site: bond.from, shift: sub_shift([0; 3], bond.shift) },
+                    entity: Entity::Site {
+                        site: bond.from,
+                        shift: sub_shift([0; 3], bond.shift),
+                    },
                     inward_state: 0,
                 });
             }
@@ -872,7 +971,11 @@ impl Crystal {
                         &r.at,
                         format!(
                             "unknown scope '{g}'; expected sites, bonds or a group id{}",
-                            if known.is_empty() { " (the file defines no groups)".to_string() } else { format!(" ({})", known.join(", ")) }
+                            if known.is_empty() {
+                                " (the file defines no groups)".to_string()
+                            } else {
+                                format!(" ({})", known.join(", "))
+                            }
                         ),
                     );
                 }
@@ -914,7 +1017,9 @@ impl Crystal {
         let fits = match kind {
             RuleKind::Inward => var_kind == VariableKind::Arrow,
             RuleKind::Occupied => var_kind == VariableKind::Occupancy,
-            RuleKind::NotAllEqual | RuleKind::Distinct => matches!(var_kind, VariableKind::Spin | VariableKind::Color(_)),
+            RuleKind::NotAllEqual | RuleKind::Distinct => {
+                matches!(var_kind, VariableKind::Spin | VariableKind::Color(_))
+            }
             RuleKind::Table => true,
         };
         if !fits {
@@ -933,7 +1038,8 @@ impl Crystal {
                 ),
             );
         }
-        if kind == RuleKind::Inward && target == Target::Sites && !matches!(scope, Scope::Group(_)) {
+        if kind == RuleKind::Inward && target == Target::Sites && !matches!(scope, Scope::Group(_))
+        {
             return ck.at(&r.at, "an inward rule on arrows that sit on sites needs a group scope (the arrow points into or out of the group)");
         }
         if kind == RuleKind::Table && (target == Target::Bonds || scope == Scope::Sites) {
@@ -947,7 +1053,10 @@ impl Crystal {
             }
             for name in &o.value {
                 if !self.sites.iter().any(|s| s.matches(name)) {
-                    return ck.at(o, format!("`only` names '{name}', which is no site id or species"));
+                    return ck.at(
+                        o,
+                        format!("`only` names '{name}', which is no site id or species"),
+                    );
                 }
             }
             only = Some(o.value.clone());
@@ -957,14 +1066,21 @@ impl Crystal {
         match &scope {
             Scope::Sites => {
                 for (i, site) in self.sites.iter().enumerate() {
-                    if only.as_ref().is_some_and(|o| !o.iter().any(|n| site.matches(n))) {
+                    if only
+                        .as_ref()
+                        .is_some_and(|o| !o.iter().any(|n| site.matches(n)))
+                    {
                         continue;
                     }
                     let slots = match target {
                         Target::Bonds => self.boundary_bond_slots(&[(i, [0; 3])]),
                         Target::Sites => self.neighbour_slots(i),
                     };
-                    instances.push(Instance { label: format!("site {}", site.id), slots, when_cut: WhenCut::DropSlots });
+                    instances.push(Instance {
+                        label: format!("site {}", site.id),
+                        slots,
+                        when_cut: WhenCut::DropSlots,
+                    });
                 }
             }
             Scope::Bonds => {
@@ -973,11 +1089,27 @@ impl Crystal {
                 }
                 for (b, bond) in self.bonds.iter().enumerate() {
                     let slots = vec![
-                        Slot { entity: Entity::Site { site: bond.from, shift: [0; 3] }, inward_state: 0 },
-                        Slot { entity: Entity::Site { site: bond.to, shift: bond.shift }, inward_state: 0 },
+                        Slot {
+                            entity: Entity::Site {
+                                site: bond.from,
+                                shift: [0; 3],
+                            },
+                            inward_state: 0,
+                        },
+                        Slot {
+                            entity: Entity::Site {
+                                site: bond.to,
+                                shift: bond.shift,
+                            },
+                            inward_state: 0,
+                        },
                     ];
                     let _ = b;
-                    instances.push(Instance { label: format!("bond {}", bond.id), slots, when_cut: WhenCut::DropInstance });
+                    instances.push(Instance {
+                        label: format!("bond {}", bond.id),
+                        slots,
+                        when_cut: WhenCut::DropInstance,
+                    });
                 }
             }
             Scope::Group(g) => {
@@ -985,7 +1117,11 @@ impl Crystal {
                 let slots = match (target, kind) {
                     (Target::Bonds, _) => self.boundary_bond_slots(&group.members),
                     (Target::Sites, RuleKind::Inward) => {
-                        let pos: Vec<[f64; 3]> = group.members.iter().map(|&(s, m)| self.cartesian(s, m)).collect();
+                        let pos: Vec<[f64; 3]> = group
+                            .members
+                            .iter()
+                            .map(|&(s, m)| self.cartesian(s, m))
+                            .collect();
                         let n = pos.len() as f64;
                         let centre = [0, 1, 2].map(|c| pos.iter().map(|p| p[c]).sum::<f64>() / n);
                         let mut slots = Vec::new();
@@ -1003,17 +1139,27 @@ impl Crystal {
                                     ),
                                 );
                             }
-                            slots.push(Slot { entity: Entity::Site { site: s, shift: m }, inward_state: if d > 0.0 { 0 } else { 1 } });
+                            slots.push(Slot {
+                                entity: Entity::Site { site: s, shift: m },
+                                inward_state: if d > 0.0 { 0 } else { 1 },
+                            });
                         }
                         slots
                     }
                     (Target::Sites, _) => group
                         .members
                         .iter()
-                        .map(|&(s, m)| Slot { entity: Entity::Site { site: s, shift: m }, inward_state: 0 })
+                        .map(|&(s, m)| Slot {
+                            entity: Entity::Site { site: s, shift: m },
+                            inward_state: 0,
+                        })
                         .collect(),
                 };
-                instances.push(Instance { label: format!("group {}", group.id), slots, when_cut: WhenCut::DropInstance });
+                instances.push(Instance {
+                    label: format!("group {}", group.id),
+                    slots,
+                    when_cut: WhenCut::DropInstance,
+                });
             }
         }
         if instances.is_empty() {
@@ -1027,13 +1173,19 @@ impl Crystal {
         match kind {
             RuleKind::Inward | RuleKind::Occupied => {
                 let Some(allowed) = &r.allowed else {
-                    return ck.at(&r.kind, format!("rule '{}' needs `allowed: [counts]`", kind.word()));
+                    return ck.at(
+                        &r.kind,
+                        format!("rule '{}' needs `allowed: [counts]`", kind.word()),
+                    );
                 };
                 let AllowedSpec::Counts(c) = &allowed.value else {
                     return ck.at(allowed, "`allowed` must be a list of counts, e.g. [2]");
                 };
                 if c.is_empty() {
-                    return ck.at(allowed, "`allowed` is empty: no arrangement would be allowed");
+                    return ck.at(
+                        allowed,
+                        "`allowed` is empty: no arrangement would be allowed",
+                    );
                 }
                 counts = c.clone();
                 for inst in &instances {
@@ -1060,23 +1212,39 @@ impl Crystal {
                 let Some(allowed) = &r.allowed else {
                     return ck.at(&r.kind, "a table rule needs `allowed: [[tuple], ...]`");
                 };
-                let list: Vec<Vec<u32>> = match &allowed.value {
-                    AllowedSpec::Tuples(t) => t.clone(),
-                    AllowedSpec::Counts(c) if c.is_empty() => Vec::new(),
-                    AllowedSpec::Counts(_) => return ck.at(allowed, "a table rule's `allowed` is a list of tuples, e.g. [[0, 1], [1, 0]]"),
-                };
+                let list: Vec<Vec<u32>> =
+                    match &allowed.value {
+                        AllowedSpec::Tuples(t) => t.clone(),
+                        AllowedSpec::Counts(c) if c.is_empty() => Vec::new(),
+                        AllowedSpec::Counts(_) => return ck.at(
+                            allowed,
+                            "a table rule's `allowed` is a list of tuples, e.g. [[0, 1], [1, 0]]",
+                        ),
+                    };
                 let width = instances[0].slots.len();
                 for t in &list {
                     if t.len() != width {
-                        return ck.at(allowed, format!("tuple {t:?} has {} values; the scope has {width}", t.len()));
+                        return ck.at(
+                            allowed,
+                            format!("tuple {t:?} has {} values; the scope has {width}", t.len()),
+                        );
                     }
                     if let Some(v) = t.iter().find(|&&v| v >= states) {
-                        return ck.at(allowed, format!("value {v} in tuple {t:?} is not a state (0..{})", states - 1));
+                        return ck.at(
+                            allowed,
+                            format!(
+                                "value {v} in tuple {t:?} is not a state (0..{})",
+                                states - 1
+                            ),
+                        );
                     }
                     tuples.insert(t.clone());
                 }
                 if tuples.is_empty() {
-                    return ck.at(allowed, "`allowed` is empty: no arrangement would be allowed");
+                    return ck.at(
+                        allowed,
+                        "`allowed` is empty: no arrangement would be allowed",
+                    );
                 }
             }
             RuleKind::NotAllEqual | RuleKind::Distinct => {
@@ -1097,7 +1265,16 @@ impl Crystal {
                 }
             }
         }
-        Ok(Rule { kind, scope, target, counts, tuples, instances, position: position_of(&r.kind), label })
+        Ok(Rule {
+            kind,
+            scope,
+            target,
+            counts,
+            tuples,
+            instances,
+            position: position_of(&r.kind),
+            label,
+        })
     }
 
     /// The largest absolute cell shift used by any bond, group or rule instance.
@@ -1111,7 +1288,9 @@ impl Crystal {
                 for s in &inst.slots {
                     let ends = match s.entity {
                         Entity::Site { shift, .. } => [shift, shift],
-                        Entity::Bond { bond, shift } => [shift, add_shift(shift, self.bonds[bond].shift)],
+                        Entity::Bond { bond, shift } => {
+                            [shift, add_shift(shift, self.bonds[bond].shift)]
+                        }
                     };
                     for sh in ends {
                         r = r.max(sh.iter().map(|x| x.abs()).max().unwrap_or(0));

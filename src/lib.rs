@@ -77,11 +77,18 @@ impl Lattice {
 
     fn from_spec(spec: spec::LatticeSpec, path: &Path, text: &str) -> Result<Lattice> {
         let crystal = crystal::Crystal::from_spec(spec, path)?;
-        Ok(Lattice { crystal, content_hash: fnv1a(text) })
+        Ok(Lattice {
+            crystal,
+            content_hash: fnv1a(text),
+        })
     }
 
     /// Tile, compile and count one cell exactly.
-    pub fn count_exact(&self, cells: &cluster::Cells, config: &counters::exact::ExactConfig) -> Result<Estimate> {
+    pub fn count_exact(
+        &self,
+        cells: &cluster::Cells,
+        config: &counters::exact::ExactConfig,
+    ) -> Result<Estimate> {
         let cluster = cluster::Cluster::new(&self.crystal, cells.clone())?;
         let model = model::Model::new(&cluster)?;
         counters::exact::count(&model, config)

@@ -91,13 +91,19 @@ impl Model {
         if let Some(q) = site_var {
             site_offset = Some(variables.len());
             for i in 0..cluster.sites.len() {
-                variables.push(Variable { states: q, position: cluster.site_position(i) });
+                variables.push(Variable {
+                    states: q,
+                    position: cluster.site_position(i),
+                });
             }
         }
         if let Some(q) = bond_var {
             bond_offset = Some(variables.len());
             for i in 0..cluster.bonds.len() {
-                variables.push(Variable { states: q, position: cluster.bond_position(i) });
+                variables.push(Variable {
+                    states: q,
+                    position: cluster.bond_position(i),
+                });
             }
         }
         let mut tables: Vec<Table> = Vec::new();
@@ -112,8 +118,12 @@ impl Model {
                     let mut occ: Vec<(usize, u32)> = Vec::with_capacity(inst.slots.len());
                     for slot in &inst.slots {
                         let var = match (cluster.locate(slot.entity, cell), rule.target) {
-                            (Some(ClusterEntity::Site(i)), Target::Sites) => site_offset.map(|o| o + i),
-                            (Some(ClusterEntity::Bond(i)), Target::Bonds) => bond_offset.map(|o| o + i),
+                            (Some(ClusterEntity::Site(i)), Target::Sites) => {
+                                site_offset.map(|o| o + i)
+                            }
+                            (Some(ClusterEntity::Bond(i)), Target::Bonds) => {
+                                bond_offset.map(|o| o + i)
+                            }
                             (None, _) => None,
                             _ => unreachable!("slots follow the rule's target"),
                         };
@@ -148,11 +158,18 @@ impl Model {
                     };
                     if scope.is_empty() {
                         if tables[table].allowed == 0 && contradiction.is_none() {
-                            contradiction = Some(format!("{} ({}) has no variables left and cannot be satisfied", inst.label, rule.label));
+                            contradiction = Some(format!(
+                                "{} ({}) has no variables left and cannot be satisfied",
+                                inst.label, rule.label
+                            ));
                         }
                         continue;
                     }
-                    constraints.push(Constraint { scope, table, rule: r });
+                    constraints.push(Constraint {
+                        scope,
+                        table,
+                        rule: r,
+                    });
                 }
             }
         }
@@ -180,7 +197,11 @@ fn compile_table(
     radices: &[u32],
     label: &str,
 ) -> Result<Table> {
-    let size: u64 = radices.iter().map(|&q| q as u64).try_fold(1u64, |a, q| a.checked_mul(q)).unwrap_or(u64::MAX);
+    let size: u64 = radices
+        .iter()
+        .map(|&q| q as u64)
+        .try_fold(1u64, |a, q| a.checked_mul(q))
+        .unwrap_or(u64::MAX);
     if size > MAX_TABLE {
         return Err(Error::Model(format!(
             "rule '{}' at {label} has {size} local assignments (more than {MAX_TABLE}); split it into smaller rules",
@@ -207,5 +228,10 @@ fn compile_table(
             allowed += 1;
         }
     }
-    Ok(Table { radices: radices.to_vec(), bits, allowed, size })
+    Ok(Table {
+        radices: radices.to_vec(),
+        bits,
+        allowed,
+        size,
+    })
 }

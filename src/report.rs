@@ -18,7 +18,10 @@ pub struct Table {
 impl Table {
     /// A table with these column headings.
     pub fn new(header: &[&str]) -> Table {
-        Table { header: header.iter().map(|s| s.to_string()).collect(), rows: Vec::new() }
+        Table {
+            header: header.iter().map(|s| s.to_string()).collect(),
+            rows: Vec::new(),
+        }
     }
     /// Append a row.
     pub fn row(&mut self, cells: Vec<String>) {
@@ -34,11 +37,20 @@ impl Table {
             }
         }
         let line = |r: &Vec<String>| {
-            let cells: Vec<String> = r.iter().zip(&width).map(|(c, w)| format!("{c:<w$}")).collect();
+            let cells: Vec<String> = r
+                .iter()
+                .zip(&width)
+                .map(|(c, w)| format!("{c:<w$}"))
+                .collect();
             cells.join("  ").trim_end().to_string() + "\n"
         };
         let mut out = line(&self.header);
-        out += &(width.iter().map(|w| "-".repeat(*w)).collect::<Vec<_>>().join("  ") + "\n");
+        out += &(width
+            .iter()
+            .map(|w| "-".repeat(*w))
+            .collect::<Vec<_>>()
+            .join("  ")
+            + "\n");
         for r in &self.rows {
             out += &line(r);
         }
@@ -47,7 +59,11 @@ impl Table {
     /// Render as CSV (header first).
     pub fn render_csv(&self) -> String {
         let esc = |c: &String| {
-            if c.contains([',', '"', '\n']) { format!("\"{}\"", c.replace('"', "\"\"")) } else { c.clone() }
+            if c.contains([',', '"', '\n']) {
+                format!("\"{}\"", c.replace('"', "\"\""))
+            } else {
+                c.clone()
+            }
         };
         std::iter::once(&self.header)
             .chain(&self.rows)
@@ -68,7 +84,13 @@ impl Table {
 /// A number with `digits` significant digits, plain notation where it reads well.
 pub fn sig(x: f64, digits: usize) -> String {
     if !x.is_finite() {
-        return if x.is_nan() { "n/a".into() } else if x > 0.0 { "inf".into() } else { "-inf".into() };
+        return if x.is_nan() {
+            "n/a".into()
+        } else if x > 0.0 {
+            "inf".into()
+        } else {
+            "-inf".into()
+        };
     }
     if x == 0.0 {
         return "0".into();
@@ -92,12 +114,25 @@ pub fn method_label(e: &Estimate) -> String {
 /// One row per estimate: method, cell, formula units, count, W, S0/R, S0 in J/(mol K), time.
 pub fn comparison_table(estimates: &[Estimate], unit: &str) -> Table {
     let w_head = format!("W per {unit}");
-    let mut t = Table::new(&["method", "cell", "formula units", "count", &w_head, "S0/R", "S0 J/(mol K)", "time s"]);
+    let mut t = Table::new(&[
+        "method",
+        "cell",
+        "formula units",
+        "count",
+        &w_head,
+        "S0/R",
+        "S0 J/(mol K)",
+        "time s",
+    ]);
     for e in estimates {
         let count = match &e.count {
             Some(c) => {
                 let s = c.to_string();
-                if s.len() > 20 { format!("{}…e{}", &s[..6], s.len() - 1) } else { s }
+                if s.len() > 20 {
+                    format!("{}…e{}", &s[..6], s.len() - 1)
+                } else {
+                    s
+                }
             }
             None => "—".into(),
         };
@@ -108,7 +143,11 @@ pub fn comparison_table(estimates: &[Estimate], unit: &str) -> Table {
         t.row(vec![
             method_label(e),
             e.cells.clone().unwrap_or_else(|| "infinite crystal".into()),
-            if e.cells.is_some() { sig(e.formula_units, 6) } else { "—".into() },
+            if e.cells.is_some() {
+                sig(e.formula_units, 6)
+            } else {
+                "—".into()
+            },
             count,
             pm(sig(e.w_per_unit(), 10), e.sigma_w()),
             pm(sig(e.s_over_r(), 8), e.sigma_ln_w),

@@ -37,7 +37,11 @@ fn cell_sequence(dimensions: usize) -> impl Iterator<Item = Cells> {
             2 => vec![[n, n, 1]],
             _ => vec![[n, n, n], [n + 1, n, n], [n + 1, n + 1, n]],
         };
-        shapes.into_iter().map(move |counts| Cells { counts, periodic: [true; 3], dimensions })
+        shapes.into_iter().map(move |counts| Cells {
+            counts,
+            periodic: [true; 3],
+            dimensions,
+        })
     })
 }
 
@@ -64,15 +68,24 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         if args.common.progress() {
             eprintln!("counting {cells} ({} variables)…", model.variables.len());
         }
-        let config = exact::ExactConfig { max_states: args.max_states, deadline: Some(deadline) };
+        let config = exact::ExactConfig {
+            max_states: args.max_states,
+            deadline: Some(deadline),
+        };
         match with_threads(args.common.threads, || exact::count(&model, &config))? {
             Ok(e) => rows.push(e),
             Err(Error::Deadline { cells }) => {
-                stopped = format!("the time budget of {} s ran out while counting {cells}", args.budget);
+                stopped = format!(
+                    "the time budget of {} s ran out while counting {cells}",
+                    args.budget
+                );
                 break;
             }
             Err(Error::Budget { cells, .. }) => {
-                stopped = format!("{cells} needs more than {} frontier states", args.max_states);
+                stopped = format!(
+                    "{cells} needs more than {} frontier states",
+                    args.max_states
+                );
                 break;
             }
             Err(e) => return Err(e.into()),
@@ -100,7 +113,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         Format::Table => {
             let mut out = String::new();
             writeln!(out, "{} ({})", c.name, shown(&args.file))?;
-            writeln!(out, "formula unit {unit} ({}); S0 = R ln W per mole of {unit}", c.formula_unit.describe())?;
+            writeln!(
+                out,
+                "formula unit {unit} ({}); S0 = R ln W per mole of {unit}",
+                c.formula_unit.describe()
+            )?;
             writeln!(out)?;
             out += &report::comparison_table(&rows, &unit).render();
             writeln!(out)?;

@@ -35,9 +35,17 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let p = pauling::estimate(c)?;
     let cluster = Cluster::new(c, cells)?;
     let model = Model::new(&cluster)?;
-    let config = exact::ExactConfig { max_states: args.max_states, deadline: None };
+    let config = exact::ExactConfig {
+        max_states: args.max_states,
+        deadline: None,
+    };
     if args.common.progress() {
-        eprintln!("counting {} ({} variables, {} constraints)…", model.cells, model.variables.len(), model.constraints.len());
+        eprintln!(
+            "counting {} ({} variables, {} constraints)…",
+            model.cells,
+            model.variables.len(),
+            model.constraints.len()
+        );
     }
     let e = with_threads(args.common.threads, || exact::count(&model, &config))??;
     let unit = &c.formula_unit.name;
@@ -53,7 +61,13 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         Format::Markdown => Ok(report::comparison_table(&[p, e], unit).render_markdown()),
         Format::Table => {
             let mut out = String::new();
-            writeln!(out, "{} ({}), cell {}", c.name, shown(&Some(args.file.clone())), e.cells.as_deref().unwrap_or(""))?;
+            writeln!(
+                out,
+                "{} ({}), cell {}",
+                c.name,
+                shown(&Some(args.file.clone())),
+                e.cells.as_deref().unwrap_or("")
+            )?;
             writeln!(
                 out,
                 "{} variables, {} constraints, {} formula units of {unit}",
@@ -67,7 +81,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             writeln!(out, "ln(arrangements)      {}", sig(e.ln_count, 12))?;
             writeln!(out, "W per {unit:<15} {}", sig(e.w_per_unit(), 12))?;
             writeln!(out, "S0/R per {unit:<12} {}", sig(e.s_over_r(), 12))?;
-            writeln!(out, "S0                    {} J/(mol K) per mole of {unit}", sig(e.s_j_per_mol_k(), 8))?;
+            writeln!(
+                out,
+                "S0                    {} J/(mol K) per mole of {unit}",
+                sig(e.s_j_per_mol_k(), 8)
+            )?;
             writeln!(
                 out,
                 "Pauling (infinite)    W = {} per {unit}, S0 = {} J/(mol K)",
@@ -82,7 +100,10 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 e.peak_states.unwrap_or(0)
             )?;
             if model.has_repeats {
-                writeln!(out, "note: the cell is so small that some rule reads one variable twice (a bond wraps onto itself); the count is exact for this torus but far from the infinite crystal")?;
+                writeln!(
+                    out,
+                    "note: the cell is so small that some rule reads one variable twice (a bond wraps onto itself); the count is exact for this torus but far from the infinite crystal"
+                )?;
             }
             Ok(out)
         }

@@ -40,7 +40,10 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 .iter()
                 .position(|x| x.site == s && x.cell == centre)
                 .expect("every site exists in every cell");
-            cluster.graph.edges(petgraph::graph::NodeIndex::new(i)).count()
+            cluster
+                .graph
+                .edges(petgraph::graph::NodeIndex::new(i))
+                .count()
         })
         .collect();
     let unit = &c.formula_unit.name;
@@ -68,22 +71,45 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     }
     writeln!(out)?;
     let names = ["a", "b", "c"];
-    writeln!(out, "cell ({}D, {} {:.4}):", c.dimensions, ["length", "area", "volume"][c.dimensions - 1], c.cell_measure())?;
+    writeln!(
+        out,
+        "cell ({}D, {} {:.4}):",
+        c.dimensions,
+        ["length", "area", "volume"][c.dimensions - 1],
+        c.cell_measure()
+    )?;
     for k in 0..c.dimensions {
-        let v: Vec<String> = c.vectors[k][..c.dimensions].iter().map(|x| sig(*x, 6)).collect();
+        let v: Vec<String> = c.vectors[k][..c.dimensions]
+            .iter()
+            .map(|x| sig(*x, 6))
+            .collect();
         writeln!(out, "  {} = [{}]", names[k], v.join(", "))?;
     }
     let mut t = report::Table::new(&["site", "species", "fractional position", "coordination"]);
     for (s, k) in c.sites.iter().zip(&coordination) {
         let f: Vec<String> = s.frac[..c.dimensions].iter().map(|x| sig(*x, 6)).collect();
-        t.row(vec![s.id.clone(), s.species.clone(), format!("[{}]", f.join(", ")), k.to_string()]);
+        t.row(vec![
+            s.id.clone(),
+            s.species.clone(),
+            format!("[{}]", f.join(", ")),
+            k.to_string(),
+        ]);
     }
     writeln!(out, "\n{} sites per cell:\n{}", c.sites.len(), t.render())?;
     if !c.bonds.is_empty() {
         let mut t = report::Table::new(&["bond", "from", "to", "shift", "length"]);
         for b in &c.bonds {
-            let sh: Vec<String> = b.shift[..c.dimensions].iter().map(|x| x.to_string()).collect();
-            t.row(vec![b.id.clone(), c.sites[b.from].id.clone(), c.sites[b.to].id.clone(), format!("[{}]", sh.join(", ")), sig(b.length, 6)]);
+            let sh: Vec<String> = b.shift[..c.dimensions]
+                .iter()
+                .map(|x| x.to_string())
+                .collect();
+            t.row(vec![
+                b.id.clone(),
+                c.sites[b.from].id.clone(),
+                c.sites[b.to].id.clone(),
+                format!("[{}]", sh.join(", ")),
+                sig(b.length, 6),
+            ]);
         }
         writeln!(out, "{} bonds per cell:\n{}", c.bonds.len(), t.render())?;
     }
@@ -93,16 +119,39 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     if !c.groups.is_empty() {
         writeln!(out)?;
     }
-    for (target, kind) in [(Target::Sites, c.site_variables), (Target::Bonds, c.bond_variables)] {
+    for (target, kind) in [
+        (Target::Sites, c.site_variables),
+        (Target::Bonds, c.bond_variables),
+    ] {
         if let Some(k) = kind {
-            writeln!(out, "variables: {} on {} ({} states)", k.word(), target.word(), k.states())?;
+            writeln!(
+                out,
+                "variables: {} on {} ({} states)",
+                k.word(),
+                target.word(),
+                k.states()
+            )?;
         }
     }
     for r in &c.rules {
-        let allowed = if r.counts.is_empty() { String::new() } else { format!(", allowed {:?}", r.counts) };
-        writeln!(out, "rule: {}{allowed} ({} per cell)", r.label, r.instances.len())?;
+        let allowed = if r.counts.is_empty() {
+            String::new()
+        } else {
+            format!(", allowed {:?}", r.counts)
+        };
+        writeln!(
+            out,
+            "rule: {}{allowed} ({} per cell)",
+            r.label,
+            r.instances.len()
+        )?;
     }
-    writeln!(out, "formula unit: {unit}, {} ({} per cell)", c.formula_unit.describe(), sig(units_per_cell, 6))?;
+    writeln!(
+        out,
+        "formula unit: {unit}, {} ({} per cell)",
+        c.formula_unit.describe(),
+        sig(units_per_cell, 6)
+    )?;
     writeln!(out)?;
     writeln!(
         out,

@@ -102,12 +102,18 @@ pub fn run() -> i32 {
 fn load(file: Option<&Path>) -> anyhow::Result<Lattice> {
     Ok(match file {
         Some(p) => Lattice::from_file(p)?,
-        None => Lattice::from_yaml(groundcount::ICE_IH_YAML, groundcount::spec::embedded_path("ice-ih.yaml"))?,
+        None => Lattice::from_yaml(
+            groundcount::ICE_IH_YAML,
+            groundcount::spec::embedded_path("ice-ih.yaml"),
+        )?,
     })
 }
 
 /// Run `f` in a rayon pool of the requested size.
-fn with_threads<T: Send>(threads: Option<usize>, f: impl FnOnce() -> T + Send) -> anyhow::Result<T> {
+fn with_threads<T: Send>(
+    threads: Option<usize>,
+    f: impl FnOnce() -> T + Send,
+) -> anyhow::Result<T> {
     let mut b = rayon::ThreadPoolBuilder::new();
     if let Some(n) = threads {
         if n == 0 {
@@ -120,5 +126,8 @@ fn with_threads<T: Send>(threads: Option<usize>, f: impl FnOnce() -> T + Send) -
 
 /// The file path as typed, for messages.
 fn shown(p: &Option<PathBuf>) -> String {
-    p.as_ref().map_or_else(|| "built-in ice Ih".to_string(), |p| p.display().to_string())
+    p.as_ref().map_or_else(
+        || "built-in ice Ih".to_string(),
+        |p| p.display().to_string(),
+    )
 }

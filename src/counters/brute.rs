@@ -10,7 +10,10 @@ pub const LIMIT: u128 = 1 << 28;
 
 /// The number of assignments that satisfy every constraint, or `None` above [`LIMIT`].
 pub fn count(model: &Model) -> Option<u128> {
-    let total = model.variables.iter().try_fold(1u128, |a, v| a.checked_mul(v.states as u128))?;
+    let total = model
+        .variables
+        .iter()
+        .try_fold(1u128, |a, v| a.checked_mul(v.states as u128))?;
     if total > LIMIT {
         return None;
     }

@@ -52,7 +52,10 @@ pub struct ExactConfig {
 
 impl Default for ExactConfig {
     fn default() -> Self {
-        ExactConfig { max_states: DEFAULT_MAX_STATES, deadline: None }
+        ExactConfig {
+            max_states: DEFAULT_MAX_STATES,
+            deadline: None,
+        }
     }
 }
 
@@ -196,7 +199,11 @@ pub fn plan_for(model: &Model) -> Option<Plan> {
     order::choose(model)
 }
 
-fn run<C: Tally>(model: &Model, plan: &Plan, config: &ExactConfig) -> std::result::Result<(C, usize), Failure> {
+fn run<C: Tally>(
+    model: &Model,
+    plan: &Plan,
+    config: &ExactConfig,
+) -> std::result::Result<(C, usize), Failure> {
     let mut pos = vec![0u32; model.variables.len()];
     for (t, &v) in plan.order.iter().enumerate() {
         pos[v] = plan.offsets[t];
@@ -230,7 +237,9 @@ fn run<C: Tally>(model: &Model, plan: &Plan, config: &ExactConfig) -> std::resul
     for (t, &v) in plan.order.iter().enumerate() {
         if let Some(d) = config.deadline {
             if Instant::now() > d {
-                return Err(Failure::Stop(Error::Deadline { cells: model.cells.clone() }));
+                return Err(Failure::Stop(Error::Deadline {
+                    cells: model.cells.clone(),
+                }));
             }
         }
         let q = model.variables[v].states as u64;

@@ -47,7 +47,12 @@ pub fn plan(model: &Model, order: Vec<usize>, name: String) -> Option<Plan> {
     let mut completes = vec![Vec::new(); order.len()];
     let mut last_use = vec![0usize; nv];
     for (c, con) in model.constraints.iter().enumerate() {
-        let last = con.scope.iter().map(|&v| pos[v]).max().expect("constraints have a scope");
+        let last = con
+            .scope
+            .iter()
+            .map(|&v| pos[v])
+            .max()
+            .expect("constraints have a scope");
         completes[last].push(c);
         for &v in &con.scope {
             last_use[v] = last_use[v].max(last);
@@ -88,7 +93,17 @@ pub fn plan(model: &Model, order: Vec<usize>, name: String) -> Option<Plan> {
         constrained[v] = true;
     }
     let free = (0..nv).filter(|&v| !constrained[v]).collect();
-    Some(Plan { name, order, offsets, completes, forget, free, max_bits, max_log2_states: max_log2, cost })
+    Some(Plan {
+        name,
+        order,
+        offsets,
+        completes,
+        forget,
+        free,
+        max_bits,
+        max_log2_states: max_log2,
+        cost,
+    })
 }
 
 /// The constrained variables, in no particular order.
@@ -109,7 +124,12 @@ fn sweep(model: &Model, vars: &[usize], axes: [usize; 3]) -> Vec<usize> {
         let p = model.variables[v].position;
         [p[axes[0]], p[axes[1]], p[axes[2]]]
     };
-    order.sort_by(|&a, &b| key(a).partial_cmp(&key(b)).unwrap_or(std::cmp::Ordering::Equal).then(a.cmp(&b)));
+    order.sort_by(|&a, &b| {
+        key(a)
+            .partial_cmp(&key(b))
+            .unwrap_or(std::cmp::Ordering::Equal)
+            .then(a.cmp(&b))
+    });
     order
 }
 
@@ -132,12 +152,17 @@ fn greedy(model: &Model, seed: &[usize]) -> Vec<usize> {
     // score = constraints touched by placed variables that v would help finish (higher first)
     let mut score = vec![0i64; nv];
     let mut order = Vec::with_capacity(seed.len());
-    let mut heap: std::collections::BinaryHeap<(i64, std::cmp::Reverse<usize>, usize)> = std::collections::BinaryHeap::new();
+    let mut heap: std::collections::BinaryHeap<(i64, std::cmp::Reverse<usize>, usize)> =
+        std::collections::BinaryHeap::new();
     let mut next_seed = 0;
     while order.len() < seed.len() {
         let v = loop {
             match heap.pop() {
-                Some((s, std::cmp::Reverse(r), v)) if !placed[v] && s == score[v] && r == rank[v] => break Some(v),
+                Some((s, std::cmp::Reverse(r), v))
+                    if !placed[v] && s == score[v] && r == rank[v] =>
+                {
+                    break Some(v);
+                }
                 Some(_) => continue,
                 None => break None,
             }
@@ -172,7 +197,14 @@ pub fn choose(model: &Model) -> Option<Plan> {
     let vars = constrained(model);
     let axis_name = ['a', 'b', 'c'];
     let mut best: Option<Plan> = None;
-    let perms = [[0, 1, 2], [0, 2, 1], [1, 0, 2], [1, 2, 0], [2, 0, 1], [2, 1, 0]];
+    let perms = [
+        [0, 1, 2],
+        [0, 2, 1],
+        [1, 0, 2],
+        [1, 2, 0],
+        [2, 0, 1],
+        [2, 1, 0],
+    ];
     let mut consider = |p: Option<Plan>| {
         if let Some(p) = p {
             if best.as_ref().is_none_or(|b| p.cost < b.cost) {
@@ -182,7 +214,10 @@ pub fn choose(model: &Model) -> Option<Plan> {
     };
     for axes in perms {
         let order = sweep(model, &vars, axes);
-        let name = format!("sweep {},{},{}", axis_name[axes[0]], axis_name[axes[1]], axis_name[axes[2]]);
+        let name = format!(
+            "sweep {},{},{}",
+            axis_name[axes[0]], axis_name[axes[1]], axis_name[axes[2]]
+        );
         let g = greedy(model, &order);
         consider(plan(model, order, name.clone()));
         consider(plan(model, g, format!("greedy from {name}")));

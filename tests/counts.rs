@@ -1,0 +1,1 @@
+//! Counts against published values, closed forms and brute force.

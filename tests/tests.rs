@@ -1,0 +1,6 @@
+//! The integration tests: one binary, topic modules, shared helpers in `util`.
+
+mod util;
+
+mod cli_errors;
+mod counts;
