@@ -171,9 +171,11 @@ pub fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
             ),
         });
     }
-    // Use big integers from the start when the count is sure to overflow u128.
-    let bound_bits = model.ln_unconstrained() / std::f64::consts::LN_2;
-    let result = if bound_bits < 127.0 {
+    // Start in u128 unless the count will surely not fit: the Pauling sum is a good guide
+    // (overflow is detected exactly in any case, and then the count restarts in big integers).
+    let guess_bits =
+        super::pauling::for_model(model) * model.formula_units / std::f64::consts::LN_2;
+    let result = if guess_bits < 120.0 {
         run::<u128>(model, &plan, config)
     } else {
         Err(Failure::Overflow)
@@ -197,6 +199,220 @@ pub fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
 /// The plan that [`count`] would follow (for reports and benchmarks).
 pub fn plan_for(model: &Model) -> Option<Plan> {
     order::choose(model)
+}
+
+/// A sorted run of frontier states: unique keys in increasing order, with their counts.
+struct Piece<C> {
+    keys: Vec<u64>,
+    counts: Vec<C>,
+}
+
+impl<C> Piece<C> {
+    fn new() -> Self {
+        Piece {
+            keys: Vec::new(),
+            counts: Vec::new(),
+        }
+    }
+    fn clear(&mut self) {
+        self.keys.clear();
+        self.counts.clear();
+    }
+    fn len(&self) -> usize {
+        self.keys.len()
+    }
+}
+
+/// One step of the sweep, compiled: add a variable, check what completes, forget fields.
+struct Step<'a, 'm> {
+    states: u64,
+    offset: u32,
+    checks: &'a [Check<'m>],
+    keep: u64,
+    /// (offset, mask) of the fields of earlier variables dropped at this step.
+    dropped: Vec<(u32, u64)>,
+    /// Number of streams: new values × dropped-field patterns.
+    streams: usize,
+}
+
+impl Step<'_, '_> {
+    /// The stream an extended key belongs to: its new value and the dropped fields' values.
+    /// Within one stream the output keys keep the input's order (clearing fields that hold
+    /// the same values in every key, and setting a field that is zero in every key, are
+    /// monotone), so the step is a merge of sorted streams instead of a sort.
+    #[inline]
+    fn stream(&self, key: u64, x: u64) -> usize {
+        let mut s = x as usize;
+        let mut radix = self.states as usize;
+        for &(off, mask) in &self.dropped {
+            s += ((key >> off) & mask) as usize * radix;
+            radix *= mask as usize + 1;
+        }
+        s
+    }
+
+    /// Extend a sorted piece into one sorted buffer per stream.
+    fn extend<C: Tally>(&self, input: &Piece<C>, out: &mut [Piece<C>]) {
+        for (key, count) in input.keys.iter().zip(&input.counts) {
+            for x in 0..self.states {
+                let k = key | (x << self.offset);
+                if self.checks.iter().all(|c| c.allows(k)) {
+                    let f = &mut out[self.stream(*key, x)];
+                    f.keys.push(k & self.keep);
+                    f.counts.push(count.clone());
+                }
+            }
+        }
+    }
+}
+
+/// A stream read across several sorted slices whose ranges follow one another.
+struct Cursor<'a, C> {
+    slices: Vec<(&'a [u64], &'a [C])>,
+    i: usize,
+    j: usize,
+}
+
+impl<C> Cursor<'_, C> {
+    #[inline]
+    fn head(&self) -> u64 {
+        self.slices.get(self.i).map_or(u64::MAX, |s| s.0[self.j])
+    }
+    #[inline]
+    fn count(&self) -> &C {
+        &self.slices[self.i].1[self.j]
+    }
+    #[inline]
+    fn advance(&mut self) {
+        self.j += 1;
+        if self.j == self.slices[self.i].0.len() {
+            self.i += 1;
+            self.j = 0;
+        }
+    }
+}
+
+/// Merge sorted streams into `out`, adding the counts of equal keys. Keys never reach
+/// `u64::MAX` (plans use at most 63 bits), which marks an exhausted stream.
+fn merge_streams<C: Tally>(
+    mut cursors: Vec<Cursor<C>>,
+    out: &mut Piece<C>,
+) -> std::result::Result<(), Failure> {
+    let mut heads: Vec<u64> = cursors.iter().map(|c| c.head()).collect();
+    loop {
+        let m = heads.iter().copied().min().unwrap_or(u64::MAX);
+        if m == u64::MAX {
+            return Ok(());
+        }
+        let mut acc: Option<C> = None;
+        for (h, c) in heads.iter_mut().zip(cursors.iter_mut()) {
+            if *h == m {
+                match &mut acc {
+                    None => acc = Some(c.count().clone()),
+                    Some(a) => {
+                        if !a.add(c.count()) {
+                            return Err(Failure::Overflow);
+                        }
+                    }
+                }
+                c.advance();
+                *h = c.head();
+            }
+        }
+        out.keys.push(m);
+        out.counts.push(acc.expect("some stream had the minimum"));
+    }
+}
+
+/// The frontier as sorted pieces covering increasing key ranges, with scratch buffers
+/// kept from step to step (fresh large allocations cost page faults on every step).
+struct Frontier<C> {
+    pieces: Vec<Piece<C>>,
+    next: Vec<Piece<C>>,
+    /// scratch[p][s]: stream s of piece p.
+    scratch: Vec<Vec<Piece<C>>>,
+}
+
+impl<C: Tally> Frontier<C> {
+    fn len(&self) -> usize {
+        self.pieces.iter().map(|p| p.len()).sum()
+    }
+
+    fn step(&mut self, step: &Step) -> std::result::Result<(), Failure> {
+        let n = self.len();
+        let parallel = n >= PARALLEL_MIN;
+        let ways = if parallel {
+            2 * rayon::current_num_threads().max(1)
+        } else {
+            1
+        };
+        // 1. Extend every piece into its streams.
+        self.scratch.resize_with(self.pieces.len(), Vec::new);
+        for sc in &mut self.scratch {
+            sc.resize_with(step.streams.max(sc.len()), Piece::new);
+            sc.iter_mut().for_each(Piece::clear);
+        }
+        let work = self.pieces.iter().zip(self.scratch.iter_mut());
+        if parallel {
+            work.par_bridge()
+                .for_each(|(p, sc)| step.extend(p, &mut sc[..step.streams]));
+        } else {
+            work.for_each(|(p, sc)| step.extend(p, &mut sc[..step.streams]));
+        }
+        // 2. Split the output key space into `ways` ranges of similar size.
+        let mut splitters: Vec<u64> = Vec::new();
+        if ways > 1 {
+            let mut sample = Vec::new();
+            for sc in &self.scratch {
+                for piece in &sc[..step.streams] {
+                    let len = piece.len();
+                    for k in 0..16.min(len) {
+                        sample.push(piece.keys[k * len / 16.min(len)]);
+                    }
+                }
+            }
+            sample.sort_unstable();
+            splitters = (1..ways).map(|r| sample[r * sample.len() / ways]).collect();
+            splitters.dedup();
+        }
+        // 3. Merge each range's streams into its own output piece.
+        let ranges = splitters.len() + 1;
+        self.next
+            .resize_with(ranges.max(self.next.len()), Piece::new);
+        self.next.truncate(ranges);
+        let scratch = &self.scratch;
+        let merge_range = |r: usize, out: &mut Piece<C>| {
+            out.clear();
+            let lo = if r == 0 { 0 } else { splitters[r - 1] };
+            let hi = splitters.get(r).copied().unwrap_or(u64::MAX);
+            let cursors: Vec<Cursor<C>> = (0..step.streams)
+                .map(|s| {
+                    let slices = scratch
+                        .iter()
+                        .filter_map(|sc| {
+                            let p = &sc[s];
+                            let a = p.keys.partition_point(|&k| k < lo);
+                            let b = p.keys.partition_point(|&k| k < hi);
+                            (a < b).then(|| (&p.keys[a..b], &p.counts[a..b]))
+                        })
+                        .collect();
+                    Cursor { slices, i: 0, j: 0 }
+                })
+                .collect();
+            merge_streams(cursors, out)
+        };
+        if ranges > 1 {
+            self.next
+                .par_iter_mut()
+                .enumerate()
+                .map(|(r, out)| merge_range(r, out))
+                .collect::<std::result::Result<Vec<()>, Failure>>()?;
+        } else {
+            merge_range(0, &mut self.next[0])?;
+        }
+        std::mem::swap(&mut self.pieces, &mut self.next);
+        Ok(())
+    }
 }
 
 fn run<C: Tally>(
@@ -232,57 +448,56 @@ fn run<C: Tally>(
                 .collect()
         })
         .collect();
-    let mut frontier: Vec<(u64, C)> = vec![(0, C::one())];
+    // Which earlier variables leave at each step.
+    let mut last_use = vec![0usize; model.variables.len()];
+    for (t, cs) in plan.completes.iter().enumerate() {
+        for &c in cs {
+            for &v in &model.constraints[c].scope {
+                last_use[v] = last_use[v].max(t);
+            }
+        }
+    }
+    let mut frontier: Frontier<C> = Frontier {
+        pieces: vec![Piece {
+            keys: vec![0],
+            counts: vec![C::one()],
+        }],
+        next: Vec::new(),
+        scratch: Vec::new(),
+    };
     let mut peak = 1usize;
     for (t, &v) in plan.order.iter().enumerate() {
-        if let Some(d) = config.deadline {
-            if Instant::now() > d {
-                return Err(Failure::Stop(Error::Deadline {
-                    cells: model.cells.clone(),
-                }));
-            }
+        if let Some(d) = config.deadline
+            && Instant::now() > d
+        {
+            return Err(Failure::Stop(Error::Deadline {
+                cells: model.cells.clone(),
+            }));
         }
-        let q = model.variables[v].states as u64;
-        let off = plan.offsets[t];
-        let keep = !plan.forget[t];
-        let checks = &checks[t];
-        let extend = |(key, count): &(u64, C), out: &mut Vec<(u64, C)>| {
-            for x in 0..q {
-                let k = key | (x << off);
-                if checks.iter().all(|c| c.allows(k)) {
-                    out.push((k & keep, count.clone()));
-                }
-            }
+        let dropped: Vec<(u32, u64)> = plan.order[..t]
+            .iter()
+            .filter(|&&u| last_use[u] == t)
+            .map(|&u| (pos[u], (1u64 << width(model.variables[u].states)) - 1))
+            .collect();
+        let states = model.variables[v].states as u64;
+        let streams = dropped
+            .iter()
+            .fold(states as usize, |a, &(_, m)| a * (m as usize + 1));
+        let step = Step {
+            states,
+            offset: plan.offsets[t],
+            checks: &checks[t],
+            keep: !plan.forget[t],
+            dropped,
+            streams,
         };
-        let mut next: Vec<(u64, C)> = if frontier.len() >= PARALLEL_MIN {
-            frontier
-                .par_chunks(PARALLEL_MIN / 4)
-                .map(|chunk| {
-                    let mut out = Vec::with_capacity(chunk.len() * q as usize);
-                    for s in chunk {
-                        extend(s, &mut out);
-                    }
-                    out
-                })
-                .flatten_iter()
-                .collect()
-        } else {
-            let mut out = Vec::with_capacity(frontier.len() * q as usize);
-            for s in &frontier {
-                extend(s, &mut out);
-            }
-            out
-        };
-        drop(frontier);
-        if plan.forget[t] != 0 {
-            next = merge(next)?;
-        }
-        if next.len() > config.max_states {
+        frontier.step(&step)?;
+        let n = frontier.len();
+        if n > config.max_states {
             return Err(Failure::Stop(Error::Budget {
                 cells: model.cells.clone(),
                 detail: format!(
-                    "the frontier reached {} states at step {} of {} (budget {}); it could grow to 2^{:.0}",
-                    next.len(),
+                    "the frontier reached {n} states at step {} of {} (budget {}); it could grow to 2^{:.0}",
                     t + 1,
                     plan.order.len(),
                     config.max_states,
@@ -290,38 +505,18 @@ fn run<C: Tally>(
                 ),
             }));
         }
-        peak = peak.max(next.len());
-        if next.is_empty() {
+        peak = peak.max(n);
+        if n == 0 {
             return Ok((C::zero(), peak));
         }
-        frontier = next;
     }
-    let mut total = frontier.pop().map(|(_, c)| c).expect("non-empty");
-    for (_, c) in &frontier {
-        if !total.add(c) {
-            return Err(Failure::Overflow);
+    let mut total = C::zero();
+    for p in &frontier.pieces {
+        for c in &p.counts {
+            if !total.add(c) {
+                return Err(Failure::Overflow);
+            }
         }
     }
     Ok((total, peak))
-}
-
-/// Sort by key and add the counts of equal keys.
-fn merge<C: Tally>(mut v: Vec<(u64, C)>) -> std::result::Result<Vec<(u64, C)>, Failure> {
-    if v.len() >= PARALLEL_MIN {
-        v.par_sort_unstable_by_key(|e| e.0);
-    } else {
-        v.sort_unstable_by_key(|e| e.0);
-    }
-    let mut out: Vec<(u64, C)> = Vec::with_capacity(v.len() / 2 + 1);
-    for (k, c) in v {
-        match out.last_mut() {
-            Some((lk, lc)) if *lk == k => {
-                if !lc.add(&c) {
-                    return Err(Failure::Overflow);
-                }
-            }
-            _ => out.push((k, c)),
-        }
-    }
-    Ok(out)
 }

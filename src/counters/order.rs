@@ -70,10 +70,8 @@ pub fn plan(model: &Model, order: Vec<usize>, name: String) -> Option<Plan> {
     for (t, &v) in order.iter().enumerate() {
         let w = width(model.variables[v].states);
         let field = (1u64 << w) - 1;
-        let off = (0..=64 - w).find(|&o| used & (field << o) == 0)?;
-        if off + w > 64 {
-            return None;
-        }
+        // At most 63 bits: the counter uses u64::MAX as an end marker.
+        let off = (0..=63 - w).find(|&o| used & (field << o) == 0)?;
         used |= field << off;
         offset_of[v] = off;
         offsets.push(off);
