@@ -26,6 +26,12 @@ pub struct Cells {
 
 const AXES: [char; 3] = ['a', 'b', 'c'];
 
+/// Most unit cells a cluster may hold.
+pub const MAX_CELLS: usize = 1 << 22;
+
+/// Most sites plus bonds a cluster may hold.
+pub const MAX_ENTITIES: usize = 1 << 24;
+
 impl Cells {
     /// Parse `4x4x2` (and `--open a,b`) for a crystal of the given dimension.
     ///
@@ -37,6 +43,12 @@ impl Cells {
         let values: Vec<usize> = parts
             .iter()
             .map(|p| {
+                if p.is_empty() {
+                    return Err(bad(format!(
+                        "a size is missing; expected whole numbers joined by x, e.g. {}",
+                        ["4", "4x4", "4x4x2"][dimensions - 1]
+                    )));
+                }
                 p.parse::<usize>()
                     .map_err(|_| bad(format!("'{p}' is not a whole number; expected e.g. 4x4x2")))
             })
@@ -55,6 +67,12 @@ impl Cells {
             return Err(bad(format!(
                 "the size along {} is 0; every size must be at least 1",
                 AXES[k]
+            )));
+        }
+        let total = counts.iter().try_fold(1usize, |a, &c| a.checked_mul(c));
+        if total.is_none_or(|t| t > MAX_CELLS) {
+            return Err(bad(format!(
+                "too large: at most {MAX_CELLS} unit cells in all"
             )));
         }
         let mut periodic = [true; 3];
@@ -177,6 +195,12 @@ impl<'c> Cluster<'c> {
         let ns = crystal.sites.len();
         let nb = crystal.bonds.len();
         let total = cells.total();
+        if total.checked_mul(ns + nb).is_none_or(|n| n > MAX_ENTITIES) {
+            return Err(Error::Cells(format!(
+                "the cell {cells} is too large: {total} unit cells of {} sites and {} bonds (at most {MAX_ENTITIES} in all)",
+                ns, nb
+            )));
+        }
         let mut sites = Vec::with_capacity(total * ns);
         let mut bonds = Vec::new();
         let mut bond_index = vec![None; total * nb];

@@ -11,6 +11,9 @@ use std::path::{Path, PathBuf};
 use crate::error::{Error, Position, Result};
 use crate::spec::{AllowedSpec, LatticeSpec, Located, position_of};
 
+/// Largest cell shift a bond or group member may use.
+pub const MAX_SHIFT: i64 = 64;
+
 /// Cell displacement (unused axes are zero).
 pub type Shift = [i64; 3];
 
@@ -530,6 +533,12 @@ impl Crystal {
                         ),
                     );
                 }
+                if s.value.iter().any(|x| x.abs() > MAX_SHIFT) {
+                    return ck.at(
+                        s,
+                        format!("the shift of {what} reaches beyond ±{MAX_SHIFT} cells; expected a shift to a nearby cell"),
+                    );
+                }
                 out[..dims].copy_from_slice(&s.value);
             }
             Ok(out)
@@ -579,6 +588,17 @@ impl Crystal {
                     return ck.at(
                         distance,
                         "`distance` must be [min, max] with 0 <= min < max",
+                    );
+                }
+                let reach = crystal.window_reach(w[1]);
+                if reach > MAX_SHIFT {
+                    return ck.at(
+                        distance,
+                        format!(
+                            "the distance window reaches {} length units, more than {MAX_SHIFT} cells along some axis; \
+                             expected a window around the bond length",
+                            w[1]
+                        ),
                     );
                 }
                 let found = crystal.generate_bonds(&b.id.value, &between.value, w[0], w[1]);
@@ -723,16 +743,16 @@ impl Crystal {
                     ),
                 ),
             };
-            if let (Some(q), false) = (&v.states, matches!(kind, VariableKind::Color(_))) {
-                if q.value != 2 {
-                    return ck.at(
-                        q,
-                        format!(
-                            "a {} variable has 2 states; `states` applies to color variables",
-                            kind.word()
-                        ),
-                    );
-                }
+            if let (Some(q), false) = (&v.states, matches!(kind, VariableKind::Color(_)))
+                && q.value != 2
+            {
+                return ck.at(
+                    q,
+                    format!(
+                        "a {} variable has 2 states; `states` applies to color variables",
+                        kind.word()
+                    ),
+                );
             }
             let slot = match v.on.value.as_str() {
                 "sites" => &mut crystal.site_variables,
@@ -758,10 +778,10 @@ impl Crystal {
                 "variables are declared on bonds but the file has no bonds",
             );
         }
-        if crystal.site_variables == Some(VariableKind::Arrow) {
-            if let Some(s) = spec.sites.iter().find(|s| s.axis.is_none()) {
-                return ck.at(&s.id, format!("site '{}' carries an arrow variable and needs an `axis` (the direction of state 0)", s.id.value));
-            }
+        if crystal.site_variables == Some(VariableKind::Arrow)
+            && let Some(s) = spec.sites.iter().find(|s| s.axis.is_none())
+        {
+            return ck.at(&s.id, format!("site '{}' carries an arrow variable and needs an `axis` (the direction of state 0)", s.id.value));
         }
 
         // Rules.
@@ -827,13 +847,12 @@ impl Crystal {
         Ok(crystal)
     }
 
-    /// Every pair of sites of the two species whose distance lies in `[min, max]`.
-    fn generate_bonds(&self, prefix: &str, between: &[String], min: f64, max: f64) -> Vec<Bond> {
-        let dims = self.dimensions;
-        // Cell heights bound the shifts worth trying.
+    /// Cells to search along each axis for pairs up to distance `max` (cell heights bound
+    /// the shifts worth trying).
+    fn window_reaches(&self, max: f64) -> [i64; 3] {
         let vol = self.cell_measure();
         let mut reach = [0i64; 3];
-        for (k, r) in reach.iter_mut().enumerate().take(dims) {
+        for (k, r) in reach.iter_mut().enumerate().take(self.dimensions) {
             let (a, b) = ((k + 1) % 3, (k + 2) % 3);
             let (u, v) = (self.vectors[a], self.vectors[b]);
             let cross = [
@@ -842,8 +861,19 @@ impl Crystal {
                 u[0] * v[1] - u[1] * v[0],
             ];
             let height = vol / norm(cross);
-            *r = (max / height).ceil() as i64 + 1;
+            *r = ((max / height).ceil().min(1e6) as i64) + 1;
         }
+        reach
+    }
+
+    /// The largest of [`Self::window_reaches`].
+    fn window_reach(&self, max: f64) -> i64 {
+        self.window_reaches(max).into_iter().max().unwrap_or(0)
+    }
+
+    /// Every pair of sites of the two species whose distance lies in `[min, max]`.
+    fn generate_bonds(&self, prefix: &str, between: &[String], min: f64, max: f64) -> Vec<Bond> {
+        let reach = self.window_reaches(max);
         let pair_ok = |i: usize, j: usize| {
             let (a, b) = (&self.sites[i], &self.sites[j]);
             (a.matches(&between[0]) && b.matches(&between[1]))
@@ -1251,17 +1281,17 @@ impl Crystal {
                 if let Some(a) = &r.allowed {
                     return ck.at(a, format!("rule '{}' takes no `allowed` list", kind.word()));
                 }
-                if kind == RuleKind::Distinct {
-                    if let Some(inst) = instances.iter().find(|i| i.slots.len() as u32 > states) {
-                        return ck.at(
-                            &r.kind,
-                            format!(
-                                "{} values at {} cannot be pairwise distinct with only {states} states",
-                                inst.slots.len(),
-                                inst.label
-                            ),
-                        );
-                    }
+                if kind == RuleKind::Distinct
+                    && let Some(inst) = instances.iter().find(|i| i.slots.len() as u32 > states)
+                {
+                    return ck.at(
+                        &r.kind,
+                        format!(
+                            "{} values at {} cannot be pairwise distinct with only {states} states",
+                            inst.slots.len(),
+                            inst.label
+                        ),
+                    );
                 }
             }
         }

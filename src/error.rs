@@ -61,7 +61,8 @@ pub enum Error {
     /// An exact count whose frontier would exceed the state budget.
     #[error(
         "the exact count on {cells} needs more than the state budget: {detail}; \
-         try a smaller cell, raise --max-states, or use a statistical method"
+         try a smaller cell or a statistical method (the Pauling estimate now; Monte Carlo \
+         sampling for large cells is planned)"
     )]
     Budget {
         /// The cell that was asked for.

@@ -17,6 +17,9 @@ use crate::error::{Error, Result};
 /// Largest local table, in assignments, a rule may compile to.
 pub const MAX_TABLE: u64 = 1 << 24;
 
+/// What makes two compiled tables the same: rule, occurrence pattern, radices.
+type TableKey = (usize, Vec<(usize, u32)>, Vec<u32>);
+
 /// One variable.
 #[derive(Clone, Debug)]
 pub struct Variable {
@@ -107,7 +110,7 @@ impl Model {
             }
         }
         let mut tables: Vec<Table> = Vec::new();
-        let mut table_ids: HashMap<(usize, Vec<(usize, u32)>, Vec<u32>), usize> = HashMap::new();
+        let mut table_ids: HashMap<TableKey, usize> = HashMap::new();
         let mut constraints = Vec::new();
         let mut contradiction = None;
         let mut has_repeats = false;

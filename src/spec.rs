@@ -181,14 +181,21 @@ pub struct FormulaUnitSpec {
 impl LatticeSpec {
     /// Parse YAML text; `path` is used in error messages only.
     pub fn from_yaml(text: &str, path: &Path) -> Result<Self> {
-        if text.trim().is_empty()
-            || text
-                .lines()
-                .all(|l| l.trim().is_empty() || l.trim_start().starts_with('#'))
+        if text
+            .lines()
+            .all(|l| l.trim().is_empty() || l.trim_start().starts_with('#'))
         {
-            return Err(Error::Read {
+            let what = if text.trim().is_empty() {
+                "is empty"
+            } else {
+                "holds only comments"
+            };
+            return Err(Error::Syntax {
                 path: path.to_path_buf(),
-                reason: "the file is empty; expected a lattice description (see README)".into(),
+                position: Position::default(),
+                message: format!(
+                    "the file {what}; expected a lattice description (see the lattice format in README.md)"
+                ),
             });
         }
         serde_saphyr::from_str::<LatticeSpec>(text).map_err(|e| {
@@ -225,14 +232,39 @@ impl LatticeSpec {
     }
 }
 
-/// The parser's message on one line, without the source snippet it may render.
+/// The parser's message on one line, without the source snippet it may render and without
+/// its own copy of the position (the error already carries it), in the file's words.
 fn syntax_message(e: &serde_saphyr::Error) -> String {
     let full = e.to_string();
-    let first = full.lines().next().unwrap_or("").trim().to_string();
-    let first = first
-        .strip_prefix("error: ")
-        .map(str::to_string)
-        .unwrap_or(first);
+    let mut first = full.lines().next().unwrap_or("").trim().to_string();
+    for prefix in ["error: ", "Error: "] {
+        if let Some(rest) = first.strip_prefix(prefix) {
+            first = rest.to_string();
+        }
+    }
+    // "line 7 column 29: …"
+    if let Some(rest) = first.strip_prefix("line ")
+        && let Some((_, after)) = rest.split_once(": ")
+    {
+        first = after.to_string();
+    }
+    if let Some((head, _)) = first.split_once(", set DuplicateKeyPolicy") {
+        first = format!("{head}; each key may appear once");
+    }
+    for (word, what) in [
+        ("invalid u64", "a whole number"),
+        ("invalid usize", "a whole number"),
+        ("invalid u32", "a whole number"),
+        ("invalid i64", "a whole number"),
+        ("invalid f64", "a number"),
+    ] {
+        if first.starts_with(word) {
+            first = format!("expected {what} here");
+        }
+    }
+    if first == "expected mapping start" {
+        first = "expected a lattice description: a YAML mapping of keys such as `name:`, `dimensions:`, `cell:`".into();
+    }
     if first.is_empty() {
         "not a valid lattice description".to_string()
     } else {

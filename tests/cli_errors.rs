@@ -1,1 +1,557 @@
 //! Command-line error handling.
+//!
+//! Every bad input must end the same way: a non-zero exit code (1 for an input error, 2 for
+//! an exceeded state budget), nothing on standard output, and exactly one line on standard
+//! error that starts with `error:`, names the culprit (the file with `LINE:COL` where the
+//! parser knows it, or the flag) and says what was expected. No panic text, no backtrace.
+//!
+//! The fixtures in `tests/data/` are named after their problem; each says in its first
+//! comment what is wrong with it.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output, Stdio};
+use std::time::{Duration, Instant};
+
+use crate::util::{fixture, lattice, run};
+
+/// Exit code of a usage or input error.
+const INPUT_ERROR: i32 = 1;
+/// Exit code of an exceeded state (or time) budget.
+const BUDGET_EXCEEDED: i32 = 2;
+
+/// A path as a command-line argument.
+fn arg(path: &Path) -> &str {
+    path.to_str().expect("test paths are UTF-8")
+}
+
+/// Standard error of a run, for failure messages.
+fn stderr_of(out: &Output) -> String {
+    String::from_utf8_lossy(&out.stderr).into_owned()
+}
+
+/// Check a failed run: exit code `code`, empty standard output, and exactly one line on
+/// standard error, starting with `error: `, free of panic text. Returns that line.
+fn error_line(out: &Output, code: i32) -> String {
+    let stderr = stderr_of(out);
+    assert_eq!(
+        out.status.code(),
+        Some(code),
+        "exit code; standard error:\n{stderr}"
+    );
+    assert!(
+        out.stdout.is_empty(),
+        "nothing on standard output after an error, got:\n{}",
+        String::from_utf8_lossy(&out.stdout)
+    );
+    for panic_text in ["panicked", "backtrace", "RUST_BACKTRACE"] {
+        assert!(
+            !stderr.contains(panic_text),
+            "panic text on standard error:\n{stderr}"
+        );
+    }
+    let lines: Vec<&str> = stderr.lines().collect();
+    assert_eq!(
+        lines.len(),
+        1,
+        "exactly one line on standard error, got:\n{stderr}"
+    );
+    assert!(
+        lines[0].starts_with("error: "),
+        "the message starts with `error: `: {}",
+        lines[0]
+    );
+    lines[0].to_string()
+}
+
+/// Whether `message` contains `phrase`, ignoring case.
+fn mentions(message: &str, phrase: &str) -> bool {
+    message.to_lowercase().contains(&phrase.to_lowercase())
+}
+
+/// Check an input error (exit 1) about a file: the message names `file`; with `line`, it
+/// points at `file:LINE:COL:`; and it contains `phrase`.
+fn assert_input_error(out: &Output, file: &str, line: Option<u64>, phrase: &str) {
+    let message = error_line(out, INPUT_ERROR);
+    match line {
+        Some(line) => {
+            let at = format!("{file}:{line}:");
+            let (_, rest) = message
+                .split_once(&at)
+                .unwrap_or_else(|| panic!("the message points at `{at}COL:`: {message}"));
+            let column = rest.len() - rest.trim_start_matches(|c: char| c.is_ascii_digit()).len();
+            assert!(
+                column > 0 && rest[column..].starts_with(':'),
+                "a column follows `{at}`: {message}"
+            );
+        }
+        None => assert!(
+            message.contains(file),
+            "the message names {file}: {message}"
+        ),
+    }
+    assert!(
+        mentions(&message, phrase),
+        "the message says `{phrase}`: {message}"
+    );
+}
+
+/// Check an input error (exit 1) about a flag: the message quotes `flag` (e.g.
+/// `--cells '4x'`) and contains `phrase`.
+fn assert_flag_error(out: &Output, flag: &str, phrase: &str) {
+    let message = error_line(out, INPUT_ERROR);
+    assert!(
+        message.contains(flag),
+        "the message names {flag}: {message}"
+    );
+    assert!(
+        mentions(&message, phrase),
+        "the message says `{phrase}`: {message}"
+    );
+}
+
+/// Check that every command that reads a lattice file rejects `file` with the same input
+/// error.
+fn assert_rejected(file: &Path, fragment: &str, line: Option<u64>, phrase: &str) {
+    let f = arg(file);
+    let runs = [
+        run(&["inspect", f]),
+        run(&["exact", f, "--cells", "2"]),
+        run(&["estimate", f, "--budget", "1"]),
+    ];
+    for out in &runs {
+        assert_input_error(out, fragment, line, phrase);
+    }
+    assert!(
+        runs.iter().all(|o| o.stderr == runs[0].stderr),
+        "inspect, exact and estimate report the same error:\n{}{}{}",
+        stderr_of(&runs[0]),
+        stderr_of(&runs[1]),
+        stderr_of(&runs[2])
+    );
+}
+
+/// Check that the fixture `name` is rejected at `line` with `phrase` in the message.
+fn assert_fixture_rejected(name: &str, line: u64, phrase: &str) {
+    assert_rejected(&fixture(name), name, Some(line), phrase);
+}
+
+/// `exact` on the shipped square-ice lattice with extra arguments.
+fn exact_square_ice(extra: &[&str]) -> Output {
+    let file = lattice("square-ice.yaml");
+    let mut args = vec!["exact", arg(&file)];
+    args.extend_from_slice(extra);
+    run(&args)
+}
+
+/// Run the binary, killing it and failing the test if it has not finished within `limit`.
+fn run_within(args: &[&str], limit: Duration) -> Output {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_groundcount"))
+        .args(args)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the groundcount binary starts");
+    let start = Instant::now();
+    while child.try_wait().expect("the child can be polled").is_none() {
+        if start.elapsed() > limit {
+            child.kill().expect("the child can be killed");
+            let _ = child.wait();
+            panic!("groundcount {args:?} did not finish within {limit:?}");
+        }
+        std::thread::sleep(Duration::from_millis(50));
+    }
+    child.wait_with_output().expect("the child's output")
+}
+
+/// A successful run: exit 0, nothing on standard error. Returns standard output.
+fn success(out: &Output) -> String {
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "exit code; standard error:\n{}",
+        stderr_of(out)
+    );
+    assert!(
+        out.stderr.is_empty(),
+        "no message on standard error:\n{}",
+        stderr_of(out)
+    );
+    String::from_utf8(out.stdout.clone()).expect("UTF-8 output")
+}
+
+// ---------------------------------------------------------------------------------------
+// Positive controls: the same commands on good input succeed.
+
+#[test]
+fn inspect_accepts_a_shipped_lattice() {
+    let out = success(&run(&["inspect", arg(&lattice("square-ice.yaml"))]));
+    assert!(out.contains("Pauling estimate: W = 1.500000000"), "{out}");
+}
+
+#[test]
+fn exact_accepts_a_shipped_lattice() {
+    // 148 ice-rule arrangements on the 3x3 torus (OEIS A054759); 4x4 (2970) fits in the
+    // same budget of 1000 states that the 12x12 case below exceeds.
+    for (cells, count) in [("3x3", "148"), ("4x4", "2970")] {
+        let out = success(&exact_square_ice(&[
+            "--cells",
+            cells,
+            "--max-states",
+            "1000",
+        ]));
+        let line = out
+            .lines()
+            .find(|l| l.starts_with("arrangements"))
+            .unwrap_or_else(|| panic!("an arrangements line:\n{out}"));
+        assert_eq!(line.split_whitespace().last(), Some(count), "{out}");
+    }
+}
+
+#[test]
+fn estimate_accepts_a_shipped_lattice() {
+    let file = lattice("square-ice.yaml");
+    let args = [
+        "estimate",
+        arg(&file),
+        "--budget",
+        "5",
+        "--max-states",
+        "1000",
+    ];
+    let out = success(&run(&args));
+    assert!(out.contains("Pauling"), "{out}");
+    assert!(out.contains("3x3 periodic"), "{out}");
+    assert!(out.contains(" 148 "), "{out}");
+    // The small state budget ends the sequence of cells cleanly, with exit code 0.
+    assert!(out.contains("stopped:"), "{out}");
+}
+
+// ---------------------------------------------------------------------------------------
+// Files that cannot be read or are not lattice descriptions at all.
+
+#[test]
+fn missing_file() {
+    assert!(!fixture("does-not-exist.yaml").exists());
+    assert_rejected(
+        &fixture("does-not-exist.yaml"),
+        "does-not-exist.yaml",
+        None,
+        "cannot read",
+    );
+}
+
+#[test]
+fn directory_as_file() {
+    let dir = fixture("x");
+    let dir = dir.parent().expect("tests/data");
+    assert_rejected(dir, "tests/data", None, "is a directory");
+}
+
+#[test]
+fn empty_file() {
+    assert_rejected(&fixture("empty.yaml"), "empty.yaml", None, "empty");
+}
+
+#[test]
+fn file_with_only_comments() {
+    assert_rejected(
+        &fixture("only-comments.yaml"),
+        "only-comments.yaml",
+        None,
+        "expected a lattice description",
+    );
+}
+
+#[test]
+fn text_that_is_not_yaml() {
+    assert_fixture_rejected("not-yaml.yaml", 2, "expected");
+}
+
+#[test]
+fn control_characters() {
+    assert_fixture_rejected("control-characters.yaml", 3, "unexpected character");
+}
+
+#[test]
+fn binary_file() {
+    assert_rejected(&fixture("binary.yaml"), "binary.yaml", None, "not UTF-8");
+}
+
+// ---------------------------------------------------------------------------------------
+// Well-formed YAML that describes an impossible or inconsistent crystal.
+
+#[test]
+fn unknown_key() {
+    assert_fixture_rejected("unknown-key.yaml", 7, "unknown field `shfit`");
+    let out = run(&["inspect", arg(&fixture("unknown-key.yaml"))]);
+    assert!(
+        mentions(&stderr_of(&out), "expected one of id, from, to, shift"),
+        "the message lists the keys a bond may have: {}",
+        stderr_of(&out)
+    );
+}
+
+#[test]
+fn unknown_site_in_a_bond() {
+    assert_fixture_rejected("unknown-bond-site.yaml", 8, "unknown site id 'X'");
+}
+
+#[test]
+fn unknown_group_in_a_rule_scope() {
+    assert_fixture_rejected("unknown-rule-group.yaml", 12, "unknown scope 'dn'");
+    let out = run(&["inspect", arg(&fixture("unknown-rule-group.yaml"))]);
+    assert!(
+        stderr_of(&out).contains("(up)"),
+        "the message lists the groups there are: {}",
+        stderr_of(&out)
+    );
+}
+
+#[test]
+fn unknown_site_in_a_group_member() {
+    assert_fixture_rejected("unknown-group-member.yaml", 11, "unknown site id 'T'");
+}
+
+#[test]
+fn shift_of_the_wrong_dimension() {
+    assert_fixture_rejected("shift-wrong-dimension.yaml", 8, "expected 2");
+}
+
+#[test]
+fn cell_with_a_zero_vector() {
+    assert_fixture_rejected("zero-cell-vector.yaml", 5, "zero");
+}
+
+#[test]
+fn collinear_cell_vectors_in_2d() {
+    assert_fixture_rejected("collinear-cell.yaml", 5, "linearly dependent");
+}
+
+#[test]
+fn coplanar_cell_vectors_in_3d() {
+    assert_fixture_rejected("coplanar-cell.yaml", 6, "linearly dependent");
+}
+
+#[test]
+fn inward_rule_on_spins() {
+    assert_fixture_rejected("inward-on-spins.yaml", 11, "needs arrow variables");
+}
+
+#[test]
+fn occupied_rule_on_arrows() {
+    assert_fixture_rejected("occupied-on-arrows.yaml", 11, "needs occupancy variables");
+}
+
+#[test]
+fn allowed_count_impossible_for_the_scope() {
+    assert_fixture_rejected("allowed-impossible.yaml", 11, "has 4 variables in scope");
+}
+
+#[test]
+fn bond_window_that_finds_no_bonds() {
+    assert_fixture_rejected("empty-bond-window.yaml", 8, "check the window");
+}
+
+#[test]
+fn color_variable_without_states() {
+    assert_fixture_rejected("color-without-states.yaml", 10, "needs `states");
+}
+
+#[test]
+fn duplicate_site_id() {
+    assert_fixture_rejected("duplicate-site-id.yaml", 7, "site id 'O' is used twice");
+}
+
+#[test]
+fn table_tuple_of_the_wrong_length() {
+    assert_fixture_rejected("table-tuple-length.yaml", 13, "the scope has 3");
+}
+
+// ---------------------------------------------------------------------------------------
+// Flags.
+
+#[test]
+fn cells_with_a_zero_size() {
+    let out = exact_square_ice(&["--cells", "0x4"]);
+    assert_flag_error(&out, "--cells '0x4'", "at least 1");
+}
+
+#[test]
+fn cells_not_a_size() {
+    let out = exact_square_ice(&["--cells", "4by4"]);
+    assert_flag_error(&out, "--cells '4by4'", "e.g. 4x4");
+}
+
+#[test]
+fn cells_with_a_missing_size() {
+    let out = exact_square_ice(&["--cells", "4x"]);
+    assert_flag_error(&out, "--cells '4x'", "e.g. 4x4");
+}
+
+#[test]
+fn cells_with_too_many_sizes() {
+    let out = exact_square_ice(&["--cells", "4x4x4"]);
+    assert_flag_error(&out, "--cells '4x4x4'", "expected 2");
+}
+
+#[test]
+fn open_axis_the_crystal_lacks() {
+    let out = exact_square_ice(&["--cells", "4x4", "--open", "z"]);
+    assert_flag_error(&out, "--open 'z'", "among a, b");
+}
+
+#[test]
+fn zero_threads() {
+    let out = exact_square_ice(&["--cells", "3x3", "--threads", "0"]);
+    assert_flag_error(&out, "--threads", "at least 1");
+}
+
+#[test]
+fn time_budget_not_positive() {
+    let file = lattice("square-ice.yaml");
+    for budget in ["0", "nan"] {
+        let out = run(&["estimate", arg(&file), "--budget", budget]);
+        assert_flag_error(&out, "--budget", "positive");
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// Budgets.
+
+#[test]
+fn exact_count_beyond_the_state_budget() {
+    let out = exact_square_ice(&["--cells", "12x12", "--max-states", "1000"]);
+    let message = error_line(&out, BUDGET_EXCEEDED);
+    assert!(message.contains("12x12"), "names the cell: {message}");
+    assert!(
+        mentions(&message, "smaller cell"),
+        "suggests a smaller cell: {message}"
+    );
+    assert!(
+        mentions(&message, "statistical method"),
+        "suggests a statistical method: {message}"
+    );
+    // It says how large the state space got: some number beyond the budget of 1000.
+    let largest = message
+        .split(|c: char| !c.is_ascii_digit())
+        .filter_map(|n| n.parse::<u64>().ok())
+        .max();
+    assert!(
+        largest.is_some_and(|n| n > 1000),
+        "says how large the frontier grew: {message}"
+    );
+}
+
+// ---------------------------------------------------------------------------------------
+// Regression tests for defects found while writing these tests.
+
+#[test]
+fn time_budget_too_large_for_a_duration() {
+    let file = lattice("square-ice.yaml");
+    for budget in ["inf", "1e300"] {
+        let out = run(&[
+            "estimate",
+            arg(&file),
+            "--budget",
+            budget,
+            "--max-states",
+            "1000",
+        ]);
+        assert_flag_error(&out, "--budget", "seconds");
+    }
+}
+
+#[test]
+fn cells_whose_number_overflows() {
+    let out = exact_square_ice(&["--cells", "4294967296x4294967296"]);
+    assert_flag_error(&out, "--cells '4294967296x4294967296'", "too large");
+}
+
+#[test]
+fn cells_too_large_to_build() {
+    let out = exact_square_ice(&["--cells", "10000000x10000000"]);
+    assert_flag_error(&out, "--cells '10000000x10000000'", "too large");
+}
+
+#[test]
+fn bond_with_a_far_reaching_shift() {
+    // Either outcome is clean: the file is accepted (the 3x3 torus wraps the shift like a
+    // shift of 1: 148 arrangements), or it is refused at the shift on line 9.
+    let file = fixture("far-bond-shift.yaml");
+    for args in [
+        vec!["inspect", arg(&file)],
+        vec!["exact", arg(&file), "--cells", "3x3"],
+    ] {
+        let out = run_within(&args, Duration::from_secs(60));
+        if out.status.code() == Some(0) {
+            let stdout = success(&out);
+            if args[0] == "exact" {
+                assert!(stdout.contains(" 148\n"), "{stdout}");
+            }
+        } else {
+            assert_input_error(&out, "far-bond-shift.yaml", Some(9), "shift");
+        }
+    }
+}
+
+#[test]
+fn bond_window_too_wide() {
+    for name in ["wide-bond-window.yaml", "huge-bond-window.yaml"] {
+        let file = fixture(name);
+        let out = run_within(&["inspect", arg(&file)], Duration::from_secs(30));
+        assert_input_error(&out, name, Some(8), "window");
+        assert!(
+            !mentions(&stderr_of(&out), "no O–O pair"),
+            "the window holds countless pairs: {}",
+            stderr_of(&out)
+        );
+    }
+}
+
+#[test]
+fn syntax_errors_state_the_position_once() {
+    for (name, line) in [("unknown-key.yaml", 7), ("not-yaml.yaml", 2)] {
+        let out = run(&["inspect", arg(&fixture(name))]);
+        let message = error_line(&out, INPUT_ERROR);
+        assert!(
+            !message.contains(&format!("line {line} column")),
+            "the position appears once: {message}"
+        );
+    }
+}
+
+#[test]
+fn number_given_as_a_word() {
+    let file = fixture("dimensions-not-a-number.yaml");
+    let out = run(&["inspect", arg(&file)]);
+    assert_input_error(&out, "dimensions-not-a-number.yaml", Some(3), "number");
+    assert!(!stderr_of(&out).contains("u64"), "{}", stderr_of(&out));
+}
+
+#[test]
+fn duplicate_key() {
+    let file = fixture("duplicate-key.yaml");
+    let out = run(&["inspect", arg(&file)]);
+    assert_input_error(&out, "duplicate-key.yaml", Some(11), "duplicate");
+    assert!(
+        !stderr_of(&out).contains("DuplicateKeyPolicy"),
+        "{}",
+        stderr_of(&out)
+    );
+}
+
+/// Messages show the path as it was given on the command line.
+#[test]
+fn messages_show_the_path_as_given() {
+    let relative = PathBuf::from("tests/data/unknown-key.yaml");
+    let out = Command::new(env!("CARGO_BIN_EXE_groundcount"))
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .args(["inspect", arg(&relative)])
+        .output()
+        .expect("the groundcount binary runs");
+    let message = error_line(&out, INPUT_ERROR);
+    assert!(
+        message.starts_with("error: tests/data/unknown-key.yaml:7:"),
+        "{message}"
+    );
+}

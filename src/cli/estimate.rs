@@ -46,8 +46,11 @@ fn cell_sequence(dimensions: usize) -> impl Iterator<Item = Cells> {
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
-    if !(args.budget > 0.0) {
-        anyhow::bail!("--budget must be a positive number of seconds");
+    if !(args.budget.is_finite() && args.budget > 0.0 && args.budget <= 1e7) {
+        anyhow::bail!(
+            "--budget must be a positive number of seconds (at most 1e7), found {}",
+            args.budget
+        );
     }
     let lattice = load(args.file.as_deref())?;
     let c = &lattice.crystal;

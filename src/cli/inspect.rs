@@ -22,6 +22,9 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
+    if matches!(args.format, Format::Csv | Format::Markdown) {
+        anyhow::bail!("inspect prints --format table or json");
+    }
     let lattice = load(args.file.as_deref())?;
     let c = &lattice.crystal;
     let p = pauling::estimate(c)?;
@@ -78,12 +81,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         ["length", "area", "volume"][c.dimensions - 1],
         c.cell_measure()
     )?;
-    for k in 0..c.dimensions {
-        let v: Vec<String> = c.vectors[k][..c.dimensions]
-            .iter()
-            .map(|x| sig(*x, 6))
-            .collect();
-        writeln!(out, "  {} = [{}]", names[k], v.join(", "))?;
+    for (name, vector) in names.iter().zip(&c.vectors).take(c.dimensions) {
+        let v: Vec<String> = vector[..c.dimensions].iter().map(|x| sig(*x, 6)).collect();
+        writeln!(out, "  {name} = [{}]", v.join(", "))?;
     }
     let mut t = report::Table::new(&["site", "species", "fractional position", "coordination"]);
     for (s, k) in c.sites.iter().zip(&coordination) {
@@ -95,7 +95,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             k.to_string(),
         ]);
     }
-    writeln!(out, "\n{} sites per cell:\n{}", c.sites.len(), t.render())?;
+    writeln!(
+        out,
+        "\n{} per cell:\n{}",
+        plural(c.sites.len(), "site"),
+        t.render()
+    )?;
     if !c.bonds.is_empty() {
         let mut t = report::Table::new(&["bond", "from", "to", "shift", "length"]);
         for b in &c.bonds {
@@ -111,7 +116,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 sig(b.length, 6),
             ]);
         }
-        writeln!(out, "{} bonds per cell:\n{}", c.bonds.len(), t.render())?;
+        writeln!(
+            out,
+            "{} per cell:\n{}",
+            plural(c.bonds.len(), "bond"),
+            t.render()
+        )?;
     }
     for g in &c.groups {
         writeln!(out, "group {}: {} sites", g.id, g.members.len())?;
@@ -161,4 +171,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         sig(p.s_j_per_mol_k(), 6)
     )?;
     Ok(out)
+}
+
+fn plural(n: usize, word: &str) -> String {
+    if n == 1 {
+        format!("1 {word}")
+    } else {
+        format!("{n} {word}s")
+    }
 }

@@ -497,7 +497,7 @@ fn run<C: Tally>(
             return Err(Failure::Stop(Error::Budget {
                 cells: model.cells.clone(),
                 detail: format!(
-                    "the frontier reached {n} states at step {} of {} (budget {}); it could grow to 2^{:.0}",
+                    "the frontier reached {n} states at step {} of {} (budget {}, set by --max-states); it could grow to 2^{:.0}",
                     t + 1,
                     plan.order.len(),
                     config.max_states,

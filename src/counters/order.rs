@@ -204,10 +204,10 @@ pub fn choose(model: &Model) -> Option<Plan> {
         [2, 1, 0],
     ];
     let mut consider = |p: Option<Plan>| {
-        if let Some(p) = p {
-            if best.as_ref().is_none_or(|b| p.cost < b.cost) {
-                best = Some(p);
-            }
+        if let Some(p) = p
+            && best.as_ref().is_none_or(|b| p.cost < b.cost)
+        {
+            best = Some(p);
         }
     };
     for axes in perms {
