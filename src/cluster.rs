@@ -349,3 +349,28 @@ pub enum ClusterEntity {
     /// Cluster bond index.
     Bond(usize),
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn parses_sizes_and_open_axes() {
+        let c = Cells::parse("4x3x2", Some("a, c"), 3).unwrap();
+        assert_eq!(c.counts, [4, 3, 2]);
+        assert_eq!(c.periodic, [false, true, false]);
+        assert_eq!(c.total(), 24);
+        assert_eq!(c.to_string(), "4x3x2 open along a,c");
+        let one = Cells::parse("5", None, 2).unwrap();
+        assert_eq!(one.counts, [5, 5, 1]);
+        assert_eq!(one.to_string(), "5x5 periodic");
+    }
+
+    #[test]
+    fn refuses_bad_sizes() {
+        for bad in ["0x4", "4by4", "4x", "4x4x4", "-1x2", "99999999x99999999"] {
+            assert!(Cells::parse(bad, None, 2).is_err(), "{bad}");
+        }
+        assert!(Cells::parse("4x4", Some("c"), 2).is_err());
+    }
+}

@@ -88,3 +88,36 @@ pub fn ln_big(n: &BigUint) -> f64 {
     let top = (n >> shift).to_f64().unwrap_or(f64::INFINITY);
     top.ln() + shift as f64 * std::f64::consts::LN_2
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn logarithm_of_big_integers() {
+        assert_eq!(ln_big(&BigUint::from(0u32)), f64::NEG_INFINITY);
+        assert!((ln_big(&BigUint::from(148u32)) - 148f64.ln()).abs() < 1e-14);
+        // 3^2000 has 3170 bits: beyond f64, through the shifted path.
+        let big = BigUint::from(3u32).pow(2000);
+        let expected = 2000.0 * 3f64.ln();
+        assert!((ln_big(&big) - expected).abs() < 1e-9 * expected);
+    }
+
+    #[test]
+    fn entropy_follows_from_ln_w() {
+        let e = Estimate {
+            method: Method::Pauling,
+            cells: None,
+            count: None,
+            ln_count: 1.5f64.ln(),
+            formula_units: 1.0,
+            ln_w_per_unit: 1.5f64.ln(),
+            sigma_ln_w: Some(0.01),
+            seconds: 0.0,
+            peak_states: None,
+        };
+        // R ln(3/2) = 3.3712 J/(mol K) (Pauling 1935, with R exact in the 2019 SI).
+        assert!((e.s_j_per_mol_k() - 3.371_224_484).abs() < 1e-8);
+        assert!((e.sigma_w().unwrap() - 0.015).abs() < 1e-12);
+    }
+}

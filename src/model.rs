@@ -238,3 +238,48 @@ fn compile_table(
         size,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::Lattice;
+    use crate::cluster::{Cells, Cluster};
+
+    use super::*;
+
+    const SQUARE_ICE: &str = include_str!("../lattices/square-ice.yaml");
+
+    fn model(cells: &str, open: Option<&str>) -> Model {
+        let l = Lattice::from_yaml(SQUARE_ICE, "square-ice.yaml").unwrap();
+        let cluster = Cluster::new(&l.crystal, Cells::parse(cells, open, 2).unwrap()).unwrap();
+        Model::new(&cluster).unwrap()
+    }
+
+    #[test]
+    fn ice_rule_table_allows_six_of_sixteen() {
+        let m = model("3x3", None);
+        assert_eq!(m.variables.len(), 18);
+        assert_eq!(m.constraints.len(), 9);
+        assert_eq!(m.tables.len(), 1, "identical tables are shared");
+        assert_eq!((m.tables[0].allowed, m.tables[0].size), (6, 16)); // C(4,2) of 2^4
+        assert!(!m.has_repeats);
+    }
+
+    #[test]
+    fn self_loops_on_the_one_cell_torus() {
+        // Each bond wraps onto the single site: it points both in and out, so the inward
+        // count is always 2 and every one of the 4 assignments is allowed (OEIS A054759: 4).
+        let m = model("1x1", None);
+        assert!(m.has_repeats);
+        assert_eq!(m.constraints[0].scope.len(), 2);
+        assert_eq!(m.tables[m.constraints[0].table].allowed, 4);
+    }
+
+    #[test]
+    fn open_boundaries_drop_bonds() {
+        let m = model("3x3", Some("a,b"));
+        assert_eq!(m.variables.len(), 12); // 2·3·2 bonds inside a 3×3 open patch
+        let sizes: Vec<usize> = m.constraints.iter().map(|c| c.scope.len()).collect();
+        assert_eq!(sizes.iter().filter(|&&s| s == 2).count(), 4); // corners
+        assert_eq!(sizes.iter().filter(|&&s| s == 4).count(), 1); // centre
+    }
+}

@@ -191,3 +191,25 @@ pub fn estimate_json(crystal: &Crystal, e: &Estimate, pauling: Option<&Estimate>
 fn finite(x: f64) -> Value {
     if x.is_finite() { json!(x) } else { Value::Null }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn significant_digits() {
+        assert_eq!(sig(1.5, 4), "1.500");
+        assert_eq!(sig(3.371218, 6), "3.37122");
+        assert_eq!(sig(123456.0, 3), "123456");
+        assert_eq!(sig(1.0e-7, 3), "1.00e-7");
+        assert_eq!(sig(0.0, 3), "0");
+    }
+
+    #[test]
+    fn tables_align_and_escape() {
+        let mut t = Table::new(&["a", "bb"]);
+        t.row(vec!["xyz".into(), "1,2".into()]);
+        assert_eq!(t.render(), "a    bb\n---  ---\nxyz  1,2\n");
+        assert_eq!(t.render_csv(), "a,bb\nxyz,\"1,2\"\n");
+    }
+}

@@ -257,3 +257,13 @@ pub fn smallest_frontier_log2(model: &Model) -> f64 {
     }
     best
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn field_widths() {
+        assert_eq!([2, 3, 4, 5, 8, 9].map(width), [1, 2, 2, 3, 3, 4]);
+    }
+}
