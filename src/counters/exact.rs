@@ -114,6 +114,44 @@ impl Tally for BigUint {
     }
 }
 
+/// A counting run in one integer type, returning the count as a big integer.
+type Runner = fn(&Model, &Plan, &ExactConfig) -> std::result::Result<(BigUint, usize), Failure>;
+
+/// A fixed-width unsigned integer of `N` 64-bit limbs (least significant first): counts
+/// beyond u128 without an allocation per state.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+struct Wide<const N: usize>([u64; N]);
+
+impl<const N: usize> Tally for Wide<N> {
+    fn zero() -> Self {
+        Wide([0; N])
+    }
+    fn one() -> Self {
+        let mut w = [0; N];
+        w[0] = 1;
+        Wide(w)
+    }
+    #[inline]
+    fn add(&mut self, other: &Self) -> bool {
+        let mut carry = false;
+        for (a, b) in self.0.iter_mut().zip(&other.0) {
+            let (s1, c1) = a.overflowing_add(*b);
+            let (s2, c2) = s1.overflowing_add(carry as u64);
+            *a = s2;
+            carry = c1 | c2;
+        }
+        !carry
+    }
+    fn into_big(self) -> BigUint {
+        let digits: Vec<u32> = self
+            .0
+            .iter()
+            .flat_map(|l| [*l as u32, (*l >> 32) as u32])
+            .collect();
+        BigUint::new(digits)
+    }
+}
+
 /// A constraint compiled against the plan's bit layout.
 struct Check<'m> {
     /// (offset, mask, stride) per scope variable.
@@ -175,20 +213,30 @@ pub fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
     // (overflow is detected exactly in any case, and then the count restarts in big integers).
     let guess_bits =
         super::pauling::for_model(model) * model.formula_units / std::f64::consts::LN_2;
-    let result = if guess_bits < 120.0 {
-        run::<u128>(model, &plan, config)
-    } else {
-        Err(Failure::Overflow)
-    };
-    let (count, peak) = match result {
-        Ok((c, p)) => (c.into_big(), p),
-        Err(Failure::Overflow) => match run::<BigUint>(model, &plan, config) {
-            Ok(r) => r,
+    // Try the narrowest integer width the guess allows, widening on overflow.
+    let widths: [(u32, Runner); 6] = [
+        (120, run::<u128>),
+        (250, run::<Wide<4>>),
+        (500, run::<Wide<8>>),
+        (1000, run::<Wide<16>>),
+        (2000, run::<Wide<32>>),
+        (u32::MAX, run::<BigUint>),
+    ];
+    let mut outcome = None;
+    for (limit, runner) in widths {
+        if (limit as f64) < guess_bits {
+            continue;
+        }
+        match runner(model, &plan, config) {
+            Ok(r) => {
+                outcome = Some(r);
+                break;
+            }
+            Err(Failure::Overflow) => continue,
             Err(Failure::Stop(e)) => return Err(e),
-            Err(Failure::Overflow) => unreachable!("big integers do not overflow"),
-        },
-        Err(Failure::Stop(e)) => return Err(e),
-    };
+        }
+    }
+    let (count, peak) = outcome.expect("big integers do not overflow");
     let mut count = count;
     for &v in &plan.free {
         count *= model.variables[v].states;
@@ -424,7 +472,7 @@ fn run<C: Tally>(
     model: &Model,
     plan: &Plan,
     config: &ExactConfig,
-) -> std::result::Result<(C, usize), Failure> {
+) -> std::result::Result<(BigUint, usize), Failure> {
     let mut pos = vec![0u32; model.variables.len()];
     for (t, &v) in plan.order.iter().enumerate() {
         pos[v] = plan.offsets[t];
@@ -512,7 +560,7 @@ fn run<C: Tally>(
         }
         peak = peak.max(n);
         if n == 0 {
-            return Ok((C::zero(), peak));
+            return Ok((BigUint::from(0u32), peak));
         }
     }
     let mut total = C::zero();
@@ -523,5 +571,40 @@ fn run<C: Tally>(
             }
         }
     }
-    Ok((total, peak))
+    Ok((total.into_big(), peak))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::Lattice;
+    use crate::cluster::{Cells, Cluster};
+
+    #[test]
+    fn wide_integers_carry_and_detect_overflow() {
+        let mut a = Wide::<2>([u64::MAX, 0]);
+        assert!(a.add(&Wide::<2>::one()));
+        assert_eq!(a.0, [0, 1]);
+        assert_eq!(a.into_big(), BigUint::from(1u128 << 64));
+        let mut full = Wide::<2>([u64::MAX, u64::MAX]);
+        assert!(
+            !full.add(&Wide::<2>::one()),
+            "2^128 does not fit in two limbs"
+        );
+    }
+
+    #[test]
+    fn every_integer_width_gives_the_same_count() {
+        let yaml = include_str!("../../lattices/square-ice.yaml");
+        let l = Lattice::from_yaml(yaml, "square-ice.yaml").unwrap();
+        let cluster = Cluster::new(&l.crystal, Cells::parse("5x5", None, 2).unwrap()).unwrap();
+        let model = Model::new(&cluster).unwrap();
+        let plan = order::choose(&model).unwrap();
+        let config = ExactConfig::default();
+        let expected = BigUint::from(143_224u32); // OEIS A054759, L = 5
+        let runners: [Runner; 4] = [run::<u128>, run::<Wide<4>>, run::<Wide<16>>, run::<BigUint>];
+        for r in runners {
+            assert_eq!(r(&model, &plan, &config).ok().unwrap().0, expected);
+        }
+    }
 }
