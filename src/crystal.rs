@@ -732,7 +732,10 @@ impl Crystal {
                 "spin" => VariableKind::Spin,
                 "occupancy" => VariableKind::Occupancy,
                 "color" => match &v.states {
-                    Some(q) if q.value >= 2 => VariableKind::Color(q.value),
+                    Some(q) if (2..=64).contains(&q.value) => VariableKind::Color(q.value),
+                    Some(q) if q.value > 64 => {
+                        return ck.at(q, "a color variable may have at most 64 states");
+                    }
                     Some(q) => return ck.at(q, "a color variable needs `states` of at least 2"),
                     None => return ck.at(&v.kind, "a color variable needs `states: q` (q >= 2)"),
                 },

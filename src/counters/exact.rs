@@ -154,19 +154,27 @@ impl<const N: usize> Tally for Wide<N> {
 
 /// A constraint compiled against the plan's bit layout.
 struct Check<'m> {
-    /// (offset, mask, stride) per scope variable.
+    /// (offset, mask, stride) per scope variable other than the step's new one.
     fields: Vec<(u32, u64, u64)>,
+    /// Stride of the step's new variable (it completes the constraint, so it is in scope).
+    new_stride: u64,
     table: &'m crate::model::Table,
 }
 
 impl Check<'_> {
+    /// The values of the new variable (as a bit mask over `0..states`) that the constraint
+    /// allows, given the other variables' values in `key`.
     #[inline]
-    fn allows(&self, key: u64) -> bool {
+    fn allowed_values(&self, key: u64, states: u64) -> u64 {
         let mut index = 0u64;
         for &(off, mask, stride) in &self.fields {
             index += ((key >> off) & mask) * stride;
         }
-        self.table.allows(index)
+        let mut allowed = 0u64;
+        for x in 0..states {
+            allowed |= u64::from(self.table.allows(index + x * self.new_stride)) << x;
+        }
+        allowed
     }
 }
 
@@ -272,26 +280,30 @@ impl<C> Piece<C> {
 }
 
 /// One step of the sweep, compiled: add a variable, check what completes, forget fields.
-struct Step<'a, 'm> {
+///
+/// Keys are packed with the newest variable in the lowest bits: a step shifts the key up by
+/// the new variable's width and writes its value below, then squeezes out the fields of the
+/// variables it forgets. Both moves keep the input's order among keys whose forgotten
+/// fields agree, so each *stream* (one pattern of forgotten values) comes out sorted and
+/// the step is a merge of a few sorted streams (none at all when nothing is forgotten).
+struct Step<'m> {
     states: u64,
-    offset: u32,
-    checks: &'a [Check<'m>],
-    keep: u64,
-    /// (offset, mask) of the fields of earlier variables dropped at this step.
+    width: u32,
+    /// Constraints completed by this step, with offsets in the shifted key.
+    checks: Vec<Check<'m>>,
+    /// (offset, mask) of the forgotten fields in the shifted key.
     dropped: Vec<(u32, u64)>,
-    /// Number of streams: new values × dropped-field patterns.
+    /// (source offset, mask, destination offset) of the runs of kept bits.
+    segments: Vec<(u32, u64, u32)>,
+    /// Number of streams: patterns of forgotten values.
     streams: usize,
 }
 
-impl Step<'_, '_> {
-    /// The stream an extended key belongs to: its new value and the dropped fields' values.
-    /// Within one stream the output keys keep the input's order (clearing fields that hold
-    /// the same values in every key, and setting a field that is zero in every key, are
-    /// monotone), so the step is a merge of sorted streams instead of a sort.
+impl Step<'_> {
     #[inline]
-    fn stream(&self, key: u64, x: u64) -> usize {
-        let mut s = x as usize;
-        let mut radix = self.states as usize;
+    fn stream(&self, key: u64) -> usize {
+        let mut s = 0usize;
+        let mut radix = 1usize;
         for &(off, mask) in &self.dropped {
             s += ((key >> off) & mask) as usize * radix;
             radix *= mask as usize + 1;
@@ -299,21 +311,35 @@ impl Step<'_, '_> {
         s
     }
 
+    #[inline]
+    fn squeeze(&self, key: u64) -> u64 {
+        self.segments.iter().fold(0, |acc, &(src, mask, dst)| {
+            acc | (((key >> src) & mask) << dst)
+        })
+    }
+
     /// Extend a sorted piece into one sorted buffer per stream.
     fn extend<C: Tally>(&self, input: &Piece<C>, out: &mut [Piece<C>]) {
+        let all = if self.states == 64 {
+            u64::MAX
+        } else {
+            (1u64 << self.states) - 1
+        };
         for (key, count) in input.keys.iter().zip(&input.counts) {
-            for x in 0..self.states {
-                let k = key | (x << self.offset);
-                // Push, then take the entry back if a check fails: about half the candidates
-                // fail in no predictable pattern, and a conditional length is cheaper than a
-                // mispredicted branch.
-                let ok = self.checks.iter().fold(true, |a, c| a & c.allows(k));
-                let f = &mut out[self.stream(*key, x)];
-                f.keys.push(k & self.keep);
+            let base = key << self.width;
+            // The completed constraints decide which new values survive, by table look-up,
+            // before any candidate is written.
+            let mut allowed = all;
+            for c in &self.checks {
+                allowed &= c.allowed_values(base, self.states);
+            }
+            while allowed != 0 {
+                let x = allowed.trailing_zeros() as u64;
+                allowed &= allowed - 1;
+                let k = base | x;
+                let f = &mut out[self.stream(k)];
+                f.keys.push(self.squeeze(k));
                 f.counts.push(count.clone());
-                let len = f.keys.len() - usize::from(!ok);
-                f.keys.truncate(len);
-                f.counts.truncate(len);
             }
         }
     }
@@ -412,6 +438,13 @@ impl<C: Tally> Frontier<C> {
         } else {
             work.for_each(|(p, sc)| step.extend(p, &mut sc[..step.streams]));
         }
+        if step.streams == 1 {
+            // Nothing forgotten: every piece's single stream is already the next piece.
+            for (p, sc) in self.pieces.iter_mut().zip(self.scratch.iter_mut()) {
+                std::mem::swap(p, &mut sc[0]);
+            }
+            return Ok(());
+        }
         // 2. Split the output key space into `ways` ranges of similar size.
         let mut splitters: Vec<u64> = Vec::new();
         if ways > 1 {
@@ -473,35 +506,7 @@ fn run<C: Tally>(
     plan: &Plan,
     config: &ExactConfig,
 ) -> std::result::Result<(BigUint, usize), Failure> {
-    let mut pos = vec![0u32; model.variables.len()];
-    for (t, &v) in plan.order.iter().enumerate() {
-        pos[v] = plan.offsets[t];
-    }
-    let checks: Vec<Vec<Check>> = plan
-        .completes
-        .iter()
-        .map(|cs| {
-            cs.iter()
-                .map(|&c| {
-                    let con = &model.constraints[c];
-                    let table = &model.tables[con.table];
-                    let mut stride = 1u64;
-                    let fields = con
-                        .scope
-                        .iter()
-                        .zip(&table.radices)
-                        .map(|(&v, &q)| {
-                            let f = (pos[v], (1u64 << width(q)) - 1, stride);
-                            stride *= q as u64;
-                            f
-                        })
-                        .collect();
-                    Check { fields, table }
-                })
-                .collect()
-        })
-        .collect();
-    // Which earlier variables leave at each step.
+    // Which variables leave after each step.
     let mut last_use = vec![0usize; model.variables.len()];
     for (t, cs) in plan.completes.iter().enumerate() {
         for &c in cs {
@@ -509,6 +514,96 @@ fn run<C: Tally>(
                 last_use[v] = last_use[v].max(t);
             }
         }
+    }
+    let mut leaving: Vec<Vec<usize>> = vec![Vec::new(); plan.order.len()];
+    for &v in &plan.order {
+        leaving[last_use[v]].push(v);
+    }
+    // Follow the key layout (newest variable lowest) through the sweep.
+    let field = |v: usize| width(model.variables[v].states);
+    let mut layout: Vec<usize> = Vec::new(); // frontier variables from the lowest bits up
+    let mut steps: Vec<Step> = Vec::with_capacity(plan.order.len());
+    for (t, &v) in plan.order.iter().enumerate() {
+        layout.insert(0, v);
+        let mut offset = vec![0u32; 0];
+        let mut acc = 0u32;
+        for &u in &layout {
+            offset.push(acc);
+            acc += field(u);
+        }
+        if acc > 63 {
+            return Err(Failure::Stop(Error::Budget {
+                cells: model.cells.clone(),
+                detail: format!(
+                    "its frontier needs {acc} bits, more than 63 (up to 2^{:.0} states)",
+                    plan.max_log2_states
+                ),
+            }));
+        }
+        let offset_of = |u: usize| {
+            offset[layout
+                .iter()
+                .position(|&w| w == u)
+                .expect("on the frontier")]
+        };
+        let checks: Vec<Check> = plan.completes[t]
+            .iter()
+            .map(|&c| {
+                let con = &model.constraints[c];
+                let table = &model.tables[con.table];
+                let mut stride = 1u64;
+                let mut new_stride = 0;
+                let mut fields = Vec::with_capacity(con.scope.len());
+                for (&u, &q) in con.scope.iter().zip(&table.radices) {
+                    if u == v {
+                        new_stride = stride;
+                    } else {
+                        fields.push((offset_of(u), (1u64 << width(q)) - 1, stride));
+                    }
+                    stride *= q as u64;
+                }
+                Check {
+                    fields,
+                    new_stride,
+                    table,
+                }
+            })
+            .collect();
+        let dropped: Vec<(u32, u64)> = leaving[t]
+            .iter()
+            .map(|&u| (offset_of(u), (1u64 << field(u)) - 1))
+            .collect();
+        let streams = dropped
+            .iter()
+            .fold(1usize, |a, &(_, m)| a * (m as usize + 1));
+        // Runs of kept fields, packed down.
+        let mut segments: Vec<(u32, u64, u32)> = Vec::new();
+        let mut dst = 0u32;
+        for (i, &u) in layout.iter().enumerate() {
+            if leaving[t].contains(&u) {
+                continue;
+            }
+            let w = field(u);
+            match segments.last_mut() {
+                Some((src, mask, d))
+                    if *src + (64 - mask.leading_zeros()) == offset[i]
+                        && *d + (64 - mask.leading_zeros()) == dst =>
+                {
+                    *mask = (*mask << w) | ((1u64 << w) - 1);
+                }
+                _ => segments.push((offset[i], (1u64 << w) - 1, dst)),
+            }
+            dst += w;
+        }
+        layout.retain(|u| !leaving[t].contains(u));
+        steps.push(Step {
+            states: model.variables[v].states as u64,
+            width: field(v),
+            checks,
+            dropped,
+            segments,
+            streams,
+        });
     }
     let mut frontier: Frontier<C> = Frontier {
         pieces: vec![Piece {
@@ -519,7 +614,7 @@ fn run<C: Tally>(
         scratch: Vec::new(),
     };
     let mut peak = 1usize;
-    for (t, &v) in plan.order.iter().enumerate() {
+    for (t, step) in steps.iter().enumerate() {
         if let Some(d) = config.deadline
             && Instant::now() > d
         {
@@ -527,24 +622,7 @@ fn run<C: Tally>(
                 cells: model.cells.clone(),
             }));
         }
-        let dropped: Vec<(u32, u64)> = plan.order[..t]
-            .iter()
-            .filter(|&&u| last_use[u] == t)
-            .map(|&u| (pos[u], (1u64 << width(model.variables[u].states)) - 1))
-            .collect();
-        let states = model.variables[v].states as u64;
-        let streams = dropped
-            .iter()
-            .fold(states as usize, |a, &(_, m)| a * (m as usize + 1));
-        let step = Step {
-            states,
-            offset: plan.offsets[t],
-            checks: &checks[t],
-            keep: !plan.forget[t],
-            dropped,
-            streams,
-        };
-        frontier.step(&step)?;
+        frontier.step(step)?;
         let n = frontier.len();
         if n > config.max_states {
             return Err(Failure::Stop(Error::Budget {
