@@ -9,14 +9,18 @@
 //!
 //! Variables are added one at a time in the order of a [`Plan`]. The frontier holds the
 //! partial assignments of the variables that some unfinished constraint still reads, each
-//! packed into a `u64` (a bit field per variable), with the number of ways to reach it.
-//! Adding a variable multiplies each state by its values; a constraint is checked the
-//! moment its last variable arrives; a variable that no unfinished constraint reads is
-//! projected out, merging states that then coincide (sort and add). This is the transfer
-//! matrix method written variable by variable ("frontier" or path-decomposition counting).
+//! packed into a `u64` (a bit field per variable, the newest lowest), with the number of
+//! ways to reach it, as sorted runs of keys. Adding a variable shifts each key up and writes
+//! the variable's value below; a constraint is checked the moment its last variable
+//! arrives, by table look-up of the values that survive; a variable that no unfinished
+//! constraint reads is squeezed out of the key. Keys that agree on the squeezed-out values
+//! keep their order, so states that coincide are merged by a linear merge of a few sorted
+//! streams, never a sort. This is the transfer matrix method written variable by variable
+//! ("frontier" or path-decomposition counting).
 //!
-//! Counts run in `u128` with checked additions; on overflow the count restarts in
-//! arbitrary precision (`num-bigint`), so no number is ever silently wrapped.
+//! Counts run in `u128`, then in fixed-width integers, then in arbitrary precision
+//! (`num-bigint`), every addition checked: an overflow restarts the count one width up, so
+//! no number is ever silently wrapped.
 //!
 //! # Arguments and returns
 //!
@@ -25,7 +29,7 @@
 //!
 //! # Complexity
 //!
-//! Time O(Σ_t S_t · q_t · log S_t) and memory O(max_t S_t), where S_t is the number of
+//! Time O(Σ_t S_t · q_t) and memory O(max_t S_t), where S_t is the number of
 //! frontier states after step t; for a sweep of an L×L torus S_t grows like q^(2L) at
 //! worst (the two cuts of a torus), much less under restrictive rules.
 //! Large frontiers are processed in parallel with rayon (in whatever pool the caller
