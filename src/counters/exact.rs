@@ -510,19 +510,7 @@ fn run<C: Tally>(
     plan: &Plan,
     config: &ExactConfig,
 ) -> std::result::Result<(BigUint, usize), Failure> {
-    // Which variables leave after each step.
-    let mut last_use = vec![0usize; model.variables.len()];
-    for (t, cs) in plan.completes.iter().enumerate() {
-        for &c in cs {
-            for &v in &model.constraints[c].scope {
-                last_use[v] = last_use[v].max(t);
-            }
-        }
-    }
-    let mut leaving: Vec<Vec<usize>> = vec![Vec::new(); plan.order.len()];
-    for &v in &plan.order {
-        leaving[last_use[v]].push(v);
-    }
+    let leaving = &plan.leaving;
     // Follow the key layout (newest variable lowest) through the sweep.
     let field = |v: usize| width(model.variables[v].states);
     let mut layout: Vec<usize> = Vec::new(); // frontier variables from the lowest bits up
@@ -535,15 +523,7 @@ fn run<C: Tally>(
             offset.push(acc);
             acc += field(u);
         }
-        if acc > 63 {
-            return Err(Failure::Stop(Error::Budget {
-                cells: model.cells.clone(),
-                detail: format!(
-                    "its frontier needs {acc} bits, more than 63 (up to 2^{:.0} states)",
-                    plan.max_log2_states
-                ),
-            }));
-        }
+        debug_assert!(acc <= plan.max_bits, "the plan bounds the key width");
         let offset_of = |u: usize| {
             offset[layout
                 .iter()

@@ -1,8 +1,7 @@
 //! Variable orders for the frontier counter, and the plan that follows from one.
 //!
-//! A [`Plan`] fixes, for a variable order: the bit field each variable occupies while it is
-//! on the frontier, the constraints that become complete (all variables assigned) at each
-//! step, and the variables that leave the frontier after each step because no unfinished
+//! A [`Plan`] fixes, for a variable order: the constraints that become complete (all
+//! variables assigned) at each step, and the variables that leave the frontier after each step because no unfinished
 //! constraint reads them. [`choose`] tries sweeps along every axis (ordered by the other axes
 //! in turn) and a greedy order that always adds the variable completing the most, and keeps
 //! the plan with the least predicted work.
@@ -21,15 +20,13 @@ pub struct Plan {
     pub name: String,
     /// Variables in the order they are added (only variables some constraint reads).
     pub order: Vec<usize>,
-    /// Bit offset of each step's variable.
-    pub offsets: Vec<u32>,
     /// Constraints that become complete at each step.
     pub completes: Vec<Vec<usize>>,
-    /// Bits cleared after each step (variables leaving the frontier).
-    pub forget: Vec<u64>,
+    /// Variables leaving the frontier after each step (no unfinished constraint reads them).
+    pub leaving: Vec<Vec<usize>>,
     /// Number of variables no constraint reads (each multiplies the count by its states).
     pub free: Vec<usize>,
-    /// Largest number of bits in use.
+    /// Largest number of key bits in use (the fields of the frontier's variables, packed).
     pub max_bits: u32,
     /// Largest log2 of the frontier's state space (Σ log2 q over the frontier).
     pub max_log2_states: f64,
@@ -58,33 +55,26 @@ pub fn plan(model: &Model, order: Vec<usize>, name: String) -> Option<Plan> {
             last_use[v] = last_use[v].max(last);
         }
     }
-    let mut offsets = Vec::with_capacity(order.len());
-    let mut forget = vec![0u64; order.len()];
     let mut leaving: Vec<Vec<usize>> = vec![Vec::new(); order.len()];
     for &v in &order {
         leaving[last_use[v]].push(v);
     }
-    let mut used: u64 = 0;
-    let mut offset_of = vec![0u32; nv];
-    let (mut max_bits, mut log2, mut max_log2, mut cost) = (0u32, 0.0f64, 0.0f64, 0.0f64);
+    let (mut bits, mut max_bits, mut log2, mut max_log2, mut cost) =
+        (0u32, 0u32, 0.0f64, 0.0f64, 0.0f64);
     for (t, &v) in order.iter().enumerate() {
-        let w = width(model.variables[v].states);
-        let field = (1u64 << w) - 1;
-        // At most 63 bits: the counter uses u64::MAX as an end marker.
-        let off = (0..=63 - w).find(|&o| used & (field << o) == 0)?;
-        used |= field << off;
-        offset_of[v] = off;
-        offsets.push(off);
-        max_bits = max_bits.max(64 - used.leading_zeros());
+        bits += width(model.variables[v].states);
+        max_bits = max_bits.max(bits);
         log2 += (model.variables[v].states as f64).log2();
         max_log2 = max_log2.max(log2);
         cost += log2.min(60.0).exp2();
         for &u in &leaving[t] {
-            let wu = width(model.variables[u].states);
-            forget[t] |= ((1u64 << wu) - 1) << offset_of[u];
+            bits -= width(model.variables[u].states);
             log2 -= (model.variables[u].states as f64).log2();
         }
-        used &= !forget[t];
+    }
+    // At most 63 bits: the counter uses u64::MAX as an end marker.
+    if max_bits > 63 {
+        return None;
     }
     let mut constrained = vec![false; nv];
     for &v in &order {
@@ -94,9 +84,8 @@ pub fn plan(model: &Model, order: Vec<usize>, name: String) -> Option<Plan> {
     Some(Plan {
         name,
         order,
-        offsets,
         completes,
-        forget,
+        leaving,
         free,
         max_bits,
         max_log2_states: max_log2,
