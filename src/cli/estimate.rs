@@ -68,14 +68,17 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         }
         let cluster = Cluster::new(c, cells.clone())?;
         let model = Model::new(&cluster)?;
-        if args.common.progress() {
-            eprintln!("counting {cells} ({} variables)…", model.variables.len());
-        }
+        let (progress, bar) = args.common.exact_progress(&format!("counting {cells}"));
         let config = exact::ExactConfig {
             max_states: args.max_states,
             deadline: Some(deadline),
+            progress,
         };
-        match with_threads(args.common.threads, || exact::count(&model, &config))? {
+        let outcome = with_threads(args.common.threads, || exact::count(&model, &config))?;
+        if let Some(b) = bar {
+            b.finish_and_clear();
+        }
+        match outcome {
             Ok(e) => rows.push(e),
             Err(Error::Deadline { cells }) => {
                 stopped = format!(

@@ -35,19 +35,19 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let p = pauling::estimate(c)?;
     let cluster = Cluster::new(c, cells)?;
     let model = Model::new(&cluster)?;
+    let (progress, bar) = args
+        .common
+        .exact_progress(&format!("counting {}", model.cells));
     let config = exact::ExactConfig {
         max_states: args.max_states,
         deadline: None,
+        progress,
     };
-    if args.common.progress() {
-        eprintln!(
-            "counting {} ({} variables, {} constraints)…",
-            model.cells,
-            model.variables.len(),
-            model.constraints.len()
-        );
+    let e = with_threads(args.common.threads, || exact::count(&model, &config));
+    if let Some(b) = bar {
+        b.finish_and_clear();
     }
-    let e = with_threads(args.common.threads, || exact::count(&model, &config))??;
+    let e = e??;
     let unit = &c.formula_unit.name;
     match args.common.format {
         Format::Json => {

@@ -62,6 +62,37 @@ impl Common {
     fn progress(&self) -> bool {
         !self.quiet && std::io::stderr().is_terminal()
     }
+
+    /// A progress bar on standard error for one exact count, when progress is wanted.
+    fn exact_progress(
+        &self,
+        label: &str,
+    ) -> (
+        Option<groundcount::counters::exact::ProgressHook>,
+        Option<indicatif::ProgressBar>,
+    ) {
+        if !self.progress() {
+            return (None, None);
+        }
+        let bar = indicatif::ProgressBar::new(1);
+        bar.set_style(
+            indicatif::ProgressStyle::with_template(
+                "{prefix} [{bar:30}] step {pos}/{len}, {msg}, ETA {eta}",
+            )
+            .expect("valid template")
+            .progress_chars("=> "),
+        );
+        bar.set_prefix(label.to_string());
+        let b = bar.clone();
+        let hook = groundcount::counters::exact::ProgressHook(std::sync::Arc::new(
+            move |done, all, states| {
+                b.set_length(all as u64);
+                b.set_position(done as u64);
+                b.set_message(format!("{states} states"));
+            },
+        ));
+        (Some(hook), Some(bar))
+    }
 }
 
 /// Run the command line; returns the exit code.

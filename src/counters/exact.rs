@@ -52,6 +52,18 @@ pub struct ExactConfig {
     pub max_states: usize,
     /// Stop with [`Error::Deadline`] after this instant.
     pub deadline: Option<Instant>,
+    /// Told after every step: (steps done, steps in all, frontier states).
+    pub progress: Option<ProgressHook>,
+}
+
+/// A callback for progress reports (the library never prints; the caller decides).
+#[derive(Clone)]
+pub struct ProgressHook(pub std::sync::Arc<dyn Fn(usize, usize, usize) + Send + Sync>);
+
+impl std::fmt::Debug for ProgressHook {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("ProgressHook")
+    }
 }
 
 impl Default for ExactConfig {
@@ -59,6 +71,7 @@ impl Default for ExactConfig {
         ExactConfig {
             max_states: DEFAULT_MAX_STATES,
             deadline: None,
+            progress: None,
         }
     }
 }
@@ -621,6 +634,9 @@ fn run<C: Tally>(
             }));
         }
         peak = peak.max(n);
+        if let Some(p) = &config.progress {
+            (p.0)(t + 1, steps.len(), n);
+        }
         if n == 0 {
             return Ok((BigUint::from(0u32), peak));
         }
