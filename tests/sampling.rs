@@ -1,0 +1,143 @@
+//! Monte Carlo (thermodynamic integration) against the exact frontier counter, error-bar
+//! scaling, and reproducibility across thread counts.
+
+use groundcount::Lattice;
+use groundcount::cluster::{Cells, Cluster};
+use groundcount::counters::exact::{self, ExactConfig};
+use groundcount::counters::sampling::{self, SampleConfig, Sampled};
+use groundcount::model::Model;
+
+use crate::util::lattice;
+
+fn model(file: &str, cells: &str) -> Model {
+    let l = Lattice::from_file(&lattice(file)).unwrap();
+    let cells = Cells::parse(cells, None, l.crystal.dimensions).unwrap();
+    Model::new(&Cluster::new(&l.crystal, cells).unwrap()).unwrap()
+}
+
+fn in_pool<T: Send>(threads: usize, f: impl FnOnce() -> T + Send) -> T {
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .unwrap()
+        .install(f)
+}
+
+fn config(seed: u64, replicas: usize, sweeps: usize) -> SampleConfig {
+    SampleConfig {
+        seed,
+        replicas,
+        sweeps,
+        equilibration: sweeps / 4,
+        ..SampleConfig::default()
+    }
+}
+
+/// The sampled ln W per formula unit must lie within 4σ of the exact count of the same
+/// cell (an independent method: frontier dynamic programming), and σ must be small enough
+/// for the check to mean something.
+fn agrees_with_exact(file: &str, cells: &str, sweeps: usize, max_sigma: f64) -> Sampled {
+    let m = model(file, cells);
+    let exact = exact::count(&m, &ExactConfig::default()).unwrap();
+    let s = in_pool(2, || sampling::sample(&m, &config(7, 8, sweeps))).unwrap();
+    let sigma = s.estimate.sigma_ln_w.unwrap();
+    let diff = s.estimate.ln_w_per_unit - exact.ln_w_per_unit;
+    assert!(
+        sigma > 0.0 && sigma < max_sigma,
+        "{file} {cells}: σ = {sigma}"
+    );
+    assert!(
+        diff.abs() < 4.0 * sigma,
+        "{file} {cells}: sampled {} ± {sigma}, exact {}",
+        s.estimate.ln_w_per_unit,
+        exact.ln_w_per_unit
+    );
+    s
+}
+
+#[test]
+fn square_ice_6x6_torus_agrees_with_the_exact_count() {
+    agrees_with_exact("square-ice.yaml", "6x6", 1000, 0.005);
+}
+
+#[test]
+fn triangular_antiferromagnet_6x6_agrees_with_the_exact_count() {
+    // Exact count 263640 (REFERENCES.md, independent computation; reproduced by `exact`).
+    agrees_with_exact("triangular-afm.yaml", "6x6", 1000, 0.003);
+}
+
+#[test]
+fn ice_ih_2x2x2_agrees_with_the_exact_count() {
+    agrees_with_exact("ice-ih.yaml", "2x2x2", 1000, 0.006);
+}
+
+#[test]
+fn spin_ice_2x2x2_agrees_with_the_exact_count() {
+    agrees_with_exact("spin-ice.yaml", "2x2x2", 1000, 0.004);
+}
+
+#[test]
+fn many_state_variables_agree_with_the_exact_count() {
+    // The general (q > 2) heat-bath path: proper 3-colourings of the 6×6 square torus,
+    // against the exact frontier count of the same cell.
+    let l = Lattice::from_yaml(
+        r#"
+name: square 3-colourings
+dimensions: 2
+cell: {vectors: [[1.0, 0.0], [0.0, 1.0]]}
+sites: [{id: A, at: [0.0, 0.0]}]
+bonds:
+  - {id: h, from: A, to: A, shift: [1, 0]}
+  - {id: v, from: A, to: A, shift: [0, 1]}
+variables: [{on: sites, kind: color, states: 3}]
+rules: [{kind: distinct, at: bonds}]
+formula_unit: {name: site, per: sites}
+"#,
+        "colourings.yaml",
+    )
+    .unwrap();
+    let m = Model::new(&Cluster::new(&l.crystal, Cells::parse("6x6", None, 2).unwrap()).unwrap())
+        .unwrap();
+    let exact = exact::count(&m, &ExactConfig::default()).unwrap();
+    let s = in_pool(2, || sampling::sample(&m, &config(3, 8, 600))).unwrap();
+    let sigma = s.estimate.sigma_ln_w.unwrap();
+    assert!(sigma < 0.01, "σ = {sigma}");
+    let diff = s.estimate.ln_w_per_unit - exact.ln_w_per_unit;
+    assert!(
+        diff.abs() < 4.0 * sigma,
+        "{} ± {sigma} vs {}",
+        s.estimate.ln_w_per_unit,
+        exact.ln_w_per_unit
+    );
+}
+
+#[test]
+fn statistical_error_falls_as_one_over_root_samples() {
+    // Four times the replicas should halve the standard error (common practice: σ ∝ 1/√n
+    // for independent replicas). The spread of a standard error from 8 replicas is about
+    // 25 %, so the ratio is allowed between 1.3 and 3.2.
+    let m = model("square-ice.yaml", "6x6");
+    let few = in_pool(2, || sampling::sample(&m, &config(11, 8, 200))).unwrap();
+    let many = in_pool(2, || sampling::sample(&m, &config(12, 32, 200))).unwrap();
+    let ratio = few.sigma_statistical / many.sigma_statistical;
+    assert!((1.3..3.2).contains(&ratio), "σ ratio {ratio}");
+}
+
+#[test]
+fn same_seed_same_numbers_on_any_thread_count() {
+    let m = model("ice-ih.yaml", "2x2x2");
+    let one = in_pool(1, || sampling::sample(&m, &config(42, 4, 50))).unwrap();
+    let two = in_pool(2, || sampling::sample(&m, &config(42, 4, 50))).unwrap();
+    let bits = |s: &Sampled| -> Vec<u64> { s.per_replica.iter().map(|x| x.to_bits()).collect() };
+    assert_eq!(bits(&one), bits(&two));
+    assert_eq!(
+        one.estimate.ln_w_per_unit.to_bits(),
+        two.estimate.ln_w_per_unit.to_bits()
+    );
+    let other = in_pool(2, || sampling::sample(&m, &config(43, 4, 50))).unwrap();
+    assert_ne!(
+        bits(&one),
+        bits(&other),
+        "a different seed gives different numbers"
+    );
+}
