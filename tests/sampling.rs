@@ -113,14 +113,15 @@ formula_unit: {name: site, per: sites}
 
 #[test]
 fn statistical_error_falls_as_one_over_root_samples() {
-    // Four times the replicas should halve the standard error (common practice: σ ∝ 1/√n
-    // for independent replicas). The spread of a standard error from 8 replicas is about
-    // 25 %, so the ratio is allowed between 1.3 and 3.2.
+    // Four times the measured sweeps should halve the standard error when the sweeps are
+    // much longer than the correlation time (common practice: σ ∝ 1/√n). The standard
+    // error from 32 replicas scatters by about 13 %, and the per-replica estimates are
+    // skewed (defect pairs live long at large β), so the ratio may lie between 1.4 and 3.2.
     let m = model("square-ice.yaml", "6x6");
-    let few = in_pool(2, || sampling::sample(&m, &config(11, 8, 200))).unwrap();
+    let few = in_pool(2, || sampling::sample(&m, &config(11, 32, 50))).unwrap();
     let many = in_pool(2, || sampling::sample(&m, &config(12, 32, 200))).unwrap();
     let ratio = few.sigma_statistical / many.sigma_statistical;
-    assert!((1.3..3.2).contains(&ratio), "σ ratio {ratio}");
+    assert!((1.4..3.2).contains(&ratio), "σ ratio {ratio}");
 }
 
 #[test]

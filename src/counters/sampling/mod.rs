@@ -18,12 +18,14 @@
 //!
 //! # Method
 //!
-//! The integral is taken in t = e^{−β}, ∫₀¹ (⟨E⟩ − E_ref)/t dt, by Simpson's rule on
-//! equally spaced nodes of [t_min, 1] (t_min = e^{−β_max}); the node t = 1 (β = 0) needs no
-//! sampling, since there ⟨E⟩ = E_ref exactly. The piece below t_min is the analytic
-//! reference part plus ∫₀^{t_min} ⟨E⟩/t dt, which lies between 0 and ⟨E⟩(t_min) when
-//! ⟨E⟩ ∝ t^k with k ≥ 1 (every violation costs at least 1): it is taken as ⟨E⟩(t_min)/2
-//! with a uniform-interval uncertainty ⟨E⟩(t_min)/(2√3). The discretisation error is
+//! The integral is taken over β on [0, β_max] by Simpson's rule on equally spaced nodes
+//! ([`integrate`] says why not in t = e^{−β}); the node β = 0 needs no sampling, since there
+//! ⟨E⟩ = E_ref exactly. Beyond β_max the reference part is analytic,
+//! ∫_{β_max}^∞ e_ref dβ = ln(p + (1 − p) e^{−β_max}) − ln p, and ∫_{β_max}^∞ ⟨E⟩ dβ lies
+//! between 0 and ⟨E⟩(β_max) when ⟨E⟩ ∝ e^{−kβ} with k ≥ 1 (every violation costs at least
+//! 1): it is taken as ⟨E⟩(β_max)/2 with a uniform-interval uncertainty ⟨E⟩(β_max)/(2√3).
+//! β_max grows with the cell (ln of the number of constraints, plus 3), so that only a
+//! handful of violations remain there. The discretisation error is
 //! Richardson's |S_n − S_(n+1)/2|/15 on the replica-mean integrand.
 //!
 //! Every replica starts from a uniformly random assignment (the exact β = 0 ensemble) and
@@ -77,9 +79,9 @@ pub struct SampleConfig {
     pub sweeps: usize,
     /// Sweeps before measuring at each node.
     pub equilibration: usize,
-    /// Quadrature nodes in t = e^{−β}, of the form 4m + 1 (at least 5).
+    /// Quadrature nodes on [0, β_max], of the form 4m + 1 (at least 5).
     pub nodes: usize,
-    /// Largest β sampled; `None` chooses 0.5 ln(constraints) + 3, clamped to [4, 12].
+    /// Largest β sampled; `None` chooses ln(constraints) + 3, clamped to [5, 14].
     pub beta_max: Option<f64>,
 }
 
@@ -90,7 +92,7 @@ impl Default for SampleConfig {
             replicas: 8,
             sweeps: 200,
             equilibration: 50,
-            nodes: 33,
+            nodes: 41,
             beta_max: None,
         }
     }
@@ -115,7 +117,7 @@ pub struct Sampled {
     pub samples: u64,
     /// Single-variable updates in all, equilibration included.
     pub updates: u64,
-    /// β of every node (infinite for none; the last is 0).
+    /// β of every node, from 0 to β_max.
     pub betas: Vec<f64>,
     /// Replica mean of ⟨E⟩ at every node.
     pub mean_energy: Vec<f64>,
@@ -190,18 +192,18 @@ pub fn sample_with(
     let n_c = model.constraints.len().max(1) as f64;
     let beta_max = config
         .beta_max
-        .unwrap_or_else(|| (0.5 * n_c.ln() + 3.0).clamp(4.0, 12.0));
+        .unwrap_or_else(|| (n_c.ln() + 3.0).clamp(5.0, 14.0));
     if !(beta_max > 0.0 && beta_max.is_finite()) {
         return Err(Error::Model(format!(
             "beta_max must be positive, not {beta_max}"
         )));
     }
-    let t_min = (-beta_max).exp();
-    let t = integrate::nodes(t_min, config.nodes);
-    let betas: Vec<f64> = t.iter().map(|x| -x.ln()).collect();
-    let reference: Vec<f64> = t
+    let betas = integrate::nodes(beta_max, config.nodes);
+    let last = config.nodes - 1;
+    let reference: Vec<f64> = betas
         .iter()
-        .map(|&x| {
+        .map(|&b| {
+            let x = (-b).exp();
             fractions
                 .iter()
                 .map(|&p| (1.0 - p) * x / (p + (1.0 - p) * x))
@@ -213,33 +215,28 @@ pub fn sample_with(
         .into_par_iter()
         .with_max_len(1)
         .map(|r| {
-            let run = replica(&kernel, config, &betas, reference[config.nodes - 1], r);
+            let run = replica(&kernel, config, &betas, reference[0], r);
             on_replica();
             run
         })
         .collect();
 
-    // Pauling's ln W for the whole cell, and the reference integral below t_min.
+    // Pauling's ln W for the whole cell, and the reference integral beyond β_max.
     let ln_pauling: f64 = model.ln_unconstrained() + fractions.iter().map(|p| p.ln()).sum::<f64>();
     let ref_tail: f64 = fractions
         .iter()
-        .map(|&p| (p + (1.0 - p) * t_min).ln() - p.ln())
+        .map(|&p| (p + (1.0 - p) * (-beta_max).exp()).ln() - p.ln())
         .sum();
-    let width = 1.0 - t_min;
+    let width = beta_max;
     let integrand = |energy: &[f64]| -> Vec<f64> {
-        energy
-            .iter()
-            .zip(&reference)
-            .zip(&t)
-            .map(|((e, r), x)| (e - r) / x)
-            .collect()
+        energy.iter().zip(&reference).map(|(e, r)| e - r).collect()
     };
     let units = model.formula_units;
     let per_replica: Vec<f64> = runs
         .iter()
         .map(|run| {
             let h = integrand(&run.energy);
-            let tail = run.energy[0] / 2.0 - ref_tail;
+            let tail = run.energy[last] / 2.0 - ref_tail;
             (ln_pauling - integrate::simpson(&h, width) - tail) / units
         })
         .collect();
@@ -253,7 +250,7 @@ pub fn sample_with(
     let h = integrand(&mean_energy);
     let sigma_quadrature =
         (integrate::simpson(&h, width) - integrate::simpson_half(&h, width)).abs() / 15.0 / units;
-    let sigma_tail = mean_energy[0] / (2.0 * 3f64.sqrt()) / units;
+    let sigma_tail = mean_energy[last] / (2.0 * 3f64.sqrt()) / units;
     let (ln_w, sigma) = if impossible {
         (f64::NEG_INFINITY, 0.0)
     } else {
@@ -292,13 +289,13 @@ pub fn sample_with(
     })
 }
 
-/// One replica: anneal from β = 0 through the nodes (largest t first), measuring ⟨E⟩.
+/// One replica: anneal from β = 0 up through the nodes, measuring ⟨E⟩ at each.
 fn replica(kernel: &Kernel, config: &SampleConfig, betas: &[f64], e_at_zero: f64, r: usize) -> Run {
     let n = betas.len();
     let mut energy = vec![0.0; n];
-    energy[n - 1] = e_at_zero; // β = 0: every assignment equally likely, ⟨E⟩ = E_ref exactly
+    energy[0] = e_at_zero; // β = 0: every assignment equally likely, ⟨E⟩ = E_ref exactly
     let mut chain = kernel.chain(stream(config.seed, r));
-    for i in (0..n - 1).rev() {
+    for i in 1..n {
         let beta = betas[i];
         for _ in 0..config.equilibration {
             chain.sweep(kernel, beta);
