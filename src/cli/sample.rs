@@ -38,6 +38,9 @@ pub struct Args {
     /// Largest inverse temperature sampled (default from the cell size).
     #[arg(long)]
     beta_max: Option<f64>,
+    /// Single-variable moves only (no loop moves).
+    #[arg(long)]
+    no_loops: bool,
     #[command(flatten)]
     common: Common,
 }
@@ -56,6 +59,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         equilibration: args.equilibration.unwrap_or(args.sweeps / 4),
         nodes: args.nodes,
         beta_max: args.beta_max,
+        loops: !args.no_loops,
     };
     let progress = args.common.progress();
     if progress {
@@ -93,6 +97,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             v["sigma_ln_w_quadrature"] = s.sigma_quadrature.into();
             v["sigma_ln_w_tail"] = s.sigma_tail.into();
             v["beta_max"] = s.beta_max.into();
+            v["loop_attempts_per_sweep"] = s.loop_attempts_per_sweep.into();
+            v["loop_acceptance"] = s.loop_acceptance.into();
             v["violations_at_beta_max"] = s.mean_energy[s.mean_energy.len() - 1].into();
             v["variables"] = model.variables.len().into();
             v["constraints"] = model.constraints.len().into();
@@ -160,8 +166,17 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             )?;
             writeln!(
                 out,
-                "violated constraints left at β_max: {} on average",
-                sig(s.mean_energy[s.mean_energy.len() - 1], 3)
+                "violated constraints left at β_max: {} on average; loop moves: {}",
+                sig(s.mean_energy[s.mean_energy.len() - 1], 3),
+                if s.loop_attempts_per_sweep == 0 {
+                    "none".to_string()
+                } else {
+                    format!(
+                        "{} per sweep, {} % flipped",
+                        s.loop_attempts_per_sweep,
+                        sig(100.0 * s.loop_acceptance, 3)
+                    )
+                }
             )?;
             Ok(out)
         }

@@ -57,6 +57,7 @@
 //! shared tables.
 
 pub mod integrate;
+pub mod loops;
 pub mod moves;
 
 use std::time::Instant;
@@ -83,6 +84,8 @@ pub struct SampleConfig {
     pub nodes: usize,
     /// Largest β sampled; `None` chooses ln(constraints) + 3, clamped to [5, 14].
     pub beta_max: Option<f64>,
+    /// Loop moves after every sweep, where the model allows them ([`loops`]).
+    pub loops: bool,
 }
 
 impl Default for SampleConfig {
@@ -94,6 +97,7 @@ impl Default for SampleConfig {
             equilibration: 50,
             nodes: 41,
             beta_max: None,
+            loops: true,
         }
     }
 }
@@ -127,12 +131,18 @@ pub struct Sampled {
     pub per_replica: Vec<f64>,
     /// Largest β sampled.
     pub beta_max: f64,
+    /// Loop moves attempted per sweep (0 when they do not apply or are switched off).
+    pub loop_attempts_per_sweep: usize,
+    /// Fraction of loop attempts that flipped a loop.
+    pub loop_acceptance: f64,
 }
 
 /// What one replica returns.
 struct Run {
     /// ⟨E⟩ at every node (the β = 0 node filled in exactly).
     energy: Vec<f64>,
+    /// Loops flipped.
+    flipped: u64,
 }
 
 /// SplitMix64 (Steele, Lea & Flood 2014, OOPSLA): a bijective mixer used to derive
@@ -180,6 +190,14 @@ pub fn sample_with(
         return Err(Error::Model("at least one sweep per node is needed".into()));
     }
     let kernel = Kernel::new(model)?;
+    let loops = if config.loops {
+        loops::Loops::new(model)
+    } else {
+        None
+    };
+    let attempts = loops
+        .as_ref()
+        .map_or(0, |_| (model.constraints.len() / 8).max(1));
     let fractions: Vec<f64> = model
         .constraints
         .iter()
@@ -215,7 +233,15 @@ pub fn sample_with(
         .into_par_iter()
         .with_max_len(1)
         .map(|r| {
-            let run = replica(&kernel, config, &betas, reference[0], r);
+            let run = replica(
+                &kernel,
+                loops.as_ref(),
+                attempts,
+                config,
+                &betas,
+                reference[0],
+                r,
+            );
             on_replica();
             run
         })
@@ -286,26 +312,55 @@ pub fn sample_with(
         reference_energy: reference,
         per_replica,
         beta_max,
+        loop_attempts_per_sweep: attempts,
+        loop_acceptance: if attempts == 0 {
+            0.0
+        } else {
+            runs.iter().map(|r| r.flipped).sum::<u64>() as f64
+                / (config.replicas as u64
+                    * sampled_nodes
+                    * (config.sweeps + config.equilibration) as u64
+                    * attempts as u64) as f64
+        },
     })
 }
 
-/// One replica: anneal from β = 0 up through the nodes, measuring ⟨E⟩ at each.
-fn replica(kernel: &Kernel, config: &SampleConfig, betas: &[f64], e_at_zero: f64, r: usize) -> Run {
+/// One replica: anneal from β = 0 up through the nodes, measuring ⟨E⟩ at each. Every
+/// sweep is followed by `attempts` loop moves when `loops` applies.
+fn replica(
+    kernel: &Kernel,
+    loops: Option<&loops::Loops>,
+    attempts: usize,
+    config: &SampleConfig,
+    betas: &[f64],
+    e_at_zero: f64,
+    r: usize,
+) -> Run {
     let n = betas.len();
     let mut energy = vec![0.0; n];
     energy[0] = e_at_zero; // β = 0: every assignment equally likely, ⟨E⟩ = E_ref exactly
     let mut chain = kernel.chain(stream(config.seed, r));
+    let mut walk = loops.map(|l| l.walk());
+    let mut flipped = 0u64;
+    let mut step = |chain: &mut moves::Chain, beta: f64| {
+        chain.sweep(kernel, beta);
+        if let (Some(l), Some(w)) = (loops, walk.as_mut()) {
+            for _ in 0..attempts {
+                flipped += l.attempt(kernel, chain, w) as u64;
+            }
+        }
+    };
     for i in 1..n {
         let beta = betas[i];
         for _ in 0..config.equilibration {
-            chain.sweep(kernel, beta);
+            step(&mut chain, beta);
         }
         let mut sum = 0u64;
         for _ in 0..config.sweeps {
-            chain.sweep(kernel, beta);
+            step(&mut chain, beta);
             sum += chain.energy();
         }
         energy[i] = sum as f64 / config.sweeps as f64;
     }
-    Run { energy }
+    Run { energy, flipped }
 }

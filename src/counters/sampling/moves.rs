@@ -150,6 +150,26 @@ impl Chain {
         self.energy
     }
 
+    /// The next number of the replica's random stream.
+    #[inline]
+    pub fn next_u64(&mut self) -> u64 {
+        self.rng.next_u64()
+    }
+
+    /// Flip a two-state variable, updating the indices and the energy.
+    pub fn flip(&mut self, k: &Kernel, v: usize) {
+        let up = self.values[v] == 0;
+        let mut de = 0i32;
+        for &(c, s) in k.touches(v) {
+            let i = self.index[c as usize];
+            let j = if up { i + s } else { i - s };
+            de += k.violated(c, j) - k.violated(c, i);
+            self.index[c as usize] = j;
+        }
+        self.values[v] ^= 1;
+        self.energy = (self.energy as i64 + de as i64) as u64;
+    }
+
     /// Rebuild the indices and the energy from the values.
     pub fn recompute(&mut self, k: &Kernel) {
         self.index.iter_mut().for_each(|i| *i = 0);
@@ -300,8 +320,11 @@ mod tests {
     /// (computed by enumeration above, independently of the kernel's index bookkeeping);
     /// a chi-square statistic on thinned samples must stay near its number of degrees of
     /// freedom.
-    fn check_balance(m: &Model, beta: f64, samples: usize, thin: usize) {
+    fn check_balance(m: &Model, beta: f64, samples: usize, thin: usize, with_loops: bool) {
         let k = Kernel::new(m).unwrap();
+        let loops = with_loops.then(|| super::super::loops::Loops::new(m).expect("loops apply"));
+        let mut walk = loops.as_ref().map(|l| l.walk());
+        let mut flipped = 0;
         let exact = boltzmann(m, beta);
         let mut chain = k.chain(Pcg64Mcg::new(12345));
         let q: Vec<u64> = m.variables.iter().map(|v| v.states as u64).collect();
@@ -312,6 +335,11 @@ mod tests {
         for _ in 0..samples {
             for _ in 0..thin {
                 chain.sweep(&k, beta);
+                if let (Some(l), Some(w)) = (&loops, walk.as_mut()) {
+                    let before = chain.energy();
+                    flipped += l.attempt(&k, &mut chain, w) as usize;
+                    assert_eq!(before, chain.energy(), "a loop move changed the energy");
+                }
             }
             let mut code = 0u64;
             let mut stride = 1u64;
@@ -320,6 +348,9 @@ mod tests {
                 stride *= q[v];
             }
             counts[code as usize] += 1;
+        }
+        if with_loops {
+            assert!(flipped > samples / 10, "loops flipped only {flipped} times");
         }
         let mut check = chain.clone();
         check.recompute(&k);
@@ -351,7 +382,21 @@ mod tests {
             2,
         );
         assert_eq!(m.variables.len(), 8);
-        check_balance(&m, 1.3, 200_000, 3);
+        check_balance(&m, 1.3, 200_000, 3, false);
+    }
+
+    #[test]
+    fn heat_bath_with_loop_moves_satisfies_detailed_balance() {
+        // The same 256 assignments, with a loop attempt after every sweep, at a β where
+        // loops do most of the work among the ground states.
+        let m = model(
+            include_str!("../../../lattices/square-ice.yaml"),
+            "square-ice.yaml",
+            "2x2",
+            2,
+        );
+        check_balance(&m, 1.3, 200_000, 3, true);
+        check_balance(&m, 3.0, 200_000, 3, true);
     }
 
     #[test]
@@ -369,6 +414,6 @@ formula_unit: {name: site, per: sites}
 "#;
         let m = model(yaml, "colour.yaml", "3", 1);
         assert_eq!(m.variables.len(), 3);
-        check_balance(&m, 0.9, 100_000, 2);
+        check_balance(&m, 0.9, 100_000, 2, false);
     }
 }
