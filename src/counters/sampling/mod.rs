@@ -131,11 +131,15 @@ pub struct Sampled {
     pub per_replica: Vec<f64>,
     /// Largest β sampled.
     pub beta_max: f64,
-    /// Loop moves attempted per sweep (0 when they do not apply or are switched off).
+    /// Loop moves attempted per sweep from β = 1 on (0 when they do not apply or are
+    /// switched off).
     pub loop_attempts_per_sweep: usize,
     /// Fraction of loop attempts that flipped a loop.
     pub loop_acceptance: f64,
 }
+
+/// Loop moves are attempted only from this β on.
+const LOOPS_FROM_BETA: f64 = 1.0;
 
 /// What one replica returns.
 struct Run {
@@ -143,6 +147,8 @@ struct Run {
     energy: Vec<f64>,
     /// Loops flipped.
     flipped: u64,
+    /// Loop moves attempted.
+    attempted: u64,
 }
 
 /// SplitMix64 (Steele, Lea & Flood 2014, OOPSLA): a bijective mixer used to derive
@@ -197,7 +203,7 @@ pub fn sample_with(
     };
     let attempts = loops
         .as_ref()
-        .map_or(0, |_| (model.constraints.len() / 8).max(1));
+        .map_or(0, |_| (model.constraints.len() / 64).max(1));
     let fractions: Vec<f64> = model
         .constraints
         .iter()
@@ -317,10 +323,7 @@ pub fn sample_with(
             0.0
         } else {
             runs.iter().map(|r| r.flipped).sum::<u64>() as f64
-                / (config.replicas as u64
-                    * sampled_nodes
-                    * (config.sweeps + config.equilibration) as u64
-                    * attempts as u64) as f64
+                / runs.iter().map(|r| r.attempted).sum::<u64>().max(1) as f64
         },
     })
 }
@@ -342,12 +345,15 @@ fn replica(
     let mut chain = kernel.chain(stream(config.seed, r));
     let mut walk = loops.map(|l| l.walk());
     let mut flipped = 0u64;
+    let mut attempted = 0u64;
     let mut step = |chain: &mut moves::Chain, beta: f64| {
         chain.sweep(kernel, beta);
-        if let (Some(l), Some(w)) = (loops, walk.as_mut()) {
+        // Below β = 1 single flips mix well and walks are long; loops only above.
+        if let (Some(l), Some(w), true) = (loops, walk.as_mut(), beta >= LOOPS_FROM_BETA) {
             for _ in 0..attempts {
                 flipped += l.attempt(kernel, chain, w) as u64;
             }
+            attempted += attempts as u64;
         }
     };
     for i in 1..n {
@@ -362,5 +368,9 @@ fn replica(
         }
         energy[i] = sum as f64 / config.sweeps as f64;
     }
-    Run { energy, flipped }
+    Run {
+        energy,
+        flipped,
+        attempted,
+    }
 }
