@@ -142,3 +142,96 @@ fn same_seed_same_numbers_on_any_thread_count() {
         "a different seed gives different numbers"
     );
 }
+
+/// `groundcount sample … --format json` with the keys README documents.
+fn sample_json(threads: &str) -> serde_json::Value {
+    let file = lattice("square-ice.yaml");
+    let out = crate::util::run(&[
+        "sample",
+        file.to_str().unwrap(),
+        "--cells",
+        "4x4",
+        "--seed",
+        "9",
+        "--sweeps",
+        "100",
+        "--replicas",
+        "4",
+        "--threads",
+        threads,
+        "--format",
+        "json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(
+        out.stderr.is_empty(),
+        "no progress when standard error is not a terminal"
+    );
+    serde_json::from_slice(&out.stdout).expect("JSON")
+}
+
+#[test]
+fn sample_command_writes_the_documented_json() {
+    let one = sample_json("1");
+    assert_eq!(one["method"], "monte-carlo");
+    assert_eq!(one["seed"], 9);
+    assert_eq!(one["cells"], "4x4 periodic");
+    // 4 replicas × 40 sampled nodes × 100 sweeps.
+    assert_eq!(one["samples"], 16000);
+    for key in [
+        "w_per_unit",
+        "uncertainty",
+        "s_over_r",
+        "s_j_per_mol_k",
+        "s_uncertainty",
+    ] {
+        assert!(
+            one[key].as_f64().is_some_and(f64::is_finite),
+            "{key}: {}",
+            one[key]
+        );
+    }
+    // W = e^{s}, σ_W = W σ_s; S0 = R s with R = 8.31446261815324 J/(mol K) (2019 SI).
+    let (w, s) = (
+        one["w_per_unit"].as_f64().unwrap(),
+        one["s_over_r"].as_f64().unwrap(),
+    );
+    assert!((w - s.exp()).abs() < 1e-12);
+    let s_j = one["s_j_per_mol_k"].as_f64().unwrap();
+    assert!((s_j - 8.31446261815324 * s).abs() < 1e-9);
+    // The 4×4 torus has 2970 arrangements (OEIS A054759): ln 2970 / 16 = 0.49977.
+    let sigma = one["s_uncertainty"].as_f64().unwrap() / 8.31446261815324;
+    assert!(
+        (s - 2970f64.ln() / 16.0).abs() < 4.0 * sigma,
+        "{s} ± {sigma}"
+    );
+    let two = sample_json("2");
+    assert_eq!(
+        one["w_per_unit"], two["w_per_unit"],
+        "same seed, other thread count"
+    );
+}
+
+#[test]
+fn sample_command_refuses_a_single_replica() {
+    let file = lattice("square-ice.yaml");
+    let out = crate::util::run(&[
+        "sample",
+        file.to_str().unwrap(),
+        "--cells",
+        "4x4",
+        "--replicas",
+        "1",
+    ]);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(out.stdout.is_empty());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.starts_with("error:") && err.contains("replicas"),
+        "{err}"
+    );
+}
