@@ -222,6 +222,7 @@ pub struct Walk {
 
 #[cfg(test)]
 mod tests {
+    use super::super::moves::Chain;
     use super::*;
     use crate::Lattice;
     use crate::cluster::{Cells, Cluster};
@@ -244,6 +245,41 @@ mod tests {
             2,
         );
         assert!(Loops::new(&afm).is_none());
+    }
+
+    #[test]
+    fn loops_keep_moving_where_single_flips_freeze() {
+        // Ice Ih 2x2x2 annealed to β = 8: a single flip out of a ground state costs
+        // e^{-16}, so heat-bath sweeps alone leave the configuration frozen, while loop
+        // moves keep visiting new ground states at zero energy cost.
+        let m = model(include_str!("../../../lattices/ice-ih.yaml"), "2x2x2", 3);
+        let k = Kernel::new(&m).unwrap();
+        let l = Loops::new(&m).unwrap();
+        let mut walk = l.walk();
+        let mut chain = k.chain(super::super::stream(3, 0));
+        for i in 0..400 {
+            chain.sweep(&k, 8.0 * i as f64 / 400.0);
+            l.attempt(&k, &mut chain, &mut walk);
+        }
+        for _ in 0..200 {
+            chain.sweep(&k, 8.0);
+        }
+        assert_eq!(chain.energy(), 0, "annealed into a ground state");
+        let distinct = |chain: &mut Chain, walk: &mut Walk, loops: bool| {
+            let mut seen = std::collections::HashSet::new();
+            for _ in 0..300 {
+                chain.sweep(&k, 8.0);
+                if loops {
+                    l.attempt(&k, chain, walk);
+                }
+                seen.insert(chain.values.clone());
+            }
+            seen.len()
+        };
+        let frozen = distinct(&mut chain.clone(), &mut walk, false);
+        let moving = distinct(&mut chain, &mut walk, true);
+        assert!(frozen <= 3, "heat-bath alone visited {frozen} states");
+        assert!(moving >= 100, "loops visited only {moving} states");
     }
 
     #[test]
