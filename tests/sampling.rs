@@ -235,3 +235,30 @@ fn sample_command_refuses_a_single_replica() {
         "{err}"
     );
 }
+
+#[test]
+fn target_error_adds_replicas_until_reached() {
+    let m = model("square-ice.yaml", "4x4");
+    let target = SampleConfig {
+        target_error: Some(0.002),
+        ..config(5, 4, 100)
+    };
+    let s = in_pool(2, || sampling::sample(&m, &target)).unwrap();
+    assert_eq!(s.target_reached, Some(true));
+    assert!(s.estimate.sigma_ln_w.unwrap() <= 0.002);
+    assert!(
+        s.replicas > 4 && s.replicas % 4 == 0,
+        "{} replicas",
+        s.replicas
+    );
+    // The same numbers as a plain run of that many replicas: batches continue the
+    // replica numbering, so their streams are the same.
+    let plain = in_pool(1, || sampling::sample(&m, &config(5, s.replicas, 100))).unwrap();
+    assert_eq!(
+        s.estimate.ln_w_per_unit.to_bits(),
+        plain.estimate.ln_w_per_unit.to_bits()
+    );
+    // The 4×4 torus count 2970 (OEIS A054759).
+    let exact = 2970f64.ln() / 16.0;
+    assert!((s.estimate.ln_w_per_unit - exact).abs() < 4.0 * 0.002);
+}

@@ -41,6 +41,13 @@ pub struct Args {
     /// Single-variable moves only (no loop moves).
     #[arg(long)]
     no_loops: bool,
+    /// Add batches of --replicas replicas until the 1σ error of ln W per formula unit
+    /// (the relative error of W) is at most this.
+    #[arg(long)]
+    target_error: Option<f64>,
+    /// Most replicas a --target-error run may use.
+    #[arg(long, default_value_t = 1024)]
+    max_replicas: usize,
     #[command(flatten)]
     common: Common,
 }
@@ -60,7 +67,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         nodes: args.nodes,
         beta_max: args.beta_max,
         loops: !args.no_loops,
+        target_error: args.target_error,
+        max_replicas: args.max_replicas,
     };
+    if let Some(t) = args.target_error
+        && !(t > 0.0 && t.is_finite())
+    {
+        anyhow::bail!("--target-error must be a positive number, not {t}");
+    }
     let progress = args.common.progress();
     if progress {
         eprintln!(
@@ -75,7 +89,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let on_replica = || {
         let k = done.fetch_add(1, Ordering::Relaxed) + 1;
         if progress {
-            eprint!("\r{k}/{} replicas done", config.replicas);
+            eprint!("\r{k} replicas done");
         }
     };
     let s = with_threads(args.common.threads, || {
@@ -99,6 +113,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             v["beta_max"] = s.beta_max.into();
             v["loop_attempts_per_sweep"] = s.loop_attempts_per_sweep.into();
             v["loop_acceptance"] = s.loop_acceptance.into();
+            v["target_error"] = args.target_error.into();
+            v["target_reached"] = s.target_reached.into();
             v["violations_at_beta_max"] = s.mean_energy[s.mean_energy.len() - 1].into();
             v["variables"] = model.variables.len().into();
             v["constraints"] = model.constraints.len().into();
@@ -178,6 +194,21 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     )
                 }
             )?;
+            if let Some(reached) = s.target_reached {
+                writeln!(
+                    out,
+                    "target error {}: {}",
+                    sig(args.target_error.unwrap_or(0.0), 2),
+                    if reached {
+                        format!("reached with {} replicas", s.replicas)
+                    } else {
+                        format!(
+                            "NOT reached with {} replicas (--max-replicas {})",
+                            s.replicas, args.max_replicas
+                        )
+                    }
+                )?;
+            }
             Ok(out)
         }
     }

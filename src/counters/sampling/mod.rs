@@ -86,6 +86,11 @@ pub struct SampleConfig {
     pub beta_max: Option<f64>,
     /// Loop moves after every sweep, where the model allows them ([`loops`]).
     pub loops: bool,
+    /// Keep adding batches of `replicas` replicas until the σ of ln W per formula unit
+    /// (statistical + quadrature + tail) is at most this, or `max_replicas` is reached.
+    pub target_error: Option<f64>,
+    /// Most replicas a `target_error` run may use.
+    pub max_replicas: usize,
 }
 
 impl Default for SampleConfig {
@@ -98,6 +103,8 @@ impl Default for SampleConfig {
             nodes: 41,
             beta_max: None,
             loops: true,
+            target_error: None,
+            max_replicas: 1024,
         }
     }
 }
@@ -136,6 +143,24 @@ pub struct Sampled {
     pub loop_attempts_per_sweep: usize,
     /// Fraction of loop attempts that flipped a loop.
     pub loop_acceptance: f64,
+    /// With a `target_error`: whether the σ reached it.
+    pub target_reached: Option<bool>,
+}
+
+/// Replica results combined.
+struct Combined {
+    mean: f64,
+    sigma_statistical: f64,
+    sigma_quadrature: f64,
+    sigma_tail: f64,
+    per_replica: Vec<f64>,
+    mean_energy: Vec<f64>,
+}
+
+impl Combined {
+    fn total(&self) -> f64 {
+        self.sigma_statistical + self.sigma_quadrature + self.sigma_tail
+    }
 }
 
 /// Loop moves are attempted only from this β on.
@@ -235,23 +260,25 @@ pub fn sample_with(
         })
         .collect();
 
-    let runs: Vec<Run> = (0..config.replicas)
-        .into_par_iter()
-        .with_max_len(1)
-        .map(|r| {
-            let run = replica(
-                &kernel,
-                loops.as_ref(),
-                attempts,
-                config,
-                &betas,
-                reference[0],
-                r,
-            );
-            on_replica();
-            run
-        })
-        .collect();
+    let batch = |from: usize| -> Vec<Run> {
+        (from..from + config.replicas)
+            .into_par_iter()
+            .with_max_len(1)
+            .map(|r| {
+                let run = replica(
+                    &kernel,
+                    loops.as_ref(),
+                    attempts,
+                    config,
+                    &betas,
+                    reference[0],
+                    r,
+                );
+                on_replica();
+                run
+            })
+            .collect()
+    };
 
     // Pauling's ln W for the whole cell, and the reference integral beyond β_max.
     let ln_pauling: f64 = model.ln_unconstrained() + fractions.iter().map(|p| p.ln()).sum::<f64>();
@@ -264,33 +291,60 @@ pub fn sample_with(
         energy.iter().zip(&reference).map(|(e, r)| e - r).collect()
     };
     let units = model.formula_units;
-    let per_replica: Vec<f64> = runs
-        .iter()
-        .map(|run| {
-            let h = integrand(&run.energy);
-            let tail = run.energy[last] / 2.0 - ref_tail;
-            (ln_pauling - integrate::simpson(&h, width) - tail) / units
-        })
-        .collect();
-    let r = per_replica.len() as f64;
-    let mean = per_replica.iter().sum::<f64>() / r;
-    let var = per_replica.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (r - 1.0);
-    let sigma_statistical = (var / r).sqrt();
-    let mean_energy: Vec<f64> = (0..config.nodes)
-        .map(|i| runs.iter().map(|run| run.energy[i]).sum::<f64>() / r)
-        .collect();
-    let h = integrand(&mean_energy);
-    let sigma_quadrature =
-        (integrate::simpson(&h, width) - integrate::simpson_half(&h, width)).abs() / 15.0 / units;
-    let sigma_tail = mean_energy[last] / (2.0 * 3f64.sqrt()) / units;
+    let combine = |runs: &[Run]| -> Combined {
+        let per_replica: Vec<f64> = runs
+            .iter()
+            .map(|run| {
+                let h = integrand(&run.energy);
+                let tail = run.energy[last] / 2.0 - ref_tail;
+                (ln_pauling - integrate::simpson(&h, width) - tail) / units
+            })
+            .collect();
+        let r = per_replica.len() as f64;
+        let mean = per_replica.iter().sum::<f64>() / r;
+        let var = per_replica.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (r - 1.0);
+        let mean_energy: Vec<f64> = (0..config.nodes)
+            .map(|i| runs.iter().map(|run| run.energy[i]).sum::<f64>() / r)
+            .collect();
+        let h = integrand(&mean_energy);
+        Combined {
+            mean,
+            sigma_statistical: (var / r).sqrt(),
+            sigma_quadrature: (integrate::simpson(&h, width) - integrate::simpson_half(&h, width))
+                .abs()
+                / 15.0
+                / units,
+            sigma_tail: mean_energy[last] / (2.0 * 3f64.sqrt()) / units,
+            per_replica,
+            mean_energy,
+        }
+    };
+    let mut runs = batch(0);
+    let mut c = combine(&runs);
+    if let Some(target) = config.target_error {
+        while c.total() > target && runs.len() + config.replicas <= config.max_replicas {
+            runs.extend(batch(runs.len()));
+            c = combine(&runs);
+        }
+    }
+    let target_reached = config.target_error.map(|t| c.total() <= t);
+    let Combined {
+        mean,
+        sigma_statistical,
+        sigma_quadrature,
+        sigma_tail,
+        per_replica,
+        mean_energy,
+    } = c;
     let (ln_w, sigma) = if impossible {
         (f64::NEG_INFINITY, 0.0)
     } else {
         (mean, sigma_statistical + sigma_quadrature + sigma_tail)
     };
+    let replicas = runs.len();
     let sampled_nodes = (config.nodes - 1) as u64;
-    let samples = config.replicas as u64 * sampled_nodes * config.sweeps as u64;
-    let updates = config.replicas as u64
+    let samples = replicas as u64 * sampled_nodes * config.sweeps as u64;
+    let updates = replicas as u64
         * sampled_nodes
         * (config.sweeps + config.equilibration) as u64
         * kernel.variables() as u64;
@@ -310,7 +364,7 @@ pub fn sample_with(
         sigma_quadrature,
         sigma_tail,
         seed: config.seed,
-        replicas: config.replicas,
+        replicas,
         samples,
         updates,
         betas,
@@ -318,6 +372,7 @@ pub fn sample_with(
         reference_energy: reference,
         per_replica,
         beta_max,
+        target_reached,
         loop_attempts_per_sweep: attempts,
         loop_acceptance: if attempts == 0 {
             0.0
