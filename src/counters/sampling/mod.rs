@@ -30,9 +30,12 @@
 //!
 //! Every replica starts from a uniformly random assignment (the exact β = 0 ensemble) and
 //! is annealed through the nodes from β = 0 up to β_max, with `equilibration` heat-bath
-//! sweeps and then `sweeps` measured sweeps at each node ([`moves`]). Each replica gives
-//! its own estimate of ln Ω₀; the statistical error is the standard error of their mean.
-//! The reported σ of ln W is the sum statistical + quadrature + tail.
+//! sweeps and then `sweeps` measured sweeps at each node ([`moves`]); from β = 1 on, every
+//! sweep is followed by loop moves that keep every constraint's count where the model
+//! allows them ([`loops`]). Each replica gives its own estimate of ln Ω₀; the statistical
+//! error is the standard error of their mean. The reported σ of ln W is the sum
+//! statistical + quadrature + tail. With a `target_error`, batches of replicas are added
+//! until that σ is reached.
 //!
 //! Thermodynamic integration for the residual entropy of ice: Kolafa 2014, J. Chem. Phys.
 //! 140, 204507; Herrero & Ramírez 2014, J. Chem. Phys. 140, 234502.
@@ -40,7 +43,7 @@
 //! # Parallelism and reproducibility
 //!
 //! Replicas run in parallel with rayon, in whatever pool the caller installs. Replica r
-//! draws from its own `Pcg64Mcg` stream seeded by SplitMix64 from seed ⊕ (r · 0x9E37…),
+//! draws from its own `Pcg64Mcg` stream seeded by SplitMix64 from seed ⊕ (r · 0xD1B5…),
 //! and the replica results are combined in replica order, so the same seed gives bitwise
 //! the same numbers on any number of threads.
 //!
