@@ -17,6 +17,8 @@ pub enum Method {
     Pauling,
     /// Exact count on a finite cell (frontier dynamic programming).
     Exact,
+    /// Monte Carlo thermodynamic integration on a finite cell.
+    MonteCarlo,
 }
 
 impl Method {
@@ -25,6 +27,7 @@ impl Method {
         match self {
             Method::Pauling => "pauling",
             Method::Exact => "exact",
+            Method::MonteCarlo => "monte-carlo",
         }
     }
 }

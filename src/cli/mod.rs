@@ -5,6 +5,7 @@
 mod estimate;
 mod exact;
 mod inspect;
+mod sample;
 
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -28,6 +29,8 @@ enum Command {
     Exact(exact::Args),
     /// The main job: Pauling estimate and exact counts on growing cells, side by side.
     Estimate(estimate::Args),
+    /// Monte Carlo count of a large cell (thermodynamic integration), with error bars.
+    Sample(sample::Args),
 }
 
 /// Output format shared by every command.
@@ -113,6 +116,7 @@ pub fn run() -> i32 {
         Command::Inspect(a) => inspect::run(a),
         Command::Exact(a) => exact::run(a),
         Command::Estimate(a) => estimate::run(a),
+        Command::Sample(a) => sample::run(a),
     };
     match result {
         Ok(text) => {
