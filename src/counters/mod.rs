@@ -6,3 +6,4 @@ pub mod brute;
 pub mod exact;
 pub mod order;
 pub mod pauling;
+pub mod transfer;
