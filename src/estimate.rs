@@ -17,6 +17,8 @@ pub enum Method {
     Pauling,
     /// Exact count on a finite cell (frontier dynamic programming).
     Exact,
+    /// Transfer matrices on strips of growing width, extrapolated to infinite width.
+    TransferMatrix,
 }
 
 impl Method {
@@ -25,6 +27,7 @@ impl Method {
         match self {
             Method::Pauling => "pauling",
             Method::Exact => "exact",
+            Method::TransferMatrix => "transfer-matrix",
         }
     }
 }

@@ -108,6 +108,7 @@ pub fn method_label(e: &Estimate) -> String {
     match e.method {
         crate::estimate::Method::Pauling => "Pauling".into(),
         crate::estimate::Method::Exact => "exact count".into(),
+        crate::estimate::Method::TransferMatrix => "transfer matrix".into(),
     }
 }
 

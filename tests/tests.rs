@@ -4,3 +4,4 @@ mod util;
 
 mod cli_errors;
 mod counts;
+mod transfer;

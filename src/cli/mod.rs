@@ -5,6 +5,7 @@
 mod estimate;
 mod exact;
 mod inspect;
+mod strip;
 
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -28,6 +29,8 @@ enum Command {
     Exact(exact::Args),
     /// The main job: Pauling estimate and exact counts on growing cells, side by side.
     Estimate(estimate::Args),
+    /// Transfer matrices on strips of growing width, extrapolated to the infinite crystal.
+    Strip(strip::Args),
 }
 
 /// Output format shared by every command.
@@ -82,6 +85,7 @@ pub fn run() -> i32 {
         Command::Inspect(a) => inspect::run(a),
         Command::Exact(a) => exact::run(a),
         Command::Estimate(a) => estimate::run(a),
+        Command::Strip(a) => strip::run(a),
     };
     match result {
         Ok(text) => {

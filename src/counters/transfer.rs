@@ -35,7 +35,8 @@
 //! min (Tx)_i/x_i ≤ λ ≤ max (Tx)_i/x_i over the states carrying at least 1e-8 of the
 //! largest component (states of subdominant flux sectors and dead ends decay below that and
 //! drop out); iteration stops when the bracket is narrower than the tolerance, and fails with
-//! [`Error::NotConverged`] at the iteration cap or deadline.
+//! [`Error::NotConverged`] at the iteration cap ([`Error::Deadline`] at the deadline). λ is
+//! reported as the midpoint of the bracket.
 //!
 //! # Arguments and returns
 //!
@@ -62,10 +63,12 @@ use std::time::Instant;
 
 use num_bigint::BigUint;
 
+use super::extrapolate::{Extrapolation, Scaling, extrapolate};
 use super::order::width as field_width;
 use crate::cluster::{Cells, Cluster};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
+use crate::estimate::{Estimate, Method};
 use crate::model::{Model, Table};
 
 /// Options of a strip computation.
@@ -164,6 +167,66 @@ pub struct Column {
     sizes: Vec<usize>,
     /// Build time in seconds.
     build_seconds: f64,
+}
+
+/// Strips of several widths and their extrapolation to the infinite crystal.
+#[derive(Clone, Debug)]
+pub struct StripSeries {
+    /// One result per width, in the order asked.
+    pub widths: Vec<StripResult>,
+    /// The extrapolation W → ∞.
+    pub extrapolation: Extrapolation,
+    /// Central charge from the 1/W² term (critical models, periodic cylinders only); a
+    /// diagnostic that assumes the lattice is isotropic in its cell coordinates.
+    pub central_charge: Option<f64>,
+    /// The extrapolated value as an estimate for the infinite crystal.
+    pub estimate: Estimate,
+}
+
+/// Compute every width and extrapolate.
+///
+/// `step` is the spacing of the widths (families are W mod 2·step); `scaling` says how the
+/// values approach their limit ([`Scaling::Auto`] decides from the last differences).
+pub fn series(
+    crystal: &Crystal,
+    widths: &[usize],
+    step: usize,
+    scaling: Scaling,
+    config: &StripConfig,
+) -> Result<StripSeries> {
+    let start = Instant::now();
+    let results = widths
+        .iter()
+        .map(|&w| strip(crystal, w, config))
+        .collect::<Result<Vec<_>>>()?;
+    let points: Vec<(usize, f64)> = results.iter().map(|r| (r.width, r.ln_w_per_unit)).collect();
+    let extrapolation = extrapolate(&points, step, scaling)?;
+    let central_charge = extrapolation.a1.filter(|_| config.periodic).map(|a1| {
+        let v = crystal.vectors;
+        let area = (v[0][0] * v[1][1] - v[0][1] * v[1][0]).abs();
+        let t = v[1 - config.along];
+        let t2 = t[0] * t[0] + t[1] * t[1];
+        let r = &results[results.len() - 1];
+        let units_per_cell = r.units_per_column / r.width as f64;
+        6.0 * units_per_cell * t2 * a1 / (std::f64::consts::PI * area)
+    });
+    let estimate = Estimate {
+        method: Method::TransferMatrix,
+        cells: None,
+        count: None,
+        ln_count: extrapolation.value,
+        formula_units: 1.0,
+        ln_w_per_unit: extrapolation.value,
+        sigma_ln_w: Some(extrapolation.uncertainty),
+        seconds: start.elapsed().as_secs_f64(),
+        peak_states: results.iter().map(|r| r.peak_states).max(),
+    };
+    Ok(StripSeries {
+        widths: results,
+        extrapolation,
+        central_charge,
+        estimate,
+    })
 }
 
 /// The largest eigenvalue of one width: build the operator and iterate.
@@ -689,7 +752,9 @@ impl Column {
                 }
             }
             if iteration >= 3 && high - low <= config.tolerance * estimate {
-                let ln_lambda = estimate.ln() + self.ln_free;
+                // The midpoint of the bracket: the L1 ratio still carries the decaying
+                // components of subdominant sectors.
+                let ln_lambda = (0.5 * (low + high)).ln() + self.ln_free;
                 return Ok(StripResult {
                     width: self.width,
                     states: n,
