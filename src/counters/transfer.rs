@@ -62,6 +62,7 @@ use std::collections::HashMap;
 use std::time::Instant;
 
 use num_bigint::BigUint;
+use rayon::prelude::*;
 
 use super::extrapolate::{Extrapolation, Scaling, extrapolate};
 use super::order::width as field_width;
@@ -161,8 +162,12 @@ pub struct Column {
     units_per_column: f64,
     /// Frontier states at a column boundary, sorted.
     keys: Vec<u64>,
-    /// Per step: output index for (input i, value x) at `i * q + x`, `u32::MAX` if refused.
-    targets: Vec<Vec<u32>>,
+    /// Per step, the inputs of every output state, in compressed rows: output j sums the
+    /// inputs `sources[starts[j]..starts[j + 1]]` (in increasing order, so sums do not
+    /// depend on the number of threads).
+    sources: Vec<Vec<u32>>,
+    /// Per step, the row starts of `sources` (one more than the outputs).
+    starts: Vec<Vec<u32>>,
     /// Per step: number of output states.
     sizes: Vec<usize>,
     /// Build time in seconds.
@@ -497,7 +502,8 @@ impl Column {
             free_states,
             units_per_column: model.formula_units / n as f64,
             keys: Vec::new(),
-            targets: Vec::new(),
+            sources: Vec::new(),
+            starts: Vec::new(),
             sizes: Vec::new(),
             build_seconds: 0.0,
         };
@@ -598,7 +604,8 @@ impl Column {
             }
             keys = union;
         }
-        let mut targets = Vec::with_capacity(self.steps.len());
+        let mut all_sources = Vec::with_capacity(self.steps.len());
+        let mut all_starts = Vec::with_capacity(self.steps.len());
         let mut sizes = Vec::with_capacity(self.steps.len());
         let mut cur = keys.clone();
         let last = self.steps.len().saturating_sub(1);
@@ -636,12 +643,37 @@ impl Column {
                     }
                 })
                 .collect::<Result<Vec<u32>>>()?;
-            targets.push(index);
+            // Transpose the push list (input, value) → output into rows per output.
+            let allowed = index.iter().filter(|&&t| t != u32::MAX).count();
+            if allowed >= u32::MAX as usize {
+                return Err(Error::Budget {
+                    cells: format!("a strip {} cells wide", self.width),
+                    detail: format!("a column step has {allowed} transitions"),
+                });
+            }
+            let mut starts = vec![0u32; next.len() + 1];
+            for &t in index.iter().filter(|&&t| t != u32::MAX) {
+                starts[t as usize + 1] += 1;
+            }
+            for j in 0..next.len() {
+                starts[j + 1] += starts[j];
+            }
+            let mut fill = starts.clone();
+            let mut sources = vec![0u32; allowed];
+            for (c, &t) in index.iter().enumerate() {
+                if t != u32::MAX {
+                    sources[fill[t as usize] as usize] = (c / q) as u32;
+                    fill[t as usize] += 1;
+                }
+            }
+            all_sources.push(sources);
+            all_starts.push(starts);
             sizes.push(next.len());
             cur = next;
         }
         self.keys = keys;
-        self.targets = targets;
+        self.sources = all_sources;
+        self.starts = all_starts;
         self.sizes = sizes;
         Ok(())
     }
@@ -670,16 +702,25 @@ impl Column {
     pub fn apply(&self, x: &[f64], y: &mut Vec<f64>, scratch: &mut Vec<f64>) {
         y.clear();
         y.extend_from_slice(x);
-        for (s, step) in self.steps.iter().enumerate() {
+        for s in 0..self.steps.len() {
             scratch.clear();
             scratch.resize(self.sizes[s], 0.0);
-            let q = step.states as usize;
-            for (&v, targets) in y.iter().zip(self.targets[s].chunks_exact(q)) {
-                for &t in targets {
-                    if t != u32::MAX {
-                        scratch[t as usize] += v;
-                    }
+            let (sources, starts) = (&self.sources[s], &self.starts[s]);
+            let input: &[f64] = y;
+            let rows = |first: usize, out: &mut [f64]| {
+                for (k, o) in out.iter_mut().enumerate() {
+                    let j = first + k;
+                    let row = &sources[starts[j] as usize..starts[j + 1] as usize];
+                    *o = row.iter().map(|&i| input[i as usize]).sum();
                 }
+            };
+            if scratch.len() >= PARALLEL_MIN {
+                scratch
+                    .par_chunks_mut(CHUNK)
+                    .enumerate()
+                    .for_each(|(c, out)| rows(c * CHUNK, out));
+            } else {
+                rows(0, scratch);
             }
             std::mem::swap(y, scratch);
         }
@@ -702,20 +743,17 @@ impl Column {
             let mut cur = vec![zero.clone(); self.keys.len()];
             cur[start] = BigUint::from(1u32);
             for _ in 0..length {
-                for (s, step) in self.steps.iter().enumerate() {
-                    let mut next = vec![zero.clone(); self.sizes[s]];
-                    let q = step.states as usize;
-                    for (v, targets) in cur.iter().zip(self.targets[s].chunks_exact(q)) {
-                        if v.bits() == 0 {
-                            continue;
-                        }
-                        for &t in targets {
-                            if t != u32::MAX {
-                                next[t as usize] += v;
+                for s in 0..self.steps.len() {
+                    let (sources, starts) = (&self.sources[s], &self.starts[s]);
+                    cur = (0..self.sizes[s])
+                        .map(|j| {
+                            let mut acc = zero.clone();
+                            for &i in &sources[starts[j] as usize..starts[j + 1] as usize] {
+                                acc += &cur[i as usize];
                             }
-                        }
-                    }
-                    cur = next;
+                            acc
+                        })
+                        .collect();
                 }
             }
             total += &cur[start];
@@ -787,6 +825,12 @@ impl Column {
         })
     }
 }
+
+/// Steps with fewer output states than this run on one thread.
+const PARALLEL_MIN: usize = 1 << 15;
+
+/// Output states per parallel task.
+const CHUNK: usize = 1 << 12;
 
 /// Shift of the power iteration, relative to the current estimate of λ.
 const SHIFT: f64 = 0.25;
