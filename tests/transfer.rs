@@ -142,6 +142,23 @@ fn open_strips_trace_to_the_frontier_count() {
 }
 
 #[test]
+fn bipartite_columns_do_not_make_the_iteration_oscillate() {
+    // Dimers on an open strip 3 wide: the parity of the dimers crossing a column boundary
+    // alternates, so T has the eigenvalue −λ as well as λ (an unshifted power iteration
+    // would oscillate). Domino tilings of 3×2n rectangles obey a(n) = 4a(n−1) − a(n−2)
+    // (OEIS A001835, from memory), so λ² = 2 + √3.
+    let l = load("square-dimers.yaml");
+    let config = StripConfig {
+        periodic: false,
+        ..Default::default()
+    };
+    let r = transfer::strip(&l.crystal, 3, &config).unwrap();
+    let expected = 0.5 * (2.0 + 3f64.sqrt()).ln();
+    assert!((r.ln_lambda - expected).abs() < 1e-11, "{}", r.ln_lambda);
+    assert!(r.ln_bracket.0 <= expected + 1e-11 && expected - 1e-11 <= r.ln_bracket.1);
+}
+
+#[test]
 fn strip_command_prints_json() {
     let out = run(&[
         "strip",
@@ -187,6 +204,22 @@ fn strip_command_table_and_bad_widths() {
         let err = String::from_utf8(out.stderr).unwrap();
         assert!(err.starts_with("error: --widths"), "{bad}: {err}");
     }
+    // An iteration cap that cannot be met is an error, never a silent number.
+    let out = run(&[
+        "strip",
+        file.to_str().unwrap(),
+        "--widths",
+        "6..7",
+        "--max-iterations",
+        "3",
+    ]);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(out.stdout.is_empty());
+    assert!(
+        String::from_utf8(out.stderr)
+            .unwrap()
+            .contains("did not converge")
+    );
     let three_d = lattice("ice-ih.yaml");
     let out = run(&["strip", three_d.to_str().unwrap(), "--widths", "2..3"]);
     assert_eq!(out.status.code(), Some(1));

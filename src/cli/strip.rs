@@ -70,6 +70,9 @@ pub struct Args {
     /// Largest number of frontier states at any step of a column.
     #[arg(long, default_value_t = 1 << 24)]
     max_states: usize,
+    /// Power iterations allowed per width before giving up.
+    #[arg(long, default_value_t = 200_000)]
+    max_iterations: usize,
     #[command(flatten)]
     common: Common,
 }
@@ -121,6 +124,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         },
         periodic: args.around == Around::Periodic,
         max_states: args.max_states,
+        max_iterations: args.max_iterations,
         ..Default::default()
     };
     let scaling = match args.scaling {
