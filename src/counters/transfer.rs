@@ -610,62 +610,56 @@ impl Column {
         let mut cur = keys.clone();
         let last = self.steps.len().saturating_sub(1);
         for (s, step) in self.steps.iter().enumerate() {
-            let q = step.states as usize;
-            let mut raw = vec![u64::MAX; cur.len() * q];
+            // Every allowed transition as (output key, input index), sorted: equal keys
+            // become one output state, and their inputs (increasing) its row.
+            let mut pairs: Vec<(u64, u32)> = Vec::with_capacity(cur.len() * step.states as usize);
             for (i, &key) in cur.iter().enumerate() {
                 for x in 0..step.states {
                     let k = key | (x << step.offset);
                     if step.checks.iter().all(|c| self.allows(c, k)) {
                         let out = k & step.keep;
-                        raw[i * q + x as usize] =
-                            if s == last { self.relabelled(out) } else { out };
+                        let out = if s == last { self.relabelled(out) } else { out };
+                        pairs.push((out, i as u32));
                     }
                 }
             }
-            let next: Vec<u64> = if s == last {
-                keys.clone()
-            } else {
-                let mut v: Vec<u64> = raw.iter().copied().filter(|&k| k != u64::MAX).collect();
-                v.sort_unstable();
-                v.dedup();
-                v
-            };
-            self.within_budget(next.len(), config)?;
-            let index = raw
-                .iter()
-                .map(|&k| {
-                    if k == u64::MAX {
-                        Ok(u32::MAX)
-                    } else {
-                        next.binary_search(&k).map(|i| i as u32).map_err(|_| {
-                            Error::Model("internal: the strip's state set is not closed".into())
-                        })
-                    }
-                })
-                .collect::<Result<Vec<u32>>>()?;
-            // Transpose the push list (input, value) → output into rows per output.
-            let allowed = index.iter().filter(|&&t| t != u32::MAX).count();
-            if allowed >= u32::MAX as usize {
+            if pairs.len() >= u32::MAX as usize {
                 return Err(Error::Budget {
                     cells: format!("a strip {} cells wide", self.width),
-                    detail: format!("a column step has {allowed} transitions"),
+                    detail: format!("a column step has {} transitions", pairs.len()),
                 });
             }
-            let mut starts = vec![0u32; next.len() + 1];
-            for &t in index.iter().filter(|&&t| t != u32::MAX) {
-                starts[t as usize + 1] += 1;
-            }
-            for j in 0..next.len() {
-                starts[j + 1] += starts[j];
-            }
-            let mut fill = starts.clone();
-            let mut sources = vec![0u32; allowed];
-            for (c, &t) in index.iter().enumerate() {
-                if t != u32::MAX {
-                    sources[fill[t as usize] as usize] = (c / q) as u32;
-                    fill[t as usize] += 1;
+            pairs.sort_unstable();
+            let sources: Vec<u32> = pairs.iter().map(|p| p.1).collect();
+            let mut starts = Vec::new();
+            let next: Vec<u64> = if s == last {
+                // Rows follow the boundary states K; a state nothing leads to has an empty row.
+                let mut p = 0;
+                for &k in &keys {
+                    starts.push(p as u32);
+                    while p < pairs.len() && pairs[p].0 == k {
+                        p += 1;
+                    }
                 }
-            }
+                if p != pairs.len() {
+                    return Err(Error::Model(
+                        "internal: the strip's state set is not closed".into(),
+                    ));
+                }
+                starts.push(p as u32);
+                keys.clone()
+            } else {
+                let mut next = Vec::new();
+                for (p, pair) in pairs.iter().enumerate() {
+                    if next.last() != Some(&pair.0) {
+                        next.push(pair.0);
+                        starts.push(p as u32);
+                    }
+                }
+                starts.push(pairs.len() as u32);
+                next
+            };
+            self.within_budget(next.len(), config)?;
             all_sources.push(sources);
             all_starts.push(starts);
             sizes.push(next.len());
