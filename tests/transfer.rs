@@ -159,6 +159,52 @@ fn bipartite_columns_do_not_make_the_iteration_oscillate() {
 }
 
 #[test]
+fn open_square_ice_strips_have_no_arrangement() {
+    // Each bond points into exactly one of its sites; an open strip has 2W − 1 bonds per
+    // column of W sites, too few for two inward arrows at every site (counting argument,
+    // common practice): the transfer matrix is nilpotent and that must be an error, not a
+    // tiny positive λ.
+    let l = load("square-ice.yaml");
+    let config = StripConfig {
+        periodic: false,
+        ..Default::default()
+    };
+    for width in 1..=4 {
+        let e = transfer::strip(&l.crystal, width, &config).unwrap_err();
+        assert!(e.to_string().contains("no arrangement"), "{e}");
+    }
+}
+
+#[test]
+fn brackets_are_certified_and_contain_lambda() {
+    // Width-2 cylinder of hard squares: λ = 1 + √2 (see below); width-3 open strip of
+    // dimers: λ² = 2 + √3 (OEIS A001835, from memory).
+    let hard = transfer::strip(
+        &load("hard-squares.yaml").crystal,
+        2,
+        &StripConfig::default(),
+    )
+    .unwrap();
+    let dimers = transfer::strip(
+        &load("square-dimers.yaml").crystal,
+        3,
+        &StripConfig {
+            periodic: false,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    for (r, lambda) in [
+        (hard, 1.0 + 2f64.sqrt()),
+        (dimers, (2.0 + 3f64.sqrt()).sqrt()),
+    ] {
+        assert!(r.certified);
+        assert!(r.ln_bracket.0 <= lambda.ln() + 1e-13 && lambda.ln() - 1e-13 <= r.ln_bracket.1);
+        assert!(r.ln_bracket.1 - r.ln_bracket.0 < 1e-11);
+    }
+}
+
+#[test]
 fn strip_command_prints_json() {
     let out = run(&[
         "strip",

@@ -161,6 +161,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     "ln_lambda_bracket": [r.ln_bracket.0, r.ln_bracket.1],
                     "w_per_unit": r.ln_w_per_unit.exp(),
                     "states": r.states,
+                    "recurrent_states": r.recurrent_states,
+                    "bracket_certified": r.certified,
                     "peak_states": r.peak_states,
                     "iterations": r.iterations,
                     "seconds": r.seconds,

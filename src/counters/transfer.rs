@@ -28,15 +28,18 @@
 //! arrays (m = variables per column), with no hash map or search in the hot loop.
 //!
 //! The eigenvalue comes from power iteration on the shifted operator T + σλ̃ (σ = 1/4, λ̃
-//! the current estimate) with L1-normalised positive vectors. The shift removes periodic
-//! spectra (an eigenvalue −λ from a sublattice structure would otherwise make the iteration
-//! oscillate for ever): T + σλ̃ has the same leading eigenvector and every other eigenvalue
-//! strictly smaller in modulus. Each iteration reports the Collatz–Wielandt bracket
-//! min (Tx)_i/x_i ≤ λ ≤ max (Tx)_i/x_i over the states carrying at least 1e-8 of the
-//! largest component (states of subdominant flux sectors and dead ends decay below that and
-//! drop out); iteration stops when the bracket is narrower than the tolerance, and fails with
-//! [`Error::NotConverged`] at the iteration cap ([`Error::Deadline`] at the deadline). λ is
-//! reported as the midpoint of the bracket.
+//! the current estimate) with L1-normalised vectors, started on the recurrent states R (the
+//! states with an arbitrarily long past; T maps R into itself, every other state is
+//! transient; R empty means that no arrangement continues for ever, an error). The shift
+//! removes periodic spectra (an eigenvalue −λ from a sublattice structure would otherwise
+//! make the iteration oscillate for ever): T + σλ̃ has the same leading eigenvector and
+//! every other eigenvalue strictly smaller in modulus. Iteration stops when the ratios
+//! (Tx)_i/x_i over the states carrying at least 1e-8 of the largest component (the support
+//! F; subdominant flux sectors decay below it) agree to the tolerance, and fails with
+//! [`Error::NotConverged`] at the iteration cap ([`Error::Deadline`] at the deadline). The
+//! reported Collatz–Wielandt bracket is min_F (T x_F)_i/x_i ≤ λ ≤ max_R (Tx)_i/x_i, with
+//! x_F the iterate restricted to F: the lower bound always holds, the upper one whenever x
+//! is positive on R (`certified`). λ is the midpoint of the converged ratios.
 //!
 //! # Arguments and returns
 //!
@@ -109,14 +112,20 @@ pub struct StripResult {
     pub width: usize,
     /// Frontier states at a column boundary (the dimension of T).
     pub states: usize,
+    /// Of those, the states with an arbitrarily long past (the others are transient).
+    pub recurrent_states: usize,
     /// Largest number of frontier states at any step of a column.
     pub peak_states: usize,
     /// Power iterations used.
     pub iterations: usize,
     /// ln λ (λ includes the factor of variables no rule reads).
     pub ln_lambda: f64,
-    /// Collatz–Wielandt bracket of ln λ: (lower, upper).
+    /// Collatz–Wielandt bracket of ln λ: (lower, upper). The lower bound is always
+    /// rigorous; the upper bound is when `certified`.
     pub ln_bracket: (f64, f64),
+    /// Whether the upper bound is certified (the iterate was positive on every recurrent
+    /// state; components of fast-decaying sectors can underflow to zero).
+    pub certified: bool,
     /// Formula units per column.
     pub units_per_column: f64,
     /// ln W per formula unit of the infinite strip.
@@ -760,40 +769,49 @@ impl Column {
     pub fn largest_eigenvalue(&self, config: &StripConfig) -> Result<StripResult> {
         let start = Instant::now();
         let n = self.keys.len();
-        let mut x = vec![1.0 / n as f64; n];
         let (mut y, mut scratch) = (Vec::new(), Vec::new());
+        let recurrent = self.recurrent(&mut y, &mut scratch);
+        let size = recurrent.iter().filter(|&&r| r).count();
+        if size == 0 {
+            return Err(Error::Model(format!(
+                "a strip {} cells wide has no arrangement of unbounded length",
+                self.width
+            )));
+        }
+        let mut x: Vec<f64> = recurrent
+            .iter()
+            .map(|&r| if r { 1.0 / size as f64 } else { 0.0 })
+            .collect();
         let mut lambda = 0.0;
         for iteration in 1..=config.max_iterations {
             self.apply(&x, &mut y, &mut scratch);
             let sum_x: f64 = x.iter().sum();
             let sum_y: f64 = y.iter().sum();
-            if sum_y.is_nan() || sum_y <= 0.0 {
-                return Err(Error::Model(format!(
-                    "a strip {} cells wide has no arrangement of unbounded length",
-                    self.width
-                )));
-            }
             let estimate = sum_y / sum_x;
             let top = x.iter().copied().fold(0.0, f64::max);
             let (mut low, mut high) = (f64::INFINITY, 0.0f64);
             for (&a, &b) in x.iter().zip(&y) {
-                if a >= 1e-8 * top {
+                if a > 0.0 && a >= SUPPORT * top {
                     let r = b / a;
                     low = low.min(r);
                     high = high.max(r);
                 }
             }
             if iteration >= 3 && high - low <= config.tolerance * estimate {
-                // The midpoint of the bracket: the L1 ratio still carries the decaying
-                // components of subdominant sectors.
-                let ln_lambda = (0.5 * (low + high)).ln() + self.ln_free;
+                let (lower, upper, certified) = self.certify(&x, &y, &recurrent);
+                // The midpoint of the converged bracket (the L1 ratio still carries the
+                // decaying components of subdominant sectors), within the certified one.
+                let mid = (0.5 * (low + high)).clamp(lower, upper);
+                let ln_lambda = mid.ln() + self.ln_free;
                 return Ok(StripResult {
                     width: self.width,
                     states: n,
+                    recurrent_states: size,
                     peak_states: self.peak_states(),
                     iterations: iteration,
                     ln_lambda,
-                    ln_bracket: (low.ln() + self.ln_free, high.ln() + self.ln_free),
+                    ln_bracket: (lower.ln() + self.ln_free, upper.ln() + self.ln_free),
+                    certified,
                     units_per_column: self.units_per_column,
                     ln_w_per_unit: ln_lambda / self.units_per_column,
                     seconds: self.build_seconds + start.elapsed().as_secs_f64(),
@@ -818,7 +836,62 @@ impl Column {
             detail: format!("last estimate of λ {lambda}"),
         })
     }
+
+    /// The states with an arbitrarily long past (every one has a predecessor in the set):
+    /// T maps this set into itself, and every other state is transient, so λ is the
+    /// spectral radius of T on it. Empty when no arrangement continues for ever.
+    fn recurrent(&self, y: &mut Vec<f64>, scratch: &mut Vec<f64>) -> Vec<bool> {
+        let mut alive = vec![true; self.keys.len()];
+        loop {
+            let f: Vec<f64> = alive.iter().map(|&a| f64::from(u8::from(a))).collect();
+            self.apply(&f, y, scratch);
+            let mut changed = false;
+            for (a, &g) in alive.iter_mut().zip(y.iter()) {
+                if *a && g <= 0.0 {
+                    *a = false;
+                    changed = true;
+                }
+            }
+            if !changed {
+                return alive;
+            }
+        }
+    }
+
+    /// Collatz–Wielandt bounds from the last iterate x (and y = T x) on the recurrent set R:
+    /// the lower bound min over the support F of (T x_F)_i / x_i for x restricted to F
+    /// (T x_F ≥ a x_F implies λ ≥ a), the upper bound max over R of (T x)_i / x_i, certified
+    /// when x is positive on all of R (otherwise the maximum over F, not certified).
+    fn certify(&self, x: &[f64], y: &[f64], recurrent: &[bool]) -> (f64, f64, bool) {
+        let top = x.iter().copied().fold(0.0, f64::max);
+        let in_support = |a: f64| a > 0.0 && a >= SUPPORT * top;
+        let masked: Vec<f64> = x
+            .iter()
+            .map(|&a| if in_support(a) { a } else { 0.0 })
+            .collect();
+        let (mut yf, mut scratch) = (Vec::new(), Vec::new());
+        self.apply(&masked, &mut yf, &mut scratch);
+        let lower = masked
+            .iter()
+            .zip(&yf)
+            .filter(|p| *p.0 > 0.0)
+            .map(|(&a, &b)| b / a)
+            .fold(f64::INFINITY, f64::min);
+        let certified = x.iter().zip(recurrent).all(|(&a, &r)| !r || a > 0.0);
+        let upper = x
+            .iter()
+            .zip(y)
+            .zip(recurrent)
+            .filter(|((a, _), r)| **r && (certified || in_support(**a)))
+            .map(|((&a, &b), _)| b / a)
+            .fold(0.0, f64::max);
+        (lower, upper, certified)
+    }
 }
+
+/// States holding less than this fraction of the largest component leave the convergence
+/// test (subdominant sectors decay below it).
+const SUPPORT: f64 = 1e-8;
 
 /// Steps with fewer output states than this run on one thread.
 const PARALLEL_MIN: usize = 1 << 15;
