@@ -79,6 +79,16 @@ pub enum Error {
     /// A rule whose local table is too large to compile.
     #[error("{0}")]
     Model(String),
+    /// An iterative method stopped at its iteration cap before converging.
+    #[error("{what} did not converge in {iterations} iterations ({detail})")]
+    NotConverged {
+        /// What was being computed.
+        what: String,
+        /// Iterations done.
+        iterations: usize,
+        /// Where it stood.
+        detail: String,
+    },
 }
 
 fn located(path: &std::path::Path, position: Position) -> String {

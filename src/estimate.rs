@@ -19,6 +19,8 @@ pub enum Method {
     Exact,
     /// Monte Carlo thermodynamic integration on a finite cell.
     MonteCarlo,
+    /// Transfer matrices on strips of growing width, extrapolated to infinite width.
+    TransferMatrix,
 }
 
 impl Method {
@@ -28,6 +30,7 @@ impl Method {
             Method::Pauling => "pauling",
             Method::Exact => "exact",
             Method::MonteCarlo => "monte-carlo",
+            Method::TransferMatrix => "transfer-matrix",
         }
     }
 }

@@ -109,6 +109,7 @@ pub fn method_label(e: &Estimate) -> String {
         crate::estimate::Method::Pauling => "Pauling".into(),
         crate::estimate::Method::Exact => "exact count".into(),
         crate::estimate::Method::MonteCarlo => "Monte Carlo".into(),
+        crate::estimate::Method::TransferMatrix => "transfer matrix".into(),
     }
 }
 

@@ -5,3 +5,4 @@ mod util;
 mod cli_errors;
 mod counts;
 mod sampling;
+mod transfer;

@@ -6,6 +6,7 @@ mod estimate;
 mod exact;
 mod inspect;
 mod sample;
+mod strip;
 
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -31,6 +32,8 @@ enum Command {
     Estimate(estimate::Args),
     /// Monte Carlo count of a large cell (thermodynamic integration), with error bars.
     Sample(sample::Args),
+    /// Transfer matrices on strips of growing width, extrapolated to the infinite crystal.
+    Strip(strip::Args),
 }
 
 /// Output format shared by every command.
@@ -117,6 +120,7 @@ pub fn run() -> i32 {
         Command::Exact(a) => exact::run(a),
         Command::Estimate(a) => estimate::run(a),
         Command::Sample(a) => sample::run(a),
+        Command::Strip(a) => strip::run(a),
     };
     match result {
         Ok(text) => {

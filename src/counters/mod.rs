@@ -4,6 +4,8 @@
 
 pub mod brute;
 pub mod exact;
+pub mod extrapolate;
 pub mod order;
 pub mod pauling;
 pub mod sampling;
+pub mod transfer;

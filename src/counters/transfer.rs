@@ -1,0 +1,967 @@
+//! Transfer matrices on strips and cylinders of a two-dimensional crystal.
+//!
+//! # What it computes
+//!
+//! For a strip `width` cells wide (transverse axis periodic — a cylinder — or open) and
+//! infinitely long along one cell axis, the largest eigenvalue λ of the column-to-column
+//! transfer operator T. The number of arrangements of a strip of M columns grows like λ^M,
+//! so ln W per formula unit of the infinite strip is ln λ / (formula units per column).
+//! [`Column::trace_power`] gives the exact integer trace of T^L, which is the exact count of
+//! the `width × L` torus.
+//!
+//! # Method
+//!
+//! The operator is built from the [`Model`] of a periodic `width × n` cluster (n = 4·reach + 3
+//! columns, so that no constraint wraps onto itself along the strip): every variable belongs
+//! to the column of its cell, every constraint is assigned to the first column it reads, and
+//! the constraints assigned to column 0 — with their compiled tables — are the template of
+//! one column. One column is then applied as a sequence of frontier steps, exactly as in the
+//! exact counter ([`super::exact`]): add one variable of the new column, check the
+//! constraints whose last variable it is, forget the variables that no unfinished constraint
+//! reads. States are frontier assignments packed into `u64` bit fields; at the end of a
+//! column the fields are relabelled by age so that the state space repeats.
+//!
+//! The operator is never stored as a matrix. Once per width a symbolic pass finds the set
+//! K of frontier states reachable from an open left end (closed under T) and compiles, for
+//! every step of the column, a dense index list: for input state i and value x, the index of
+//! the output state (or none). Applying T is then `m` gather-scatter passes over flat `f64`
+//! arrays (m = variables per column), with no hash map or search in the hot loop.
+//!
+//! The eigenvalue comes from power iteration on the shifted operator T + σλ̃ (σ = 1/4, λ̃
+//! the current estimate) with L1-normalised vectors, started on the recurrent states R (the
+//! states with an arbitrarily long past; T maps R into itself, every other state is
+//! transient; R empty means that no arrangement continues for ever, an error). The shift
+//! removes periodic spectra (an eigenvalue −λ from a sublattice structure would otherwise
+//! make the iteration oscillate for ever): T + σλ̃ has the same leading eigenvector and
+//! every other eigenvalue strictly smaller in modulus. Iteration stops when the ratios
+//! (Tx)_i/x_i over the states carrying at least 1e-8 of the largest component (the support
+//! F; subdominant flux sectors decay below it) agree to the tolerance, and fails with
+//! [`Error::NotConverged`] at the iteration cap ([`Error::Deadline`] at the deadline). The
+//! reported Collatz–Wielandt bracket is min_F (T x_F)_i/x_i ≤ λ ≤ max_R (Tx)_i/x_i, with
+//! x_F the iterate restricted to F: the lower bound always holds, the upper one whenever x
+//! is positive on R (`certified`). λ is the midpoint of the converged ratios.
+//!
+//! # Arguments and returns
+//!
+//! [`Column::new`] takes the crystal, the width and a [`StripConfig`] (strip axis, transverse
+//! boundary, state budget); [`Column::largest_eigenvalue`] returns a [`StripResult`] with
+//! ln λ, the bracket, ln W per formula unit, the number of states and iterations.
+//! [`strip`] does both.
+//!
+//! # Complexity
+//!
+//! Memory O(Σ_steps S_t · q_t) 4-byte indices plus a few f64 vectors of length max S_t; time
+//! per iteration O(Σ_steps S_t · q_t), with S_t the number of frontier states at step t. For
+//! a sweep across a column S_t ≤ q^(width · depth + 1), much less under restrictive rules
+//! (2^width for square ice, about 1.618^width for hard squares).
+//!
+//! # Reference
+//!
+//! The transfer-matrix method as used for the ice model by Lieb 1967 (Phys. Rev. 162, 162);
+//! the Collatz–Wielandt bounds for nonnegative matrices (Collatz 1942; Wielandt 1950);
+//! the frontier (one variable at a time) form as in the exact counter.
+
+use std::collections::HashMap;
+use std::time::Instant;
+
+use num_bigint::BigUint;
+use rayon::prelude::*;
+
+use super::extrapolate::{Extrapolation, Scaling, extrapolate};
+use super::order::width as field_width;
+use crate::cluster::{Cells, Cluster};
+use crate::crystal::Crystal;
+use crate::error::{Error, Result};
+use crate::estimate::{Estimate, Method};
+use crate::model::{Model, Table};
+
+/// Options of a strip computation.
+#[derive(Clone, Debug)]
+pub struct StripConfig {
+    /// Cell axis along the strip (0 = a, 1 = b); the other axis is transverse.
+    pub along: usize,
+    /// Periodic (a cylinder) or open transverse boundaries.
+    pub periodic: bool,
+    /// Largest number of frontier states at any step.
+    pub max_states: usize,
+    /// Relative width of the Collatz–Wielandt bracket at which iteration stops.
+    pub tolerance: f64,
+    /// Iteration cap.
+    pub max_iterations: usize,
+    /// Stop with [`Error::Deadline`] after this instant.
+    pub deadline: Option<Instant>,
+}
+
+impl Default for StripConfig {
+    fn default() -> Self {
+        StripConfig {
+            along: 0,
+            periodic: true,
+            max_states: 1 << 24,
+            tolerance: 1e-12,
+            max_iterations: 200_000,
+            deadline: None,
+        }
+    }
+}
+
+/// The largest eigenvalue of one strip width.
+#[derive(Clone, Debug)]
+pub struct StripResult {
+    /// Width in cells.
+    pub width: usize,
+    /// Frontier states at a column boundary (the dimension of T).
+    pub states: usize,
+    /// Of those, the states with an arbitrarily long past (the others are transient).
+    pub recurrent_states: usize,
+    /// Largest number of frontier states at any step of a column.
+    pub peak_states: usize,
+    /// Power iterations used.
+    pub iterations: usize,
+    /// ln λ (λ includes the factor of variables no rule reads).
+    pub ln_lambda: f64,
+    /// Collatz–Wielandt bracket of ln λ: (lower, upper). The lower bound is always
+    /// rigorous; the upper bound is when `certified`.
+    pub ln_bracket: (f64, f64),
+    /// Whether the upper bound is certified (the iterate was positive on every recurrent
+    /// state; components of fast-decaying sectors can underflow to zero).
+    pub certified: bool,
+    /// Formula units per column.
+    pub units_per_column: f64,
+    /// ln W per formula unit of the infinite strip.
+    pub ln_w_per_unit: f64,
+    /// Wall time in seconds (building the operator and iterating).
+    pub seconds: f64,
+}
+
+/// A constraint of the template, compiled against the bit layout of its step.
+#[derive(Clone, Debug)]
+struct Check {
+    /// (offset, mask, stride) per scope variable.
+    fields: Vec<(u32, u64, u64)>,
+    table: usize,
+    /// Columns between the constraint's first column and the column it completes in.
+    depth: usize,
+}
+
+/// One step of a column: add a variable, check, forget.
+#[derive(Clone, Debug)]
+struct Step {
+    states: u64,
+    offset: u32,
+    checks: Vec<Check>,
+    keep: u64,
+}
+
+/// The compiled transfer operator of one column of a strip.
+#[derive(Debug)]
+pub struct Column {
+    width: usize,
+    steps: Vec<Step>,
+    tables: Vec<Table>,
+    /// (from offset, mask, to offset) of the fields that survive a column.
+    relabel: Vec<(u32, u64, u32)>,
+    /// Largest constraint depth: columns with an open left end before the steady state.
+    depth: usize,
+    /// ln of the product of the states of variables no constraint reads, per column.
+    ln_free: f64,
+    /// That product.
+    free_states: u64,
+    /// Formula units per column.
+    units_per_column: f64,
+    /// Frontier states at a column boundary, sorted.
+    keys: Vec<u64>,
+    /// Per step, the inputs of every output state, in compressed rows: output j sums the
+    /// inputs `sources[starts[j]..starts[j + 1]]` (in increasing order, so sums do not
+    /// depend on the number of threads).
+    sources: Vec<Vec<u32>>,
+    /// Per step, the row starts of `sources` (one more than the outputs).
+    starts: Vec<Vec<u32>>,
+    /// Per step: number of output states.
+    sizes: Vec<usize>,
+    /// Build time in seconds.
+    build_seconds: f64,
+}
+
+/// Strips of several widths and their extrapolation to the infinite crystal.
+#[derive(Clone, Debug)]
+pub struct StripSeries {
+    /// One result per width, in the order asked.
+    pub widths: Vec<StripResult>,
+    /// The extrapolation W → ∞.
+    pub extrapolation: Extrapolation,
+    /// Central charge from the 1/W² term (critical models, periodic cylinders only); a
+    /// diagnostic that assumes the lattice is isotropic in its cell coordinates.
+    pub central_charge: Option<f64>,
+    /// The extrapolated value as an estimate for the infinite crystal.
+    pub estimate: Estimate,
+}
+
+/// Compute every width and extrapolate.
+///
+/// `step` is the spacing of the widths (families are W mod 2·step); `scaling` says how the
+/// values approach their limit ([`Scaling::Auto`] decides from the last differences).
+pub fn series(
+    crystal: &Crystal,
+    widths: &[usize],
+    step: usize,
+    scaling: Scaling,
+    config: &StripConfig,
+) -> Result<StripSeries> {
+    let start = Instant::now();
+    let results = widths
+        .iter()
+        .map(|&w| strip(crystal, w, config))
+        .collect::<Result<Vec<_>>>()?;
+    let points: Vec<(usize, f64)> = results.iter().map(|r| (r.width, r.ln_w_per_unit)).collect();
+    let extrapolation = extrapolate(&points, step, scaling)?;
+    let central_charge = extrapolation.a1.filter(|_| config.periodic).map(|a1| {
+        let v = crystal.vectors;
+        let area = (v[0][0] * v[1][1] - v[0][1] * v[1][0]).abs();
+        let t = v[1 - config.along];
+        let t2 = t[0] * t[0] + t[1] * t[1];
+        let r = &results[results.len() - 1];
+        let units_per_cell = r.units_per_column / r.width as f64;
+        6.0 * units_per_cell * t2 * a1 / (std::f64::consts::PI * area)
+    });
+    let estimate = Estimate {
+        method: Method::TransferMatrix,
+        cells: None,
+        count: None,
+        ln_count: extrapolation.value,
+        formula_units: 1.0,
+        ln_w_per_unit: extrapolation.value,
+        sigma_ln_w: Some(extrapolation.uncertainty),
+        seconds: start.elapsed().as_secs_f64(),
+        peak_states: results.iter().map(|r| r.peak_states).max(),
+    };
+    Ok(StripSeries {
+        widths: results,
+        extrapolation,
+        central_charge,
+        estimate,
+    })
+}
+
+/// The largest eigenvalue of one width: build the operator and iterate.
+pub fn strip(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<StripResult> {
+    Column::new(crystal, width, config)?.largest_eigenvalue(config)
+}
+
+/// Where each model variable sits: (column along the strip, kind within a column).
+fn variable_columns(
+    cluster: &Cluster,
+    model: &Model,
+    along: usize,
+) -> Result<(Vec<usize>, Vec<usize>, usize)> {
+    let crystal = cluster.crystal;
+    let across = 1 - along;
+    // (is bond, crystal index, cell along, cell across), in the model's numbering: the
+    // sites first when sites carry variables, then the bonds.
+    let mut ids: Vec<(bool, usize, usize, usize, [f64; 3])> = Vec::new();
+    if crystal.site_variables.is_some() {
+        for (i, s) in cluster.sites.iter().enumerate() {
+            ids.push((
+                false,
+                s.site,
+                s.cell[along],
+                s.cell[across],
+                cluster.site_position(i),
+            ));
+        }
+    }
+    if crystal.bond_variables.is_some() {
+        for (i, b) in cluster.bonds.iter().enumerate() {
+            ids.push((
+                true,
+                b.bond,
+                b.cell[along],
+                b.cell[across],
+                cluster.bond_position(i),
+            ));
+        }
+    }
+    let consistent = ids.len() == model.variables.len()
+        && ids
+            .iter()
+            .zip(&model.variables)
+            .all(|(id, v)| id.4 == v.position);
+    if !consistent {
+        return Err(Error::Model(
+            "internal: the model's variables do not follow the cluster's sites and bonds".into(),
+        ));
+    }
+    let mut first: Vec<(usize, bool, usize)> = ids
+        .iter()
+        .filter(|id| id.2 == 0)
+        .map(|id| (id.3, id.0, id.1))
+        .collect();
+    first.sort_unstable();
+    let kind: HashMap<(usize, bool, usize), usize> =
+        first.iter().enumerate().map(|(k, &id)| (id, k)).collect();
+    let columns = ids.iter().map(|id| id.2).collect();
+    let kinds = ids
+        .iter()
+        .map(|id| {
+            kind.get(&(id.3, id.0, id.1)).copied().ok_or_else(|| {
+                Error::Model(
+                    "internal: the strip's columns are not translates of each other".into(),
+                )
+            })
+        })
+        .collect::<Result<Vec<_>>>()?;
+    Ok((columns, kinds, first.len()))
+}
+
+impl Column {
+    /// Build the transfer operator of a strip `width` cells wide.
+    pub fn new(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<Column> {
+        let start = Instant::now();
+        if crystal.dimensions != 2 {
+            return Err(Error::Cells(format!(
+                "a strip needs a two-dimensional crystal; '{}' has {} dimensions",
+                crystal.name, crystal.dimensions
+            )));
+        }
+        if width == 0 {
+            return Err(Error::Cells("a strip must be at least 1 cell wide".into()));
+        }
+        let along = config.along;
+        if along > 1 {
+            return Err(Error::Cells("the strip axis must be a or b".into()));
+        }
+        let reach = crystal.reach().max(1) as usize;
+        let n = 4 * reach + 3;
+        let mut counts = [1usize; 3];
+        counts[along] = n;
+        counts[1 - along] = width;
+        let mut periodic = [true; 3];
+        periodic[1 - along] = config.periodic;
+        let cells = Cells {
+            counts,
+            periodic,
+            dimensions: 2,
+        };
+        let cluster = Cluster::new(crystal, cells)?;
+        let model = Model::new(&cluster)?;
+        if let Some(why) = &model.contradiction {
+            return Err(Error::Model(format!(
+                "the strip has no arrangement at all: {why}"
+            )));
+        }
+        let (columns, kinds, m) = variable_columns(&cluster, &model, along)?;
+        let mut states = vec![0u32; m];
+        for (v, &k) in kinds.iter().enumerate() {
+            states[k] = model.variables[v].states;
+        }
+        // Template constraints: those whose first column is 0. Entries (kind, offset).
+        struct Template {
+            entries: Vec<(usize, usize)>,
+            table: usize,
+            depth: usize,
+            last: usize,
+        }
+        let mut templates = Vec::new();
+        for con in &model.constraints {
+            let cols: Vec<usize> = con.scope.iter().map(|&v| columns[v]).collect();
+            let (first, span) = cols
+                .iter()
+                .map(|&s| (s, cols.iter().map(|&c| (c + n - s) % n).max().unwrap_or(0)))
+                .min_by_key(|&(_, span)| span)
+                .expect("constraints have a scope");
+            if 2 * span + 1 > n {
+                return Err(Error::Model(format!(
+                    "internal: a constraint spans {span} columns of a {n}-column template"
+                )));
+            }
+            if first != 0 {
+                continue;
+            }
+            let entries: Vec<(usize, usize)> = con
+                .scope
+                .iter()
+                .map(|&v| (kinds[v], (columns[v] + n - first) % n))
+                .collect();
+            let last = entries
+                .iter()
+                .filter(|e| e.1 == span)
+                .map(|e| e.0)
+                .max()
+                .expect("some entry is in the last column");
+            templates.push(Template {
+                entries,
+                table: con.table,
+                depth: span,
+                last,
+            });
+        }
+        // Last use of each kind: (age in columns, step) of the latest completion reading it.
+        let mut last_use: Vec<Option<(usize, usize)>> = vec![None; m];
+        for t in &templates {
+            for &(k, d) in &t.entries {
+                let u = (t.depth - d, t.last);
+                if last_use[k].is_none_or(|old| old < u) {
+                    last_use[k] = Some(u);
+                }
+            }
+        }
+        let free_states = (0..m)
+            .filter(|&k| last_use[k].is_none())
+            .try_fold(1u64, |a, k| a.checked_mul(states[k] as u64))
+            .ok_or_else(|| Error::Model("too many unconstrained variables per column".into()))?;
+        let ln_free = (free_states as f64).ln();
+        // Canonical fields of variables carried over a column boundary: (kind, age ≥ 1).
+        let mut canonical: HashMap<(usize, usize), u32> = HashMap::new();
+        let mut next_bit = 0u32;
+        for k in 0..m {
+            if let Some((age, _)) = last_use[k] {
+                for a in 1..=age {
+                    canonical.insert((k, a), next_bit);
+                    next_bit += field_width(states[k]);
+                }
+            }
+        }
+        let too_wide = |bits: u32| Error::Budget {
+            cells: format!("a strip {width} cells wide"),
+            detail: format!("its column frontier needs {bits} bits, more than 63"),
+        };
+        if next_bit > 63 {
+            return Err(too_wide(next_bit));
+        }
+        let mut used: u64 = (1u64 << next_bit) - 1;
+        let mut fresh = vec![u32::MAX; m];
+        let offset_of = |fresh: &[u32], k: usize, age: usize| -> u32 {
+            if age == 0 {
+                fresh[k]
+            } else {
+                canonical[&(k, age)]
+            }
+        };
+        let mut steps = Vec::new();
+        for k in 0..m {
+            if last_use[k].is_none() {
+                continue;
+            }
+            let w = field_width(states[k]);
+            let field = (1u64 << w) - 1;
+            let off = (0..=63 - w)
+                .find(|&o| used & (field << o) == 0)
+                .ok_or_else(|| too_wide(64))?;
+            used |= field << off;
+            fresh[k] = off;
+            let checks = templates
+                .iter()
+                .filter(|t| t.last == k)
+                .map(|t| {
+                    let mut stride = 1u64;
+                    let fields = t
+                        .entries
+                        .iter()
+                        .map(|&(kk, d)| {
+                            let f = (
+                                offset_of(&fresh, kk, t.depth - d),
+                                (1u64 << field_width(states[kk])) - 1,
+                                stride,
+                            );
+                            stride *= states[kk] as u64;
+                            f
+                        })
+                        .collect();
+                    Check {
+                        fields,
+                        table: t.table,
+                        depth: t.depth,
+                    }
+                })
+                .collect();
+            let mut forget = 0u64;
+            for kk in 0..m {
+                if let Some((age, step)) = last_use[kk]
+                    && step == k
+                {
+                    let f = (1u64 << field_width(states[kk])) - 1;
+                    forget |= f << offset_of(&fresh, kk, age);
+                }
+            }
+            used &= !forget;
+            steps.push(Step {
+                states: states[k] as u64,
+                offset: off,
+                checks,
+                keep: !forget,
+            });
+        }
+        let mut relabel = Vec::new();
+        for k in 0..m {
+            if let Some((age, _)) = last_use[k] {
+                for a in 0..age {
+                    let mask = (1u64 << field_width(states[k])) - 1;
+                    relabel.push((offset_of(&fresh, k, a), mask, canonical[&(k, a + 1)]));
+                }
+            }
+        }
+        let depth = templates.iter().map(|t| t.depth).max().unwrap_or(0);
+        let mut column = Column {
+            width,
+            steps,
+            tables: model.tables.clone(),
+            relabel,
+            depth,
+            ln_free,
+            free_states,
+            units_per_column: model.formula_units / n as f64,
+            keys: Vec::new(),
+            sources: Vec::new(),
+            starts: Vec::new(),
+            sizes: Vec::new(),
+            build_seconds: 0.0,
+        };
+        column.compile(config)?;
+        column.build_seconds = start.elapsed().as_secs_f64();
+        Ok(column)
+    }
+
+    /// Whether a check passes on a key.
+    #[inline]
+    fn allows(&self, check: &Check, key: u64) -> bool {
+        let mut index = 0u64;
+        for &(off, mask, stride) in &check.fields {
+            index += ((key >> off) & mask) * stride;
+        }
+        self.tables[check.table].allows(index)
+    }
+
+    /// Move the fields that survive a column to their places one column older.
+    #[inline]
+    fn relabelled(&self, key: u64) -> u64 {
+        self.relabel.iter().fold(0, |acc, &(from, mask, to)| {
+            acc | (((key >> from) & mask) << to)
+        })
+    }
+
+    /// Apply one step to a sorted set of keys; `column` is the column number from an open
+    /// left end (checks reaching before it are skipped), `None` in the steady state.
+    fn step_keys(&self, step: &Step, keys: &[u64], column: Option<usize>) -> Vec<u64> {
+        let mut out = Vec::with_capacity(keys.len() * step.states as usize);
+        for &key in keys {
+            for x in 0..step.states {
+                let k = key | (x << step.offset);
+                if step
+                    .checks
+                    .iter()
+                    .all(|c| column.is_some_and(|t| c.depth > t) || self.allows(c, k))
+                {
+                    out.push(k & step.keep);
+                }
+            }
+        }
+        out.sort_unstable();
+        out.dedup();
+        out
+    }
+
+    /// Apply a whole column to a set of keys.
+    fn column_keys(
+        &self,
+        keys: &[u64],
+        column: Option<usize>,
+        config: &StripConfig,
+    ) -> Result<Vec<u64>> {
+        let mut cur = keys.to_vec();
+        for step in &self.steps {
+            cur = self.step_keys(step, &cur, column);
+            self.within_budget(cur.len(), config)?;
+        }
+        let mut out: Vec<u64> = cur.iter().map(|&k| self.relabelled(k)).collect();
+        out.sort_unstable();
+        out.dedup();
+        Ok(out)
+    }
+
+    fn within_budget(&self, states: usize, config: &StripConfig) -> Result<()> {
+        if states > config.max_states || states >= u32::MAX as usize {
+            return Err(Error::Budget {
+                cells: format!("a strip {} cells wide", self.width),
+                detail: format!(
+                    "a column step holds {states} states (budget {})",
+                    config.max_states
+                ),
+            });
+        }
+        if config.deadline.is_some_and(|d| Instant::now() > d) {
+            return Err(Error::Deadline {
+                cells: format!("a strip {} cells wide", self.width),
+            });
+        }
+        Ok(())
+    }
+
+    /// Find the states reachable from an open left end, closed under the column, and
+    /// compile the index lists of every step.
+    fn compile(&mut self, config: &StripConfig) -> Result<()> {
+        let mut keys = vec![0u64];
+        for t in 0..self.depth {
+            keys = self.column_keys(&keys, Some(t), config)?;
+        }
+        for _ in 0..1000 {
+            let image = self.column_keys(&keys, None, config)?;
+            let mut union: Vec<u64> = keys.iter().chain(&image).copied().collect();
+            union.sort_unstable();
+            union.dedup();
+            if union.len() == keys.len() {
+                break;
+            }
+            keys = union;
+        }
+        let mut all_sources = Vec::with_capacity(self.steps.len());
+        let mut all_starts = Vec::with_capacity(self.steps.len());
+        let mut sizes = Vec::with_capacity(self.steps.len());
+        let mut cur = keys.clone();
+        let last = self.steps.len().saturating_sub(1);
+        for (s, step) in self.steps.iter().enumerate() {
+            // Every allowed transition as (output key, input index), sorted: equal keys
+            // become one output state, and their inputs (increasing) its row.
+            let mut pairs: Vec<(u64, u32)> = Vec::with_capacity(cur.len() * step.states as usize);
+            for (i, &key) in cur.iter().enumerate() {
+                for x in 0..step.states {
+                    let k = key | (x << step.offset);
+                    if step.checks.iter().all(|c| self.allows(c, k)) {
+                        let out = k & step.keep;
+                        let out = if s == last { self.relabelled(out) } else { out };
+                        pairs.push((out, i as u32));
+                    }
+                }
+            }
+            if pairs.len() >= u32::MAX as usize {
+                return Err(Error::Budget {
+                    cells: format!("a strip {} cells wide", self.width),
+                    detail: format!("a column step has {} transitions", pairs.len()),
+                });
+            }
+            pairs.sort_unstable();
+            let sources: Vec<u32> = pairs.iter().map(|p| p.1).collect();
+            let mut starts = Vec::new();
+            let next: Vec<u64> = if s == last {
+                // Rows follow the boundary states K; a state nothing leads to has an empty row.
+                let mut p = 0;
+                for &k in &keys {
+                    starts.push(p as u32);
+                    while p < pairs.len() && pairs[p].0 == k {
+                        p += 1;
+                    }
+                }
+                if p != pairs.len() {
+                    return Err(Error::Model(
+                        "internal: the strip's state set is not closed".into(),
+                    ));
+                }
+                starts.push(p as u32);
+                keys.clone()
+            } else {
+                let mut next = Vec::new();
+                for (p, pair) in pairs.iter().enumerate() {
+                    if next.last() != Some(&pair.0) {
+                        next.push(pair.0);
+                        starts.push(p as u32);
+                    }
+                }
+                starts.push(pairs.len() as u32);
+                next
+            };
+            self.within_budget(next.len(), config)?;
+            all_sources.push(sources);
+            all_starts.push(starts);
+            sizes.push(next.len());
+            cur = next;
+        }
+        self.keys = keys;
+        self.sources = all_sources;
+        self.starts = all_starts;
+        self.sizes = sizes;
+        Ok(())
+    }
+
+    /// Frontier states at a column boundary (the dimension of T).
+    pub fn states(&self) -> usize {
+        self.keys.len()
+    }
+
+    /// Largest number of states at any step of a column.
+    pub fn peak_states(&self) -> usize {
+        self.sizes
+            .iter()
+            .copied()
+            .max()
+            .unwrap_or(0)
+            .max(self.keys.len())
+    }
+
+    /// Formula units per column.
+    pub fn units_per_column(&self) -> f64 {
+        self.units_per_column
+    }
+
+    /// y = T x, without the factor of free variables; `scratch` is reused between calls.
+    pub fn apply(&self, x: &[f64], y: &mut Vec<f64>, scratch: &mut Vec<f64>) {
+        y.clear();
+        y.extend_from_slice(x);
+        for s in 0..self.steps.len() {
+            scratch.clear();
+            scratch.resize(self.sizes[s], 0.0);
+            let (sources, starts) = (&self.sources[s], &self.starts[s]);
+            let input: &[f64] = y;
+            let rows = |first: usize, out: &mut [f64]| {
+                for (k, o) in out.iter_mut().enumerate() {
+                    let j = first + k;
+                    let row = &sources[starts[j] as usize..starts[j + 1] as usize];
+                    *o = row.iter().map(|&i| input[i as usize]).sum();
+                }
+            };
+            if scratch.len() >= PARALLEL_MIN {
+                scratch
+                    .par_chunks_mut(CHUNK)
+                    .enumerate()
+                    .for_each(|(c, out)| rows(c * CHUNK, out));
+            } else {
+                rows(0, scratch);
+            }
+            std::mem::swap(y, scratch);
+        }
+    }
+
+    /// The exact trace of T^L, L ≥ 1, including the free variables: the number of
+    /// arrangements of the periodic `width × L` cell when L is larger than the deepest
+    /// constraint (so that no constraint of the torus reads a variable twice along the
+    /// strip).
+    pub fn trace_power(&self, length: usize) -> Result<BigUint> {
+        if length <= self.depth {
+            return Err(Error::Cells(format!(
+                "a torus trace needs more than {} columns along the strip",
+                self.depth
+            )));
+        }
+        let zero = BigUint::from(0u32);
+        let mut total = zero.clone();
+        for start in 0..self.keys.len() {
+            let mut cur = vec![zero.clone(); self.keys.len()];
+            cur[start] = BigUint::from(1u32);
+            for _ in 0..length {
+                for s in 0..self.steps.len() {
+                    let (sources, starts) = (&self.sources[s], &self.starts[s]);
+                    cur = (0..self.sizes[s])
+                        .map(|j| {
+                            let mut acc = zero.clone();
+                            for &i in &sources[starts[j] as usize..starts[j + 1] as usize] {
+                                acc += &cur[i as usize];
+                            }
+                            acc
+                        })
+                        .collect();
+                }
+            }
+            total += &cur[start];
+        }
+        // Free variables: states^length each, folded in through ln_free.
+        Ok(total * BigUint::from(self.free_states).pow(length as u32))
+    }
+
+    /// Power iteration for the largest eigenvalue, certified by the Collatz–Wielandt bracket.
+    pub fn largest_eigenvalue(&self, config: &StripConfig) -> Result<StripResult> {
+        let start = Instant::now();
+        let n = self.keys.len();
+        let (mut y, mut scratch) = (Vec::new(), Vec::new());
+        let recurrent = self.recurrent(&mut y, &mut scratch);
+        let size = recurrent.iter().filter(|&&r| r).count();
+        if size == 0 {
+            return Err(Error::Model(format!(
+                "a strip {} cells wide has no arrangement of unbounded length",
+                self.width
+            )));
+        }
+        let mut x: Vec<f64> = recurrent
+            .iter()
+            .map(|&r| if r { 1.0 / size as f64 } else { 0.0 })
+            .collect();
+        let mut lambda = 0.0;
+        for iteration in 1..=config.max_iterations {
+            self.apply(&x, &mut y, &mut scratch);
+            let sum_x: f64 = x.iter().sum();
+            let sum_y: f64 = y.iter().sum();
+            let estimate = sum_y / sum_x;
+            let top = x.iter().copied().fold(0.0, f64::max);
+            let (mut low, mut high) = (f64::INFINITY, 0.0f64);
+            for (&a, &b) in x.iter().zip(&y) {
+                if a > 0.0 && a >= SUPPORT * top {
+                    let r = b / a;
+                    low = low.min(r);
+                    high = high.max(r);
+                }
+            }
+            if iteration >= 3 && high - low <= config.tolerance * estimate {
+                let (lower, upper, certified) = self.certify(&x, &y, &recurrent);
+                // The midpoint of the converged bracket (the L1 ratio still carries the
+                // decaying components of subdominant sectors), within the certified one.
+                let mid = (0.5 * (low + high)).clamp(lower, upper);
+                let ln_lambda = mid.ln() + self.ln_free;
+                return Ok(StripResult {
+                    width: self.width,
+                    states: n,
+                    recurrent_states: size,
+                    peak_states: self.peak_states(),
+                    iterations: iteration,
+                    ln_lambda,
+                    ln_bracket: (lower.ln() + self.ln_free, upper.ln() + self.ln_free),
+                    certified,
+                    units_per_column: self.units_per_column,
+                    ln_w_per_unit: ln_lambda / self.units_per_column,
+                    seconds: self.build_seconds + start.elapsed().as_secs_f64(),
+                });
+            }
+            if iteration % 16 == 0 && config.deadline.is_some_and(|d| Instant::now() > d) {
+                return Err(Error::Deadline {
+                    cells: format!("a strip {} cells wide", self.width),
+                });
+            }
+            // x ← (T + σλ̃) x, normalised: removes eigenvalues of modulus λ other than λ.
+            let shift = SHIFT * estimate;
+            let norm = sum_y + shift * sum_x;
+            for (a, &b) in x.iter_mut().zip(&y) {
+                *a = (b + shift * *a) / norm;
+            }
+            lambda = estimate;
+        }
+        Err(Error::NotConverged {
+            what: format!("the transfer matrix of a strip {} cells wide", self.width),
+            iterations: config.max_iterations,
+            detail: format!("last estimate of λ {lambda}"),
+        })
+    }
+
+    /// The states with an arbitrarily long past (every one has a predecessor in the set):
+    /// T maps this set into itself, and every other state is transient, so λ is the
+    /// spectral radius of T on it. Empty when no arrangement continues for ever.
+    fn recurrent(&self, y: &mut Vec<f64>, scratch: &mut Vec<f64>) -> Vec<bool> {
+        let mut alive = vec![true; self.keys.len()];
+        loop {
+            let f: Vec<f64> = alive.iter().map(|&a| f64::from(u8::from(a))).collect();
+            self.apply(&f, y, scratch);
+            let mut changed = false;
+            for (a, &g) in alive.iter_mut().zip(y.iter()) {
+                if *a && g <= 0.0 {
+                    *a = false;
+                    changed = true;
+                }
+            }
+            if !changed {
+                return alive;
+            }
+        }
+    }
+
+    /// Collatz–Wielandt bounds from the last iterate x (and y = T x) on the recurrent set R:
+    /// the lower bound min over the support F of (T x_F)_i / x_i for x restricted to F
+    /// (T x_F ≥ a x_F implies λ ≥ a), the upper bound max over R of (T x)_i / x_i, certified
+    /// when x is positive on all of R (otherwise the maximum over F, not certified).
+    fn certify(&self, x: &[f64], y: &[f64], recurrent: &[bool]) -> (f64, f64, bool) {
+        let top = x.iter().copied().fold(0.0, f64::max);
+        let in_support = |a: f64| a > 0.0 && a >= SUPPORT * top;
+        let masked: Vec<f64> = x
+            .iter()
+            .map(|&a| if in_support(a) { a } else { 0.0 })
+            .collect();
+        let (mut yf, mut scratch) = (Vec::new(), Vec::new());
+        self.apply(&masked, &mut yf, &mut scratch);
+        let lower = masked
+            .iter()
+            .zip(&yf)
+            .filter(|p| *p.0 > 0.0)
+            .map(|(&a, &b)| b / a)
+            .fold(f64::INFINITY, f64::min);
+        let certified = x.iter().zip(recurrent).all(|(&a, &r)| !r || a > 0.0);
+        let upper = x
+            .iter()
+            .zip(y)
+            .zip(recurrent)
+            .filter(|((a, _), r)| **r && (certified || in_support(**a)))
+            .map(|((&a, &b), _)| b / a)
+            .fold(0.0, f64::max);
+        (lower, upper, certified)
+    }
+}
+
+/// States holding less than this fraction of the largest component leave the convergence
+/// test (subdominant sectors decay below it).
+const SUPPORT: f64 = 1e-8;
+
+/// Steps with fewer output states than this run on one thread.
+const PARALLEL_MIN: usize = 1 << 15;
+
+/// Output states per parallel task.
+const CHUNK: usize = 1 << 12;
+
+/// Shift of the power iteration, relative to the current estimate of λ.
+const SHIFT: f64 = 0.25;
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::Lattice;
+
+    fn lattice(name: &str) -> Lattice {
+        let path = format!("{}/lattices/{name}", env!("CARGO_MANIFEST_DIR"));
+        Lattice::from_file(std::path::Path::new(&path)).unwrap()
+    }
+
+    fn torus(l: &Lattice, a: usize, b: usize) -> BigUint {
+        let cells = Cells::parse(&format!("{a}x{b}"), None, 2).unwrap();
+        l.count_exact(&cells, &Default::default())
+            .unwrap()
+            .count
+            .unwrap()
+    }
+
+    /// The trace of T^L is the torus count of the frontier counter, exactly (two
+    /// independent routes through the same model).
+    #[test]
+    fn trace_equals_torus_count() {
+        for name in [
+            "square-ice.yaml",
+            "hard-squares.yaml",
+            "square-dimers.yaml",
+            "triangular-afm.yaml",
+        ] {
+            let l = lattice(name);
+            for along in 0..2 {
+                for width in 1..=4 {
+                    let config = StripConfig {
+                        along,
+                        ..Default::default()
+                    };
+                    let column = Column::new(&l.crystal, width, &config).unwrap();
+                    for length in 2..=5 {
+                        let (a, b) = if along == 0 {
+                            (length, width)
+                        } else {
+                            (width, length)
+                        };
+                        assert_eq!(
+                            column.trace_power(length).unwrap(),
+                            torus(&l, a, b),
+                            "{name} along {along}, {a}x{b}"
+                        );
+                    }
+                }
+            }
+        }
+    }
+
+    /// OEIS A054759: square ice on the L×L torus, 148 (L = 3), 2970 (L = 4), 143224 (L = 5).
+    #[test]
+    fn square_ice_tori_by_trace() {
+        let l = lattice("square-ice.yaml");
+        for (n, expected) in [(3usize, 148u64), (4, 2970), (5, 143224)] {
+            let column = Column::new(&l.crystal, n, &StripConfig::default()).unwrap();
+            assert_eq!(column.trace_power(n).unwrap(), BigUint::from(expected));
+        }
+    }
+}

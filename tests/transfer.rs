@@ -1,0 +1,277 @@
+//! Transfer matrices on strips against published exact values for the infinite lattices,
+//! against the frontier counter on tori, and the `strip` command line.
+
+use groundcount::Lattice;
+use groundcount::cluster::Cells;
+use groundcount::counters::extrapolate::Scaling;
+use groundcount::counters::transfer::{self, Column, StripConfig};
+
+use crate::util::{lattice, run};
+
+fn load(name: &str) -> Lattice {
+    Lattice::from_file(&lattice(name)).unwrap()
+}
+
+/// Extrapolate widths and check that the error bar covers the published value and is small.
+fn check(name: &str, widths: &[usize], step: usize, published: f64, largest_sigma: f64) {
+    let l = load(name);
+    let s = transfer::series(
+        &l.crystal,
+        widths,
+        step,
+        Scaling::Auto,
+        &StripConfig::default(),
+    )
+    .unwrap();
+    let x = &s.extrapolation;
+    let error = (x.value - published).abs();
+    assert!(
+        error <= x.uncertainty,
+        "{name}: {} ± {} misses {published} by {error}",
+        x.value,
+        x.uncertainty
+    );
+    assert!(
+        x.uncertainty < largest_sigma,
+        "{name}: uncertainty {} above {largest_sigma}",
+        x.uncertainty
+    );
+}
+
+#[test]
+fn square_ice_approaches_lieb() {
+    // Lieb 1967, Phys. Rev. 162, 162: W = (4/3)^(3/2) per vertex, s = 1.5 ln(4/3).
+    let s = 1.5 * (4.0f64 / 3.0).ln();
+    assert!((s - 0.4315231086776714).abs() < 1e-15);
+    check("square-ice.yaml", &(2..=12).collect::<Vec<_>>(), 1, s, 2e-5);
+}
+
+#[test]
+fn hard_squares_approach_baxter_enting_tsang() {
+    // κ = 1.5030480824753323 per site: Baxter, Enting & Tsang 1980, J. Stat. Phys. 22, 465
+    // (43 digits in Baxter 1999, Ann. Combin. 3, 191).
+    let s = 1.5030480824753323f64.ln();
+    check(
+        "hard-squares.yaml",
+        &(2..=20).collect::<Vec<_>>(),
+        1,
+        s,
+        2e-8,
+    );
+}
+
+#[test]
+fn dimers_approach_catalan_over_pi() {
+    // s = G/π per site, G = 0.915965594177219 Catalan's constant (Kasteleyn 1961, Physica
+    // 27, 1209; Temperley & Fisher 1961, Phil. Mag. 6, 1061; G from memory).
+    let s = 0.915_965_594_177_219_f64 / std::f64::consts::PI;
+    assert!((s - 0.2915609040308188).abs() < 1e-15);
+    check(
+        "square-dimers.yaml",
+        &(2..=13).collect::<Vec<_>>(),
+        1,
+        s,
+        1e-4,
+    );
+}
+
+#[test]
+fn triangular_antiferromagnet_approaches_wannier() {
+    // s = 0.3230659472194505 per spin (Wannier 1950, Phys. Rev. 79, 357; the value of
+    // (2/π)∫₀^{π/3} ln(2 cos ω) dω). Widths in steps of 3 follow the three sublattices.
+    check(
+        "triangular-afm.yaml",
+        &[3, 6, 9, 12, 15],
+        3,
+        0.3230659472194505,
+        1e-3,
+    );
+}
+
+#[test]
+fn strips_along_either_axis_of_the_square_lattice_agree() {
+    // The square lattice looks the same along a and b (common practice): same λ.
+    let l = load("square-dimers.yaml");
+    for width in [3, 6] {
+        let a = transfer::strip(&l.crystal, width, &StripConfig::default()).unwrap();
+        let b = transfer::strip(
+            &l.crystal,
+            width,
+            &StripConfig {
+                along: 1,
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        assert!((a.ln_lambda - b.ln_lambda).abs() < 1e-11);
+    }
+}
+
+#[test]
+fn long_tori_approach_the_largest_eigenvalue() {
+    // ln Z(W × L) / L → ln λ as L grows: the torus count from the frontier counter,
+    // independent of the transfer operator, against the power iteration.
+    let l = load("square-ice.yaml");
+    let r = transfer::strip(&l.crystal, 4, &StripConfig::default()).unwrap();
+    let mut last_gap = f64::INFINITY;
+    for length in [8, 16, 24] {
+        let cells = Cells::parse(&format!("{length}x4"), None, 2).unwrap();
+        let e = l.count_exact(&cells, &Default::default()).unwrap();
+        let gap = (e.ln_count / length as f64 - r.ln_lambda).abs();
+        assert!(gap < last_gap, "L = {length}: {gap}");
+        last_gap = gap;
+    }
+    assert!(last_gap < 1e-3, "{last_gap}");
+}
+
+#[test]
+fn open_strips_trace_to_the_frontier_count() {
+    // The trace of T^n of a strip with open edges counts the n×n cell that is periodic
+    // along the strip and open across it: compared with the frontier counter on that cell.
+    let l = load("hard-squares.yaml");
+    for n in 3..=5 {
+        let config = StripConfig {
+            periodic: false,
+            ..Default::default()
+        };
+        let column = Column::new(&l.crystal, n, &config).unwrap();
+        let cells = Cells::parse(&format!("{n}x{n}"), Some("b"), 2).unwrap();
+        let exact = l.count_exact(&cells, &Default::default()).unwrap();
+        assert_eq!(column.trace_power(n).unwrap(), exact.count.unwrap());
+    }
+}
+
+#[test]
+fn bipartite_columns_do_not_make_the_iteration_oscillate() {
+    // Dimers on an open strip 3 wide: the parity of the dimers crossing a column boundary
+    // alternates, so T has the eigenvalue −λ as well as λ (an unshifted power iteration
+    // would oscillate). Domino tilings of 3×2n rectangles obey a(n) = 4a(n−1) − a(n−2)
+    // (OEIS A001835, from memory), so λ² = 2 + √3.
+    let l = load("square-dimers.yaml");
+    let config = StripConfig {
+        periodic: false,
+        ..Default::default()
+    };
+    let r = transfer::strip(&l.crystal, 3, &config).unwrap();
+    let expected = 0.5 * (2.0 + 3f64.sqrt()).ln();
+    assert!((r.ln_lambda - expected).abs() < 1e-11, "{}", r.ln_lambda);
+    assert!(r.ln_bracket.0 <= expected + 1e-11 && expected - 1e-11 <= r.ln_bracket.1);
+}
+
+#[test]
+fn open_square_ice_strips_have_no_arrangement() {
+    // Each bond points into exactly one of its sites; an open strip has 2W − 1 bonds per
+    // column of W sites, too few for two inward arrows at every site (counting argument,
+    // common practice): the transfer matrix is nilpotent and that must be an error, not a
+    // tiny positive λ.
+    let l = load("square-ice.yaml");
+    let config = StripConfig {
+        periodic: false,
+        ..Default::default()
+    };
+    for width in 1..=4 {
+        let e = transfer::strip(&l.crystal, width, &config).unwrap_err();
+        assert!(e.to_string().contains("no arrangement"), "{e}");
+    }
+}
+
+#[test]
+fn brackets_are_certified_and_contain_lambda() {
+    // Width-2 cylinder of hard squares: λ = 1 + √2 (see below); width-3 open strip of
+    // dimers: λ² = 2 + √3 (OEIS A001835, from memory).
+    let hard = transfer::strip(
+        &load("hard-squares.yaml").crystal,
+        2,
+        &StripConfig::default(),
+    )
+    .unwrap();
+    let dimers = transfer::strip(
+        &load("square-dimers.yaml").crystal,
+        3,
+        &StripConfig {
+            periodic: false,
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    for (r, lambda) in [
+        (hard, 1.0 + 2f64.sqrt()),
+        (dimers, (2.0 + 3f64.sqrt()).sqrt()),
+    ] {
+        assert!(r.certified);
+        assert!(r.ln_bracket.0 <= lambda.ln() + 1e-13 && lambda.ln() - 1e-13 <= r.ln_bracket.1);
+        assert!(r.ln_bracket.1 - r.ln_bracket.0 < 1e-11);
+    }
+}
+
+#[test]
+fn strip_command_prints_json() {
+    let out = run(&[
+        "strip",
+        lattice("hard-squares.yaml").to_str().unwrap(),
+        "--widths",
+        "2..10",
+        "--format",
+        "json",
+    ]);
+    assert!(out.status.success());
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["method"], "transfer-matrix");
+    assert_eq!(v["widths"].as_array().unwrap().len(), 9);
+    let w2 = &v["widths"][0];
+    assert_eq!(w2["width"], 2);
+    assert_eq!(w2["states"], 3);
+    // Width-2 cylinder of hard squares: columns are {0, top, bottom} with T = [[1,1,1],
+    // [1,0,1],[1,1,0]], λ = 1 + √2 (independent computation by hand), per site ln λ / 2.
+    let lambda = 1.0 + 2f64.sqrt();
+    assert!((w2["ln_lambda"].as_f64().unwrap() - lambda.ln()).abs() < 1e-11);
+    assert!((w2["w_per_unit"].as_f64().unwrap() - lambda.sqrt()).abs() < 1e-11);
+    assert!(w2["iterations"].as_u64().unwrap() >= 3);
+    for key in ["w_per_unit", "uncertainty", "s_over_r", "s_j_per_mol_k"] {
+        assert!(v[key].is_number(), "{key}");
+    }
+    // κ = 1.5030480824753323 (Baxter, Enting & Tsang 1980) within the stated uncertainty.
+    let w = v["w_per_unit"].as_f64().unwrap();
+    assert!((w - 1.5030480824753323).abs() <= v["uncertainty"].as_f64().unwrap());
+}
+
+#[test]
+fn strip_command_table_and_bad_widths() {
+    let file = lattice("square-ice.yaml");
+    let out = run(&["strip", file.to_str().unwrap(), "--widths", "2..6"]);
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("W per H2O (W → ∞)"), "{text}");
+    assert!(text.contains("J/(mol K)"));
+    for bad in ["6..2", "x..4", "0..3", "5", "2..1000"] {
+        let out = run(&["strip", file.to_str().unwrap(), "--widths", bad]);
+        assert_eq!(out.status.code(), Some(1), "{bad}");
+        assert!(out.stdout.is_empty());
+        let err = String::from_utf8(out.stderr).unwrap();
+        assert!(err.starts_with("error: --widths"), "{bad}: {err}");
+    }
+    // An iteration cap that cannot be met is an error, never a silent number.
+    let out = run(&[
+        "strip",
+        file.to_str().unwrap(),
+        "--widths",
+        "6..7",
+        "--max-iterations",
+        "3",
+    ]);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(out.stdout.is_empty());
+    assert!(
+        String::from_utf8(out.stderr)
+            .unwrap()
+            .contains("did not converge")
+    );
+    let three_d = lattice("ice-ih.yaml");
+    let out = run(&["strip", three_d.to_str().unwrap(), "--widths", "2..3"]);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(
+        String::from_utf8(out.stderr)
+            .unwrap()
+            .contains("two-dimensional")
+    );
+}
