@@ -61,8 +61,8 @@ pub enum Error {
     /// An exact count whose frontier would exceed the state budget.
     #[error(
         "the exact count on {cells} needs more than the state budget: {detail}; \
-         try a smaller cell or a statistical method (the Pauling estimate now; Monte Carlo \
-         sampling for large cells is planned)"
+         try a smaller cell or a statistical method (`groundcount sample` for Monte Carlo, \
+         `groundcount strip` for 2D lattices)"
     )]
     Budget {
         /// The cell that was asked for.
