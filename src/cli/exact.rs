@@ -8,7 +8,7 @@ use groundcount::counters::{exact, pauling};
 use groundcount::model::Model;
 use groundcount::report::{self, sig};
 
-use super::{Common, Format, load, shown, with_threads};
+use super::{Common, Format, cell_header, load, with_threads};
 
 /// Arguments of `exact`.
 #[derive(clap::Args, Debug)]
@@ -61,20 +61,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         Format::Markdown => Ok(report::comparison_table(&[p, e], unit).render_markdown()),
         Format::Table => {
             let mut out = String::new();
-            writeln!(
-                out,
-                "{} ({}), cell {}",
-                c.name,
-                shown(&Some(args.file.clone())),
-                e.cells.as_deref().unwrap_or("")
-            )?;
-            writeln!(
-                out,
-                "{} variables, {} constraints, {} formula units of {unit}",
-                model.variables.len(),
-                model.constraints.len(),
-                sig(e.formula_units, 6)
-            )?;
+            out += &cell_header(c, &args.file, &e, &model);
             writeln!(out)?;
             let count = e.count.as_ref().map(|c| c.to_string()).unwrap_or_default();
             writeln!(out, "arrangements          {count}")?;

@@ -170,3 +170,22 @@ fn shown(p: &Option<PathBuf>) -> String {
         |p| p.display().to_string(),
     )
 }
+
+/// The first lines of a one-cell result: lattice, file and cell; the size of the model.
+fn cell_header(
+    c: &groundcount::crystal::Crystal,
+    file: &Path,
+    e: &groundcount::Estimate,
+    model: &groundcount::model::Model,
+) -> String {
+    format!(
+        "{} ({}), cell {}\n{} variables, {} constraints, {} formula units of {}\n",
+        c.name,
+        file.display(),
+        e.cells.as_deref().unwrap_or(""),
+        model.variables.len(),
+        model.constraints.len(),
+        groundcount::report::sig(e.formula_units, 6),
+        c.formula_unit.name
+    )
+}

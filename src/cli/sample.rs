@@ -10,7 +10,7 @@ use groundcount::counters::{pauling, sampling};
 use groundcount::model::Model;
 use groundcount::report::{self, sig};
 
-use super::{Common, Format, load, shown, with_threads};
+use super::{Common, Format, cell_header, load, with_threads};
 
 /// Arguments of `sample`.
 #[derive(clap::Args, Debug)]
@@ -125,20 +125,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         Format::Markdown => Ok(report::comparison_table(&[p, e.clone()], unit).render_markdown()),
         Format::Table => {
             let mut out = String::new();
-            writeln!(
-                out,
-                "{} ({}), cell {}",
-                c.name,
-                shown(&Some(args.file.clone())),
-                e.cells.as_deref().unwrap_or("")
-            )?;
-            writeln!(
-                out,
-                "{} variables, {} constraints, {} formula units of {unit}",
-                model.variables.len(),
-                model.constraints.len(),
-                sig(e.formula_units, 6)
-            )?;
+            out += &cell_header(c, &args.file, e, &model);
             writeln!(out)?;
             let pm = |x: f64, s: Option<f64>| match s {
                 Some(s) => format!("{} ± {}", sig(x, 8), sig(s, 2)),
