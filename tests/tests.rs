@@ -4,5 +4,6 @@ mod util;
 
 mod cli_errors;
 mod counts;
+mod estimate;
 mod sampling;
 mod transfer;

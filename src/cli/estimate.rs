@@ -57,7 +57,10 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let unit = c.formula_unit.name.clone();
     let p = pauling::estimate(c)?;
     let start = Instant::now();
-    let deadline = start + Duration::from_secs_f64(args.budget);
+    // Exact counts get the first 40 % of the budget; the rest goes to strips (2D) or
+    // sampling (3D).
+    let deadline = start + Duration::from_secs_f64(0.4 * args.budget);
+    let end = start + Duration::from_secs_f64(args.budget);
     let mut rows: Vec<Estimate> = vec![p.clone()];
     let mut stopped = String::new();
     let largest = 1usize << 20; // never build absurdly large clusters
@@ -97,9 +100,21 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             Err(e) => return Err(e.into()),
         }
         if Instant::now() > deadline {
-            stopped = format!("the time budget of {} s is spent", args.budget);
+            stopped = format!(
+                "the exact counts' share of the {} s budget is spent",
+                args.budget
+            );
             break;
         }
+    }
+    let mut notes: Vec<String> = Vec::new();
+    let infinite = match c.dimensions {
+        2 => strips(c, end, &args, &mut notes)?,
+        3 => sampled(c, &args, &mut notes)?,
+        _ => None,
+    };
+    if let Some(e) = &infinite {
+        rows.push(e.clone());
     }
     match args.common.format {
         Format::Json => {
@@ -109,8 +124,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "content_hash": lattice.content_hash,
                 "formula_unit": unit,
                 "pauling": report::estimate_json(c, &p, None),
-                "exact": rows[1..].iter().map(|e| report::estimate_json(c, e, Some(&p))).collect::<Vec<_>>(),
+                "exact": rows[1..].iter().filter(|e| e.method == groundcount::estimate::Method::Exact).map(|e| report::estimate_json(c, e, Some(&p))).collect::<Vec<_>>(),
+                "transfer_matrix": infinite.as_ref().filter(|e| e.method == groundcount::estimate::Method::TransferMatrix).map(|e| report::estimate_json(c, e, Some(&p))),
+                "monte_carlo": infinite.as_ref().filter(|e| e.method == groundcount::estimate::Method::MonteCarlo).map(|e| report::estimate_json(c, e, Some(&p))),
                 "stopped": stopped,
+                "notes": notes,
             });
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
@@ -132,7 +150,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "Exact counts are for finite periodic cells; they approach the infinite crystal as the cell grows. \
                  Cells that wrap a bond onto itself (the smallest) are exact for that torus only."
             )?;
-            if let Some(last) = rows.last().filter(|e| e.cells.is_some()) {
+            if let Some(last) = rows
+                .iter()
+                .rev()
+                .find(|e| e.method == groundcount::estimate::Method::Exact)
+            {
                 writeln!(
                     out,
                     "largest cell counted: {}, W = {} per {unit} (Pauling {}; difference {:+.3} %)",
@@ -143,9 +165,99 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 )?;
             }
             if !stopped.is_empty() {
-                writeln!(out, "stopped: {stopped}")?;
+                writeln!(out, "exact counts stopped: {stopped}")?;
+            }
+            for n in &notes {
+                writeln!(out, "{n}")?;
             }
             Ok(out)
+        }
+    }
+}
+
+/// Strips of growing width until the budget ends, extrapolated to infinite width.
+fn strips(
+    c: &groundcount::crystal::Crystal,
+    end: Instant,
+    args: &Args,
+    notes: &mut Vec<String>,
+) -> anyhow::Result<Option<Estimate>> {
+    use groundcount::counters::extrapolate::Scaling;
+    use groundcount::counters::transfer::{self, StripConfig};
+    let config = StripConfig {
+        deadline: Some(end),
+        ..StripConfig::default()
+    };
+    let mut results = Vec::new();
+    for width in 2.. {
+        match with_threads(args.common.threads, || transfer::strip(c, width, &config))? {
+            Ok(r) => results.push(r),
+            Err(Error::Deadline { .. }) => break,
+            Err(e) => {
+                notes.push(format!("strips stopped at width {width}: {e}"));
+                break;
+            }
+        }
+        if Instant::now() > end {
+            break;
+        }
+    }
+    if results.len() < 4 {
+        notes.push(format!(
+            "transfer matrix: only {} widths within the budget; raise --budget or run `groundcount strip`",
+            results.len()
+        ));
+        return Ok(None);
+    }
+    let largest = results.last().map_or(0, |r| r.width);
+    match transfer::from_widths(c, results, 1, Scaling::Auto, &config) {
+        Ok(series) => {
+            notes.push(format!(
+                "transfer matrix: cylinders of width 2..{largest} along a, extrapolated to infinite width \
+                 ({}); `groundcount strip` shows every width",
+                match series.extrapolation.scaling {
+                    Scaling::Gapped => "gapped: the largest width, error from the last differences".to_string(),
+                    _ => format!("critical: fits in 1/W², error from their spread over {} fits", series.extrapolation.fits.len()),
+                }
+            ));
+            Ok(Some(series.estimate))
+        }
+        Err(e) => {
+            notes.push(format!("transfer matrix: no extrapolation ({e})"));
+            Ok(None)
+        }
+    }
+}
+
+/// A Monte Carlo estimate on a periodic cell of about a thousand formula units.
+fn sampled(
+    c: &groundcount::crystal::Crystal,
+    args: &Args,
+    notes: &mut Vec<String>,
+) -> anyhow::Result<Option<Estimate>> {
+    use groundcount::counters::sampling::{self, SampleConfig};
+    let per_cell = c.formula_unit.per_cell(c).max(1e-9);
+    let n = ((1000.0 / per_cell).cbrt().round() as usize).max(2);
+    let cells = Cells::cube(n, c.dimensions);
+    let cluster = Cluster::new(c, cells.clone())?;
+    let model = Model::new(&cluster)?;
+    if args.common.progress() {
+        eprintln!("sampling {cells} ({} variables)…", model.variables.len());
+    }
+    let config = SampleConfig::default();
+    match with_threads(args.common.threads, || sampling::sample(&model, &config))? {
+        Ok(s) => {
+            notes.push(format!(
+                "Monte Carlo: thermodynamic integration on the {cells} cell, seed {}, {} replicas; \
+                 a finite torus gives a larger W than the infinite crystal; `groundcount sample` \
+                 runs larger cells and longer",
+                s.seed, s.replicas
+            ));
+            Ok(Some(s.estimate))
+        }
+        Err(e) => {
+            notes.push(format!("Monte Carlo: not run ({e})"));
+            Ok(None)
         }
     }
 }

@@ -213,6 +213,19 @@ pub fn series(
         .iter()
         .map(|&w| strip(crystal, w, config))
         .collect::<Result<Vec<_>>>()?;
+    let mut out = from_widths(crystal, results, step, scaling, config)?;
+    out.estimate.seconds = start.elapsed().as_secs_f64();
+    Ok(out)
+}
+
+/// Extrapolate widths already computed (in increasing order) to the infinite crystal.
+pub fn from_widths(
+    crystal: &Crystal,
+    results: Vec<StripResult>,
+    step: usize,
+    scaling: Scaling,
+    config: &StripConfig,
+) -> Result<StripSeries> {
     let points: Vec<(usize, f64)> = results.iter().map(|r| (r.width, r.ln_w_per_unit)).collect();
     let extrapolation = extrapolate(&points, step, scaling)?;
     let central_charge = extrapolation.a1.filter(|_| config.periodic).map(|a1| {
@@ -232,7 +245,7 @@ pub fn series(
         formula_units: 1.0,
         ln_w_per_unit: extrapolation.value,
         sigma_ln_w: Some(extrapolation.uncertainty),
-        seconds: start.elapsed().as_secs_f64(),
+        seconds: results.iter().map(|r| r.seconds).sum(),
         peak_states: results.iter().map(|r| r.peak_states).max(),
     };
     Ok(StripSeries {

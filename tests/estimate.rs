@@ -1,0 +1,63 @@
+//! The main job, `estimate`: every method side by side, checked against published values.
+
+use crate::util::{lattice, run};
+
+fn estimate_json(file: &str, budget: &str) -> serde_json::Value {
+    let out = run(&[
+        "estimate",
+        lattice(file).to_str().unwrap(),
+        "--budget",
+        budget,
+        "--format",
+        "json",
+    ]);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("estimate prints JSON")
+}
+
+/// On a 2D lattice the transfer-matrix row carries an error bar that covers Lieb's exact
+/// W = (4/3)^(3/2) per vertex (Lieb 1967, Phys. Rev. 162, 162).
+#[test]
+fn square_ice_estimate_reaches_lieb() {
+    let v = estimate_json("square-ice.yaml", "4");
+    let tm = &v["transfer_matrix"];
+    assert_eq!(tm["method"], "transfer-matrix");
+    let w = tm["w_per_unit"].as_f64().unwrap();
+    let sigma = tm["uncertainty"].as_f64().unwrap();
+    let lieb = (4.0f64 / 3.0).powf(1.5);
+    assert!(
+        (w - lieb).abs() <= 4.0 * sigma,
+        "W = {w} ± {sigma}, Lieb {lieb}"
+    );
+    assert!(sigma < 1e-3, "a few widths already pin W: σ = {sigma}");
+    // The exact rows are the OEIS A054759 torus counts.
+    assert_eq!(v["exact"][2]["count"], "148");
+}
+
+/// On a 3D lattice the Monte Carlo row is a finite-cell value above Pauling's 3/2, which is
+/// a rigorous lower bound for ice (Onsager & Dupuis 1960, as cited by Hayashi, Muguruma &
+/// Okamoto, arXiv:2009.11591), and below the smallest exact cells' values.
+#[test]
+fn ice_ih_estimate_samples_above_pauling() {
+    let v = estimate_json("ice-ih.yaml", "4");
+    let mc = &v["monte_carlo"];
+    assert_eq!(mc["method"], "monte-carlo");
+    let w = mc["w_per_unit"].as_f64().unwrap();
+    let sigma = mc["uncertainty"].as_f64().unwrap();
+    assert!(w - 4.0 * sigma > 1.5, "W = {w} ± {sigma}");
+    let exact_2x2x2 = v["exact"][3]["w_per_unit"].as_f64().unwrap(); // 2756394^(1/32)
+    assert!(
+        w < exact_2x2x2,
+        "a larger cell has a smaller W: {w} vs {exact_2x2x2}"
+    );
+    let pauling = v["pauling"]["w_per_unit"].as_f64().unwrap();
+    assert!(
+        (pauling - 1.5).abs() < 1e-12,
+        "Pauling 1935: 3/2 per H2O, got {pauling}"
+    );
+}
