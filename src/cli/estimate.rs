@@ -85,7 +85,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             Ok(e) => rows.push(e),
             Err(Error::Deadline { cells }) => {
                 stopped = format!(
-                    "the time budget of {} s ran out while counting {cells}",
+                    "the exact counts' share (40 %) of the {} s budget ran out while counting {cells}",
                     args.budget
                 );
                 break;
