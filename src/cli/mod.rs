@@ -189,3 +189,13 @@ fn cell_header(
         c.formula_unit.name
     )
 }
+
+/// The Pauling comparison line under a one-cell result.
+fn pauling_line(p: &groundcount::Estimate, unit: &str) -> String {
+    use groundcount::report::sig;
+    format!(
+        "Pauling (infinite)    W = {} per {unit}, S0 = {} J/(mol K)\n",
+        sig(p.w_per_unit(), 10),
+        sig(p.s_j_per_mol_k(), 6)
+    )
+}

@@ -10,7 +10,7 @@ use groundcount::counters::{pauling, sampling};
 use groundcount::model::Model;
 use groundcount::report::{self, sig};
 
-use super::{Common, Format, cell_header, load, with_threads};
+use super::{Common, Format, cell_header, load, pauling_line, with_threads};
 
 /// Arguments of `sample`.
 #[derive(clap::Args, Debug)]
@@ -142,12 +142,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "S0                    {} J/(mol K) per mole of {unit}",
                 pm(e.s_j_per_mol_k(), e.sigma_s_j_per_mol_k())
             )?;
-            writeln!(
-                out,
-                "Pauling (infinite)    W = {} per {unit}, S0 = {} J/(mol K)",
-                sig(p.w_per_unit(), 10),
-                sig(p.s_j_per_mol_k(), 6)
-            )?;
+            out += &pauling_line(&p, unit);
             writeln!(out)?;
             writeln!(
                 out,
