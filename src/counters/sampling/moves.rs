@@ -158,13 +158,30 @@ impl Chain {
 
     /// Flip a two-state variable, updating the indices and the energy.
     pub fn flip(&mut self, k: &Kernel, v: usize) {
+        let de = self.flip_delta(k, v);
+        self.apply_flip(k, v, de);
+    }
+
+    /// The change in the number of violated constraints if two-state variable `v` flipped.
+    #[inline]
+    fn flip_delta(&self, k: &Kernel, v: usize) -> i32 {
         let up = self.values[v] == 0;
         let mut de = 0i32;
         for &(c, s) in k.touches(v) {
             let i = self.index[c as usize];
             let j = if up { i + s } else { i - s };
             de += k.violated(c, j) - k.violated(c, i);
-            self.index[c as usize] = j;
+        }
+        de
+    }
+
+    /// Flip two-state variable `v`, whose energy change `de` is known.
+    #[inline]
+    fn apply_flip(&mut self, k: &Kernel, v: usize, de: i32) {
+        let up = self.values[v] == 0;
+        for &(c, s) in k.touches(v) {
+            let i = &mut self.index[c as usize];
+            *i = if up { *i + s } else { *i - s };
         }
         self.values[v] ^= 1;
         self.energy = (self.energy as i64 + de as i64) as u64;
@@ -206,20 +223,9 @@ impl Chain {
             })
             .collect();
         for v in 0..k.variables() {
-            let up = self.values[v] == 0;
-            let mut de = 0i32;
-            for &(c, s) in k.touches(v) {
-                let i = self.index[c as usize];
-                let j = if up { i + s } else { i - s };
-                de += k.violated(c, j) - k.violated(c, i);
-            }
+            let de = self.flip_delta(k, v);
             if self.rng.next_u64() < threshold[(de + m) as usize] {
-                self.values[v] ^= 1;
-                for &(c, s) in k.touches(v) {
-                    let i = &mut self.index[c as usize];
-                    *i = if up { *i + s } else { *i - s };
-                }
-                self.energy = (self.energy as i64 + de as i64) as u64;
+                self.apply_flip(k, v, de);
             }
         }
     }
