@@ -76,6 +76,9 @@ pub enum Error {
         /// The cell that was being counted.
         cells: String,
     },
+    /// A setting (budget, limit) out of its range.
+    #[error("{0}")]
+    Setting(String),
     /// A rule whose local table is too large to compile.
     #[error("{0}")]
     Model(String),

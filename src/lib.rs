@@ -42,6 +42,7 @@ pub mod estimate;
 pub mod model;
 pub mod report;
 pub mod spec;
+pub mod survey;
 pub mod thermo;
 
 use std::path::Path;

@@ -101,6 +101,73 @@ impl Common {
     }
 }
 
+/// A progress display for a survey: one line on standard error that follows its stages.
+pub struct SurveyBars(Option<indicatif::ProgressBar>);
+
+impl SurveyBars {
+    /// Clear the line.
+    pub fn finish(&self) {
+        if let Some(b) = &self.0 {
+            b.finish_and_clear();
+        }
+    }
+}
+
+impl Common {
+    /// An observer for [`groundcount::survey::survey`] that shows its stages, when progress
+    /// is wanted.
+    fn survey_progress(&self) -> (Option<groundcount::survey::Observer>, SurveyBars) {
+        use groundcount::survey::{Observer, Stage};
+        if !self.progress() {
+            return (None, SurveyBars(None));
+        }
+        let bar = indicatif::ProgressBar::new_spinner();
+        let counting = indicatif::ProgressStyle::with_template(
+            "{prefix} [{bar:30}] step {pos}/{len}, {msg}, ETA {eta}",
+        )
+        .expect("valid template")
+        .progress_chars("=> ");
+        let waiting = indicatif::ProgressStyle::with_template("{spinner} {prefix} {msg} ({elapsed})")
+            .expect("valid template");
+        bar.enable_steady_tick(std::time::Duration::from_millis(200));
+        let b = bar.clone();
+        let observer = Observer(std::sync::Arc::new(move |stage| match stage {
+            Stage::Exact(cells) => {
+                b.set_style(counting.clone());
+                b.set_prefix(format!("counting {cells}"));
+                b.set_position(0);
+            }
+            Stage::ExactStep(done, all, states) => {
+                b.set_length(all as u64);
+                b.set_position(done as u64);
+                b.set_message(format!("{states} states"));
+            }
+            Stage::ExactDone => b.set_message(""),
+            Stage::Strip(width) => {
+                b.set_style(waiting.clone());
+                b.set_prefix("transfer matrix");
+                b.set_message(format!("cylinder of width {width}"));
+            }
+            Stage::Sampling(cells, variables) => {
+                b.set_style(waiting.clone());
+                b.set_prefix("Monte Carlo");
+                b.set_message(format!("sampling {cells} ({variables} variables)"));
+            }
+        }));
+        (Some(observer), SurveyBars(Some(bar)))
+    }
+}
+
+/// Refuse a budget that is not a positive finite number of seconds.
+fn check_budget(budget: f64) -> anyhow::Result<()> {
+    if !(budget.is_finite() && budget > 0.0 && budget <= 1e7) {
+        anyhow::bail!(
+            "--budget must be a positive number of seconds (at most 1e7), found {budget}"
+        );
+    }
+    Ok(())
+}
+
 /// Run the command line; returns the exit code.
 pub fn run() -> i32 {
     let cli = match Cli::try_parse() {

@@ -1,0 +1,372 @@
+//! Every counter that suits a lattice, run within one time budget.
+//!
+//! # What it does
+//!
+//! [`survey`] is the main job as a library call: Pauling's estimate; exact counts on periodic
+//! cells of growing size (L×L in 2D; n×n×n, (n+1)×n×n, (n+1)×(n+1)×n in 3D) within the first
+//! 40 % of the budget; then, for a two-dimensional crystal, transfer matrices on cylinders of
+//! growing width extrapolated to infinite width, and for a three-dimensional one a Monte
+//! Carlo count of a periodic cell of about a thousand formula units. The result, a
+//! [`Survey`], holds every estimate and the diagnostics a report needs (strip widths, the
+//! thermodynamic-integration integrand), so that `estimate` and `report` read the same data.
+//!
+//! # Arguments and returns
+//!
+//! A crystal and a [`SurveyConfig`]: the budget in seconds, the exact counter's state
+//! budget, optional limits that make a run independent of the machine's speed (largest
+//! exact cell, fixed strip widths, a fixed Monte Carlo cell and settings), and an optional
+//! observer told what is being computed (the library never prints; the caller decides how
+//! to show progress). Runs on the caller's rayon pool.
+//!
+//! # Errors
+//!
+//! A budget out of range ([`Error::Setting`]), a cell too large to build, or a counter failing for
+//! a reason other than its budget. Budgets running out are not errors: the survey stops
+//! that method and says why in [`Survey::stopped`] and [`Survey::notes`].
+
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+use crate::cluster::{Cells, Cluster};
+use crate::counters::extrapolate::Scaling;
+use crate::counters::sampling::{self, SampleConfig, Sampled};
+use crate::counters::transfer::{self, StripConfig, StripSeries};
+use crate::counters::{exact, pauling};
+use crate::crystal::Crystal;
+use crate::error::{Error, Result};
+use crate::estimate::Estimate;
+use crate::model::Model;
+
+/// What the survey is doing, for progress displays.
+#[derive(Clone, Debug)]
+pub enum Stage {
+    /// An exact count of this cell begins.
+    Exact(String),
+    /// A step of the current exact count: (steps done, steps in all, frontier states).
+    ExactStep(usize, usize, usize),
+    /// The current exact count ended (counted or stopped).
+    ExactDone,
+    /// The transfer operator of this width is being built and iterated.
+    Strip(usize),
+    /// A Monte Carlo count of this cell with this many variables begins.
+    Sampling(String, usize),
+}
+
+/// A callback told every [`Stage`].
+#[derive(Clone)]
+pub struct Observer(pub Arc<dyn Fn(Stage) + Send + Sync>);
+
+impl std::fmt::Debug for Observer {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("Observer")
+    }
+}
+
+/// Settings of a survey.
+#[derive(Clone, Debug)]
+pub struct SurveyConfig {
+    /// Time budget in seconds for everything.
+    pub budget: f64,
+    /// Largest number of partial states an exact count may hold.
+    pub max_states: usize,
+    /// Count no exact cell with more formula units than this.
+    pub max_exact_units: Option<f64>,
+    /// Strip widths to compute (2D); `None` grows the width from 2 until the budget ends.
+    pub widths: Option<Vec<usize>>,
+    /// The Monte Carlo cell (3D); `None` chooses a cube of about 1000 formula units.
+    pub sample_cells: Option<Cells>,
+    /// Monte Carlo settings.
+    pub sample: SampleConfig,
+    /// Told what is being computed.
+    pub observer: Option<Observer>,
+}
+
+impl Default for SurveyConfig {
+    fn default() -> Self {
+        SurveyConfig {
+            budget: 20.0,
+            max_states: exact::DEFAULT_MAX_STATES,
+            max_exact_units: None,
+            widths: None,
+            sample_cells: None,
+            sample: SampleConfig::default(),
+            observer: None,
+        }
+    }
+}
+
+/// A Monte Carlo run with the cell it sampled.
+#[derive(Clone, Debug)]
+pub struct SampledCell {
+    /// The cell, as written ("10x10x10 periodic").
+    pub cells: String,
+    /// The run.
+    pub sampled: Sampled,
+}
+
+/// Every estimate a survey made, with its diagnostics.
+#[derive(Clone, Debug)]
+pub struct Survey {
+    /// Pauling's independent-constraint estimate.
+    pub pauling: Estimate,
+    /// Exact counts, smallest cell first.
+    pub exact: Vec<Estimate>,
+    /// Why the exact counts stopped (empty when they ran to the requested limit).
+    pub stopped: String,
+    /// Transfer matrices on strips, when they ran and extrapolated.
+    pub strips: Option<StripSeries>,
+    /// The Monte Carlo count, when it ran.
+    pub sampled: Option<SampledCell>,
+    /// Plain sentences on what ran, what stopped and why.
+    pub notes: Vec<String>,
+    /// The budget in seconds.
+    pub budget: f64,
+}
+
+impl Survey {
+    /// Every estimate, Pauling first, then exact counts, then the infinite-crystal methods.
+    pub fn estimates(&self) -> Vec<Estimate> {
+        let mut v = vec![self.pauling.clone()];
+        v.extend(self.exact.iter().cloned());
+        if let Some(s) = &self.strips {
+            v.push(s.estimate.clone());
+        }
+        if let Some(s) = &self.sampled {
+            v.push(s.sampled.estimate.clone());
+        }
+        v
+    }
+
+    /// The estimate a user should cite: the transfer-matrix extrapolation, else the Monte
+    /// Carlo count, else the largest exact cell, else Pauling's estimate.
+    pub fn best(&self) -> &Estimate {
+        if let Some(s) = &self.strips {
+            return &s.estimate;
+        }
+        if let Some(s) = &self.sampled {
+            return &s.sampled.estimate;
+        }
+        self.exact.last().unwrap_or(&self.pauling)
+    }
+}
+
+/// Periodic cells of growing size: L×L in 2D; in 3D n×n×n, then (n+1)×n×n, (n+1)×(n+1)×n.
+pub fn cell_sequence(dimensions: usize) -> impl Iterator<Item = Cells> {
+    (1usize..).flat_map(move |n| {
+        let shapes: Vec<[usize; 3]> = match dimensions {
+            1 => vec![[n, 1, 1]],
+            2 => vec![[n, n, 1]],
+            _ => vec![[n, n, n], [n + 1, n, n], [n + 1, n + 1, n]],
+        };
+        shapes.into_iter().map(move |counts| Cells {
+            counts,
+            periodic: [true; 3],
+            dimensions,
+        })
+    })
+}
+
+/// Run every counter that suits the crystal; see the module documentation.
+pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
+    if !(config.budget.is_finite() && config.budget > 0.0 && config.budget <= 1e7) {
+        return Err(Error::Setting(format!(
+            "the budget must be a positive number of seconds (at most 1e7), found {}",
+            config.budget
+        )));
+    }
+    let tell = |s: Stage| {
+        if let Some(o) = &config.observer {
+            (o.0)(s)
+        }
+    };
+    let pauling = pauling::estimate(c)?;
+    let start = Instant::now();
+    // Exact counts get the first 40 % of the budget; the rest goes to strips (2D) or
+    // sampling (3D).
+    let deadline = start + Duration::from_secs_f64(0.4 * config.budget);
+    let end = start + Duration::from_secs_f64(config.budget);
+    let mut exact_counts = Vec::new();
+    let mut stopped = String::new();
+    let largest = 1usize << 20; // never build absurdly large clusters
+    let per_cell = c.formula_unit.per_cell(c);
+    for cells in cell_sequence(c.dimensions) {
+        if config
+            .max_exact_units
+            .is_some_and(|m| cells.total() as f64 * per_cell > m)
+        {
+            break;
+        }
+        if cells.total() * c.sites.len().max(c.bonds.len()) > largest {
+            stopped = "cell size limit reached".into();
+            break;
+        }
+        let cluster = Cluster::new(c, cells.clone())?;
+        let model = Model::new(&cluster)?;
+        tell(Stage::Exact(cells.to_string()));
+        let progress = config.observer.as_ref().map(|o| {
+            let o = o.clone();
+            exact::ProgressHook(Arc::new(move |done, all, states| {
+                (o.0)(Stage::ExactStep(done, all, states))
+            }))
+        });
+        let exact_config = exact::ExactConfig {
+            max_states: config.max_states,
+            deadline: Some(deadline),
+            progress,
+        };
+        let outcome = exact::count(&model, &exact_config);
+        tell(Stage::ExactDone);
+        match outcome {
+            Ok(e) => exact_counts.push(e),
+            Err(Error::Deadline { cells }) => {
+                stopped = format!(
+                    "the exact counts' share (40 %) of the {} s budget ran out while counting {cells}",
+                    config.budget
+                );
+                break;
+            }
+            Err(Error::Budget { cells, .. }) => {
+                stopped = format!(
+                    "{cells} needs more than {} frontier states",
+                    config.max_states
+                );
+                break;
+            }
+            Err(e) => return Err(e),
+        }
+        if Instant::now() > deadline {
+            stopped = format!(
+                "the exact counts' share of the {} s budget is spent",
+                config.budget
+            );
+            break;
+        }
+    }
+    let mut notes = Vec::new();
+    let mut strips = None;
+    let mut sampled = None;
+    match c.dimensions {
+        2 => strips = strip_series(c, end, config, &tell, &mut notes)?,
+        3 => sampled = monte_carlo(c, config, &tell, &mut notes)?,
+        _ => {}
+    }
+    Ok(Survey {
+        pauling,
+        exact: exact_counts,
+        stopped,
+        strips,
+        sampled,
+        notes,
+        budget: config.budget,
+    })
+}
+
+/// Strips of growing (or given) width until the budget ends, extrapolated to infinite width.
+fn strip_series(
+    c: &Crystal,
+    end: Instant,
+    config: &SurveyConfig,
+    tell: &dyn Fn(Stage),
+    notes: &mut Vec<String>,
+) -> Result<Option<StripSeries>> {
+    let strip_config = StripConfig {
+        deadline: Some(end),
+        ..StripConfig::default()
+    };
+    let widths: Box<dyn Iterator<Item = usize>> = match &config.widths {
+        Some(w) => Box::new(w.clone().into_iter()),
+        None => Box::new(2..),
+    };
+    let mut results = Vec::new();
+    for width in widths {
+        tell(Stage::Strip(width));
+        match transfer::strip(c, width, &strip_config) {
+            Ok(r) => results.push(r),
+            Err(Error::Deadline { .. }) => {
+                if config.widths.is_some() {
+                    notes.push(format!(
+                        "transfer matrix: the {} s budget ran out at width {width}",
+                        config.budget
+                    ));
+                }
+                break;
+            }
+            Err(e) => {
+                notes.push(format!("transfer matrix: stopped at width {width}: {e}"));
+                break;
+            }
+        }
+        if Instant::now() > end {
+            break;
+        }
+    }
+    if results.len() < 4 {
+        notes.push(format!(
+            "transfer matrix: only {} widths within the budget; raise the budget or run `groundcount strip`",
+            results.len()
+        ));
+        return Ok(None);
+    }
+    let first = results.first().map_or(0, |r| r.width);
+    let largest = results.last().map_or(0, |r| r.width);
+    match transfer::from_widths(c, results, 1, Scaling::Auto, &strip_config) {
+        Ok(series) => {
+            notes.push(format!(
+                "transfer matrix: cylinders of width {first}..{largest} along a, extrapolated to infinite width \
+                 ({}); `groundcount strip` shows every width",
+                match series.extrapolation.scaling {
+                    Scaling::Gapped => {
+                        "gapped: the largest width, error from the last differences".to_string()
+                    }
+                    _ => format!(
+                        "critical: fits in 1/W², error from their spread over {} fits",
+                        series.extrapolation.fits.len()
+                    ),
+                }
+            ));
+            Ok(Some(series))
+        }
+        Err(e) => {
+            notes.push(format!("transfer matrix: no extrapolation ({e})"));
+            Ok(None)
+        }
+    }
+}
+
+/// A Monte Carlo estimate on the given cell, or on one of about a thousand formula units.
+fn monte_carlo(
+    c: &Crystal,
+    config: &SurveyConfig,
+    tell: &dyn Fn(Stage),
+    notes: &mut Vec<String>,
+) -> Result<Option<SampledCell>> {
+    let cells = match &config.sample_cells {
+        Some(cells) => cells.clone(),
+        None => {
+            let per_cell = c.formula_unit.per_cell(c).max(1e-9);
+            let n = ((1000.0 / per_cell).cbrt().round() as usize).max(2);
+            Cells::cube(n, c.dimensions)
+        }
+    };
+    let cluster = Cluster::new(c, cells.clone())?;
+    let model = Model::new(&cluster)?;
+    tell(Stage::Sampling(cells.to_string(), model.variables.len()));
+    match sampling::sample(&model, &config.sample) {
+        Ok(s) => {
+            notes.push(format!(
+                "Monte Carlo: thermodynamic integration on the {cells} cell, seed {}, {} replicas; \
+                 a finite torus gives a larger W than the infinite crystal; `groundcount sample` \
+                 runs larger cells and longer",
+                s.seed, s.replicas
+            ));
+            Ok(Some(SampledCell {
+                cells: cells.to_string(),
+                sampled: s,
+            }))
+        }
+        Err(e) => {
+            notes.push(format!("Monte Carlo: not run ({e})"));
+            Ok(None)
+        }
+    }
+}
