@@ -44,6 +44,7 @@ pub mod report;
 pub mod spec;
 pub mod survey;
 pub mod thermo;
+pub mod writeup;
 
 use std::path::Path;
 

@@ -5,5 +5,6 @@ mod util;
 mod cli_errors;
 mod counts;
 mod estimate;
+mod report;
 mod sampling;
 mod transfer;

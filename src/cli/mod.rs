@@ -5,6 +5,7 @@
 mod estimate;
 mod exact;
 mod inspect;
+mod report;
 mod sample;
 mod strip;
 
@@ -34,6 +35,8 @@ enum Command {
     Sample(sample::Args),
     /// Transfer matrices on strips of growing width, extrapolated to the infinite crystal.
     Strip(strip::Args),
+    /// Run the counters that suit the lattice and write a citable report to a directory.
+    Report(report::Args),
 }
 
 /// Output format shared by every command.
@@ -127,8 +130,9 @@ impl Common {
         )
         .expect("valid template")
         .progress_chars("=> ");
-        let waiting = indicatif::ProgressStyle::with_template("{spinner} {prefix} {msg} ({elapsed})")
-            .expect("valid template");
+        let waiting =
+            indicatif::ProgressStyle::with_template("{spinner} {prefix} {msg} ({elapsed})")
+                .expect("valid template");
         bar.enable_steady_tick(std::time::Duration::from_millis(200));
         let b = bar.clone();
         let observer = Observer(std::sync::Arc::new(move |stage| match stage {
@@ -188,6 +192,7 @@ pub fn run() -> i32 {
         Command::Estimate(a) => estimate::run(a),
         Command::Sample(a) => sample::run(a),
         Command::Strip(a) => strip::run(a),
+        Command::Report(a) => report::run(a),
     };
     match result {
         Ok(text) => {

@@ -78,7 +78,7 @@ pub struct Args {
 }
 
 /// Parse `2..12`, `2..=12` or `4,6,8` with a step.
-fn parse_widths(text: &str, step: usize) -> anyhow::Result<Vec<usize>> {
+pub(super) fn parse_widths(text: &str, step: usize) -> anyhow::Result<Vec<usize>> {
     let bad = |why: &str| {
         anyhow::anyhow!(
             "--widths '{text}': {why}; expected a range such as 2..12 or a list such as 4,6,8"

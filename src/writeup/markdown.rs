@@ -1,0 +1,307 @@
+//! The report as Markdown: lattice summary, every method side by side, diagnostics, the
+//! calorimetric comparison, what the numbers rest on, and a sentence to cite.
+
+use std::fmt::Write;
+
+use super::Writeup;
+use crate::report::{Table, method_label, sig};
+
+/// `x ± s` with s to two significant digits, or x alone when there is no s.
+fn pm(x: f64, s: Option<f64>, digits: usize) -> String {
+    match s {
+        Some(s) => format!("{} ± {}", sig(x, digits), sig(s, 2)),
+        None => sig(x, digits),
+    }
+}
+
+/// Render the report.
+pub fn render(w: &Writeup<'_>) -> String {
+    let mut o = String::new();
+    // Writing to a String cannot fail.
+    let _ = body(w, &mut o);
+    o
+}
+
+fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
+    let c = &w.lattice.crystal;
+    let s = w.survey;
+    let unit = &c.formula_unit.name;
+    let p = &s.pauling;
+    let b = w.best();
+    writeln!(o, "# Residual entropy of {}\n", c.name)?;
+    if let Some(a) = &c.about {
+        writeln!(o, "{}\n", a.trim())?;
+    }
+    writeln!(o, "## Lattice\n")?;
+    let mut t = Table::new(&["", ""]);
+    t.row(vec!["file".into(), format!("`{}`", w.meta.file)]);
+    t.row(vec![
+        "content hash (FNV-1a)".into(),
+        format!("`{}`", w.lattice.content_hash),
+    ]);
+    t.row(vec!["dimensions".into(), c.dimensions.to_string()]);
+    let names = ["a", "b", "c"];
+    let vectors: Vec<String> = names
+        .iter()
+        .zip(&c.vectors)
+        .take(c.dimensions)
+        .map(|(n, v)| {
+            let x: Vec<String> = v[..c.dimensions].iter().map(|x| sig(*x, 6)).collect();
+            format!("{n} = [{}]", x.join(", "))
+        })
+        .collect();
+    t.row(vec!["cell vectors".into(), vectors.join("; ")]);
+    t.row(vec!["sites per cell".into(), c.sites.len().to_string()]);
+    t.row(vec!["bonds per cell".into(), c.bonds.len().to_string()]);
+    let rules: Vec<String> = c
+        .rules
+        .iter()
+        .map(|r| format!("{} ({} per cell)", r.label, r.instances.len()))
+        .collect();
+    t.row(vec!["rules".into(), rules.join("; ")]);
+    t.row(vec![
+        "formula unit".into(),
+        format!(
+            "{unit}: {}, {} per cell",
+            c.formula_unit.describe(),
+            sig(c.formula_unit.per_cell(c), 6)
+        ),
+    ]);
+    writeln!(o, "{}", t.render_markdown())?;
+
+    writeln!(o, "## Results\n")?;
+    writeln!(
+        o,
+        "W is the number of allowed arrangements per {unit}; S0 = R ln W per mole of {unit}, \
+         R = {} J/(mol K). Uncertainties are one standard error; exact counts have none.\n",
+        crate::thermo::R
+    )?;
+    let mut t = Table::new(&[
+        "method",
+        "cell",
+        "formula units",
+        &format!("W per {unit}"),
+        "S0/R",
+        "S0 J/(mol K)",
+    ]);
+    for e in s.estimates() {
+        t.row(vec![
+            method_label(&e),
+            e.cells.clone().unwrap_or_else(|| "infinite crystal".into()),
+            if e.cells.is_some() {
+                sig(e.formula_units, 6)
+            } else {
+                "—".into()
+            },
+            pm(e.w_per_unit(), e.sigma_w(), 10),
+            pm(e.s_over_r(), e.sigma_ln_w, 8),
+            pm(e.s_j_per_mol_k(), e.sigma_s_j_per_mol_k(), 6),
+        ]);
+    }
+    writeln!(o, "{}", t.render_markdown())?;
+    writeln!(
+        o,
+        "**Cited value** ({}{}): W = {} per {unit}, S0 = {} J/(mol K) = {} R; \
+         {:+.3} % in W from Pauling's estimate.\n",
+        method_label(b),
+        b.cells
+            .as_deref()
+            .map(|c| format!(", {c}"))
+            .unwrap_or_default(),
+        pm(b.w_per_unit(), b.sigma_w(), 8),
+        pm(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 6),
+        pm(b.s_over_r(), b.sigma_ln_w, 6),
+        100.0 * (b.w_per_unit() / p.w_per_unit() - 1.0)
+    )?;
+    if !s.stopped.is_empty() {
+        writeln!(o, "Exact counts stopped: {}.\n", s.stopped)?;
+    }
+    for n in &s.notes {
+        writeln!(o, "- {n}")?;
+    }
+    if !s.notes.is_empty() {
+        writeln!(o)?;
+    }
+
+    if !s.exact.is_empty() {
+        writeln!(o, "## Exact counts\n")?;
+        let mut t = Table::new(&[
+            "cell",
+            "formula units",
+            "arrangements",
+            &format!("W per {unit}"),
+        ]);
+        for e in &s.exact {
+            t.row(vec![
+                e.cells.clone().unwrap_or_default(),
+                sig(e.formula_units, 6),
+                e.count.as_ref().map(|c| c.to_string()).unwrap_or_default(),
+                sig(e.w_per_unit(), 10),
+            ]);
+        }
+        writeln!(o, "{}", t.render_markdown())?;
+        writeln!(
+            o,
+            "Counts of finite periodic cells are exact for that torus; W per {unit} approaches the \
+             infinite crystal's value as the cell grows (the smallest cells wrap bonds onto themselves).\n"
+        )?;
+    }
+    if let Some(tm) = &s.strips {
+        writeln!(o, "## Transfer matrix\n")?;
+        let mut t = Table::new(&[
+            "width L",
+            "states",
+            "iterations",
+            "ln λ",
+            &format!("W per {unit}"),
+        ]);
+        for r in &tm.widths {
+            t.row(vec![
+                r.width.to_string(),
+                r.states.to_string(),
+                r.iterations.to_string(),
+                sig(r.ln_lambda, 12),
+                sig(r.ln_w_per_unit.exp(), 12),
+            ]);
+        }
+        writeln!(o, "{}", t.render_markdown())?;
+        let e = &tm.estimate;
+        writeln!(
+            o,
+            "Extrapolated to infinite width: W = {} per {unit} ({}, {} fits{}).\n",
+            pm(e.w_per_unit(), e.sigma_w(), 12),
+            format!("{:?}", tm.extrapolation.scaling).to_lowercase(),
+            tm.extrapolation.fits.len(),
+            tm.central_charge
+                .map(|c| format!("; fitted central charge {}", sig(c, 4)))
+                .unwrap_or_default()
+        )?;
+    }
+    if let Some(m) = &s.sampled {
+        let x = &m.sampled;
+        writeln!(o, "## Monte Carlo\n")?;
+        let mut t = Table::new(&["", ""]);
+        t.row(vec!["cell".into(), m.cells.clone()]);
+        t.row(vec![
+            "formula units".into(),
+            sig(x.estimate.formula_units, 6),
+        ]);
+        t.row(vec!["seed".into(), x.seed.to_string()]);
+        t.row(vec!["replicas".into(), x.replicas.to_string()]);
+        t.row(vec!["measured sweeps".into(), x.samples.to_string()]);
+        t.row(vec!["largest β".into(), sig(x.beta_max, 4)]);
+        t.row(vec![
+            format!("σ of ln W per {unit}: statistical, quadrature, tail"),
+            format!(
+                "{}, {}, {}",
+                sig(x.sigma_statistical, 2),
+                sig(x.sigma_quadrature, 2),
+                sig(x.sigma_tail, 2)
+            ),
+        ]);
+        writeln!(o, "{}", t.render_markdown())?;
+        writeln!(
+            o,
+            "Thermodynamic integration of the mean number of violated constraints over inverse \
+             temperature, relative to the Pauling reference; the error bar is the sum of the three \
+             parts above. A finite torus gives a larger W than the infinite crystal.\n"
+        )?;
+    }
+    if let Some(k) = &w.comparison {
+        writeln!(o, "## Calorimetric comparison\n")?;
+        let (r, dr) = k.residual();
+        let (wk, dwk) = k.w_per_unit();
+        let mut t = Table::new(&["quantity", "value"]);
+        t.row(vec!["heat-capacity data".into(), format!("`{}`", k.file)]);
+        t.row(vec![
+            format!("third-law entropy S_cal({} K)", sig(k.temperature_k, 5)),
+            format!("{} J/(mol K)", pm(k.s_cal.0, Some(k.s_cal.1), 6)),
+        ]);
+        t.row(vec![
+            format!(
+                "of which Debye T³ below {} K (θ_D = {} K)",
+                sig(k.lowest_k, 4),
+                sig(k.debye_temperature_k, 4)
+            ),
+            format!("{} J/(mol K)", sig(k.extrapolated, 4)),
+        ]);
+        t.row(vec![
+            "statistical entropy S_stat (given)".into(),
+            format!("{} J/(mol K)", pm(k.s_stat.0, Some(k.s_stat.1), 6)),
+        ]);
+        t.row(vec![
+            "residual S_stat − S_cal".into(),
+            format!("{} J/(mol K)", pm(r, Some(dr), 4)),
+        ]);
+        t.row(vec![
+            format!("W per {unit} = exp(residual/R)"),
+            pm(wk, Some(dwk), 4),
+        ]);
+        t.row(vec![
+            format!("computed ({})", method_label(b)),
+            format!(
+                "{} J/(mol K)",
+                pm(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 6)
+            ),
+        ]);
+        t.row(vec![
+            "Pauling".into(),
+            format!("{} J/(mol K)", sig(p.s_j_per_mol_k(), 6)),
+        ]);
+        writeln!(o, "{}", t.render_markdown())?;
+        let z = (b.s_j_per_mol_k() - r) / b.sigma_s_j_per_mol_k().unwrap_or(0.0).hypot(dr);
+        writeln!(
+            o,
+            "The computed value differs from the calorimetric residual by {} combined standard errors \
+             ({}).\n",
+            sig(z.abs(), 2),
+            if z.abs() <= 2.0 {
+                "consistent"
+            } else {
+                "not consistent at 2σ"
+            }
+        )?;
+    }
+    let figures = w.figures();
+    if !figures.is_empty() {
+        writeln!(o, "## Figures\n")?;
+        for f in &figures {
+            writeln!(o, "![{}]({})\n\n{}\n", f.file, f.file, f.caption)?;
+        }
+    }
+    writeln!(o, "## What the numbers rest on\n")?;
+    writeln!(
+        o,
+        "- The count is of the arrangements the lattice file's rules allow, nothing else: a \
+         rule missing from the file (or a real crystal's defects, partial order or strain) changes \
+         the physical answer but not this number."
+    )?;
+    writeln!(
+        o,
+        "- Pauling's estimate treats constraints as independent; it is not a bound in general. \
+         For the ice rule on a four-coordinated network (two arrows in, two out at every site) \
+         it is a rigorous lower bound (Schrijver 1983, Combinatorica 3, 375; from memory)."
+    )?;
+    writeln!(
+        o,
+        "- Exact counts are exact for the periodic cell named; transfer-matrix and Monte Carlo \
+         values are estimates for the infinite crystal whose uncertainties are stated above."
+    )?;
+    if w.comparison.is_some() {
+        writeln!(
+            o,
+            "- The calorimetric residual depends on the heat-capacity data, the Debye extrapolation \
+             below the lowest temperature and the statistical entropy given; a number for a \
+             thermodynamic database should cite those sources too."
+        )?;
+    }
+    writeln!(o)?;
+    writeln!(o, "## To cite\n")?;
+    writeln!(o, "> {}\n", w.sentence())?;
+    writeln!(o, "## Run\n")?;
+    writeln!(o, "- groundcount {}, {}", w.meta.version, w.meta.date)?;
+    writeln!(o, "- budget: {} s", sig(s.budget, 4))?;
+    let total: f64 = s.estimates().iter().map(|e| e.seconds).sum();
+    writeln!(o, "- wall time of the counts: {:.1} s", total)?;
+    Ok(())
+}

@@ -1,0 +1,274 @@
+//! A citable report of one survey: Markdown, JSON and SVG figures.
+//!
+//! # What it is for
+//!
+//! A user who must state a residual entropy in a paper needs every method's number side by
+//! side, the diagnostics behind each, the calorimetric comparison when there is one, and a
+//! sentence saying how the number was made. [`Writeup::new`] gathers these from a
+//! [`Survey`] (and optionally a calorimetric result); [`Writeup::json`],
+//! [`Writeup::markdown`] and [`Writeup::figures`] render them. Nothing here computes a
+//! count: it only reads estimates.
+//!
+//! # Arguments and returns
+//!
+//! The lattice, the survey, [`Meta`] (version, date, how the run was asked for) and an
+//! optional [`Comparison`] of a statistical value with a calorimetric one. The renderers
+//! return strings; the caller writes the files.
+
+mod markdown;
+mod plots;
+
+use serde_json::{Value, json};
+
+use crate::Lattice;
+use crate::estimate::Estimate;
+use crate::report::{estimate_json, method_label};
+use crate::survey::Survey;
+use crate::thermo;
+
+pub use plots::Figure;
+
+/// Facts about the run that are not results.
+#[derive(Clone, Debug)]
+pub struct Meta {
+    /// groundcount's version.
+    pub version: String,
+    /// The date of the run, `YYYY-MM-DD` (UTC).
+    pub date: String,
+    /// The lattice file as the user named it.
+    pub file: String,
+}
+
+/// The calorimetric side of the comparison: a third-law entropy and a statistical
+/// (spectroscopic) entropy, whose difference is the measured residual entropy.
+#[derive(Clone, Debug)]
+pub struct Comparison {
+    /// The data file.
+    pub file: String,
+    /// Temperature of the comparison in K.
+    pub temperature_k: f64,
+    /// Third-law (calorimetric) entropy at that temperature, J/(mol K), and its 1σ.
+    pub s_cal: (f64, f64),
+    /// Statistical entropy at that temperature, J/(mol K), and its 1σ.
+    pub s_stat: (f64, f64),
+    /// Entropy added below the lowest measured temperature (Debye T³), J/(mol K).
+    pub extrapolated: f64,
+    /// Debye temperature of the low-temperature fit, K.
+    pub debye_temperature_k: f64,
+    /// Measured points: (T in K, Cp in J/(mol K)).
+    pub points: Vec<(f64, f64)>,
+    /// Lowest temperature of the data, K (the Debye extrapolation covers 0..this).
+    pub lowest_k: f64,
+    /// The interpolant of Cp/T used for the integral: (T in K, Cp/T in J/(mol K²)).
+    pub curve: Vec<(f64, f64)>,
+    /// The Debye T³ extrapolation below the data: (T in K, Cp/T in J/(mol K²)).
+    pub debye_curve: Vec<(f64, f64)>,
+}
+
+impl Comparison {
+    /// The measured residual entropy S_stat − S_cal in J/(mol K) and its 1σ (independent
+    /// errors added in quadrature).
+    pub fn residual(&self) -> (f64, f64) {
+        (
+            self.s_stat.0 - self.s_cal.0,
+            self.s_stat.1.hypot(self.s_cal.1),
+        )
+    }
+
+    /// W per formula unit implied by the residual, exp(S0/R), and its 1σ.
+    pub fn w_per_unit(&self) -> (f64, f64) {
+        let (s, ds) = self.residual();
+        let w = (s / thermo::R).exp();
+        (w, w * ds / thermo::R)
+    }
+}
+
+/// Everything a report shows.
+#[derive(Clone, Debug)]
+pub struct Writeup<'a> {
+    lattice: &'a Lattice,
+    survey: &'a Survey,
+    meta: Meta,
+    comparison: Option<Comparison>,
+}
+
+impl<'a> Writeup<'a> {
+    /// Gather a report.
+    pub fn new(
+        lattice: &'a Lattice,
+        survey: &'a Survey,
+        meta: Meta,
+        comparison: Option<Comparison>,
+    ) -> Writeup<'a> {
+        Writeup {
+            lattice,
+            survey,
+            meta,
+            comparison,
+        }
+    }
+
+    /// The estimate to cite (see [`Survey::best`]).
+    pub fn best(&self) -> &Estimate {
+        self.survey.best()
+    }
+
+    /// How the cited number was made, in words, for the paste-able sentence.
+    fn provenance(&self) -> String {
+        let s = self.survey;
+        let unit = &self.lattice.crystal.formula_unit.name;
+        if let Some(t) = &s.strips {
+            let w: Vec<usize> = t.widths.iter().map(|r| r.width).collect();
+            return format!(
+                "the largest eigenvalue of the column transfer matrix on periodic strips of width {}..{} cells, extrapolated to infinite width",
+                w.first().copied().unwrap_or(0),
+                w.last().copied().unwrap_or(0)
+            );
+        }
+        if let Some(m) = &s.sampled {
+            return format!(
+                "Monte Carlo thermodynamic integration on a {} cell ({} {unit}; {} replicas, {} measured sweeps, seed {})",
+                m.cells,
+                crate::report::sig(m.sampled.estimate.formula_units, 6),
+                m.sampled.replicas,
+                m.sampled.samples,
+                m.sampled.seed
+            );
+        }
+        if let Some(e) = s.exact.last() {
+            return format!(
+                "an exact count of the arrangements of a {} cell ({} {unit}; a finite cell, not the infinite crystal)",
+                e.cells.as_deref().unwrap_or(""),
+                crate::report::sig(e.formula_units, 6)
+            );
+        }
+        "Pauling's independent-constraint estimate (no count ran)".into()
+    }
+
+    /// The sentence a user can paste into a paper.
+    pub fn sentence(&self) -> String {
+        let c = &self.lattice.crystal;
+        let unit = &c.formula_unit.name;
+        let b = self.best();
+        let p = &self.survey.pauling;
+        let value = |x: f64, s: Option<f64>, digits: usize| match s {
+            Some(s) => format!(
+                "{} ± {}",
+                crate::report::sig(x, digits),
+                crate::report::sig(s, 2)
+            ),
+            None => crate::report::sig(x, digits),
+        };
+        format!(
+            "The configurational (residual) entropy of {} was computed with groundcount {} on {} from {}: \
+             W = {} arrangements per {unit}, i.e. S0 = R ln W = {} J/(mol K) per mole of {unit} \
+             (Pauling's estimate: W = {}, S0 = {} J/(mol K)); uncertainties are one standard error.",
+            c.name,
+            self.meta.version,
+            self.meta.date,
+            self.provenance(),
+            value(b.w_per_unit(), b.sigma_w(), 8),
+            value(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 6),
+            crate::report::sig(p.w_per_unit(), 8),
+            crate::report::sig(p.s_j_per_mol_k(), 6),
+        )
+    }
+
+    /// The report as one JSON document.
+    pub fn json(&self) -> Value {
+        let c = &self.lattice.crystal;
+        let s = self.survey;
+        let p = &s.pauling;
+        let b = self.best();
+        let strips = s.strips.as_ref().map(|t| {
+            json!({
+                "estimate": estimate_json(c, &t.estimate, Some(p)),
+                "widths": t.widths.iter().map(|r| json!({
+                    "width": r.width,
+                    "ln_lambda": r.ln_lambda,
+                    "ln_lambda_bracket": [r.ln_bracket.0, r.ln_bracket.1],
+                    "w_per_unit": r.ln_w_per_unit.exp(),
+                    "states": r.states,
+                    "iterations": r.iterations,
+                })).collect::<Vec<_>>(),
+                "scaling": format!("{:?}", t.extrapolation.scaling).to_lowercase(),
+                "fits": t.extrapolation.fits.len(),
+                "central_charge": t.central_charge,
+            })
+        });
+        let sampled = s.sampled.as_ref().map(|m| {
+            let x = &m.sampled;
+            json!({
+                "estimate": estimate_json(c, &x.estimate, Some(p)),
+                "cells": m.cells,
+                "seed": x.seed,
+                "replicas": x.replicas,
+                "samples": x.samples,
+                "updates": x.updates,
+                "sigma_statistical": x.sigma_statistical,
+                "sigma_quadrature": x.sigma_quadrature,
+                "sigma_tail": x.sigma_tail,
+                "beta": x.betas,
+                "mean_energy": x.mean_energy,
+                "reference_energy": x.reference_energy,
+            })
+        });
+        let comparison = self.comparison.as_ref().map(|k| {
+            let (r, dr) = k.residual();
+            let (w, dw) = k.w_per_unit();
+            json!({
+                "file": k.file,
+                "temperature_k": k.temperature_k,
+                "s_cal_j_per_mol_k": k.s_cal.0,
+                "s_cal_uncertainty": k.s_cal.1,
+                "s_stat_j_per_mol_k": k.s_stat.0,
+                "s_stat_uncertainty": k.s_stat.1,
+                "extrapolated_j_per_mol_k": k.extrapolated,
+                "debye_temperature_k": k.debye_temperature_k,
+                "residual_j_per_mol_k": r,
+                "residual_uncertainty": dr,
+                "w_per_unit": w,
+                "w_uncertainty": dw,
+                "computed_minus_measured_sigmas": (b.s_j_per_mol_k() - r)
+                    / b.sigma_s_j_per_mol_k().unwrap_or(0.0).hypot(dr),
+            })
+        });
+        json!({
+            "groundcount_version": self.meta.version,
+            "date": self.meta.date,
+            "lattice": c.name,
+            "file": self.meta.file,
+            "content_hash": self.lattice.content_hash,
+            "dimensions": c.dimensions,
+            "formula_unit": {
+                "name": c.formula_unit.name,
+                "basis": c.formula_unit.describe(),
+                "per_cell": c.formula_unit.per_cell(c),
+            },
+            "budget_seconds": s.budget,
+            "cited": {
+                "method": b.method.name(),
+                "label": method_label(b),
+                "estimate": estimate_json(c, b, Some(p)),
+            },
+            "pauling": estimate_json(c, p, None),
+            "exact": s.exact.iter().map(|e| estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
+            "exact_stopped": s.stopped,
+            "transfer_matrix": strips,
+            "monte_carlo": sampled,
+            "calorimetry": comparison,
+            "notes": s.notes,
+            "sentence": self.sentence(),
+        })
+    }
+
+    /// The report as Markdown; figures are referred to by file name.
+    pub fn markdown(&self) -> String {
+        markdown::render(self)
+    }
+
+    /// The SVG figures that apply to this survey.
+    pub fn figures(&self) -> Vec<Figure> {
+        plots::figures(self)
+    }
+}
