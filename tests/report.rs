@@ -200,3 +200,28 @@ fn ice_report_samples_and_agrees_with_the_exact_count_of_the_same_cell() {
     assert!(md.contains("## Monte Carlo"));
     assert!(md.contains("seed"));
 }
+
+#[test]
+fn inspect_prints_every_format() {
+    // Pauling's W = 3/2 per H2O for square ice (Pauling 1935, J. Am. Chem. Soc. 57, 2680).
+    let file = lattice("square-ice.yaml");
+    let f = file.to_str().unwrap();
+    let csv = crate::util::run(&["inspect", f, "--format", "csv"]);
+    assert!(csv.status.success());
+    let text = String::from_utf8(csv.stdout).unwrap();
+    assert!(text.starts_with("quantity,value\n"), "{text}");
+    let w: f64 = text
+        .lines()
+        .find_map(|l| l.strip_prefix("Pauling W per H2O,"))
+        .unwrap()
+        .parse()
+        .unwrap();
+    assert!((w - 1.5).abs() < 1e-10);
+    let md = crate::util::run(&["inspect", f, "--format", "markdown"]);
+    assert!(md.status.success());
+    assert!(
+        String::from_utf8(md.stdout)
+            .unwrap()
+            .contains("| site | species |")
+    );
+}

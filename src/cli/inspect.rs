@@ -16,15 +16,12 @@ use super::{Format, load, shown};
 pub struct Args {
     /// Lattice file (YAML); the built-in ice Ih description when omitted.
     file: Option<PathBuf>,
-    /// Output format (table or json).
+    /// Output format: table, json, csv (one quantity per row) or markdown.
     #[arg(long, value_enum, default_value_t = Format::Table)]
     format: Format,
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
-    if matches!(args.format, Format::Csv | Format::Markdown) {
-        anyhow::bail!("inspect prints --format table or json");
-    }
     let lattice = load(args.file.as_deref())?;
     let c = &lattice.crystal;
     let p = pauling::estimate(c)?;
@@ -67,7 +64,51 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         });
         return Ok(serde_json::to_string_pretty(&v)? + "\n");
     }
+    if args.format == Format::Csv {
+        // One quantity per row: the facts a spreadsheet wants, each with its unit.
+        let mut t = report::Table::new(&["quantity", "value"]);
+        let rows: Vec<(String, String)> = vec![
+            ("lattice".into(), c.name.clone()),
+            ("file".into(), shown(&args.file)),
+            ("content hash".into(), lattice.content_hash.clone()),
+            ("dimensions".into(), c.dimensions.to_string()),
+            ("sites per cell".into(), c.sites.len().to_string()),
+            ("bonds per cell".into(), c.bonds.len().to_string()),
+            (
+                "rules".into(),
+                c.rules
+                    .iter()
+                    .map(|r| r.label.clone())
+                    .collect::<Vec<_>>()
+                    .join("; "),
+            ),
+            ("formula unit".into(), unit.clone()),
+            (format!("{unit} per cell"), sig(units_per_cell, 10)),
+            (format!("Pauling W per {unit}"), sig(p.w_per_unit(), 12)),
+            (format!("Pauling S0/R per {unit}"), sig(p.s_over_r(), 12)),
+            (
+                format!("Pauling S0 J/(mol K) per mole of {unit}"),
+                sig(p.s_j_per_mol_k(), 10),
+            ),
+        ];
+        for (k, v) in rows {
+            t.row(vec![k, v]);
+        }
+        return Ok(t.render_csv());
+    }
+    let markdown = args.format == Format::Markdown;
+    let render = |t: &report::Table| {
+        if markdown {
+            t.render_markdown()
+        } else {
+            t.render()
+        }
+    };
+    let gap = if markdown { "\n" } else { "" };
     let mut out = String::new();
+    if markdown {
+        out.push_str("# ");
+    }
     writeln!(out, "{} ({})", c.name, shown(&args.file))?;
     if let Some(a) = &c.about {
         writeln!(out, "{a}")?;
@@ -97,9 +138,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     }
     writeln!(
         out,
-        "\n{} per cell:\n{}",
+        "\n{} per cell:\n{gap}{}",
         plural(c.sites.len(), "site"),
-        t.render()
+        render(&t)
     )?;
     if !c.bonds.is_empty() {
         let mut t = report::Table::new(&["bond", "from", "to", "shift", "length"]);
@@ -118,9 +159,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         }
         writeln!(
             out,
-            "{} per cell:\n{}",
+            "{} per cell:\n{gap}{}",
             plural(c.bonds.len(), "bond"),
-            t.render()
+            render(&t)
         )?;
     }
     for g in &c.groups {
