@@ -307,13 +307,40 @@ fn strip_series(
         ));
         return Ok(None);
     }
-    let first = results.first().map_or(0, |r| r.width);
-    let largest = results.last().map_or(0, |r| r.width);
-    match transfer::from_widths(c, results, 1, Scaling::Auto, &strip_config) {
-        Ok(series) => {
+    // A sublattice structure makes s(W) oscillate with its period (3 for the triangular
+    // antiferromagnet): extrapolate the widths that are multiples of each candidate period
+    // (1, 2, 3) and keep the extrapolation with the smallest uncertainty.
+    let mut best: Option<(usize, StripSeries)> = None;
+    let mut last_error = None;
+    for step in 1..=3usize {
+        let chosen: Vec<_> = results
+            .iter()
+            .filter(|r| r.width % step == 0)
+            .cloned()
+            .collect();
+        if chosen.len() < 4 {
+            continue;
+        }
+        match transfer::from_widths(c, chosen, step, Scaling::Auto, &strip_config) {
+            Ok(series) => {
+                let better = best.as_ref().is_none_or(|(_, b)| {
+                    series.extrapolation.uncertainty < b.extrapolation.uncertainty
+                });
+                if better {
+                    best = Some((step, series));
+                }
+            }
+            Err(e) => last_error = Some(e),
+        }
+    }
+    match best {
+        Some((step, series)) => {
+            let first = series.widths.first().map_or(0, |r| r.width);
+            let largest = series.widths.last().map_or(0, |r| r.width);
             notes.push(format!(
-                "transfer matrix: cylinders of width {first}..{largest} along a, extrapolated to infinite width \
+                "transfer matrix: cylinders of width {first}..{largest}{} along a, extrapolated to infinite width \
                  ({}); `groundcount strip` shows every width",
+                if step > 1 { format!(" in steps of {step} (the period with the smallest spread)") } else { String::new() },
                 match series.extrapolation.scaling {
                     Scaling::Gapped => {
                         "gapped: the largest width, error from the last differences".to_string()
@@ -326,8 +353,9 @@ fn strip_series(
             ));
             Ok(Some(series))
         }
-        Err(e) => {
-            notes.push(format!("transfer matrix: no extrapolation ({e})"));
+        None => {
+            let why = last_error.map_or_else(|| "too few widths".to_string(), |e| e.to_string());
+            notes.push(format!("transfer matrix: no extrapolation ({why})"));
             Ok(None)
         }
     }
