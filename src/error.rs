@@ -82,6 +82,14 @@ pub enum Error {
     /// A rule whose local table is too large to compile.
     #[error("{0}")]
     Model(String),
+    /// A shard file of a split Monte Carlo run that cannot be used or merged.
+    #[error("{}: {message}", path.display())]
+    Shard {
+        /// The shard file.
+        path: PathBuf,
+        /// What is wrong with it.
+        message: String,
+    },
     /// An iterative method stopped at its iteration cap before converging.
     #[error("{what} did not converge in {iterations} iterations ({detail})")]
     NotConverged {

@@ -61,6 +61,8 @@ pub struct Lattice {
     pub crystal: crystal::Crystal,
     /// FNV-1a hash of the file's text, to tie results to their input.
     pub content_hash: String,
+    /// The file's text (shards carry it, so that a merge can rebuild the model).
+    pub text: String,
 }
 
 impl Lattice {
@@ -81,7 +83,8 @@ impl Lattice {
         let crystal = crystal::Crystal::from_spec(spec, path)?;
         Ok(Lattice {
             crystal,
-            content_hash: fnv1a(text),
+            content_hash: content_hash(text),
+            text: text.to_string(),
         })
     }
 
@@ -97,7 +100,9 @@ impl Lattice {
     }
 }
 
-fn fnv1a(text: &str) -> String {
+/// FNV-1a (64-bit) hash of a text, as 16 hex digits: ties results to their input and
+/// detects damaged shard files (not a defence against deliberate tampering).
+pub fn content_hash(text: &str) -> String {
     let mut h: u64 = 0xcbf29ce484222325;
     for b in text.bytes() {
         h ^= b as u64;

@@ -262,3 +262,38 @@ fn target_error_adds_replicas_until_reached() {
     let exact = 2970f64.ln() / 16.0;
     assert!((s.estimate.ln_w_per_unit - exact).abs() < 4.0 * 0.002);
 }
+
+/// `sample --cells` with several sizes extrapolates to the infinite crystal: square ice on
+/// 8×8 … 24×24 tori must give Lieb's (4/3)^(3/2) (Lieb 1967, Phys. Rev. 162, 162) within
+/// 4σ, with a σ small enough for the check to mean something.
+#[test]
+fn finite_size_extrapolation_reaches_the_infinite_square_ice() {
+    let file = lattice("square-ice.yaml");
+    let o = crate::util::run(&[
+        "sample",
+        file.to_str().unwrap(),
+        "--cells",
+        "8x8,12x12,16x16,24x24",
+        "--replicas",
+        "8",
+        "--sweeps",
+        "200",
+        "--format",
+        "json",
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["method"], "monte-carlo-extrapolated");
+    assert_eq!(v["cells_sampled"].as_array().unwrap().len(), 4);
+    let s = v["fit"]["ln_w_per_unit_infinite"].as_f64().unwrap();
+    let sigma = v["fit"]["sigma_ln_w"].as_f64().unwrap();
+    let exact = 1.5 * (4.0f64 / 3.0).ln();
+    assert!(sigma < 0.01, "σ = {sigma}");
+    assert!(
+        (s - exact).abs() < 4.0 * sigma,
+        "{s} ± {sigma} against {exact}"
+    );
+    // the extrapolation moves the largest cell's value towards the limit
+    let largest = v["cells_sampled"][3]["s_over_r"].as_f64().unwrap();
+    assert!(largest > exact);
+}

@@ -7,4 +7,5 @@ mod counts;
 mod estimate;
 mod report;
 mod sampling;
+mod shards;
 mod transfer;

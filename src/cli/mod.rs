@@ -5,6 +5,7 @@
 mod estimate;
 mod exact;
 mod inspect;
+mod merge;
 mod report;
 mod sample;
 mod strip;
@@ -33,6 +34,8 @@ enum Command {
     Estimate(estimate::Args),
     /// Monte Carlo count of a large cell (thermodynamic integration), with error bars.
     Sample(sample::Args),
+    /// Combine the shard files of a split Monte Carlo run into one estimate.
+    Merge(merge::Args),
     /// Transfer matrices on strips of growing width, extrapolated to the infinite crystal.
     Strip(strip::Args),
     /// Run the counters that suit the lattice and write a citable report to a directory.
@@ -191,6 +194,7 @@ pub fn run() -> i32 {
         Command::Exact(a) => exact::run(a),
         Command::Estimate(a) => estimate::run(a),
         Command::Sample(a) => sample::run(a),
+        Command::Merge(a) => merge::run(a),
         Command::Strip(a) => strip::run(a),
         Command::Report(a) => report::run(a),
     };

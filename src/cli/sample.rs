@@ -1,12 +1,15 @@
 //! `groundcount sample FILE --cells AxBxC`: Monte Carlo count of a large cell by
-//! thermodynamic integration, with error bars from independent replicas.
+//! thermodynamic integration, with error bars from independent replicas; several cells
+//! (`--cells 4x4x4,6x6x6`) with an extrapolation to the infinite crystal; one shard of a
+//! split run (`--shard K/N --out FILE`, merged by `groundcount merge`).
 
 use std::fmt::Write;
 use std::path::PathBuf;
-use std::sync::atomic::{AtomicUsize, Ordering};
 
+use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
-use groundcount::counters::{pauling, sampling};
+use groundcount::counters::sampling::{self, Sampled, shard, size};
+use groundcount::counters::pauling;
 use groundcount::model::Model;
 use groundcount::report::{self, sig};
 
@@ -17,7 +20,8 @@ use super::{Common, Format, cell_header, load, pauling_line, with_threads};
 pub struct Args {
     /// Lattice file (YAML).
     file: PathBuf,
-    /// Cell size in unit cells along each axis, e.g. 8x8x8 (periodic).
+    /// Cell size in unit cells along each axis, e.g. 8x8x8 (periodic); several sizes
+    /// separated by commas (4x4x4,6x6x6,8x8x8) are extrapolated to the infinite crystal.
     #[arg(long)]
     cells: String,
     /// Seed of the random streams; the same seed gives the same numbers on any thread count.
@@ -48,6 +52,13 @@ pub struct Args {
     /// Most replicas a --target-error run may use.
     #[arg(long, default_value_t = 1024)]
     max_replicas: usize,
+    /// Run only part K of N of the run (K = 1..N; each part runs --replicas replicas) and
+    /// write its raw results to --out for `groundcount merge`.
+    #[arg(long, value_name = "K/N", requires = "out")]
+    shard: Option<String>,
+    /// The shard file to write (with --shard).
+    #[arg(long, value_name = "FILE", requires = "shard")]
+    out: Option<PathBuf>,
     #[command(flatten)]
     common: Common,
 }
@@ -55,10 +66,16 @@ pub struct Args {
 pub fn run(args: Args) -> anyhow::Result<String> {
     let lattice = load(Some(&args.file))?;
     let c = &lattice.crystal;
-    let cells = Cells::parse(&args.cells, None, c.dimensions)?;
-    let p = pauling::estimate(c)?;
-    let cluster = Cluster::new(c, cells)?;
-    let model = Model::new(&cluster)?;
+    let sizes: Vec<Cells> = args
+        .cells
+        .split(',')
+        .map(|t| Cells::parse(t.trim(), None, c.dimensions))
+        .collect::<Result<_, _>>()?;
+    if let Some(t) = args.target_error
+        && !(t > 0.0 && t.is_finite())
+    {
+        anyhow::bail!("--target-error must be a positive number, not {t}");
+    }
     let config = sampling::SampleConfig {
         seed: args.seed,
         replicas: args.replicas,
@@ -70,67 +87,178 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         target_error: args.target_error,
         max_replicas: args.max_replicas,
     };
-    if let Some(t) = args.target_error
-        && !(t > 0.0 && t.is_finite())
-    {
-        anyhow::bail!("--target-error must be a positive number, not {t}");
+    let shown = Shown {
+        file: args.file.display().to_string(),
+        nodes: args.nodes,
+        target_error: args.target_error,
+        max_replicas: args.max_replicas,
+    };
+    if let Some(spec) = &args.shard {
+        if sizes.len() > 1 {
+            anyhow::bail!(
+                "--shard runs one cell; give one --cells size (run the shards of each size separately)"
+            );
+        }
+        let (k, n) = parse_shard(spec)?;
+        let out = args.out.as_ref().expect("clap requires --out with --shard");
+        return run_shard(&args, &lattice, &sizes[0], &config, (k, n), out, &shown);
     }
-    let progress = args.common.progress();
-    if progress {
-        eprintln!(
-            "sampling {} ({} variables, {} constraints), {} replicas…",
-            model.cells,
-            model.variables.len(),
-            model.constraints.len(),
-            config.replicas
-        );
+    let mut results = Vec::new();
+    for cells in &sizes {
+        let cluster = Cluster::new(c, cells.clone())?;
+        let model = Model::new(&cluster)?;
+        let s = sample_one(&args.common, &model, &config)?;
+        results.push((model, s));
     }
-    let done = AtomicUsize::new(0);
+    if results.len() == 1 {
+        let (model, s) = &results[0];
+        return render(args.common.format, &lattice, &shown, model, s, None);
+    }
+    render_sizes(args.common.format, &lattice, &shown, &results)
+}
+
+/// What the output shows besides the results.
+pub(super) struct Shown {
+    /// The lattice file as named.
+    pub file: String,
+    /// Quadrature nodes.
+    pub nodes: usize,
+    /// The --target-error asked for.
+    pub target_error: Option<f64>,
+    /// --max-replicas.
+    pub max_replicas: usize,
+}
+
+/// `K/N` with 1 ≤ K ≤ N.
+fn parse_shard(spec: &str) -> anyhow::Result<(usize, usize)> {
+    let parsed = spec
+        .split_once('/')
+        .and_then(|(k, n)| Some((k.trim().parse().ok()?, n.trim().parse().ok()?)));
+    match parsed {
+        Some((k, n)) if k >= 1 && k <= n => Ok((k, n)),
+        _ => anyhow::bail!(
+            "--shard expects K/N with 1 <= K <= N (e.g. 3/16 for the third of sixteen parts), found '{spec}'"
+        ),
+    }
+}
+
+/// Sample one model with a progress line.
+fn sample_one(
+    common: &Common,
+    model: &Model,
+    config: &sampling::SampleConfig,
+) -> anyhow::Result<Sampled> {
+    let progress = common.progress();
+    let bar = replica_bar(progress, model, config.replicas);
     let on_replica = || {
-        let k = done.fetch_add(1, Ordering::Relaxed) + 1;
-        if progress {
-            eprint!("\r{k} replicas done");
+        if let Some(b) = &bar {
+            b.inc(1);
         }
     };
-    let s = with_threads(args.common.threads, || {
-        sampling::sample_with(&model, &config, &on_replica)
+    let s = with_threads(common.threads, || {
+        sampling::sample_with(model, config, &on_replica)
     })??;
-    if progress {
-        eprintln!();
+    if let Some(b) = &bar {
+        b.finish_and_clear();
     }
+    Ok(s)
+}
+
+/// A progress bar over replicas on standard error, when progress is wanted.
+fn replica_bar(progress: bool, model: &Model, replicas: usize) -> Option<indicatif::ProgressBar> {
+    if !progress {
+        return None;
+    }
+    let bar = indicatif::ProgressBar::new(replicas as u64);
+    bar.set_style(
+        indicatif::ProgressStyle::with_template(
+            "{prefix} [{bar:30}] {pos}/{len} replicas, ETA {eta}",
+        )
+        .expect("valid template")
+        .progress_chars("=> "),
+    );
+    bar.set_prefix(format!(
+        "sampling {} ({} variables)",
+        model.cells,
+        model.variables.len()
+    ));
+    Some(bar)
+}
+
+/// Run one shard and write its file.
+fn run_shard(
+    args: &Args,
+    lattice: &Lattice,
+    cells: &Cells,
+    config: &sampling::SampleConfig,
+    (k, n): (usize, usize),
+    out: &std::path::Path,
+    shown: &Shown,
+) -> anyhow::Result<String> {
+    if args.target_error.is_some() {
+        anyhow::bail!(
+            "--shard runs a fixed number of replicas per part: give --replicas, not --target-error"
+        );
+    }
+    let cluster = Cluster::new(&lattice.crystal, cells.clone())?;
+    let model = Model::new(&cluster)?;
+    let bar = replica_bar(args.common.progress(), &model, config.replicas);
+    let on_replica = || {
+        if let Some(b) = &bar {
+            b.inc(1);
+        }
+    };
+    let (part, s) = with_threads(args.common.threads, || {
+        shard::run_shard(lattice, &shown.file, cells, &model, config, k, n, &on_replica)
+    })??;
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    std::fs::write(out, part.to_json())
+        .map_err(|e| anyhow::anyhow!("{}: cannot write the shard file: {e}", out.display()))?;
+    let r = config.replicas;
+    let mut text = render(args.common.format, lattice, shown, &model, &s, None)?;
+    if args.common.format == Format::Table {
+        writeln!(
+            text,
+            "shard {k} of {n} (replicas {}..{}) written to {}; this part alone is the estimate above. \
+             Merge the parts with `groundcount merge FILE...`",
+            (k - 1) * r,
+            k * r - 1,
+            out.display()
+        )?;
+    }
+    Ok(text)
+}
+
+/// The output of one sampled cell. `merged` says which shards of how many a merge used.
+pub(super) fn render(
+    format: Format,
+    lattice: &Lattice,
+    shown: &Shown,
+    model: &Model,
+    s: &Sampled,
+    merged: Option<(&[usize], usize)>,
+) -> anyhow::Result<String> {
+    let c = &lattice.crystal;
+    let p = pauling::estimate(c)?;
     let e = &s.estimate;
     let unit = &c.formula_unit.name;
-    match args.common.format {
+    match format {
         Format::Json => {
-            let mut v = report::estimate_json(c, e, Some(&p));
-            v["seed"] = s.seed.into();
-            v["samples"] = s.samples.into();
-            v["replicas"] = s.replicas.into();
-            v["updates"] = s.updates.into();
-            v["sigma_ln_w_statistical"] = s.sigma_statistical.into();
-            v["sigma_ln_w_quadrature"] = s.sigma_quadrature.into();
-            v["sigma_ln_w_tail"] = s.sigma_tail.into();
-            v["beta_max"] = s.beta_max.into();
-            v["loop_attempts_per_sweep"] = s.loop_attempts_per_sweep.into();
-            v["loop_acceptance"] = s.loop_acceptance.into();
-            v["target_error"] = args.target_error.into();
-            v["target_reached"] = s.target_reached.into();
-            v["violations_at_beta_max"] = s.mean_energy[s.mean_energy.len() - 1].into();
-            v["variables"] = model.variables.len().into();
-            v["constraints"] = model.constraints.len().into();
-            v["content_hash"] = lattice.content_hash.clone().into();
+            let mut v = sampled_json(lattice, model, s, shown);
+            if let Some((present, n)) = merged {
+                v["shards"] = n.into();
+                v["shards_merged"] = present.into();
+            }
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
         Format::Csv => Ok(report::comparison_table(&[p, e.clone()], unit).render_csv()),
         Format::Markdown => Ok(report::comparison_table(&[p, e.clone()], unit).render_markdown()),
         Format::Table => {
             let mut out = String::new();
-            out += &cell_header(c, &args.file, e, &model);
+            out += &cell_header(c, std::path::Path::new(&shown.file), e, model);
             writeln!(out)?;
-            let pm = |x: f64, s: Option<f64>| match s {
-                Some(s) => format!("{} ± {}", sig(x, 8), sig(s, 2)),
-                None => sig(x, 8),
-            };
             writeln!(out, "W per {unit:<15} {}", pm(e.w_per_unit(), e.sigma_w()))?;
             writeln!(
                 out,
@@ -144,51 +272,223 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             )?;
             out += &pauling_line(&p, unit);
             writeln!(out)?;
-            writeln!(
-                out,
-                "σ of ln W per {unit}: statistical {}, quadrature {}, tail {} (sum reported)",
-                sig(s.sigma_statistical, 2),
-                sig(s.sigma_quadrature, 2),
-                sig(s.sigma_tail, 2)
-            )?;
-            writeln!(
-                out,
-                "thermodynamic integration, seed {}, {} replicas × {} nodes up to β = {}, {} measured sweeps, {} updates, {} s",
-                s.seed,
-                s.replicas,
-                args.nodes,
-                sig(s.beta_max, 3),
-                s.samples,
-                s.updates,
-                sig(e.seconds, 3)
-            )?;
-            writeln!(
-                out,
-                "violated constraints left at β_max: {} on average; loop moves: {}",
-                sig(s.mean_energy[s.mean_energy.len() - 1], 3),
-                if s.loop_attempts_per_sweep == 0 {
-                    "none".to_string()
-                } else {
-                    format!(
-                        "{} per sweep, {} % flipped",
-                        s.loop_attempts_per_sweep,
-                        sig(100.0 * s.loop_acceptance, 3)
-                    )
-                }
-            )?;
-            if let Some(reached) = s.target_reached {
+            out += &diagnostics(s, shown);
+            if let Some((present, n)) = merged {
+                let missing: Vec<String> = (1..=n)
+                    .filter(|k| !present.contains(k))
+                    .map(|k| k.to_string())
+                    .collect();
                 writeln!(
                     out,
-                    "target error {}: {}",
-                    sig(args.target_error.unwrap_or(0.0), 2),
-                    if reached {
-                        format!("reached with {} replicas", s.replicas)
+                    "merged {} of {n} shards{}",
+                    present.len(),
+                    if missing.is_empty() {
+                        String::new()
                     } else {
                         format!(
-                            "NOT reached with {} replicas (--max-replicas {})",
-                            s.replicas, args.max_replicas
+                            " (missing: {}; the estimate uses the replicas present)",
+                            missing.join(", ")
                         )
                     }
+                )?;
+            }
+            Ok(out)
+        }
+    }
+}
+
+/// `x ± σ` with 8 and 2 significant digits.
+fn pm(x: f64, s: Option<f64>) -> String {
+    match s {
+        Some(s) => format!("{} ± {}", sig(x, 8), sig(s, 2)),
+        None => sig(x, 8),
+    }
+}
+
+/// The error budget and run lines under a sampled result.
+fn diagnostics(s: &Sampled, shown: &Shown) -> String {
+    let unit_free = |x: f64| sig(x, 2);
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "σ of ln W per formula unit: statistical {}, quadrature {}, tail {} (sum reported)",
+        unit_free(s.sigma_statistical),
+        unit_free(s.sigma_quadrature),
+        unit_free(s.sigma_tail)
+    );
+    let _ = writeln!(
+        out,
+        "thermodynamic integration, seed {}, {} replicas × {} nodes up to β = {}, {} measured sweeps, {} updates, {} s",
+        s.seed,
+        s.replicas,
+        shown.nodes,
+        sig(s.beta_max, 3),
+        s.samples,
+        s.updates,
+        sig(s.estimate.seconds, 3)
+    );
+    let _ = writeln!(
+        out,
+        "violated constraints left at β_max: {} on average; loop moves: {}",
+        sig(s.mean_energy[s.mean_energy.len() - 1], 3),
+        if s.loop_attempts_per_sweep == 0 {
+            "none".to_string()
+        } else {
+            format!(
+                "{} per sweep, {} % flipped",
+                s.loop_attempts_per_sweep,
+                sig(100.0 * s.loop_acceptance, 3)
+            )
+        }
+    );
+    if let Some(reached) = s.target_reached {
+        let _ = writeln!(
+            out,
+            "target error {}: {}",
+            sig(shown.target_error.unwrap_or(0.0), 2),
+            if reached {
+                format!("reached with {} replicas", s.replicas)
+            } else {
+                format!(
+                    "NOT reached with {} replicas (--max-replicas {})",
+                    s.replicas, shown.max_replicas
+                )
+            }
+        );
+    }
+    out
+}
+
+/// The JSON document of one sampled cell.
+fn sampled_json(
+    lattice: &Lattice,
+    model: &Model,
+    s: &Sampled,
+    shown: &Shown,
+) -> serde_json::Value {
+    let c = &lattice.crystal;
+    let p = pauling::estimate(c).ok();
+    let mut v = report::estimate_json(c, &s.estimate, p.as_ref());
+    v["seed"] = s.seed.into();
+    v["samples"] = s.samples.into();
+    v["replicas"] = s.replicas.into();
+    v["updates"] = s.updates.into();
+    v["sigma_ln_w_statistical"] = s.sigma_statistical.into();
+    v["sigma_ln_w_quadrature"] = s.sigma_quadrature.into();
+    v["sigma_ln_w_tail"] = s.sigma_tail.into();
+    v["beta_max"] = s.beta_max.into();
+    v["loop_attempts_per_sweep"] = s.loop_attempts_per_sweep.into();
+    v["loop_acceptance"] = s.loop_acceptance.into();
+    v["target_error"] = shown.target_error.into();
+    v["target_reached"] = s.target_reached.into();
+    v["violations_at_beta_max"] = s.mean_energy[s.mean_energy.len() - 1].into();
+    v["variables"] = model.variables.len().into();
+    v["constraints"] = model.constraints.len().into();
+    v["content_hash"] = lattice.content_hash.clone().into();
+    v
+}
+
+/// The output of several cells and their extrapolation to the infinite crystal.
+fn render_sizes(
+    format: Format,
+    lattice: &Lattice,
+    shown: &Shown,
+    results: &[(Model, Sampled)],
+) -> anyhow::Result<String> {
+    let c = &lattice.crystal;
+    let unit = &c.formula_unit.name;
+    let points: Vec<size::SizePoint> = results
+        .iter()
+        .map(|(_, s)| size::SizePoint {
+            units: s.estimate.formula_units,
+            value: s.estimate.ln_w_per_unit,
+            sigma: s.estimate.sigma_ln_w.unwrap_or(0.0),
+        })
+        .collect();
+    let fit = size::extrapolate(&points)?;
+    let infinite = groundcount::Estimate {
+        method: groundcount::estimate::Method::MonteCarlo,
+        cells: None,
+        count: None,
+        ln_count: fit.value,
+        formula_units: 1.0,
+        ln_w_per_unit: fit.value,
+        sigma_ln_w: Some(fit.sigma),
+        seconds: results.iter().map(|(_, s)| s.estimate.seconds).sum(),
+        peak_states: None,
+    };
+    let form = if fit.coefficients.len() == 2 {
+        "s(N) = s∞ + a/N + b ln N/N"
+    } else {
+        "s(N) = s∞ + a/N"
+    };
+    let p = pauling::estimate(c)?;
+    match format {
+        Format::Json => {
+            let cells: Vec<serde_json::Value> = results
+                .iter()
+                .map(|(m, s)| sampled_json(lattice, m, s, shown))
+                .collect();
+            let mut v = report::estimate_json(c, &infinite, Some(&p));
+            v["method"] = "monte-carlo-extrapolated".into();
+            v["fit"] = serde_json::json!({
+                "form": form,
+                "ln_w_per_unit_infinite": fit.value,
+                "sigma_ln_w": fit.sigma,
+                "coefficients": fit.coefficients,
+                "chi2": fit.chi2,
+                "dof": fit.dof,
+                "two_term_ln_w_per_unit": fit.two_term.map(|t| t.0),
+                "two_term_sigma_ln_w": fit.two_term.map(|t| t.1),
+            });
+            v["cells_sampled"] = cells.into();
+            Ok(serde_json::to_string_pretty(&v)? + "\n")
+        }
+        Format::Csv | Format::Markdown => {
+            let mut rows = vec![p];
+            rows.extend(results.iter().map(|(_, s)| s.estimate.clone()));
+            rows.push(infinite);
+            let t = report::comparison_table(&rows, unit);
+            Ok(if format == Format::Csv {
+                t.render_csv()
+            } else {
+                t.render_markdown()
+            })
+        }
+        Format::Table => {
+            let mut rows = vec![p];
+            rows.extend(results.iter().map(|(_, s)| s.estimate.clone()));
+            rows.push(infinite.clone());
+            let mut out = format!("{} ({})\n\n", c.name, shown.file);
+            out += &report::comparison_table(&rows, unit).render();
+            writeln!(out)?;
+            writeln!(
+                out,
+                "infinite crystal: W = {} per {unit}, S0 = {} J/(mol K) per mole of {unit}, from the weighted fit {form} over {} cells (χ² = {} for {} degrees of freedom{})",
+                pm(infinite.w_per_unit(), infinite.sigma_w()),
+                pm(infinite.s_j_per_mol_k(), infinite.sigma_s_j_per_mol_k()),
+                results.len(),
+                sig(fit.chi2, 3),
+                fit.dof,
+                if fit.dof > 0 { "; σ scaled by √(χ²/dof) when above 1" } else { "" }
+            )?;
+            if let Some((v2, s2)) = fit.two_term {
+                writeln!(
+                    out,
+                    "without the ln N/N term: W = {} per {unit} (a check of the form's influence)",
+                    pm(v2.exp(), Some(v2.exp() * s2))
+                )?;
+            }
+            for (_, s) in results {
+                writeln!(
+                    out,
+                    "{}: seed {}, {} replicas, σ of ln W statistical {}, quadrature {}, tail {}",
+                    s.estimate.cells.as_deref().unwrap_or(""),
+                    s.seed,
+                    s.replicas,
+                    sig(s.sigma_statistical, 2),
+                    sig(s.sigma_quadrature, 2),
+                    sig(s.sigma_tail, 2)
                 )?;
             }
             Ok(out)

@@ -62,6 +62,8 @@
 pub mod integrate;
 pub mod loops;
 pub mod moves;
+pub mod shard;
+pub mod size;
 
 use std::time::Instant;
 
@@ -169,14 +171,17 @@ impl Combined {
 /// Loop moves are attempted only from this β on.
 const LOOPS_FROM_BETA: f64 = 1.0;
 
-/// What one replica returns.
-struct Run {
+/// What one replica returns: all a merge needs from it.
+#[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Run {
+    /// The replica index (it fixes the random stream).
+    pub replica: usize,
     /// ⟨E⟩ at every node (the β = 0 node filled in exactly).
-    energy: Vec<f64>,
+    pub energy: Vec<f64>,
     /// Loops flipped.
-    flipped: u64,
+    pub flipped: u64,
     /// Loop moves attempted.
-    attempted: u64,
+    pub attempted: u64,
 }
 
 /// SplitMix64 (Steele, Lea & Flood 2014, OOPSLA): a bijective mixer used to derive
@@ -209,107 +214,172 @@ pub fn sample_with(
     on_replica: &(dyn Fn() + Sync),
 ) -> Result<Sampled> {
     let start = Instant::now();
-    if config.replicas < 2 {
-        return Err(Error::Model(
-            "the Monte Carlo needs at least 2 replicas for an error bar".into(),
-        ));
+    let plan = Plan::new(model, config)?;
+    let mut runs = plan.run(0..config.replicas, on_replica);
+    if let Some(target) = config.target_error {
+        while plan.combine(&runs).total() > target
+            && runs.len() + config.replicas <= config.max_replicas
+        {
+            let from = runs.len();
+            runs.extend(plan.run(from..from + config.replicas, on_replica));
+        }
     }
-    if config.nodes < 5 || config.nodes % 4 != 1 {
-        return Err(Error::Model(format!(
-            "quadrature nodes must be 4m + 1 and at least 5, not {}",
-            config.nodes
-        )));
-    }
-    if config.sweeps == 0 {
-        return Err(Error::Model("at least one sweep per node is needed".into()));
-    }
-    let kernel = Kernel::new(model)?;
-    let loops = if config.loops {
-        loops::Loops::new(model)
-    } else {
-        None
-    };
-    let attempts = loops
-        .as_ref()
-        .map_or(0, |_| (model.constraints.len() / 64).max(1));
-    let fractions: Vec<f64> = model
-        .constraints
-        .iter()
-        .map(|c| {
-            let t = &model.tables[c.table];
-            t.allowed as f64 / t.size as f64
-        })
-        .collect();
-    let impossible = model.contradiction.is_some() || fractions.contains(&0.0);
-    let n_c = model.constraints.len().max(1) as f64;
-    let beta_max = config
-        .beta_max
-        .unwrap_or_else(|| (n_c.ln() + 3.0).clamp(5.0, 14.0));
-    if !(beta_max > 0.0 && beta_max.is_finite()) {
-        return Err(Error::Model(format!(
-            "beta_max must be positive, not {beta_max}"
-        )));
-    }
-    let betas = integrate::nodes(beta_max, config.nodes);
-    let last = config.nodes - 1;
-    let reference: Vec<f64> = betas
-        .iter()
-        .map(|&b| {
-            let x = (-b).exp();
-            fractions
-                .iter()
-                .map(|&p| (1.0 - p) * x / (p + (1.0 - p) * x))
-                .sum()
-        })
-        .collect();
+    Ok(plan.finish(&runs, start.elapsed().as_secs_f64()))
+}
 
-    let batch = |from: usize| -> Vec<Run> {
-        (from..from + config.replicas)
+/// A run prepared for one model and one configuration: the compiled moves, the quadrature
+/// nodes and the Pauling reference. Replicas can be run in any ranges (shards) and
+/// finished together; the result depends only on which replicas were run.
+pub struct Plan<'m> {
+    model: &'m Model,
+    config: SampleConfig,
+    kernel: Kernel,
+    loops: Option<loops::Loops>,
+    attempts: usize,
+    betas: Vec<f64>,
+    reference: Vec<f64>,
+    /// Pauling's ln W of the whole cell.
+    ln_pauling: f64,
+    /// The reference integral beyond β_max.
+    ref_tail: f64,
+    beta_max: f64,
+    impossible: bool,
+}
+
+impl<'m> Plan<'m> {
+    /// Check the configuration and compile the model for sampling.
+    pub fn new(model: &'m Model, config: &SampleConfig) -> Result<Plan<'m>> {
+        if config.replicas < 2 {
+            return Err(Error::Model(
+                "the Monte Carlo needs at least 2 replicas for an error bar".into(),
+            ));
+        }
+        if config.nodes < 5 || config.nodes % 4 != 1 {
+            return Err(Error::Model(format!(
+                "quadrature nodes must be 4m + 1 and at least 5, not {}",
+                config.nodes
+            )));
+        }
+        if config.sweeps == 0 {
+            return Err(Error::Model("at least one sweep per node is needed".into()));
+        }
+        let kernel = Kernel::new(model)?;
+        let loops = if config.loops {
+            loops::Loops::new(model)
+        } else {
+            None
+        };
+        let attempts = loops
+            .as_ref()
+            .map_or(0, |_| (model.constraints.len() / 64).max(1));
+        let fractions: Vec<f64> = model
+            .constraints
+            .iter()
+            .map(|c| {
+                let t = &model.tables[c.table];
+                t.allowed as f64 / t.size as f64
+            })
+            .collect();
+        let impossible = model.contradiction.is_some() || fractions.contains(&0.0);
+        let beta_max = config
+            .beta_max
+            .unwrap_or_else(|| default_beta_max(model.constraints.len()));
+        if !(beta_max > 0.0 && beta_max.is_finite()) {
+            return Err(Error::Model(format!(
+                "beta_max must be positive, not {beta_max}"
+            )));
+        }
+        let betas = integrate::nodes(beta_max, config.nodes);
+        let reference: Vec<f64> = betas
+            .iter()
+            .map(|&b| {
+                let x = (-b).exp();
+                fractions
+                    .iter()
+                    .map(|&p| (1.0 - p) * x / (p + (1.0 - p) * x))
+                    .sum()
+            })
+            .collect();
+        let ln_pauling: f64 =
+            model.ln_unconstrained() + fractions.iter().map(|p| p.ln()).sum::<f64>();
+        let ref_tail: f64 = fractions
+            .iter()
+            .map(|&p| (p + (1.0 - p) * (-beta_max).exp()).ln() - p.ln())
+            .sum();
+        Ok(Plan {
+            model,
+            config: config.clone(),
+            kernel,
+            loops,
+            attempts,
+            betas,
+            reference,
+            ln_pauling,
+            ref_tail,
+            beta_max,
+            impossible,
+        })
+    }
+
+    /// The largest β sampled.
+    pub fn beta_max(&self) -> f64 {
+        self.beta_max
+    }
+
+    /// Run the replicas `replicas` in parallel (in the caller's rayon pool), in index order.
+    pub fn run(
+        &self,
+        replicas: std::ops::Range<usize>,
+        on_replica: &(dyn Fn() + Sync),
+    ) -> Vec<Run> {
+        replicas
             .into_par_iter()
             .with_max_len(1)
             .map(|r| {
                 let run = replica(
-                    &kernel,
-                    loops.as_ref(),
-                    attempts,
-                    config,
-                    &betas,
-                    reference[0],
+                    &self.kernel,
+                    self.loops.as_ref(),
+                    self.attempts,
+                    &self.config,
+                    &self.betas,
+                    self.reference[0],
                     r,
                 );
                 on_replica();
                 run
             })
             .collect()
-    };
+    }
 
-    // Pauling's ln W for the whole cell, and the reference integral beyond β_max.
-    let ln_pauling: f64 = model.ln_unconstrained() + fractions.iter().map(|p| p.ln()).sum::<f64>();
-    let ref_tail: f64 = fractions
-        .iter()
-        .map(|&p| (p + (1.0 - p) * (-beta_max).exp()).ln() - p.ln())
-        .sum();
-    let width = beta_max;
-    let integrand = |energy: &[f64]| -> Vec<f64> {
-        energy.iter().zip(&reference).map(|(e, r)| e - r).collect()
-    };
-    let units = model.formula_units;
-    let combine = |runs: &[Run]| -> Combined {
+    /// The integrand ⟨E⟩ − E_ref at every node.
+    fn integrand(&self, energy: &[f64]) -> Vec<f64> {
+        energy
+            .iter()
+            .zip(&self.reference)
+            .map(|(e, r)| e - r)
+            .collect()
+    }
+
+    /// Combine replicas (in the order given).
+    fn combine(&self, runs: &[Run]) -> Combined {
+        let units = self.model.formula_units;
+        let width = self.beta_max;
+        let last = self.config.nodes - 1;
         let per_replica: Vec<f64> = runs
             .iter()
             .map(|run| {
-                let h = integrand(&run.energy);
-                let tail = run.energy[last] / 2.0 - ref_tail;
-                (ln_pauling - integrate::simpson(&h, width) - tail) / units
+                let h = self.integrand(&run.energy);
+                let tail = run.energy[last] / 2.0 - self.ref_tail;
+                (self.ln_pauling - integrate::simpson(&h, width) - tail) / units
             })
             .collect();
         let r = per_replica.len() as f64;
         let mean = per_replica.iter().sum::<f64>() / r;
         let var = per_replica.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (r - 1.0);
-        let mean_energy: Vec<f64> = (0..config.nodes)
+        let mean_energy: Vec<f64> = (0..self.config.nodes)
             .map(|i| runs.iter().map(|run| run.energy[i]).sum::<f64>() / r)
             .collect();
-        let h = integrand(&mean_energy);
+        let h = self.integrand(&mean_energy);
         Combined {
             mean,
             sigma_statistical: (var / r).sqrt(),
@@ -321,69 +391,75 @@ pub fn sample_with(
             per_replica,
             mean_energy,
         }
-    };
-    let mut runs = batch(0);
-    let mut c = combine(&runs);
-    if let Some(target) = config.target_error {
-        while c.total() > target && runs.len() + config.replicas <= config.max_replicas {
-            runs.extend(batch(runs.len()));
-            c = combine(&runs);
+    }
+
+    /// The estimate from the replicas run (at least 2, in replica order), which took
+    /// `seconds` of wall time.
+    pub fn finish(&self, runs: &[Run], seconds: f64) -> Sampled {
+        let config = &self.config;
+        let c = self.combine(runs);
+        let target_reached = config.target_error.map(|t| c.total() <= t);
+        let Combined {
+            mean,
+            sigma_statistical,
+            sigma_quadrature,
+            sigma_tail,
+            per_replica,
+            mean_energy,
+        } = c;
+        let (ln_w, sigma) = if self.impossible {
+            (f64::NEG_INFINITY, 0.0)
+        } else {
+            (mean, sigma_statistical + sigma_quadrature + sigma_tail)
+        };
+        let units = self.model.formula_units;
+        let replicas = runs.len();
+        let sampled_nodes = (config.nodes - 1) as u64;
+        let samples = replicas as u64 * sampled_nodes * config.sweeps as u64;
+        let updates = replicas as u64
+            * sampled_nodes
+            * (config.sweeps + config.equilibration) as u64
+            * self.kernel.variables() as u64;
+        let attempted: u64 = runs.iter().map(|r| r.attempted).sum();
+        Sampled {
+            estimate: Estimate {
+                method: Method::MonteCarlo,
+                cells: Some(self.model.cells.clone()),
+                count: None,
+                ln_count: ln_w * units,
+                formula_units: units,
+                ln_w_per_unit: ln_w,
+                sigma_ln_w: Some(sigma),
+                seconds,
+                peak_states: None,
+            },
+            sigma_statistical,
+            sigma_quadrature,
+            sigma_tail,
+            seed: config.seed,
+            replicas,
+            samples,
+            updates,
+            betas: self.betas.clone(),
+            mean_energy,
+            reference_energy: self.reference.clone(),
+            per_replica,
+            beta_max: self.beta_max,
+            target_reached,
+            loop_attempts_per_sweep: self.attempts,
+            loop_acceptance: if self.attempts == 0 {
+                0.0
+            } else {
+                runs.iter().map(|r| r.flipped).sum::<u64>() as f64 / attempted.max(1) as f64
+            },
         }
     }
-    let target_reached = config.target_error.map(|t| c.total() <= t);
-    let Combined {
-        mean,
-        sigma_statistical,
-        sigma_quadrature,
-        sigma_tail,
-        per_replica,
-        mean_energy,
-    } = c;
-    let (ln_w, sigma) = if impossible {
-        (f64::NEG_INFINITY, 0.0)
-    } else {
-        (mean, sigma_statistical + sigma_quadrature + sigma_tail)
-    };
-    let replicas = runs.len();
-    let sampled_nodes = (config.nodes - 1) as u64;
-    let samples = replicas as u64 * sampled_nodes * config.sweeps as u64;
-    let updates = replicas as u64
-        * sampled_nodes
-        * (config.sweeps + config.equilibration) as u64
-        * kernel.variables() as u64;
-    Ok(Sampled {
-        estimate: Estimate {
-            method: Method::MonteCarlo,
-            cells: Some(model.cells.clone()),
-            count: None,
-            ln_count: ln_w * units,
-            formula_units: units,
-            ln_w_per_unit: ln_w,
-            sigma_ln_w: Some(sigma),
-            seconds: start.elapsed().as_secs_f64(),
-            peak_states: None,
-        },
-        sigma_statistical,
-        sigma_quadrature,
-        sigma_tail,
-        seed: config.seed,
-        replicas,
-        samples,
-        updates,
-        betas,
-        mean_energy,
-        reference_energy: reference,
-        per_replica,
-        beta_max,
-        target_reached,
-        loop_attempts_per_sweep: attempts,
-        loop_acceptance: if attempts == 0 {
-            0.0
-        } else {
-            runs.iter().map(|r| r.flipped).sum::<u64>() as f64
-                / runs.iter().map(|r| r.attempted).sum::<u64>().max(1) as f64
-        },
-    })
+}
+
+/// The default largest β for a model with `constraints` constraints: ln(constraints) + 3,
+/// clamped to [5, 14], so that a handful of violations remain there.
+pub fn default_beta_max(constraints: usize) -> f64 {
+    ((constraints.max(1) as f64).ln() + 3.0).clamp(5.0, 14.0)
 }
 
 /// One replica: anneal from β = 0 up through the nodes, measuring ⟨E⟩ at each. Every
@@ -427,6 +503,7 @@ fn replica(
         energy[i] = sum as f64 / config.sweeps as f64;
     }
     Run {
+        replica: r,
         energy,
         flipped,
         attempted,

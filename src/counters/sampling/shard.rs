@@ -1,0 +1,397 @@
+//! Shards: one Monte Carlo run split into independent parts, run anywhere and merged.
+//!
+//! # What it is for
+//!
+//! A run of R replicas per shard split into N shards is the run of N·R replicas: shard K
+//! (1-based) runs the replicas (K−1)·R … K·R − 1, whose random streams depend only on the
+//! seed and the replica index ([`super::stream`]). Each shard writes a JSON file with the
+//! raw per-replica integrands; [`merge`] checks the parts against each other and combines
+//! them in replica order, so that merging all N shards gives bitwise the numbers of one
+//! run of N·R replicas on one machine.
+//!
+//! # The file
+//!
+//! A [`Shard`] carries everything a merge needs and nothing it must trust: the lattice
+//! file's text (the merge rebuilds the model from it and checks its content hash), the cell,
+//! the settings, the groundcount version, the shard index, the runs, and a checksum
+//! (FNV-1a of the file with the checksum field empty) that detects damaged files.
+//!
+//! # Arguments and returns
+//!
+//! [`run_shard`] runs one shard of a model; [`Shard::to_json`] and [`Shard::from_json`]
+//! write and read it; [`merge`] takes the parts with their file names and returns the
+//! rebuilt lattice, model and the merged [`Sampled`], or an [`Error::Shard`] that names the
+//! file and what is wrong (another lattice, cell, method, setting or version; a shard given
+//! twice; a damaged or truncated file).
+//!
+//! # Complexity
+//!
+//! A shard costs 1/N of the whole run; a merge costs one model build and O(N·R·nodes).
+
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+use serde::{Deserialize, Serialize};
+
+use super::{Plan, Run, SampleConfig, Sampled};
+use crate::Lattice;
+use crate::cluster::{Cells, Cluster};
+use crate::error::{Error, Result};
+use crate::model::Model;
+
+/// The `format` field of every shard file.
+pub const FORMAT: &str = "groundcount Monte Carlo shard, version 1";
+
+/// The one method shards exist for.
+pub const METHOD: &str = "thermodynamic-integration";
+
+/// The settings that must agree between the shards of one run.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Settings {
+    /// Seed of every random stream.
+    pub seed: u64,
+    /// Replicas in every shard.
+    pub replicas_per_shard: usize,
+    /// Measured sweeps per node and replica.
+    pub sweeps: usize,
+    /// Sweeps before measuring at each node.
+    pub equilibration: usize,
+    /// Quadrature nodes.
+    pub nodes: usize,
+    /// Largest β sampled (resolved, never the default marker).
+    pub beta_max: f64,
+    /// Loop moves on.
+    pub loops: bool,
+}
+
+/// One shard of a split run, as written to its file.
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct Shard {
+    /// [`FORMAT`].
+    pub format: String,
+    /// groundcount version that ran the shard.
+    pub version: String,
+    /// [`METHOD`].
+    pub method: String,
+    /// The lattice file as the user named it.
+    pub lattice_file: String,
+    /// FNV-1a hash of the lattice file's text.
+    pub content_hash: String,
+    /// The lattice file's text.
+    pub lattice_text: String,
+    /// The periodic cell, e.g. `8x8x8` (as `--cells` takes it).
+    pub cells: String,
+    /// Settings shared by every shard.
+    pub settings: Settings,
+    /// This shard's index, 1-based.
+    pub shard: usize,
+    /// Shards in the whole run.
+    pub shards: usize,
+    /// Wall time of this shard, s.
+    pub seconds: f64,
+    /// The replicas this shard ran, in index order.
+    pub runs: Vec<Run>,
+    /// FNV-1a of this file's JSON with this field empty.
+    pub checksum: String,
+}
+
+impl Shard {
+    /// The file's text, with its checksum.
+    pub fn to_json(&self) -> String {
+        let mut s = self.clone();
+        s.checksum = String::new();
+        s.checksum = crate::content_hash(&canonical(&s));
+        serde_json::to_string_pretty(&s).expect("a shard serialises") + "\n"
+    }
+
+    /// Read a shard file's text; `path` names it in messages. Checks the format and the
+    /// checksum only; [`merge`] checks the rest.
+    pub fn from_json(text: &str, path: &Path) -> Result<Shard> {
+        let bad = |message: String| Error::Shard {
+            path: path.to_path_buf(),
+            message,
+        };
+        let value: serde_json::Value = serde_json::from_str(text).map_err(|e| {
+            bad(format!(
+                "not a readable shard file (damaged or truncated JSON: {e})"
+            ))
+        })?;
+        if value.get("format").and_then(|f| f.as_str()) != Some(FORMAT) {
+            return Err(bad(format!(
+                "not a groundcount shard file: expected \"format\": \"{FORMAT}\""
+            )));
+        }
+        let shard: Shard = serde_json::from_value(value)
+            .map_err(|e| bad(format!("damaged shard file: {e}")))?;
+        let mut blank = shard.clone();
+        blank.checksum = String::new();
+        if crate::content_hash(&canonical(&blank)) != shard.checksum {
+            return Err(bad(
+                "damaged shard file: its checksum does not match its content (edited or corrupted after it was written)".into(),
+            ));
+        }
+        Ok(shard)
+    }
+}
+
+/// The first setting in which two shards differ: (name, this value, that value).
+fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String, String)> {
+    let pairs: [(&'static str, String, String); 7] = [
+        ("the seed", a.seed.to_string(), b.seed.to_string()),
+        (
+            "the number of replicas per shard",
+            a.replicas_per_shard.to_string(),
+            b.replicas_per_shard.to_string(),
+        ),
+        ("the number of sweeps", a.sweeps.to_string(), b.sweeps.to_string()),
+        (
+            "the number of equilibration sweeps",
+            a.equilibration.to_string(),
+            b.equilibration.to_string(),
+        ),
+        ("the number of quadrature nodes", a.nodes.to_string(), b.nodes.to_string()),
+        ("β_max", a.beta_max.to_string(), b.beta_max.to_string()),
+        ("loop moves", a.loops.to_string(), b.loops.to_string()),
+    ];
+    pairs.into_iter().find(|(_, x, y)| x != y)
+}
+
+/// The text the checksum is taken of.
+fn canonical(s: &Shard) -> String {
+    serde_json::to_string(s).expect("a shard serialises")
+}
+
+/// The sampling configuration a shard's settings stand for.
+fn config_of(settings: &Settings) -> SampleConfig {
+    SampleConfig {
+        seed: settings.seed,
+        replicas: settings.replicas_per_shard,
+        sweeps: settings.sweeps,
+        equilibration: settings.equilibration,
+        nodes: settings.nodes,
+        beta_max: Some(settings.beta_max),
+        loops: settings.loops,
+        target_error: None,
+        max_replicas: settings.replicas_per_shard,
+    }
+}
+
+/// Run shard `shard` (1-based) of `shards` of a model built from `lattice`; `config.replicas`
+/// replicas per shard (`target_error` is not allowed: every shard runs a fixed number).
+pub fn run_shard(
+    lattice: &Lattice,
+    lattice_file: &str,
+    cells: &Cells,
+    model: &Model,
+    config: &SampleConfig,
+    shard: usize,
+    shards: usize,
+    on_replica: &(dyn Fn() + Sync),
+) -> Result<(Shard, Sampled)> {
+    if shards == 0 || shard == 0 || shard > shards {
+        return Err(Error::Setting(format!(
+            "a shard is K/N with 1 ≤ K ≤ N, not {shard}/{shards}"
+        )));
+    }
+    if config.target_error.is_some() {
+        return Err(Error::Setting(
+            "a shard runs a fixed number of replicas: give --replicas, not --target-error".into(),
+        ));
+    }
+    if cells.periodic[..cells.dimensions].iter().any(|p| !p) {
+        return Err(Error::Setting(
+            "shards are for periodic cells only".into(),
+        ));
+    }
+    let start = Instant::now();
+    let plan = Plan::new(model, config)?;
+    let r = config.replicas;
+    let runs = plan.run((shard - 1) * r..shard * r, on_replica);
+    let seconds = start.elapsed().as_secs_f64();
+    let sampled = plan.finish(&runs, seconds);
+    let settings = Settings {
+        seed: config.seed,
+        replicas_per_shard: r,
+        sweeps: config.sweeps,
+        equilibration: config.equilibration,
+        nodes: config.nodes,
+        beta_max: plan.beta_max(),
+        loops: config.loops,
+    };
+    let out = Shard {
+        format: FORMAT.into(),
+        version: env!("CARGO_PKG_VERSION").into(),
+        method: METHOD.into(),
+        lattice_file: lattice_file.into(),
+        content_hash: lattice.content_hash.clone(),
+        lattice_text: lattice.text.clone(),
+        cells: cells.counts[..cells.dimensions]
+            .iter()
+            .map(|n| n.to_string())
+            .collect::<Vec<_>>()
+            .join("x"),
+        settings,
+        shard,
+        shards,
+        seconds,
+        runs,
+        checksum: String::new(),
+    };
+    Ok((out, sampled))
+}
+
+/// Merged shards: the rebuilt lattice and model, and the combined estimate.
+pub struct Merged {
+    /// The lattice, rebuilt from the text the shards carry.
+    pub lattice: Lattice,
+    /// The lattice file as named when the shards ran.
+    pub lattice_file: String,
+    /// The model of the cell.
+    pub model: Model,
+    /// The combined estimate (replicas of every shard, in replica order).
+    pub sampled: Sampled,
+    /// The settings of the run.
+    pub settings: Settings,
+    /// The shard indices merged, sorted.
+    pub present: Vec<usize>,
+    /// Shards in the whole run.
+    pub shards: usize,
+}
+
+/// Check shards against each other and combine them. `parts` pairs every shard with its
+/// file (for messages). Shards of the run that are missing are allowed (the estimate uses
+/// the replicas present; [`Merged::present`] says which); anything inconsistent is refused.
+pub fn merge(parts: &[(PathBuf, Shard)]) -> Result<Merged> {
+    let Some((first_path, first)) = parts.first() else {
+        return Err(Error::Setting("merge needs at least one shard file".into()));
+    };
+    let bad = |path: &Path, message: String| Error::Shard {
+        path: path.to_path_buf(),
+        message,
+    };
+    let mut seen: Vec<(usize, &PathBuf)> = Vec::new();
+    for (path, s) in parts {
+        if s.method != METHOD {
+            return Err(bad(
+                path,
+                format!("method \"{}\", expected \"{METHOD}\"", s.method),
+            ));
+        }
+        let differs = |what: &str, this: String, that: String| {
+            bad(
+                path,
+                format!(
+                    "{what} is {this} but {} has {that}: shards of different runs cannot be merged",
+                    first_path.display()
+                ),
+            )
+        };
+        if s.content_hash != first.content_hash {
+            return Err(differs(
+                "the lattice (content hash)",
+                s.content_hash.clone(),
+                first.content_hash.clone(),
+            ));
+        }
+        if s.cells != first.cells {
+            return Err(differs("the cell", s.cells.clone(), first.cells.clone()));
+        }
+        if s.version != first.version {
+            return Err(differs(
+                "the groundcount version",
+                s.version.clone(),
+                first.version.clone(),
+            ));
+        }
+        if let Some((what, this, that)) = first_difference(&s.settings, &first.settings) {
+            return Err(differs(what, this, that));
+        }
+        if s.shards != first.shards {
+            return Err(differs(
+                "the number of shards",
+                s.shards.to_string(),
+                first.shards.to_string(),
+            ));
+        }
+        if s.shard == 0 || s.shard > s.shards {
+            return Err(bad(
+                path,
+                format!("shard index {} outside 1..{}", s.shard, s.shards),
+            ));
+        }
+        if let Some((_, other)) = seen.iter().find(|(k, _)| *k == s.shard) {
+            return Err(bad(
+                path,
+                format!(
+                    "shard {}/{} is given twice (also {}): merging it twice would count its replicas twice",
+                    s.shard,
+                    s.shards,
+                    other.display()
+                ),
+            ));
+        }
+        seen.push((s.shard, path));
+        let r = s.settings.replicas_per_shard;
+        let expected: Vec<usize> = ((s.shard - 1) * r..s.shard * r).collect();
+        let got: Vec<usize> = s.runs.iter().map(|run| run.replica).collect();
+        if got != expected {
+            return Err(bad(
+                path,
+                format!(
+                    "damaged shard file: shard {} should hold replicas {}..{}",
+                    s.shard,
+                    expected.first().copied().unwrap_or(0),
+                    expected.last().copied().unwrap_or(0)
+                ),
+            ));
+        }
+        for run in &s.runs {
+            if run.energy.len() != s.settings.nodes || run.energy.iter().any(|e| !e.is_finite()) {
+                return Err(bad(
+                    path,
+                    format!(
+                        "damaged shard file: replica {} needs {} finite energies",
+                        run.replica, s.settings.nodes
+                    ),
+                ));
+            }
+        }
+    }
+    if crate::content_hash(&first.lattice_text) != first.content_hash {
+        return Err(bad(
+            first_path,
+            "damaged shard file: the lattice text does not match its content hash".into(),
+        ));
+    }
+    let lattice = Lattice::from_yaml(&first.lattice_text, &first.lattice_file)?;
+    let cells = Cells::parse(&first.cells, None, lattice.crystal.dimensions)?;
+    let cluster = Cluster::new(&lattice.crystal, cells)?;
+    let model = Model::new(&cluster)?;
+    let config = config_of(&first.settings);
+    let plan = Plan::new(&model, &config)?;
+    let mut runs: Vec<Run> = parts
+        .iter()
+        .flat_map(|(_, s)| s.runs.iter().cloned())
+        .collect();
+    runs.sort_by_key(|r| r.replica);
+    if runs.len() < 2 {
+        return Err(bad(
+            first_path,
+            "an error bar needs at least 2 replicas in all".into(),
+        ));
+    }
+    let seconds = parts.iter().map(|(_, s)| s.seconds).sum();
+    let sampled = plan.finish(&runs, seconds);
+    let mut present: Vec<usize> = seen.iter().map(|(k, _)| *k).collect();
+    present.sort_unstable();
+    drop(plan);
+    Ok(Merged {
+        lattice_file: first.lattice_file.clone(),
+        settings: first.settings.clone(),
+        shards: first.shards,
+        lattice,
+        model,
+        sampled,
+        present,
+    })
+}

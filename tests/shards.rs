@@ -1,0 +1,194 @@
+//! Split Monte Carlo runs: shards merged give bitwise the numbers of one run, and `merge`
+//! refuses parts that do not belong together.
+
+use std::path::{Path, PathBuf};
+
+use groundcount::Lattice;
+use groundcount::cluster::{Cells, Cluster};
+use groundcount::counters::sampling::shard::{self, Shard};
+use groundcount::counters::sampling::{self, SampleConfig};
+use groundcount::model::Model;
+
+use crate::util::{lattice, run};
+
+fn config(replicas: usize) -> SampleConfig {
+    SampleConfig {
+        seed: 7,
+        replicas,
+        sweeps: 40,
+        equilibration: 10,
+        nodes: 21,
+        ..SampleConfig::default()
+    }
+}
+
+fn ice_ih() -> (Lattice, Cells, Model) {
+    let l = Lattice::from_file(&lattice("ice-ih.yaml")).unwrap();
+    let cells = Cells::parse("2x1x1", None, 3).unwrap();
+    let model = Model::new(&Cluster::new(&l.crystal, cells.clone()).unwrap()).unwrap();
+    (l, cells, model)
+}
+
+/// Three shards of 3 replicas, written to JSON and read back, merge to exactly the estimate
+/// of one run of 9 replicas (the same replica streams, combined in the same order).
+#[test]
+fn merged_shards_equal_one_run() {
+    let (l, cells, model) = ice_ih();
+    let whole = sampling::sample(&model, &config(9)).unwrap();
+    let parts: Vec<(PathBuf, Shard)> = [2, 3, 1]
+        .iter()
+        .map(|&k| {
+            let (s, _) =
+                shard::run_shard(&l, "ice-ih.yaml", &cells, &model, &config(3), k, 3, &|| {})
+                    .unwrap();
+            let path = PathBuf::from(format!("part{k}.json"));
+            let back = Shard::from_json(&s.to_json(), &path).unwrap();
+            (path, back)
+        })
+        .collect();
+    let merged = shard::merge(&parts).unwrap();
+    assert_eq!(merged.present, vec![1, 2, 3]);
+    let (a, b) = (&whole.estimate, &merged.sampled.estimate);
+    assert_eq!(a.ln_w_per_unit.to_bits(), b.ln_w_per_unit.to_bits());
+    assert_eq!(a.sigma_ln_w.unwrap().to_bits(), b.sigma_ln_w.unwrap().to_bits());
+    assert_eq!(whole.per_replica, merged.sampled.per_replica);
+    assert_eq!(whole.replicas, 9);
+    assert_eq!(merged.sampled.replicas, 9);
+}
+
+fn write_shard(dir: &Path, name: &str, extra: &[&str]) -> PathBuf {
+    let out = dir.join(name);
+    let file = lattice("ice-ih.yaml");
+    let mut args = vec![
+        "sample",
+        file.to_str().unwrap(),
+        "--cells",
+        "2x1x1",
+        "--replicas",
+        "2",
+        "--sweeps",
+        "20",
+        "--nodes",
+        "9",
+        "-q",
+        "--out",
+        out.to_str().unwrap(),
+    ];
+    args.extend_from_slice(extra);
+    let o = run(&args);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    out
+}
+
+fn merge_err(parts: &[&Path]) -> String {
+    let mut args = vec!["merge"];
+    args.extend(parts.iter().map(|p| p.to_str().unwrap()));
+    let o = run(&args);
+    assert_eq!(o.status.code(), Some(1), "merge should refuse {parts:?}");
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+/// The command line: shards merge into the JSON of one run, and every kind of mismatch,
+/// duplicate or damage is refused with the file named and the reason given.
+#[test]
+fn merge_command_combines_and_refuses() {
+    let dir = std::env::temp_dir().join(format!("groundcount-shards-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let p1 = write_shard(&dir, "p1.json", &["--shard", "1/2"]);
+    let p2 = write_shard(&dir, "p2.json", &["--shard", "2/2"]);
+
+    // merged = one run of 4 replicas
+    let o = run(&[
+        "merge",
+        p1.to_str().unwrap(),
+        p2.to_str().unwrap(),
+        "--format",
+        "json",
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let merged: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let file = lattice("ice-ih.yaml");
+    let o = run(&[
+        "sample",
+        file.to_str().unwrap(),
+        "--cells",
+        "2x1x1",
+        "--replicas",
+        "4",
+        "--sweeps",
+        "20",
+        "--nodes",
+        "9",
+        "--format",
+        "json",
+    ]);
+    let whole: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(merged["w_per_unit"], whole["w_per_unit"]);
+    assert_eq!(merged["uncertainty"], whole["uncertainty"]);
+    assert_eq!(merged["replicas"], 4);
+    assert_eq!(merged["shards_merged"], serde_json::json!([1, 2]));
+
+    // the same shard twice
+    let e = merge_err(&[&p1, &p1]);
+    assert!(e.contains("given twice"), "{e}");
+    // another seed
+    let q2 = write_shard(&dir, "q2.json", &["--shard", "2/2", "--seed", "9"]);
+    let e = merge_err(&[&p1, &q2]);
+    assert!(e.contains("q2.json") && e.contains("seed is 9"), "{e}");
+    // another lattice
+    let other = lattice("ice-ic.yaml");
+    let o = run(&[
+        "sample",
+        other.to_str().unwrap(),
+        "--cells",
+        "1x1x1",
+        "--replicas",
+        "2",
+        "--sweeps",
+        "20",
+        "--nodes",
+        "9",
+        "-q",
+        "--shard",
+        "2/2",
+        "--out",
+        dir.join("ic.json").to_str().unwrap(),
+    ]);
+    assert!(o.status.success());
+    let e = merge_err(&[&p1, &dir.join("ic.json")]);
+    assert!(e.contains("content hash"), "{e}");
+    // an edited number
+    let text = std::fs::read_to_string(&p2).unwrap();
+    let edited = dir.join("edited.json");
+    let from = text.find("\"energy\": [").unwrap() + 40;
+    let at = from + text[from..].find(|c: char| c.is_ascii_digit()).unwrap();
+    let mut bytes = text.into_bytes();
+    bytes[at] = if bytes[at] == b'1' { b'2' } else { b'1' };
+    std::fs::write(&edited, &bytes).unwrap();
+    let e = merge_err(&[&p1, &edited]);
+    assert!(e.contains("edited.json") && e.contains("checksum"), "{e}");
+    // a truncated file
+    let cut = dir.join("cut.json");
+    std::fs::write(&cut, &bytes[..bytes.len() / 2]).unwrap();
+    let e = merge_err(&[&p1, &cut]);
+    assert!(e.contains("cut.json") && e.contains("truncated"), "{e}");
+    // not a shard at all
+    let e = merge_err(&[&file]);
+    assert!(e.contains("not a readable shard file"), "{e}");
+    // --shard without --out, and a bad K/N
+    let o = run(&["sample", file.to_str().unwrap(), "--cells", "2x1x1", "--shard", "1/2"]);
+    assert_eq!(o.status.code(), Some(1));
+    let o = run(&[
+        "sample",
+        file.to_str().unwrap(),
+        "--cells",
+        "2x1x1",
+        "--shard",
+        "3/2",
+        "--out",
+        dir.join("x.json").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("K/N"));
+    std::fs::remove_dir_all(&dir).ok();
+}
