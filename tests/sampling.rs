@@ -297,3 +297,98 @@ fn finite_size_extrapolation_reaches_the_infinite_square_ice() {
     let largest = v["cells_sampled"][3]["s_over_r"].as_f64().unwrap();
     assert!(largest > exact);
 }
+
+fn wl(
+    file: &str,
+    cells: &str,
+    seed: u64,
+    replicas: usize,
+    sweeps: u64,
+) -> sampling::wang_landau::WangLandau {
+    wl_with(file, cells, seed, replicas, sweeps, 20_000)
+}
+
+fn wl_with(
+    file: &str,
+    cells: &str,
+    seed: u64,
+    replicas: usize,
+    sweeps: u64,
+    uniform: usize,
+) -> sampling::wang_landau::WangLandau {
+    let m = model(file, cells);
+    let config = sampling::wang_landau::WangLandauConfig {
+        seed,
+        replicas,
+        sweeps,
+        uniform,
+    };
+    sampling::wang_landau::wang_landau(&m, &config).unwrap()
+}
+
+fn exact_ln_w(file: &str, cells: &str) -> f64 {
+    let m = model(file, cells);
+    exact::count(&m, &ExactConfig::default())
+        .unwrap()
+        .ln_w_per_unit
+}
+
+/// The second Monte Carlo method (Wang–Landau 1/t, then multicanonical production) against the exact frontier counter on
+/// cells it can do, within 4σ, with σ small enough to mean something.
+#[test]
+fn wang_landau_agrees_with_the_exact_count() {
+    for (file, cells, max_sigma) in [
+        ("ice-ih.yaml", "2x2x2", 0.004),
+        ("ice-ih.yaml", "3x2x2", 0.004),
+        ("square-ice.yaml", "4x4", 0.004),
+        ("triangular-afm.yaml", "6x6", 0.003),
+        ("spin-ice.yaml", "1x1x1", 0.01),
+    ] {
+        let w = wl(file, cells, 3, 8, 40_000);
+        let exact = exact_ln_w(file, cells);
+        let (s, sigma) = (w.estimate.ln_w_per_unit, w.estimate.sigma_ln_w.unwrap());
+        assert!(
+            sigma > 0.0 && sigma < max_sigma,
+            "{file} {cells}: σ = {sigma}"
+        );
+        assert!(
+            (s - exact).abs() < 4.0 * sigma,
+            "{file} {cells}: Wang–Landau {s} ± {sigma} against exact {exact}"
+        );
+    }
+}
+
+/// The two Monte Carlo methods agree with each other on a cell beyond the exact counter's
+/// default state budget (ice Ic 2x2x2, 64 molecules) within 4 combined σ.
+#[test]
+fn wang_landau_and_thermodynamic_integration_agree() {
+    let m = model("ice-ic.yaml", "2x2x2");
+    let ti = sampling::sample(&m, &config(4, 16, 400)).unwrap();
+    let w = wl("ice-ic.yaml", "2x2x2", 4, 8, 40_000);
+    let (a, sa) = (ti.estimate.ln_w_per_unit, ti.estimate.sigma_ln_w.unwrap());
+    let (b, sb) = (w.estimate.ln_w_per_unit, w.estimate.sigma_ln_w.unwrap());
+    assert!(
+        (a - b).abs() < 4.0 * sa.hypot(sb),
+        "integration {a} ± {sa}, Wang–Landau {b} ± {sb}"
+    );
+}
+
+/// The multicanonical production's error falls as 1/√t, and the binomial error of the
+/// window fraction as 1/√(uniform samples): 16 times more of both give a spread of the
+/// replicas about 4 times smaller (accepted between 2 and 8: the spread of 16 walks is
+/// itself uncertain by ~20 %).
+#[test]
+fn wang_landau_error_falls_as_one_over_root_time() {
+    let short = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 20_000, 20_000);
+    let long = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 320_000, 320_000);
+    let ratio = short.estimate.sigma_ln_w.unwrap() / long.estimate.sigma_ln_w.unwrap();
+    assert!((2.0..8.0).contains(&ratio), "σ ratio {ratio}");
+}
+
+/// The same seed gives bitwise the same Wang–Landau numbers on 1 and 2 threads.
+#[test]
+fn wang_landau_reproduces_on_any_thread_count() {
+    let one = in_pool(1, || wl("square-ice.yaml", "4x4", 8, 4, 2_000));
+    let two = in_pool(2, || wl("square-ice.yaml", "4x4", 8, 4, 2_000));
+    assert_eq!(one.per_replica, two.per_replica);
+}

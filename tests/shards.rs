@@ -38,9 +38,16 @@ fn merged_shards_equal_one_run() {
     let parts: Vec<(PathBuf, Shard)> = [2, 3, 1]
         .iter()
         .map(|&k| {
-            let (s, _) =
-                shard::run_shard(&l, "ice-ih.yaml", &cells, &model, &config(3), k, 3, &|| {})
-                    .unwrap();
+            let (s, _) = shard::run_shard(
+                &l,
+                "ice-ih.yaml",
+                &cells,
+                &model,
+                &config(3),
+                (k, 3),
+                &|| {},
+            )
+            .unwrap();
             let path = PathBuf::from(format!("part{k}.json"));
             let back = Shard::from_json(&s.to_json(), &path).unwrap();
             (path, back)
@@ -50,7 +57,10 @@ fn merged_shards_equal_one_run() {
     assert_eq!(merged.present, vec![1, 2, 3]);
     let (a, b) = (&whole.estimate, &merged.sampled.estimate);
     assert_eq!(a.ln_w_per_unit.to_bits(), b.ln_w_per_unit.to_bits());
-    assert_eq!(a.sigma_ln_w.unwrap().to_bits(), b.sigma_ln_w.unwrap().to_bits());
+    assert_eq!(
+        a.sigma_ln_w.unwrap().to_bits(),
+        b.sigma_ln_w.unwrap().to_bits()
+    );
     assert_eq!(whole.per_replica, merged.sampled.per_replica);
     assert_eq!(whole.replicas, 9);
     assert_eq!(merged.sampled.replicas, 9);
@@ -176,7 +186,14 @@ fn merge_command_combines_and_refuses() {
     let e = merge_err(&[&file]);
     assert!(e.contains("not a readable shard file"), "{e}");
     // --shard without --out, and a bad K/N
-    let o = run(&["sample", file.to_str().unwrap(), "--cells", "2x1x1", "--shard", "1/2"]);
+    let o = run(&[
+        "sample",
+        file.to_str().unwrap(),
+        "--cells",
+        "2x1x1",
+        "--shard",
+        "1/2",
+    ]);
     assert_eq!(o.status.code(), Some(1));
     let o = run(&[
         "sample",

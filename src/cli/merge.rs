@@ -21,9 +21,8 @@ pub struct Args {
 pub fn run(args: Args) -> anyhow::Result<String> {
     let mut parts = Vec::with_capacity(args.parts.len());
     for path in &args.parts {
-        let text = std::fs::read_to_string(path).map_err(|e| {
-            anyhow::anyhow!("{}: cannot read the shard file: {e}", path.display())
-        })?;
+        let text = std::fs::read_to_string(path)
+            .map_err(|e| anyhow::anyhow!("{}: cannot read the shard file: {e}", path.display()))?;
         parts.push((path.clone(), Shard::from_json(&text, path)?));
     }
     let merged = with_threads(args.common.threads, || shard::merge(&parts))??;

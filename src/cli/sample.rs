@@ -8,8 +8,8 @@ use std::path::PathBuf;
 
 use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
-use groundcount::counters::sampling::{self, Sampled, shard, size};
 use groundcount::counters::pauling;
+use groundcount::counters::sampling::{self, Sampled, shard, size, wang_landau};
 use groundcount::model::Model;
 use groundcount::report::{self, sig};
 
@@ -27,9 +27,19 @@ pub struct Args {
     /// Seed of the random streams; the same seed gives the same numbers on any thread count.
     #[arg(long, default_value_t = 1)]
     seed: u64,
-    /// Measured sweeps per quadrature node and replica.
-    #[arg(long, default_value_t = 200)]
-    sweeps: usize,
+    /// The sampler: thermodynamic integration (default), or Wang–Landau with a
+    /// multicanonical production stage, an independent cross-check on small cells.
+    #[arg(long, value_enum, default_value_t = Sampler::Integration)]
+    method: Sampler,
+    /// Measured sweeps per quadrature node and replica (default 200); with
+    /// `--method wang-landau`, the sweeps of each walk's Wang–Landau stage and again of
+    /// its production (default 100000).
+    #[arg(long)]
+    sweeps: Option<usize>,
+    /// With `--method wang-landau`: uniform random assignments per replica that fix the
+    /// normalisation of the energy window.
+    #[arg(long, default_value_t = 20_000)]
+    uniform: usize,
     /// Equilibration sweeps per node (default: a quarter of --sweeps).
     #[arg(long)]
     equilibration: Option<usize>,
@@ -76,11 +86,15 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     {
         anyhow::bail!("--target-error must be a positive number, not {t}");
     }
+    if args.method == Sampler::WangLandau {
+        return run_wang_landau(&args, &lattice, &sizes);
+    }
+    let sweeps = args.sweeps.unwrap_or(200);
     let config = sampling::SampleConfig {
         seed: args.seed,
         replicas: args.replicas,
-        sweeps: args.sweeps,
-        equilibration: args.equilibration.unwrap_or(args.sweeps / 4),
+        sweeps,
+        equilibration: args.equilibration.unwrap_or(sweeps / 4),
         nodes: args.nodes,
         beta_max: args.beta_max,
         loops: !args.no_loops,
@@ -117,6 +131,16 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     render_sizes(args.common.format, &lattice, &shown, &results)
 }
 
+/// The Monte Carlo method of `sample`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum Sampler {
+    /// Thermodynamic integration over inverse temperature.
+    Integration,
+    /// Wang–Landau (1/t) sampling of the density of states of the violation count, then
+    /// multicanonical production.
+    WangLandau,
+}
+
 /// What the output shows besides the results.
 pub(super) struct Shown {
     /// The lattice file as named.
@@ -127,6 +151,89 @@ pub(super) struct Shown {
     pub target_error: Option<f64>,
     /// --max-replicas.
     pub max_replicas: usize,
+}
+
+/// `sample --method wang-landau`: one cell, no shards or targets.
+fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::Result<String> {
+    if sizes.len() > 1 || args.shard.is_some() || args.target_error.is_some() {
+        anyhow::bail!(
+            "--method wang-landau runs one cell with a fixed length: no several --cells, --shard or --target-error"
+        );
+    }
+    let c = &lattice.crystal;
+    let cluster = Cluster::new(c, sizes[0].clone())?;
+    let model = Model::new(&cluster)?;
+    let config = wang_landau::WangLandauConfig {
+        seed: args.seed,
+        replicas: args.replicas,
+        sweeps: args.sweeps.unwrap_or(100_000) as u64,
+        uniform: args.uniform,
+    };
+    if args.common.progress() {
+        eprintln!(
+            "Wang–Landau on {} ({} variables): {} walks of {} sweeps…",
+            model.cells,
+            model.variables.len(),
+            config.replicas,
+            config.sweeps
+        );
+    }
+    let w = with_threads(args.common.threads, || {
+        wang_landau::wang_landau(&model, &config)
+    })??;
+    let p = pauling::estimate(c)?;
+    let e = &w.estimate;
+    let unit = &c.formula_unit.name;
+    match args.common.format {
+        Format::Json => {
+            let mut v = report::estimate_json(c, e, Some(&p));
+            v["algorithm"] = "wang-landau".into();
+            v["seed"] = w.seed.into();
+            v["replicas"] = w.replicas.into();
+            v["sweeps"] = w.sweeps.into();
+            v["energy_window"] = w.window.into();
+            v["window_fraction"] = w.fraction.into();
+            v["levels_visited"] = w.levels.into();
+            v["per_replica_ln_w_per_unit"] = w.per_replica.clone().into();
+            v["variables"] = model.variables.len().into();
+            v["constraints"] = model.constraints.len().into();
+            v["content_hash"] = lattice.content_hash.clone().into();
+            Ok(serde_json::to_string_pretty(&v)? + "\n")
+        }
+        Format::Csv => Ok(report::comparison_table(&[p, e.clone()], unit).render_csv()),
+        Format::Markdown => Ok(report::comparison_table(&[p, e.clone()], unit).render_markdown()),
+        Format::Table => {
+            let mut out = cell_header(c, &args.file, e, &model);
+            writeln!(out)?;
+            writeln!(out, "W per {unit:<15} {}", pm(e.w_per_unit(), e.sigma_w()))?;
+            writeln!(
+                out,
+                "S0/R per {unit:<12} {}",
+                pm(e.s_over_r(), e.sigma_ln_w)
+            )?;
+            writeln!(
+                out,
+                "S0                    {} J/(mol K) per mole of {unit}",
+                pm(e.s_j_per_mol_k(), e.sigma_s_j_per_mol_k())
+            )?;
+            out += &pauling_line(&p, unit);
+            writeln!(out)?;
+            writeln!(
+                out,
+                "Wang–Landau (1/t schedule) then multicanonical production, seed {}, {} walks of {} + {} sweeps, energy window E ≤ {} violated constraints \
+                 (a fraction {} of uniform assignments), {} energies visited, {} s; σ is the standard error of the walks' mean",
+                w.seed,
+                w.replicas,
+                w.sweeps,
+                w.sweeps,
+                w.window,
+                sig(w.fraction, 4),
+                w.levels,
+                sig(e.seconds, 3)
+            )?;
+            Ok(out)
+        }
+    }
 }
 
 /// `K/N` with 1 ≤ K ≤ N.
@@ -209,7 +316,15 @@ fn run_shard(
         }
     };
     let (part, s) = with_threads(args.common.threads, || {
-        shard::run_shard(lattice, &shown.file, cells, &model, config, k, n, &on_replica)
+        shard::run_shard(
+            lattice,
+            &shown.file,
+            cells,
+            &model,
+            config,
+            (k, n),
+            &on_replica,
+        )
     })??;
     if let Some(b) = &bar {
         b.finish_and_clear();
@@ -360,15 +475,11 @@ fn diagnostics(s: &Sampled, shown: &Shown) -> String {
 }
 
 /// The JSON document of one sampled cell.
-fn sampled_json(
-    lattice: &Lattice,
-    model: &Model,
-    s: &Sampled,
-    shown: &Shown,
-) -> serde_json::Value {
+fn sampled_json(lattice: &Lattice, model: &Model, s: &Sampled, shown: &Shown) -> serde_json::Value {
     let c = &lattice.crystal;
     let p = pauling::estimate(c).ok();
     let mut v = report::estimate_json(c, &s.estimate, p.as_ref());
+    v["algorithm"] = "thermodynamic-integration".into();
     v["seed"] = s.seed.into();
     v["samples"] = s.samples.into();
     v["replicas"] = s.replicas.into();
@@ -470,7 +581,11 @@ fn render_sizes(
                 results.len(),
                 sig(fit.chi2, 3),
                 fit.dof,
-                if fit.dof > 0 { "; σ scaled by √(χ²/dof) when above 1" } else { "" }
+                if fit.dof > 0 {
+                    "; σ scaled by √(χ²/dof) when above 1"
+                } else {
+                    ""
+                }
             )?;
             if let Some((v2, s2)) = fit.two_term {
                 writeln!(

@@ -64,6 +64,7 @@ pub mod loops;
 pub mod moves;
 pub mod shard;
 pub mod size;
+pub mod wang_landau;
 
 use std::time::Instant;
 

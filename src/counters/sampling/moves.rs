@@ -103,6 +103,11 @@ impl Kernel {
         self.states.len()
     }
 
+    /// Number of states of variable `v`.
+    pub fn states(&self, v: usize) -> usize {
+        self.states[v] as usize
+    }
+
     #[inline]
     fn violated(&self, c: u32, index: u32) -> i32 {
         let b = self.table_offset[c as usize] + index as u64;
@@ -185,6 +190,37 @@ impl Chain {
         }
         self.values[v] ^= 1;
         self.energy = (self.energy as i64 + de as i64) as u64;
+    }
+
+    /// The change in the number of violated constraints if variable `v` took value `x`.
+    pub fn delta(&self, k: &Kernel, v: usize, x: u8) -> i32 {
+        let now = self.values[v] as i64;
+        let mut d = 0i32;
+        for &(c, s) in k.touches(v) {
+            let i = self.index[c as usize];
+            let j = (i as i64 + (x as i64 - now) * s as i64) as u32;
+            d += k.violated(c, j) - k.violated(c, i);
+        }
+        d
+    }
+
+    /// Give variable `v` value `x`, whose energy change `de` is known ([`Chain::delta`]).
+    pub fn assign(&mut self, k: &Kernel, v: usize, x: u8, de: i32) {
+        let now = self.values[v] as i64;
+        for &(c, s) in k.touches(v) {
+            let i = &mut self.index[c as usize];
+            *i = (*i as i64 + (x as i64 - now) * s as i64) as u32;
+        }
+        self.values[v] = x;
+        self.energy = (self.energy as i64 + de as i64) as u64;
+    }
+
+    /// Draw a fresh uniformly random assignment (from the chain's own stream).
+    pub fn randomise(&mut self, k: &Kernel) {
+        for v in 0..k.variables() {
+            self.values[v] = (self.rng.next_u64() % k.states[v] as u64) as u8;
+        }
+        self.recompute(k);
     }
 
     /// Rebuild the indices and the energy from the values.

@@ -121,8 +121,8 @@ impl Shard {
                 "not a groundcount shard file: expected \"format\": \"{FORMAT}\""
             )));
         }
-        let shard: Shard = serde_json::from_value(value)
-            .map_err(|e| bad(format!("damaged shard file: {e}")))?;
+        let shard: Shard =
+            serde_json::from_value(value).map_err(|e| bad(format!("damaged shard file: {e}")))?;
         let mut blank = shard.clone();
         blank.checksum = String::new();
         if crate::content_hash(&canonical(&blank)) != shard.checksum {
@@ -143,13 +143,21 @@ fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String,
             a.replicas_per_shard.to_string(),
             b.replicas_per_shard.to_string(),
         ),
-        ("the number of sweeps", a.sweeps.to_string(), b.sweeps.to_string()),
+        (
+            "the number of sweeps",
+            a.sweeps.to_string(),
+            b.sweeps.to_string(),
+        ),
         (
             "the number of equilibration sweeps",
             a.equilibration.to_string(),
             b.equilibration.to_string(),
         ),
-        ("the number of quadrature nodes", a.nodes.to_string(), b.nodes.to_string()),
+        (
+            "the number of quadrature nodes",
+            a.nodes.to_string(),
+            b.nodes.to_string(),
+        ),
         ("β_max", a.beta_max.to_string(), b.beta_max.to_string()),
         ("loop moves", a.loops.to_string(), b.loops.to_string()),
     ];
@@ -176,7 +184,7 @@ fn config_of(settings: &Settings) -> SampleConfig {
     }
 }
 
-/// Run shard `shard` (1-based) of `shards` of a model built from `lattice`; `config.replicas`
+/// Run shard `shard` (1-based) of `shards` (the pair `(shard, shards)`) of a model built from `lattice`; `config.replicas`
 /// replicas per shard (`target_error` is not allowed: every shard runs a fixed number).
 pub fn run_shard(
     lattice: &Lattice,
@@ -184,8 +192,7 @@ pub fn run_shard(
     cells: &Cells,
     model: &Model,
     config: &SampleConfig,
-    shard: usize,
-    shards: usize,
+    (shard, shards): (usize, usize),
     on_replica: &(dyn Fn() + Sync),
 ) -> Result<(Shard, Sampled)> {
     if shards == 0 || shard == 0 || shard > shards {
@@ -199,9 +206,7 @@ pub fn run_shard(
         ));
     }
     if cells.periodic[..cells.dimensions].iter().any(|p| !p) {
-        return Err(Error::Setting(
-            "shards are for periodic cells only".into(),
-        ));
+        return Err(Error::Setting("shards are for periodic cells only".into()));
     }
     let start = Instant::now();
     let plan = Plan::new(model, config)?;

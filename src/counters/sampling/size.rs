@@ -71,9 +71,7 @@ fn wls(points: &[SizePoint], basis: &[fn(f64) -> f64]) -> Result<(Vec<f64>, Vec<
         }
     }
     let inv = invert(a).ok_or_else(|| {
-        Error::Setting(
-            "the finite-size fit is singular: give cells of different sizes".into(),
-        )
+        Error::Setting("the finite-size fit is singular: give cells of different sizes".into())
     })?;
     let coef: Vec<f64> = (0..k)
         .map(|i| (0..k).map(|j| inv[i][j] * rhs[j]).sum())
@@ -214,7 +212,12 @@ mod tests {
             let d = (extrapolate(&q).unwrap().value - fit.value) / 1e-6;
             var += (d * 1e-4).powi(2);
         }
-        assert!((fit.sigma - var.sqrt()).abs() < 1e-5 * var.sqrt(), "{} {}", fit.sigma, var.sqrt());
+        assert!(
+            (fit.sigma - var.sqrt()).abs() < 1e-5 * var.sqrt(),
+            "{} {}",
+            fit.sigma,
+            var.sqrt()
+        );
     }
 
     #[test]
