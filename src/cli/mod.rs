@@ -1,6 +1,7 @@
 //! Command-line layer: flag definitions, output format, exit codes. One file per command.
 //!
-//! Exit codes: 0 success; 1 usage or input error; 2 a budget (states or time) was exceeded.
+//! Exit codes: 0 success; 1 usage or input error; 2 a budget (states or time) was exceeded
+//! or an iteration did not converge.
 
 mod estimate;
 mod exact;
@@ -206,7 +207,9 @@ pub fn run() -> i32 {
         Err(e) => {
             eprintln!("error: {e:#}");
             match e.downcast_ref::<Error>() {
-                Some(Error::Budget { .. } | Error::Deadline { .. }) => 2,
+                Some(
+                    Error::Budget { .. } | Error::Deadline { .. } | Error::NotConverged { .. },
+                ) => 2,
                 _ => 1,
             }
         }
