@@ -87,6 +87,11 @@ impl Kernel {
         }
         start.push(touches.len() as u32);
         let binary = states.iter().all(|&q| q == 2);
+        if bits.len() as u64 * 64 > u32::MAX as u64 {
+            return Err(Error::Model(
+                "the rule tables are too large for the sampler (more than 2^32 bits)".into(),
+            ));
+        }
         Ok(Kernel {
             states,
             start,
@@ -108,9 +113,9 @@ impl Kernel {
         self.states[v] as usize
     }
 
+    /// 1 when the table bit at absolute position `b` (table offset + index) forbids.
     #[inline]
-    fn violated(&self, c: u32, index: u32) -> i32 {
-        let b = self.table_offset[c as usize] + index as u64;
+    fn violated(&self, b: u32) -> i32 {
         1 - ((self.bits[(b >> 6) as usize] >> (b & 63)) & 1) as i32
     }
 
@@ -142,7 +147,8 @@ impl Kernel {
 pub struct Chain {
     /// Value of every variable.
     pub values: Vec<u8>,
-    /// Current table index of every constraint.
+    /// Current position of every constraint in the concatenated tables: its table's bit
+    /// offset plus its table index (one array read per touched constraint in the hot loop).
     index: Vec<u32>,
     /// Number of violated constraints.
     energy: u64,
@@ -175,7 +181,7 @@ impl Chain {
         for &(c, s) in k.touches(v) {
             let i = self.index[c as usize];
             let j = if up { i + s } else { i - s };
-            de += k.violated(c, j) - k.violated(c, i);
+            de += k.violated(j) - k.violated(i);
         }
         de
     }
@@ -199,7 +205,7 @@ impl Chain {
         for &(c, s) in k.touches(v) {
             let i = self.index[c as usize];
             let j = (i as i64 + (x as i64 - now) * s as i64) as u32;
-            d += k.violated(c, j) - k.violated(c, i);
+            d += k.violated(j) - k.violated(i);
         }
         d
     }
@@ -225,15 +231,16 @@ impl Chain {
 
     /// Rebuild the indices and the energy from the values.
     pub fn recompute(&mut self, k: &Kernel) {
-        self.index.iter_mut().for_each(|i| *i = 0);
+        self.index
+            .iter_mut()
+            .zip(&k.table_offset)
+            .for_each(|(i, &o)| *i = o as u32);
         for v in 0..k.variables() {
             for &(c, s) in k.touches(v) {
                 self.index[c as usize] += s * self.values[v] as u32;
             }
         }
-        self.energy = (0..self.index.len())
-            .map(|c| k.violated(c as u32, self.index[c]) as u64)
-            .sum();
+        self.energy = self.index.iter().map(|&b| k.violated(b) as u64).sum();
     }
 
     /// One heat-bath sweep over all variables at inverse temperature `beta`.
@@ -284,7 +291,7 @@ impl Chain {
                     for &(c, s) in k.touches(v) {
                         let i = self.index[c as usize];
                         let j = (i as i64 + (x as i64 - now) * s as i64) as u32;
-                        d += k.violated(c, j) - k.violated(c, i);
+                        d += k.violated(j) - k.violated(i);
                     }
                 }
                 de[x] = d;
