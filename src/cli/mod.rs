@@ -2,6 +2,7 @@
 //!
 //! Exit codes: 0 success; 1 usage or input error; 2 a budget (states or time) was exceeded.
 
+mod calorimetry;
 mod estimate;
 mod exact;
 mod inspect;
@@ -37,6 +38,8 @@ enum Command {
     Strip(strip::Args),
     /// Run the counters that suit the lattice and write a citable report to a directory.
     Report(report::Args),
+    /// Third-law entropy from measured heat capacities, and the residual entropy it implies.
+    Calorimetry(calorimetry::Args),
 }
 
 /// Output format shared by every command.
@@ -193,6 +196,7 @@ pub fn run() -> i32 {
         Command::Sample(a) => sample::run(a),
         Command::Strip(a) => strip::run(a),
         Command::Report(a) => report::run(a),
+        Command::Calorimetry(a) => calorimetry::run(a),
     };
     match result {
         Ok(text) => {
