@@ -110,7 +110,7 @@ impl Interpolant {
             + h * self.end[k] * (s4 / 4.0 - s3 / 3.0))
     }
 
-    /// ∫ Cp d(ln T) from the first point to each point: `out[i]` for point i (out[0] = 0).
+    /// ∫ Cp d(ln T) from the first point to each point: `out[i]` for point i (`out[0]` = 0).
     pub fn cumulative(&self) -> Vec<f64> {
         let mut out = vec![0.0; self.u.len()];
         for k in 0..self.u.len() - 1 {
