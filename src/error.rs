@@ -55,6 +55,17 @@ pub enum Error {
         /// What is wrong and what was expected.
         message: String,
     },
+    /// A heat-capacity data file that cannot be used (a bad cell, unsorted temperatures, too
+    /// few points); `line` is 0 when the problem is the file as a whole.
+    #[error("{}: {message}", data_located(path, *line))]
+    Data {
+        /// The file.
+        path: PathBuf,
+        /// 1-based line of the offending row; 0 for the whole file.
+        line: u64,
+        /// What is wrong and what was expected.
+        message: String,
+    },
     /// A cell size or boundary option that cannot be used.
     #[error("{0}")]
     Cells(String),
@@ -106,6 +117,14 @@ fn located(path: &std::path::Path, position: Position) -> String {
     match position.known() {
         Some(p) => format!("{}:{}:{}", path.display(), p.line, p.column),
         None => path.display().to_string(),
+    }
+}
+
+fn data_located(path: &std::path::Path, line: u64) -> String {
+    if line > 0 {
+        format!("{}:{line}", path.display())
+    } else {
+        path.display().to_string()
     }
 }
 

@@ -34,6 +34,7 @@
 //! assert_eq!(exact.count.unwrap().to_string(), "148"); // OEIS A054759
 //! ```
 
+pub mod calorimetry;
 pub mod cluster;
 pub mod counters;
 pub mod crystal;

@@ -2,6 +2,7 @@
 
 mod util;
 
+mod calorimetry;
 mod cli_errors;
 mod counts;
 mod estimate;

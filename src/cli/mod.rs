@@ -3,6 +3,7 @@
 //! Exit codes: 0 success; 1 usage or input error; 2 a budget (states or time) was exceeded
 //! or an iteration did not converge.
 
+mod calorimetry;
 mod estimate;
 mod exact;
 mod inspect;
@@ -41,6 +42,8 @@ enum Command {
     Strip(strip::Args),
     /// Run the counters that suit the lattice and write a citable report to a directory.
     Report(report::Args),
+    /// Third-law entropy from measured heat capacities, and the residual entropy it implies.
+    Calorimetry(calorimetry::Args),
 }
 
 /// Output format shared by every command.
@@ -198,6 +201,7 @@ pub fn run() -> i32 {
         Command::Merge(a) => merge::run(a),
         Command::Strip(a) => strip::run(a),
         Command::Report(a) => report::run(a),
+        Command::Calorimetry(a) => calorimetry::run(a),
     };
     match result {
         Ok(text) => {

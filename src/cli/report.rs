@@ -4,11 +4,12 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
+use groundcount::calorimetry::ThirdLaw;
 use groundcount::cluster::Cells;
 use groundcount::counters::exact;
 use groundcount::report::Table;
 use groundcount::survey::{SurveyConfig, survey};
-use groundcount::writeup::{Meta, Writeup};
+use groundcount::writeup::{Comparison, Meta, Writeup};
 use serde_json::json;
 
 use super::{Common, Format, load, shown, with_threads};
@@ -44,6 +45,12 @@ pub struct Args {
     /// Measured Monte Carlo sweeps per quadrature node and replica.
     #[arg(long)]
     sweeps: Option<usize>,
+    /// Heat-capacity data (CSV, as for `groundcount calorimetry`) for the calorimetric
+    /// comparison; needs --statistical.
+    #[arg(long, value_name = "DATA.csv")]
+    calorimetry: Option<PathBuf>,
+    #[command(flatten)]
+    calorimetric: super::calorimetry::Options,
     #[command(flatten)]
     common: Common,
 }
@@ -103,6 +110,26 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         }
         config.sample.sweeps = s;
     }
+    let comparison = match &args.calorimetry {
+        Some(data) => {
+            if !args.calorimetric.has_statistical() {
+                anyhow::bail!(
+                    "--calorimetry needs --statistical S±σ (the statistical entropy in J/(mol K) \
+                     at the comparison temperature)"
+                );
+            }
+            let r = super::calorimetry::analyse(data, &args.calorimetric)?;
+            Some(comparison(&r, data))
+        }
+        None => {
+            if args.calorimetric.is_used() {
+                anyhow::bail!(
+                    "--statistical, --transition, --low-t and --to need --calorimetry DATA.csv"
+                );
+            }
+            None
+        }
+    };
     std::fs::create_dir_all(&args.out).map_err(|e| {
         anyhow::anyhow!(
             "cannot create the output directory {}: {e}",
@@ -119,7 +146,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         date: today(),
         file: shown(&args.file),
     };
-    let w = Writeup::new(&lattice, &s, meta, None);
+    let w = Writeup::new(&lattice, &s, meta, comparison);
     let mut files: Vec<(String, String)> = vec![
         ("report.md".into(), w.markdown()),
         (
@@ -158,6 +185,27 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             writeln!(out, "{}", w.sentence())?;
             Ok(out)
         }
+    }
+}
+
+/// The report's calorimetric comparison from a third-law analysis with a statistical
+/// entropy.
+fn comparison(r: &ThirdLaw, data: &std::path::Path) -> Comparison {
+    let stat = r
+        .residual
+        .as_ref()
+        .map_or((0.0, 0.0), |x| (x.s_stat, x.s_stat_sigma));
+    Comparison {
+        file: data.display().to_string(),
+        temperature_k: r.target_k,
+        s_cal: (r.s_cal, r.uncertainty.total),
+        s_stat: stat,
+        extrapolated: r.low_t.entropy,
+        debye_temperature_k: r.low_t.debye_temperature_k,
+        points: r.points.iter().map(|p| (p.t_k, p.cp)).collect(),
+        lowest_k: r.low_t.lowest_k,
+        curve: r.curve(200),
+        debye_curve: r.debye_curve(50),
     }
 }
 

@@ -1,0 +1,538 @@
+//! The calorimetric side: the third-law entropy from measured heat capacities, and the
+//! residual entropy it implies against a statistical (spectroscopic) entropy.
+//!
+//! # What it computes
+//!
+//! S_cal(T) = a T₀³/3 + ∫_T₀^T Cp d(ln T) + Σ ΔH_tr/T_tr, the third-law entropy at T from
+//! heat capacities measured between T₀ and T_max ([`analyse`]):
+//!
+//! * below the lowest point T₀, Debye's T³ law fitted to the lowest N points ([`lowt`]);
+//! * from T₀ on, the exact integral of a monotone cubic (Fritsch–Carlson) interpolant of Cp
+//!   against ln T ([`integrate`]);
+//! * ΔH/T at each first-order transition; the interpolant is not continued across a
+//!   transition: each side is interpolated from its own points and continued to T_tr as
+//!   the straight line in ln T with its end slope.
+//!
+//! Given a statistical entropy S_stat ± σ at the same temperature, the measured residual
+//! entropy is S0 = S_stat − S_cal and W = exp(S0/R) per formula unit ([`Residual`]).
+//!
+//! # Uncertainty
+//!
+//! Reported in three parts ([`Uncertainty`]), added in quadrature for the total:
+//!
+//! * data: the 1σ of Cp propagated linearly through the integral, Σᵢ (∂S/∂Cpᵢ σᵢ)², with
+//!   the sensitivities ∂S/∂Cpᵢ taken by central finite differences of the whole
+//!   interpolation (the monotone interpolant is not linear in the Cp values); absent when
+//!   the file has no σ column;
+//! * extrapolation: the 1σ of a T₀³/3 from the T³ fit;
+//! * quadrature: the difference between the monotone cubic and the trapezoid rule on the
+//!   same points (an estimate of the interpolation error, not a standard error).
+//!
+//! The data and extrapolation parts share the lowest N points and are treated as
+//! independent; the quadrature part is a systematic estimate added like a 1σ (both common
+//! practice). None of this covers the calibration of the calorimeter.
+//!
+//! # Arguments and returns
+//!
+//! A checked [`HeatCapacityData`] and a [`CalorimetryConfig`] (target temperature,
+//! transitions, number of points of the T³ fit, statistical entropy); [`analyse`] returns a
+//! [`ThirdLaw`] with every contribution. Temperatures in K, entropies in J/(mol K) per mole
+//! of formula units (the data's unit).
+//!
+//! # Complexity
+//!
+//! O(n) for the entropy and O(n²) for the finite-difference sensitivities, n the number of
+//! points.
+//!
+//! # Reference
+//!
+//! The method is the classical one of Giauque & Stout 1936 (J. Am. Chem. Soc. 58, 1144) for
+//! ice; the interpolant is Fritsch & Carlson 1980 (SIAM J. Numer. Anal. 17, 238).
+
+pub mod data;
+pub mod debye;
+pub mod integrate;
+pub mod lowt;
+
+use crate::error::{Error, Result};
+use crate::thermo::R;
+
+pub use data::{HeatCapacityData, Point};
+pub use lowt::{DEFAULT_POINTS, LowTemperatureFit};
+
+use integrate::Interpolant;
+
+/// The temperature of standard tables, K (common practice).
+pub const STANDARD_TEMPERATURE_K: f64 = 298.15;
+
+/// A first-order transition: a temperature and its enthalpy.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Transition {
+    /// Transition temperature, K.
+    pub t_k: f64,
+    /// Enthalpy of transition, J/mol.
+    pub dh_j_per_mol: f64,
+}
+
+/// What to compute.
+#[derive(Clone, Debug)]
+pub struct CalorimetryConfig {
+    /// Temperature of the result, K; `None`: 298.15 K if inside the data, otherwise the
+    /// highest measured temperature.
+    pub target_k: Option<f64>,
+    /// First-order transitions inside the data range.
+    pub transitions: Vec<Transition>,
+    /// Number of lowest points of the T³ fit.
+    pub low_t_points: usize,
+    /// A statistical entropy at the target temperature, J/(mol K), and its 1σ.
+    pub statistical: Option<(f64, f64)>,
+}
+
+impl Default for CalorimetryConfig {
+    fn default() -> Self {
+        CalorimetryConfig {
+            target_k: None,
+            transitions: Vec::new(),
+            low_t_points: DEFAULT_POINTS,
+            statistical: None,
+        }
+    }
+}
+
+/// The parts of the uncertainty of S_cal at the target, J/(mol K).
+#[derive(Clone, Copy, Debug)]
+pub struct Uncertainty {
+    /// The Cp 1σ propagated through the integral; `None` without a σ column.
+    pub data: Option<f64>,
+    /// The 1σ of the T³ extrapolation.
+    pub extrapolation: f64,
+    /// |monotone cubic − trapezoid| of the integral.
+    pub quadrature: f64,
+    /// All parts in quadrature.
+    pub total: f64,
+}
+
+/// The entropy a transition adds.
+#[derive(Clone, Copy, Debug)]
+pub struct TransitionEntropy {
+    /// The transition.
+    pub transition: Transition,
+    /// ΔH/T, J/(mol K).
+    pub entropy: f64,
+}
+
+/// The measured residual entropy against a statistical value.
+#[derive(Clone, Copy, Debug)]
+pub struct Residual {
+    /// S_stat, J/(mol K).
+    pub s_stat: f64,
+    /// Its 1σ.
+    pub s_stat_sigma: f64,
+    /// S0 = S_stat − S_cal, J/(mol K).
+    pub residual: f64,
+    /// Its 1σ (independent errors in quadrature).
+    pub residual_sigma: f64,
+    /// W = exp(S0/R) per formula unit.
+    pub w_per_unit: f64,
+    /// Its 1σ, W σ_S0 / R.
+    pub w_sigma: f64,
+}
+
+impl Residual {
+    /// The residual of S_stat ± σ_stat against S_cal ± σ_cal.
+    pub fn new(s_stat: (f64, f64), s_cal: (f64, f64)) -> Residual {
+        let residual = s_stat.0 - s_cal.0;
+        let residual_sigma = s_stat.1.hypot(s_cal.1);
+        let w = (residual / R).exp();
+        Residual {
+            s_stat: s_stat.0,
+            s_stat_sigma: s_stat.1,
+            residual,
+            residual_sigma,
+            w_per_unit: w,
+            w_sigma: w * residual_sigma / R,
+        }
+    }
+}
+
+/// The third-law entropy from one data file.
+#[derive(Clone, Debug)]
+pub struct ThirdLaw {
+    /// The data file.
+    pub path: std::path::PathBuf,
+    /// The measured points.
+    pub points: Vec<Point>,
+    /// The T³ fit below the data.
+    pub low_t: LowTemperatureFit,
+    /// The transitions, in order of temperature.
+    pub transitions: Vec<TransitionEntropy>,
+    /// S_cal at each measured temperature, J/(mol K) (above a transition it includes ΔH/T).
+    pub at_points: Vec<f64>,
+    /// The temperature of the result, K.
+    pub target_k: f64,
+    /// Why the target is not the one asked for or 298.15 K, when it is not.
+    pub target_note: Option<String>,
+    /// ∫ Cp d(ln T) from T₀ to the target (monotone cubic), J/(mol K).
+    pub integral: f64,
+    /// The same by the trapezoid rule, J/(mol K).
+    pub integral_trapezoid: f64,
+    /// Σ ΔH/T over transitions below the target, J/(mol K).
+    pub transition_entropy: f64,
+    /// S_cal at the target, J/(mol K).
+    pub s_cal: f64,
+    /// Its uncertainty.
+    pub uncertainty: Uncertainty,
+    /// Against a statistical entropy, when one was given.
+    pub residual: Option<Residual>,
+}
+
+impl ThirdLaw {
+    /// Cp/T of the integrated interpolant, sampled for a figure: (T in K, Cp/T in
+    /// J/(mol K²)), `per_stretch` points between each stretch's bounds.
+    pub fn curve(&self, per_stretch: usize) -> Vec<(f64, f64)> {
+        let cp: Vec<f64> = self.points.iter().map(|p| p.cp).collect();
+        let t: Vec<f64> = self.points.iter().map(|p| p.t_k).collect();
+        let pieces = Pieces::new(&t, &cp, &self.transitions_only(), false);
+        let mut out = Vec::new();
+        for p in &pieces.stretches {
+            let (lo, hi) = (p.lower.ln(), p.upper.ln());
+            let n = per_stretch.max(2);
+            for i in 0..n {
+                let tt = (lo + (hi - lo) * i as f64 / (n - 1) as f64).exp();
+                out.push((tt, p.interpolant.value(tt) / tt));
+            }
+        }
+        out
+    }
+
+    /// The T³ law below the data for a figure: (T in K, a T² in J/(mol K²)), n points.
+    pub fn debye_curve(&self, n: usize) -> Vec<(f64, f64)> {
+        let n = n.max(2);
+        (0..n)
+            .map(|i| {
+                let t = self.low_t.lowest_k * i as f64 / (n - 1) as f64;
+                (t, self.low_t.a * t * t)
+            })
+            .collect()
+    }
+
+    fn transitions_only(&self) -> Vec<Transition> {
+        self.transitions.iter().map(|x| x.transition).collect()
+    }
+}
+
+/// One stretch of data between transitions and its bounds of integration.
+struct Stretch {
+    interpolant: Interpolant,
+    lower: f64,
+    upper: f64,
+}
+
+/// The stretches of one Cp vector.
+struct Pieces {
+    stretches: Vec<Stretch>,
+    transitions: Vec<Transition>,
+}
+
+impl Pieces {
+    /// Split at the transitions (already checked: each between two points, at least two
+    /// points per stretch) and interpolate each stretch.
+    fn new(t: &[f64], cp: &[f64], transitions: &[Transition], linear: bool) -> Pieces {
+        let mut stretches = Vec::new();
+        let mut start = 0;
+        let mut lower = t[0];
+        let bounds: Vec<f64> = transitions.iter().map(|x| x.t_k).collect();
+        for (j, &upper_bound) in bounds
+            .iter()
+            .chain(std::iter::once(&f64::INFINITY))
+            .enumerate()
+        {
+            let end = if j < bounds.len() {
+                t.partition_point(|&x| x < upper_bound)
+            } else {
+                t.len()
+            };
+            let (ts, cs) = (&t[start..end], &cp[start..end]);
+            let interpolant = if linear {
+                Interpolant::linear(ts, cs)
+            } else {
+                Interpolant::monotone(ts, cs)
+            };
+            let upper = if j < bounds.len() {
+                upper_bound
+            } else {
+                t[t.len() - 1]
+            };
+            stretches.push(Stretch {
+                interpolant,
+                lower,
+                upper,
+            });
+            start = end;
+            lower = upper;
+        }
+        Pieces {
+            stretches,
+            transitions: transitions.to_vec(),
+        }
+    }
+
+    /// ∫ Cp d(ln T) from T₀ to t, and Σ ΔH/T over transitions at or below t.
+    fn entropy_to(&self, t: f64) -> (f64, f64) {
+        let mut integral = 0.0;
+        for s in &self.stretches {
+            if t <= s.lower {
+                break;
+            }
+            let top = t.min(s.upper);
+            integral += s.interpolant.integral_to(top) - s.interpolant.integral_to(s.lower);
+        }
+        let jumps = self
+            .transitions
+            .iter()
+            .filter(|x| x.t_k <= t)
+            .map(|x| x.dh_j_per_mol / x.t_k)
+            .sum();
+        (integral, jumps)
+    }
+}
+
+/// The third-law entropy of a data file.
+pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<ThirdLaw> {
+    let path = &data.path;
+    let whole = |message: String| Error::Data {
+        path: path.clone(),
+        line: 0,
+        message,
+    };
+    let t: Vec<f64> = data.points.iter().map(|p| p.t_k).collect();
+    let cp: Vec<f64> = data.points.iter().map(|p| p.cp).collect();
+    let (lo, hi) = data.range();
+    let mut transitions = config.transitions.clone();
+    transitions.sort_by(|a, b| a.t_k.total_cmp(&b.t_k));
+    for (j, x) in transitions.iter().enumerate() {
+        if !(x.t_k.is_finite() && x.t_k > lo && x.t_k < hi) {
+            return Err(Error::Setting(format!(
+                "the transition at {} K lies outside the data of {} ({lo}..{hi} K); a transition \
+                 must lie between two measured temperatures",
+                x.t_k,
+                path.display()
+            )));
+        }
+        if !(x.dh_j_per_mol.is_finite() && x.dh_j_per_mol > 0.0) {
+            return Err(Error::Setting(format!(
+                "the enthalpy of the transition at {} K must be a positive number of J/mol, found {}",
+                x.t_k, x.dh_j_per_mol
+            )));
+        }
+        if let Some(p) = data.points.iter().find(|p| p.t_k == x.t_k) {
+            return Err(whole(format!(
+                "the transition at {} K coincides with the point of line {}; a transition must lie \
+                 between two measured temperatures",
+                x.t_k, p.line
+            )));
+        }
+        if j > 0 && transitions[j - 1].t_k == x.t_k {
+            return Err(Error::Setting(format!(
+                "the transition at {} K is given twice",
+                x.t_k
+            )));
+        }
+    }
+    // Each stretch between transitions needs two points of its own.
+    let mut edges: Vec<f64> = vec![f64::NEG_INFINITY];
+    edges.extend(transitions.iter().map(|x| x.t_k));
+    edges.push(f64::INFINITY);
+    for w in edges.windows(2) {
+        let n = t.iter().filter(|&&x| x > w[0] && x < w[1]).count();
+        if n < 2 {
+            return Err(whole(format!(
+                "the stretch of data between {} and {} holds {n} point(s); each side of a transition \
+                 needs at least 2 measured points",
+                describe_edge(w[0], lo),
+                describe_edge(w[1], hi)
+            )));
+        }
+    }
+    let n_fit = config.low_t_points;
+    let below_first = transitions
+        .first()
+        .map_or(t.len(), |x| t.partition_point(|&v| v < x.t_k));
+    if n_fit < 2 || n_fit > below_first {
+        return Err(Error::Setting(format!(
+            "the T³ fit needs between 2 and {below_first} of the lowest points (those below the first \
+             transition), asked for {n_fit}"
+        )));
+    }
+    let sigma: Option<Vec<f64>> = data
+        .has_sigma()
+        .then(|| data.points.iter().map(|p| p.sigma.unwrap_or(0.0)).collect());
+    let low_t = lowt::fit(
+        0,
+        &t[..n_fit],
+        &cp[..n_fit],
+        sigma.as_ref().map(|s| &s[..n_fit]),
+    );
+
+    let (target_k, target_note) = match config.target_k {
+        Some(x) => {
+            if !(x.is_finite() && x >= lo && x <= hi) {
+                return Err(Error::Setting(format!(
+                    "the target temperature {x} K lies outside the data of {} ({lo}..{hi} K)",
+                    path.display()
+                )));
+            }
+            (x, None)
+        }
+        None if (lo..=hi).contains(&STANDARD_TEMPERATURE_K) => (STANDARD_TEMPERATURE_K, None),
+        None => (
+            hi,
+            Some(format!(
+                "298.15 K lies outside the data ({lo}..{hi} K): the entropy is given at the highest \
+                 measured temperature, {hi} K"
+            )),
+        ),
+    };
+
+    let pieces = Pieces::new(&t, &cp, &transitions, false);
+    let at_points: Vec<f64> = t
+        .iter()
+        .map(|&x| {
+            let (i, j) = pieces.entropy_to(x);
+            low_t.entropy + i + j
+        })
+        .collect();
+    let (integral, transition_entropy) = pieces.entropy_to(target_k);
+    let (integral_trapezoid, _) = Pieces::new(&t, &cp, &transitions, true).entropy_to(target_k);
+    let s_cal = low_t.entropy + integral + transition_entropy;
+
+    let data_part = sigma.as_ref().map(|s| {
+        let scale = cp.iter().fold(0.0f64, |m, &c| m.max(c.abs())).max(1e-300);
+        let mut sum = 0.0;
+        let mut work = cp.clone();
+        for i in 0..cp.len() {
+            let step = 1e-6 * cp[i].abs().max(1e-3 * scale);
+            work[i] = cp[i] + step;
+            let up = Pieces::new(&t, &work, &transitions, false)
+                .entropy_to(target_k)
+                .0;
+            work[i] = cp[i] - step;
+            let down = Pieces::new(&t, &work, &transitions, false)
+                .entropy_to(target_k)
+                .0;
+            work[i] = cp[i];
+            let g = (up - down) / (2.0 * step);
+            sum += (g * s[i]).powi(2);
+        }
+        sum.sqrt()
+    });
+    let quadrature = (integral - integral_trapezoid).abs();
+    let extrapolation = low_t.entropy_sigma;
+    let total =
+        (data_part.unwrap_or(0.0).powi(2) + extrapolation.powi(2) + quadrature.powi(2)).sqrt();
+    let uncertainty = Uncertainty {
+        data: data_part,
+        extrapolation,
+        quadrature,
+        total,
+    };
+    let residual = config
+        .statistical
+        .map(|s| Residual::new(s, (s_cal, uncertainty.total)));
+    Ok(ThirdLaw {
+        path: path.clone(),
+        points: data.points.clone(),
+        low_t,
+        transitions: transitions
+            .iter()
+            .map(|&x| TransitionEntropy {
+                transition: x,
+                entropy: x.dh_j_per_mol / x.t_k,
+            })
+            .collect(),
+        at_points,
+        target_k,
+        target_note,
+        integral,
+        integral_trapezoid,
+        transition_entropy,
+        s_cal,
+        uncertainty,
+        residual,
+    })
+}
+
+/// A stretch bound in words.
+fn describe_edge(x: f64, end: f64) -> String {
+    if x.is_infinite() {
+        format!("the end of the data ({end} K)")
+    } else {
+        format!("the transition at {x} K")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn table(points: &[(f64, f64)]) -> HeatCapacityData {
+        let mut text = String::from("T,Cp\n");
+        for (t, c) in points {
+            text += &format!("{t},{c}\n");
+        }
+        HeatCapacityData::parse(&text, "cp.csv").unwrap()
+    }
+
+    #[test]
+    fn t_cubed_data_integrate_to_a_t_cubed_over_three() {
+        // Cp = a T³ everywhere: S(T) = a T³/3 exactly (closed form); the extrapolation gives
+        // a T₀³/3 and the integral the rest, within the cubic's interpolation error.
+        let a = 1e-4;
+        let pts: Vec<(f64, f64)> = (1..=40)
+            .map(|i| (i as f64, a * (i as f64).powi(3)))
+            .collect();
+        let r = analyse(&table(&pts), &CalorimetryConfig::default()).unwrap();
+        assert_eq!(r.target_k, 40.0);
+        assert!(r.target_note.is_some());
+        let exact = a * 40f64.powi(3) / 3.0;
+        assert!(
+            ((r.s_cal - exact) / exact).abs() < 1e-3,
+            "{} vs {exact}",
+            r.s_cal
+        );
+        assert!((r.low_t.entropy - a / 3.0).abs() < 1e-15);
+        assert!(r.uncertainty.data.is_none());
+    }
+
+    #[test]
+    fn bad_settings_are_refused() {
+        let pts: Vec<(f64, f64)> = (1..=8).map(|i| (i as f64, i as f64)).collect();
+        let d = table(&pts);
+        let with = |c: CalorimetryConfig| analyse(&d, &c).unwrap_err().to_string();
+        let tr = |t_k| CalorimetryConfig {
+            transitions: vec![Transition {
+                t_k,
+                dh_j_per_mol: 10.0,
+            }],
+            low_t_points: 2,
+            ..Default::default()
+        };
+        assert!(with(tr(9.0)).contains("outside the data"));
+        assert!(with(tr(3.0)).contains("coincides with the point of line 4"));
+        assert!(with(tr(1.5)).contains("holds 1 point"));
+        assert!(
+            with(CalorimetryConfig {
+                low_t_points: 9,
+                ..Default::default()
+            })
+            .contains("between 2 and 8")
+        );
+        assert!(
+            with(CalorimetryConfig {
+                target_k: Some(0.5),
+                ..Default::default()
+            })
+            .contains("outside the data")
+        );
+    }
+}

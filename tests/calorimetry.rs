@@ -1,0 +1,431 @@
+//! The calorimetric side: Debye functions against quadrature written here, third-law
+//! entropies of synthetic data against closed forms, the residual entropy of ice, and the
+//! `calorimetry` command's errors and its use in `report`.
+
+use std::path::PathBuf;
+
+use groundcount::calorimetry::{self, CalorimetryConfig, HeatCapacityData, Transition, debye};
+use groundcount::thermo::{CALORIE, R};
+use serde_json::Value;
+
+use crate::util::{lattice, run};
+
+/// Composite Simpson's rule with `n` (even) intervals.
+fn simpson(f: impl Fn(f64) -> f64, a: f64, b: f64, n: usize) -> f64 {
+    let h = (b - a) / n as f64;
+    let mut s = f(a) + f(b);
+    for i in 1..n {
+        let w = if i % 2 == 1 { 4.0 } else { 2.0 };
+        s += w * f(a + i as f64 * h);
+    }
+    s * h / 3.0
+}
+
+/// Debye C_V/3R by Simpson quadrature of 3(T/θ)³ ∫₀^(θ/T) x⁴eˣ/(eˣ − 1)² dx.
+fn cv_quadrature(t: f64, theta: f64) -> f64 {
+    let x = theta / t;
+    let f = |y: f64| {
+        if y == 0.0 {
+            0.0
+        } else {
+            // y⁴eʸ/(eʸ − 1)² written with e⁻ʸ so that large y does not overflow.
+            y.powi(4) * (-y).exp() / (-y).exp_m1().powi(2)
+        }
+    };
+    3.0 * (t / theta).powi(3) * simpson(f, 0.0, x, 20_000)
+}
+
+/// Debye S/3R by Simpson quadrature: (4/3)·(3/x³)∫₀ˣ y³/(eʸ − 1) dy − ln(1 − e⁻ˣ).
+fn s_quadrature(t: f64, theta: f64) -> f64 {
+    let x = theta / t;
+    let f = |y: f64| {
+        if y == 0.0 {
+            0.0
+        } else {
+            y.powi(3) / y.exp_m1()
+        }
+    };
+    4.0 / 3.0 * 3.0 / x.powi(3) * simpson(f, 0.0, x, 20_000) - (-(-x).exp_m1()).ln()
+}
+
+/// A CSV data file from (T, Cp[, σ]) rows.
+fn csv(rows: &[(f64, f64, Option<f64>)]) -> String {
+    let with_sigma = rows.iter().all(|r| r.2.is_some());
+    let mut s = String::from("# synthetic test data\n");
+    s += if with_sigma { "T,Cp,sigma\n" } else { "T,Cp\n" };
+    for (t, c, e) in rows {
+        match (with_sigma, e) {
+            (true, Some(e)) => s += &format!("{t:e},{c:e},{e:e}\n"),
+            _ => s += &format!("{t:e},{c:e}\n"),
+        }
+    }
+    s
+}
+
+/// A file under the target directory holding `text`.
+fn write(name: &str, text: &str) -> PathBuf {
+    let p = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(name);
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+/// `n` temperatures spaced evenly in ln T from `lo` to `hi`.
+fn geometric(lo: f64, hi: f64, n: usize) -> Vec<f64> {
+    let mut t: Vec<f64> = (0..n)
+        .map(|i| (lo.ln() + (hi / lo).ln() * i as f64 / (n - 1) as f64).exp())
+        .collect();
+    (t[0], t[n - 1]) = (lo, hi);
+    t
+}
+
+#[test]
+fn debye_functions_agree_with_simpson_quadrature() {
+    let theta = 200.0;
+    for t in [2.0, 9.0, 20.0, 57.0, 100.0, 200.0, 333.0, 1000.0] {
+        let cv = debye::heat_capacity(t, theta) / (3.0 * R);
+        let q = cv_quadrature(t, theta);
+        assert!(((cv - q) / q).abs() < 1e-10, "C_V at {t} K: {cv} vs {q}");
+        let s = debye::entropy(t, theta) / (3.0 * R);
+        let q = s_quadrature(t, theta);
+        assert!(((s - q) / q).abs() < 1e-10, "S at {t} K: {s} vs {q}");
+    }
+    // The entropy is ∫₀ᵀ C_V/T dT (a second, independent route to S).
+    let t = 150.0;
+    let integral = simpson(
+        |x: f64| {
+            if x == 0.0 {
+                0.0
+            } else {
+                cv_quadrature(x, theta) / x
+            }
+        },
+        0.0,
+        t,
+        2_000,
+    );
+    let s = debye::entropy(t, theta) / (3.0 * R);
+    assert!(
+        ((s - integral) / integral).abs() < 1e-8,
+        "{s} vs {integral}"
+    );
+}
+
+#[test]
+fn debye_heat_capacity_at_the_debye_temperature() {
+    // C_V/3R = 0.952 at T = θ_D: the common handbook figure (common practice); the test's
+    // own quadrature gives 0.951732…
+    let cv = debye::heat_capacity(300.0, 300.0) / (3.0 * R);
+    assert!((cv - 0.952).abs() < 5e-4, "{cv}");
+    assert!((cv - cv_quadrature(300.0, 300.0)).abs() < 1e-12);
+    // Low-temperature law: C_V/3R → (4π⁴/5)(T/θ)³ (Debye 1912, Ann. Phys. 344, 789).
+    let low = debye::heat_capacity(1.0, 300.0) / (3.0 * R);
+    let law = 4.0 * std::f64::consts::PI.powi(4) / 5.0 / 300f64.powi(3);
+    assert!(((low - law) / law).abs() < 1e-12);
+}
+
+/// Data of a Debye solid (3R per formula unit, θ_D = 180 K), computed here by quadrature.
+fn debye_solid(temps: &[f64], theta: f64) -> Vec<(f64, f64, Option<f64>)> {
+    temps
+        .iter()
+        .map(|&t| (t, 3.0 * R * cv_quadrature(t, theta), None))
+        .collect()
+}
+
+#[test]
+fn debye_solid_entropy_is_recovered_from_thirty_points() {
+    // 30 temperatures from θ/45 (T³ law valid) to 1.8 θ, evenly spaced in ln T.
+    let theta = 180.0;
+    let temps = geometric(4.0, 324.0, 30);
+    let d = HeatCapacityData::parse(&csv(&debye_solid(&temps, theta)), "debye.csv").unwrap();
+    let r = calorimetry::analyse(&d, &CalorimetryConfig::default()).unwrap();
+    assert_eq!(r.target_k, 298.15);
+    let exact = 3.0 * R * s_quadrature(298.15, theta);
+    let rel = (r.s_cal - exact) / exact;
+    assert!(
+        rel.abs() < 1e-4,
+        "S_cal {} vs closed form {exact} ({rel:e})",
+        r.s_cal
+    );
+    // The T³ fit returns θ_D (one atom per formula unit), the extrapolation a T₀³/3.
+    assert!((r.low_t.debye_temperature_k - theta).abs() < 1e-3 * theta);
+    let below = 3.0 * R * s_quadrature(4.0, theta);
+    assert!(((r.low_t.entropy - below) / below).abs() < 1e-3);
+    // S_cal at the top measured point as well.
+    let top = 3.0 * R * s_quadrature(324.0, theta);
+    let last = *r.at_points.last().unwrap();
+    assert!(((last - top) / top).abs() < 1e-4, "{last} vs {top}");
+}
+
+#[test]
+fn a_first_order_transition_adds_its_entropy_and_splits_the_interpolant() {
+    // Cp of a Debye solid below 120 K; above it the same plus a step of 8 J/(mol K); latent
+    // heat 1500 J/mol. Closed form at 250 K: S_D(250) + 1500/120 + 8 ln(250/120).
+    let theta = 180.0;
+    let (t_tr, dh, step) = (120.0, 1500.0, 8.0);
+    let mut temps = geometric(4.0, 118.0, 18);
+    temps.push(119.5);
+    temps.extend([120.5, 122.0]);
+    temps.extend(geometric(125.0, 250.0, 10));
+    let rows: Vec<(f64, f64, Option<f64>)> = debye_solid(&temps, theta)
+        .into_iter()
+        .map(|(t, c, e)| (t, if t > t_tr { c + step } else { c }, e))
+        .collect();
+    let d = HeatCapacityData::parse(&csv(&rows), "transition.csv").unwrap();
+    let config = CalorimetryConfig {
+        transitions: vec![Transition {
+            t_k: t_tr,
+            dh_j_per_mol: dh,
+        }],
+        ..Default::default()
+    };
+    let r = calorimetry::analyse(&d, &config).unwrap();
+    assert_eq!(r.target_k, 250.0);
+    let exact = 3.0 * R * s_quadrature(250.0, theta) + dh / t_tr + step * (250.0f64 / t_tr).ln();
+    let rel = (r.s_cal - exact) / exact;
+    assert!(
+        rel.abs() < 1e-4,
+        "S_cal {} vs closed form {exact} ({rel:e})",
+        r.s_cal
+    );
+    assert!((r.transition_entropy - dh / t_tr).abs() < 1e-12);
+    // Without splitting, the cubic would smear the step over 119.5..120.5 K; with it, the
+    // entropy just below the transition has no share of the step.
+    let i = temps.iter().position(|&t| t == 119.5).unwrap();
+    let below = 3.0 * R * s_quadrature(119.5, theta);
+    assert!(((r.at_points[i] - below) / below).abs() < 1e-4);
+}
+
+#[test]
+fn doubling_every_sigma_doubles_the_data_part() {
+    let theta = 150.0;
+    let temps = geometric(3.0, 300.0, 25);
+    let rows = |k: f64| -> Vec<(f64, f64, Option<f64>)> {
+        debye_solid(&temps, theta)
+            .into_iter()
+            .map(|(t, c, _)| (t, c, Some(k * (0.003 * c + 1e-4))))
+            .collect()
+    };
+    let one = calorimetry::analyse(
+        &HeatCapacityData::parse(&csv(&rows(1.0)), "a.csv").unwrap(),
+        &CalorimetryConfig::default(),
+    )
+    .unwrap();
+    let two = calorimetry::analyse(
+        &HeatCapacityData::parse(&csv(&rows(2.0)), "b.csv").unwrap(),
+        &CalorimetryConfig::default(),
+    )
+    .unwrap();
+    let (a, b) = (one.uncertainty.data.unwrap(), two.uncertainty.data.unwrap());
+    assert!(a > 0.0);
+    assert!((b / a - 2.0).abs() < 1e-9, "{b} / {a}");
+    // The value itself does not depend on the weights beyond the T³ fit (exact T³ data
+    // at the bottom, so not at all).
+    assert!((one.s_cal - two.s_cal).abs() < 1e-9);
+    // The data part lies near the trapezoid rule's linear propagation, whose weight on
+    // point i is ln(T_{i+1}/T_{i−1})/2 (ln(T₁/T₀)/2 and ln(T_n/T_{n−1})/2 at the ends),
+    // computed here by hand up to the target temperature's neighbourhood (within 10 %).
+    let cut = temps.partition_point(|&t| t < 298.15);
+    let sigmas: Vec<f64> = rows(1.0).iter().map(|r| r.2.unwrap()).collect();
+    let mut by_hand = 0.0;
+    for i in 0..=cut.min(temps.len() - 1) {
+        let lo = temps[i.saturating_sub(1)];
+        let hi = temps[(i + 1).min(cut)];
+        let weight = (hi.min(298.15) / lo).ln() / 2.0;
+        by_hand += (weight * sigmas[i]).powi(2);
+    }
+    let by_hand = by_hand.sqrt();
+    assert!(
+        (a / by_hand - 1.0).abs() < 0.1,
+        "{a} vs trapezoid weights {by_hand}"
+    );
+    // The quadrature part is the cubic–trapezoid difference, the total all three in
+    // quadrature.
+    assert!(
+        (one.uncertainty.quadrature - (one.integral - one.integral_trapezoid).abs()).abs() < 1e-15
+    );
+    let total =
+        (a * a + one.uncertainty.extrapolation.powi(2) + one.uncertainty.quadrature.powi(2)).sqrt();
+    assert!((one.uncertainty.total - total).abs() < 1e-15);
+}
+
+#[test]
+fn ice_residual_of_giauque_and_stout_gives_paulings_w() {
+    // Giauque & Stout 1936, J. Am. Chem. Soc. 58, 1144: the residual entropy of ice,
+    // 0.82 ± 0.05 cal/(mol K) (figures from memory). A synthetic calorimetric input (a Debye
+    // solid, θ_D = 190 K, sampled 5..273 K) and a statistical entropy equal to its closed-
+    // form entropy plus that residual must give W consistent with Pauling's 3/2 (Pauling
+    // 1935, J. Am. Chem. Soc. 57, 2680; R ln 1.5 = 3.371 J/(mol K)).
+    let theta = 190.0;
+    let temps = geometric(5.0, 273.0, 40);
+    let rows: Vec<(f64, f64, Option<f64>)> = debye_solid(&temps, theta)
+        .into_iter()
+        .map(|(t, c, _)| (t, c, Some(0.002 * c + 1e-4)))
+        .collect();
+    let data = write("ice-synthetic-cp.csv", &csv(&rows));
+    let residual = (0.82 * CALORIE, 0.05 * CALORIE);
+    let s_stat = 3.0 * R * s_quadrature(273.0, theta) + residual.0;
+    let stat = format!("{s_stat:.12}±{:.12}", residual.1);
+    let out = run(&[
+        "calorimetry",
+        data.to_str().unwrap(),
+        "--statistical",
+        &stat,
+        "--format",
+        "json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let f = |k: &str| v[k].as_f64().unwrap_or_else(|| panic!("{k} missing"));
+    assert_eq!(f("temperature_k"), 273.0);
+    // The arithmetic, by hand from the printed parts.
+    let (s_cal, ds_cal) = (f("s_cal_j_per_mol_k"), f("s_cal_uncertainty"));
+    let s_stat_given: f64 = format!("{s_stat:.12}").parse().unwrap();
+    let sigma_given: f64 = format!("{:.12}", residual.1).parse().unwrap();
+    let r = s_stat_given - s_cal;
+    let dr = (sigma_given * sigma_given + ds_cal * ds_cal).sqrt();
+    assert!((f("residual_j_per_mol_k") - r).abs() < 1e-12);
+    assert!((f("residual_uncertainty") - dr).abs() < 1e-12);
+    let w = (r / R).exp();
+    assert!((f("w_per_unit") - w).abs() < 1e-12);
+    assert!((f("w_uncertainty") - w * dr / R).abs() < 1e-12);
+    // 3.43 J/(mol K) back, and W within 2σ of 3/2.
+    assert!((r - 3.43088).abs() < 0.01, "{r}");
+    assert!(
+        (w - 1.5).abs() < 2.0 * f("w_uncertainty"),
+        "{w} ± {}",
+        f("w_uncertainty")
+    );
+    assert!(((R * 1.5f64.ln()) - 3.371).abs() < 1e-3);
+    for k in ["debye_temperature_k", "extrapolated_j_per_mol_k"] {
+        assert!(v[k].is_f64(), "{k}");
+    }
+    assert!((f("debye_temperature_k") - theta).abs() < 0.01 * theta);
+}
+
+/// Run `calorimetry` on a file and return its one error line (exit code 1, no output).
+fn error_of(name: &str, text: &str) -> String {
+    let p = write(name, text);
+    let out = run(&["calorimetry", p.to_str().unwrap()]);
+    let stderr = String::from_utf8_lossy(&out.stderr).into_owned();
+    assert_eq!(out.status.code(), Some(1), "{stderr}");
+    assert!(out.stdout.is_empty());
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    let lines: Vec<&str> = stderr.lines().collect();
+    assert_eq!(lines.len(), 1, "{stderr}");
+    assert!(lines[0].starts_with("error: "), "{stderr}");
+    assert!(
+        lines[0].contains(p.to_str().unwrap()),
+        "names the file: {stderr}"
+    );
+    lines[0].to_string()
+}
+
+#[test]
+fn bad_data_files_are_refused_with_the_line() {
+    let e = error_of("cp-bad-cell.csv", "T,Cp\n1,0.1\n2,0.8\n3,abc\n4,6.4\n");
+    assert!(e.contains("cp-bad-cell.csv:4: column 2"), "{e}");
+    assert!(e.contains("`abc`"), "{e}");
+    let e = error_of("cp-unsorted.csv", "# c\nT,Cp\n1,0.1\n3,0.8\n2,2.7\n4,6.4\n");
+    assert!(
+        e.contains("cp-unsorted.csv:5: temperatures must increase"),
+        "{e}"
+    );
+    let e = error_of("cp-negative.csv", "T,Cp\n1,0.1\n2,-0.8\n3,2.7\n4,6.4\n");
+    assert!(
+        e.contains("cp-negative.csv:3: expected a heat capacity of at least 0"),
+        "{e}"
+    );
+    let e = error_of("cp-few.csv", "T,Cp\n1,0.1\n2,0.8\n3,2.7\n");
+    assert!(e.contains("at least 4 measured points, found 3"), "{e}");
+    let e = error_of("cp-missing-column.csv", "T,Cp,s\n1,0.1,0.01\n2,0.8\n");
+    assert!(
+        e.contains("cp-missing-column.csv:3: expected 3 cells"),
+        "{e}"
+    );
+    // A bad option value names the option.
+    let p = write("cp-good.csv", "T,Cp\n1,0.1\n2,0.8\n3,2.7\n4,6.4\n5,12.5\n");
+    let out = run(&["calorimetry", p.to_str().unwrap(), "--low-t", "debye:x"]);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--low-t expects debye:N"));
+}
+
+#[test]
+fn report_with_calorimetry_writes_the_comparison_and_its_figure() {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("report-calorimetry");
+    let _ = std::fs::remove_dir_all(&dir);
+    let data = lattice("quillonite-dihydrate-cp.csv");
+    let out = run(&[
+        "report",
+        lattice("demo-hydrate.yaml").to_str().unwrap(),
+        "-o",
+        dir.to_str().unwrap(),
+        "--widths",
+        "2..5",
+        "--max-exact-units",
+        "8",
+        "--budget",
+        "600",
+        "--threads",
+        "1",
+        "--quiet",
+        "--calorimetry",
+        data.to_str().unwrap(),
+        "--statistical",
+        "186.77±0.30",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let svg = std::fs::read_to_string(dir.join("calorimetry.svg")).unwrap();
+    assert!(svg.starts_with("<svg") && svg.contains("Cp/T"));
+    let v: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("report.json")).unwrap()).unwrap();
+    let k = &v["calorimetry"];
+    for key in [
+        "s_cal_j_per_mol_k",
+        "s_cal_uncertainty",
+        "debye_temperature_k",
+        "extrapolated_j_per_mol_k",
+        "residual_j_per_mol_k",
+        "residual_uncertainty",
+        "w_per_unit",
+    ] {
+        assert!(k[key].is_f64(), "{key} missing from report.json");
+    }
+    // The demo data were generated from 3 Debye groups (θ_D = 150 K) and 2 Einstein groups
+    // (θ_E = 520 K) per formula unit (see the file's header); their entropy at 298.15 K,
+    // recomputed here, must lie within 2σ of S_cal.
+    let x = 520.0 / 298.15;
+    let einstein = 3.0 * R * (x / f64::exp_m1(x) - (-(-x).exp_m1()).ln());
+    let model = 3.0 * 3.0 * R * s_quadrature(298.15, 150.0) + 2.0 * einstein;
+    let (s, ds) = (
+        k["s_cal_j_per_mol_k"].as_f64().unwrap(),
+        k["s_cal_uncertainty"].as_f64().unwrap(),
+    );
+    assert!((s - model).abs() < 2.0 * ds, "{s} ± {ds} vs {model}");
+    // Three Debye groups seen as one "atom": θ = 150 / 3^(1/3) K.
+    let theta = k["debye_temperature_k"].as_f64().unwrap();
+    assert!((theta - 150.0 / 3f64.cbrt()).abs() < 1.0, "{theta}");
+    // The same numbers as the calorimetry command.
+    let out = run(&[
+        "calorimetry",
+        data.to_str().unwrap(),
+        "--statistical",
+        "186.77±0.30",
+        "--format",
+        "json",
+    ]);
+    let c: Value = serde_json::from_slice(&out.stdout).unwrap();
+    for key in ["s_cal_j_per_mol_k", "residual_j_per_mol_k", "w_per_unit"] {
+        assert_eq!(c[key], k[key], "{key}");
+    }
+    let md = std::fs::read_to_string(dir.join("report.md")).unwrap();
+    assert!(md.contains("## Calorimetric comparison"));
+    assert!(md.contains("](calorimetry.svg)"));
+}
