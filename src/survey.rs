@@ -29,12 +29,13 @@ use std::time::{Duration, Instant};
 
 use crate::cluster::{Cells, Cluster};
 use crate::counters::extrapolate::Scaling;
+use crate::counters::sampling::size::{self, SizeFit};
 use crate::counters::sampling::{self, SampleConfig, Sampled};
 use crate::counters::transfer::{self, StripConfig, StripSeries};
 use crate::counters::{exact, pauling};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
-use crate::estimate::Estimate;
+use crate::estimate::{Estimate, Method};
 use crate::model::Model;
 
 /// What the survey is doing, for progress displays.
@@ -73,7 +74,8 @@ pub struct SurveyConfig {
     pub max_exact_units: Option<f64>,
     /// Strip widths to compute (2D); `None` grows the width from 2 until the budget ends.
     pub widths: Option<Vec<usize>>,
-    /// The Monte Carlo cell (3D); `None` chooses a cube of about 1000 formula units.
+    /// The Monte Carlo cell (3D); `None` samples up to four cubes, the largest of about
+    /// 1000 formula units, and extrapolates them to the infinite crystal.
     pub sample_cells: Option<Cells>,
     /// Monte Carlo settings.
     pub sample: SampleConfig,
@@ -104,6 +106,15 @@ pub struct SampledCell {
     pub sampled: Sampled,
 }
 
+/// Monte Carlo values of several cells extrapolated to the infinite crystal.
+#[derive(Clone, Debug)]
+pub struct SizeExtrapolation {
+    /// The fit s(N) = s∞ + a/N (+ b ln N/N).
+    pub fit: SizeFit,
+    /// s∞ as an estimate of the infinite crystal.
+    pub estimate: Estimate,
+}
+
 /// Every estimate a survey made, with its diagnostics.
 #[derive(Clone, Debug)]
 pub struct Survey {
@@ -115,8 +126,12 @@ pub struct Survey {
     pub stopped: String,
     /// Transfer matrices on strips, when they ran and extrapolated.
     pub strips: Option<StripSeries>,
-    /// The Monte Carlo count, when it ran.
+    /// The Monte Carlo count of the largest cell sampled, when it ran.
     pub sampled: Option<SampledCell>,
+    /// Every cell sampled, smallest first (the largest is also `sampled`).
+    pub sampled_sizes: Vec<SampledCell>,
+    /// The Monte Carlo values extrapolated to the infinite crystal (two or more cells).
+    pub extrapolated: Option<SizeExtrapolation>,
     /// Plain sentences on what ran, what stopped and why.
     pub notes: Vec<String>,
     /// The budget in seconds.
@@ -131,17 +146,26 @@ impl Survey {
         if let Some(s) = &self.strips {
             v.push(s.estimate.clone());
         }
-        if let Some(s) = &self.sampled {
-            v.push(s.sampled.estimate.clone());
+        v.extend(
+            self.sampled_sizes
+                .iter()
+                .map(|s| s.sampled.estimate.clone()),
+        );
+        if let Some(x) = &self.extrapolated {
+            v.push(x.estimate.clone());
         }
         v
     }
 
     /// The estimate a user should cite: the transfer-matrix extrapolation, else the Monte
-    /// Carlo count, else the largest exact cell, else Pauling's estimate.
+    /// Carlo extrapolation to the infinite crystal, else the Monte Carlo count of the largest
+    /// cell, else the largest exact cell, else Pauling's estimate.
     pub fn best(&self) -> &Estimate {
         if let Some(s) = &self.strips {
             return &s.estimate;
+        }
+        if let Some(x) = &self.extrapolated {
+            return &x.estimate;
         }
         if let Some(s) = &self.sampled {
             return &s.sampled.estimate;
@@ -244,18 +268,24 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
     }
     let mut notes = Vec::new();
     let mut strips = None;
-    let mut sampled = None;
+    let mut sampled_sizes = Vec::new();
+    let mut extrapolated = None;
     match c.dimensions {
         2 => strips = strip_series(c, end, config, &tell, &mut notes)?,
-        3 => sampled = monte_carlo(c, config, &tell, &mut notes)?,
+        3 => {
+            (sampled_sizes, extrapolated) = monte_carlo(c, config, end, &tell, &mut notes)?;
+        }
         _ => {}
     }
+    let sampled = sampled_sizes.last().cloned();
     Ok(Survey {
         pauling,
         exact: exact_counts,
         stopped,
         strips,
         sampled,
+        sampled_sizes,
+        extrapolated,
         notes,
         budget: config.budget,
     })
@@ -361,40 +391,144 @@ fn strip_series(
     }
 }
 
-/// A Monte Carlo estimate on the given cell, or on one of about a thousand formula units.
+/// Monte Carlo estimates: on the given cell; or on up to four cubes n − 3 … n (at least
+/// 2 cells across), the largest of about a thousand formula units, extrapolated to the
+/// infinite crystal. The smallest cube runs first with the configured settings; when the
+/// rest of the budget allows, the replicas (up to 8 times) and then the sweeps (up to
+/// 20 000) of every cube are raised in proportion and the smallest is run again with them,
+/// so that all cubes share one setting. Cubes that would not fit are left out.
 fn monte_carlo(
     c: &Crystal,
     config: &SurveyConfig,
+    end: Instant,
     tell: &dyn Fn(Stage),
     notes: &mut Vec<String>,
-) -> Result<Option<SampledCell>> {
-    let cells = match &config.sample_cells {
-        Some(cells) => cells.clone(),
+) -> Result<(Vec<SampledCell>, Option<SizeExtrapolation>)> {
+    let cubes: Vec<Cells> = match &config.sample_cells {
+        Some(cells) => vec![cells.clone()],
         None => {
             let per_cell = c.formula_unit.per_cell(c).max(1e-9);
             let n = ((1000.0 / per_cell).cbrt().round() as usize).max(2);
-            Cells::cube(n, c.dimensions)
+            (n.saturating_sub(3).max(2)..=n)
+                .map(|k| Cells::cube(k, c.dimensions))
+                .collect()
         }
     };
-    let cluster = Cluster::new(c, cells.clone())?;
-    let model = Model::new(&cluster)?;
-    tell(Stage::Sampling(cells.to_string(), model.variables.len()));
-    match sampling::sample(&model, &config.sample) {
-        Ok(s) => {
-            notes.push(format!(
-                "Monte Carlo: thermodynamic integration on the {cells} cell, seed {}, {} replicas; \
-                 a finite torus gives a larger W than the infinite crystal; `groundcount sample` \
-                 runs larger cells and longer",
-                s.seed, s.replicas
-            ));
-            Ok(Some(SampledCell {
-                cells: cells.to_string(),
-                sampled: s,
-            }))
-        }
+    let run = |cells: &Cells, sample: &SampleConfig| -> Result<SampledCell> {
+        let cluster = Cluster::new(c, cells.clone())?;
+        let model = Model::new(&cluster)?;
+        tell(Stage::Sampling(cells.to_string(), model.variables.len()));
+        Ok(SampledCell {
+            cells: cells.to_string(),
+            sampled: sampling::sample(&model, sample)?,
+        })
+    };
+    let mut sample = config.sample.clone();
+    let first = match run(&cubes[0], &sample) {
+        Ok(s) => s,
         Err(e) => {
             notes.push(format!("Monte Carlo: not run ({e})"));
-            Ok(None)
+            return Ok((Vec::new(), None));
+        }
+    };
+    let units = |cells: &Cells| cells.total() as f64 * c.formula_unit.per_cell(c);
+    let n1 = units(&cubes[0]);
+    // Seconds per formula unit and sweep, from the first cube.
+    let rate = first.sampled.estimate.seconds / (n1 * sample.sweeps as f64);
+    let left = end.saturating_duration_since(Instant::now()).as_secs_f64();
+    let mut chosen: Vec<Cells> = vec![cubes[0].clone()];
+    let mut cost = 0.0;
+    for cells in &cubes[1..] {
+        let t = rate * units(cells) * sample.sweeps as f64;
+        if cost + t > 0.8 * left {
+            break;
+        }
+        cost += t;
+        chosen.push(cells.clone());
+    }
+    let all_units: f64 = chosen.iter().map(units).sum();
+    let base = (sample.replicas, sample.sweeps);
+    // How many times the configured run every chosen cube can afford.
+    let factor = (0.8 * left / (rate * all_units * sample.sweeps as f64)).floor();
+    let mut results = Vec::new();
+    if chosen.len() > 1 && factor >= 2.0 {
+        // More replicas first (up to 8 times as many: their spread is the error bar, and
+        // 8 replicas estimate it only to ±25 %), then longer runs (up to 20 000 sweeps).
+        let factor = factor as usize;
+        let more = factor.min(8);
+        sample.replicas = base.0 * more;
+        sample.sweeps = (base.1 * (factor / more)).min(20_000);
+        sample.equilibration = sample.sweeps / 4;
+        for cells in &chosen {
+            results.push(run(cells, &sample)?);
+        }
+    } else {
+        results.push(first);
+        for cells in &chosen[1..] {
+            results.push(run(cells, &sample)?);
         }
     }
+    let list: Vec<&str> = results.iter().map(|r| r.cells.as_str()).collect();
+    let s0 = &results[0].sampled;
+    notes.push(format!(
+        "Monte Carlo: thermodynamic integration on {}, seed {}, {} replicas × {} sweeps per node{}; \
+         `groundcount sample` runs larger cells and longer",
+        list.join(", "),
+        s0.seed,
+        s0.replicas,
+        sample.sweeps,
+        if (sample.replicas, sample.sweeps) != base {
+            " (raised from the default to fill the budget)"
+        } else {
+            ""
+        }
+    ));
+    let extrapolated = if results.len() >= 2 {
+        let points: Vec<size::SizePoint> = results
+            .iter()
+            .map(|r| size::SizePoint {
+                units: r.sampled.estimate.formula_units,
+                value: r.sampled.estimate.ln_w_per_unit,
+                sigma: r.sampled.estimate.sigma_ln_w.unwrap_or(0.0),
+            })
+            .collect();
+        match size::extrapolate(&points) {
+            Ok(fit) => {
+                notes.push(format!(
+                    "Monte Carlo: {} cells extrapolated to the infinite crystal by the weighted fit {} (χ² = {:.3} for {} degrees of freedom)",
+                    results.len(),
+                    if fit.coefficients.len() == 2 {
+                        "s(N) = s∞ + a/N + b ln N/N"
+                    } else {
+                        "s(N) = s∞ + a/N"
+                    },
+                    fit.chi2,
+                    fit.dof
+                ));
+                let estimate = Estimate {
+                    method: Method::MonteCarlo,
+                    cells: None,
+                    count: None,
+                    ln_count: fit.value,
+                    formula_units: 1.0,
+                    ln_w_per_unit: fit.value,
+                    sigma_ln_w: Some(fit.sigma),
+                    seconds: results.iter().map(|r| r.sampled.estimate.seconds).sum(),
+                    peak_states: None,
+                };
+                Some(SizeExtrapolation { fit, estimate })
+            }
+            Err(e) => {
+                notes.push(format!("Monte Carlo: no extrapolation ({e})"));
+                None
+            }
+        }
+    } else {
+        notes.push(
+            "Monte Carlo: one cell only, not extrapolated; a finite torus gives a larger W than the infinite crystal"
+                .into(),
+        );
+        None
+    };
+    Ok((results, extrapolated))
 }

@@ -61,3 +61,29 @@ fn ice_ih_estimate_samples_above_pauling() {
         "Pauling 1935: 3/2 per H2O, got {pauling}"
     );
 }
+
+/// On a 3D lattice the survey samples several cubes and cites their extrapolation to the
+/// infinite crystal. Spin ice has, per spin, the square root of ice's W per molecule (each
+/// spin is one bond of the diamond net of tetrahedra centres), so it must agree within 4σ
+/// with √1.50685 = 1.227538 from Nagle's series for ice (Nagle 1966, J. Math. Phys. 7, 1484;
+/// value from memory, its own ±0.00015 on W is negligible here).
+#[test]
+fn spin_ice_estimate_extrapolates_to_the_infinite_crystal() {
+    let v = estimate_json("spin-ice.yaml", "10");
+    let cells = v["monte_carlo_cells"].as_array().unwrap();
+    assert!(cells.len() >= 2, "several cubes sampled: {}", cells.len());
+    let inf = &v["monte_carlo_infinite"];
+    assert_eq!(v["cited"], *inf, "the extrapolation is the cited value");
+    let w = inf["w_per_unit"].as_f64().unwrap();
+    let sigma = inf["uncertainty"].as_f64().unwrap();
+    let nagle = 1.50685f64.sqrt();
+    assert!(sigma < 0.005, "σ = {sigma}");
+    assert!(
+        (w - nagle).abs() < 4.0 * sigma,
+        "W = {w} ± {sigma} per spin against {nagle}"
+    );
+    // and the extrapolation lies below every finite cube's value
+    for c in cells {
+        assert!(w < c["w_per_unit"].as_f64().unwrap());
+    }
+}

@@ -58,6 +58,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "exact": s.exact.iter().map(|e| report::estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
                 "transfer_matrix": transfer.map(|e| report::estimate_json(c, e, Some(p))),
                 "monte_carlo": monte_carlo.map(|e| report::estimate_json(c, e, Some(p))),
+                "monte_carlo_cells": s.sampled_sizes.iter().map(|m| report::estimate_json(c, &m.sampled.estimate, Some(p))).collect::<Vec<_>>(),
+                "monte_carlo_infinite": s.extrapolated.as_ref().map(|x| report::estimate_json(c, &x.estimate, Some(p))),
+                "cited": report::estimate_json(c, s.best(), Some(p)),
                 "stopped": stopped,
                 "notes": notes,
             });

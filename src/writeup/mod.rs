@@ -125,6 +125,21 @@ impl<'a> Writeup<'a> {
                 w.last().copied().unwrap_or(0)
             );
         }
+        if let (Some(x), Some(m)) = (&s.extrapolated, &s.sampled) {
+            let cells: Vec<&str> = s.sampled_sizes.iter().map(|c| c.cells.as_str()).collect();
+            return format!(
+                "Monte Carlo thermodynamic integration on the periodic cells {} (up to {} {unit}; {} replicas per cell, seed {}), extrapolated to the infinite crystal by the weighted fit {}",
+                cells.join(", "),
+                crate::report::sig(m.sampled.estimate.formula_units, 6),
+                m.sampled.replicas,
+                m.sampled.seed,
+                if x.fit.coefficients.len() == 2 {
+                    "s(N) = s∞ + a/N + b ln N/N"
+                } else {
+                    "s(N) = s∞ + a/N"
+                }
+            );
+        }
         if let Some(m) = &s.sampled {
             return format!(
                 "Monte Carlo thermodynamic integration on a {} cell ({} {unit}; {} replicas, {} measured sweeps, seed {})",
@@ -213,6 +228,23 @@ impl<'a> Writeup<'a> {
                 "reference_energy": x.reference_energy,
             })
         });
+        let sizes = s.extrapolated.as_ref().map(|x| {
+            json!({
+                "estimate": estimate_json(c, &x.estimate, Some(p)),
+                "cells": s.sampled_sizes.iter().map(|m| json!({
+                    "cells": m.cells,
+                    "estimate": estimate_json(c, &m.sampled.estimate, Some(p)),
+                })).collect::<Vec<_>>(),
+                "form": if x.fit.coefficients.len() == 2 {
+                    "s(N) = s∞ + a/N + b ln N/N"
+                } else {
+                    "s(N) = s∞ + a/N"
+                },
+                "coefficients": x.fit.coefficients,
+                "chi2": x.fit.chi2,
+                "dof": x.fit.dof,
+            })
+        });
         let comparison = self.comparison.as_ref().map(|k| {
             let (r, dr) = k.residual();
             let (w, dw) = k.w_per_unit();
@@ -256,6 +288,7 @@ impl<'a> Writeup<'a> {
             "exact_stopped": s.stopped,
             "transfer_matrix": strips,
             "monte_carlo": sampled,
+            "monte_carlo_infinite": sizes,
             "calorimetry": comparison,
             "notes": s.notes,
             "sentence": self.sentence(),

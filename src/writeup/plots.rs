@@ -183,6 +183,7 @@ pub fn figures(w: &Writeup<'_>) -> Vec<Figure> {
     let pauling = s.pauling.w_per_unit();
     let infinite = [
         s.strips.as_ref().map(|t| &t.estimate),
+        s.extrapolated.as_ref().map(|x| &x.estimate),
         s.sampled.as_ref().map(|m| &m.sampled.estimate),
     ]
     .into_iter()
@@ -210,6 +211,26 @@ pub fn figures(w: &Writeup<'_>) -> Vec<Figure> {
             BLUE_,
             exact,
         )];
+        let sampled: Vec<(f64, f64, f64)> = s
+            .sampled_sizes
+            .iter()
+            .map(|m| {
+                let e = &m.sampled.estimate;
+                (
+                    1.0 / e.formula_units,
+                    e.w_per_unit(),
+                    e.sigma_w().unwrap_or(0.0),
+                )
+            })
+            .collect();
+        if !sampled.is_empty() {
+            series.push(Series::new(
+                "Monte Carlo, periodic cells",
+                Style::Points,
+                GREY_,
+                sampled,
+            ));
+        }
         if let Some(e) = infinite {
             let label = format!("{} (infinite crystal)", crate::report::method_label(e));
             series.push(Series::new(
@@ -223,7 +244,7 @@ pub fn figures(w: &Writeup<'_>) -> Vec<Figure> {
         out.push(Figure {
             file: "convergence.svg".into(),
             caption: format!(
-                "Exact W per {unit} of periodic cells against 1/N (N formula units in the cell; cells below 8 formula units left out when three or more others exist), with Pauling's estimate and the infinite-crystal value at 1/N = 0."
+                "Exact (and, where sampled, Monte Carlo, with 1σ bars) W per {unit} of periodic cells against 1/N (N formula units in the cell; exact cells below 8 formula units left out when three or more others exist), with Pauling's estimate and the infinite-crystal value at 1/N = 0."
             ),
             svg: chart(
                 &format!("W per {unit} against cell size"),
