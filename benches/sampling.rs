@@ -1,11 +1,12 @@
-//! The Monte Carlo kernels: one heat-bath sweep and one loop attempt on an ice Ih cell.
+//! The Monte Carlo kernels: one heat-bath sweep and one loop attempt on an ice Ih cell, and
+//! a short Wang–Landau run (the cross-check method) on a small one.
 //!
 //! `cargo bench --bench sampling`. Throughput is reported in variable updates.
 
 mod common;
 
 use criterion::{Criterion, Throughput, criterion_group, criterion_main};
-use groundcount::counters::sampling::{loops::Loops, moves::Kernel, stream};
+use groundcount::counters::sampling::{loops::Loops, moves::Kernel, stream, wang_landau};
 
 fn sweeps(c: &mut Criterion) {
     let mut group = c.benchmark_group("sampling");
@@ -28,6 +29,23 @@ fn sweeps(c: &mut Criterion) {
     group.throughput(Throughput::Elements(1));
     group.bench_function("ice-ih 8x8x4 loop attempt, beta 3", |b| {
         b.iter(|| loops.attempt(&kernel, &mut chain, &mut walk))
+    });
+    group.finish();
+    let mut group = c.benchmark_group("wang-landau");
+    group.sample_size(10);
+    let small = common::model("ice-ih.yaml", "2x2x2", None);
+    let config = wang_landau::WangLandauConfig {
+        seed: 1,
+        replicas: 2,
+        sweeps: 5_000,
+        uniform: 2_000,
+    };
+    // 2 replicas × 2 stages × 5000 sweeps × 64 variables
+    group.throughput(Throughput::Elements(
+        2 * 2 * 5_000 * small.variables.len() as u64,
+    ));
+    group.bench_function("ice-ih 2x2x2, 2 walks of 5000 + 5000 sweeps", |b| {
+        b.iter(|| wang_landau::wang_landau(&small, &config).expect("walks"))
     });
     group.finish();
 }
