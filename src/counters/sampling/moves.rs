@@ -114,12 +114,12 @@ impl Kernel {
     }
 
     /// 1 when the table bit at absolute position `b` (table offset + index) forbids.
-    #[inline]
+    #[inline(always)]
     fn violated(&self, b: u32) -> i32 {
         1 - ((self.bits[(b >> 6) as usize] >> (b & 63)) & 1) as i32
     }
 
-    #[inline]
+    #[inline(always)]
     fn touches(&self, v: usize) -> &[(u32, u32)] {
         &self.touches[self.start[v] as usize..self.start[v + 1] as usize]
     }
@@ -162,7 +162,7 @@ impl Chain {
     }
 
     /// The next number of the replica's random stream.
-    #[inline]
+    #[inline(always)]
     pub fn next_u64(&mut self) -> u64 {
         self.rng.next_u64()
     }
@@ -174,7 +174,7 @@ impl Chain {
     }
 
     /// The change in the number of violated constraints if two-state variable `v` flipped.
-    #[inline]
+    #[inline(always)]
     fn flip_delta(&self, k: &Kernel, v: usize) -> i32 {
         let up = self.values[v] == 0;
         let mut de = 0i32;
@@ -187,7 +187,7 @@ impl Chain {
     }
 
     /// Flip two-state variable `v`, whose energy change `de` is known.
-    #[inline]
+    #[inline(always)]
     fn apply_flip(&mut self, k: &Kernel, v: usize, de: i32) {
         let up = self.values[v] == 0;
         for &(c, s) in k.touches(v) {
