@@ -4,7 +4,7 @@
 use groundcount::Lattice;
 use groundcount::cluster::Cells;
 use groundcount::counters::extrapolate::Scaling;
-use groundcount::counters::transfer::{self, Column, StripConfig};
+use groundcount::counters::transfer::{self, Column, Sectors, StripConfig};
 
 use crate::util::{lattice, run};
 
@@ -132,6 +132,7 @@ fn open_strips_trace_to_the_frontier_count() {
     for n in 3..=5 {
         let config = StripConfig {
             periodic: false,
+            sectors: Sectors::Full,
             ..Default::default()
         };
         let column = Column::new(&l.crystal, n, &config).unwrap();
@@ -274,4 +275,63 @@ fn strip_command_table_and_bad_widths() {
             .unwrap()
             .contains("two-dimensional")
     );
+}
+
+#[test]
+fn the_largest_flux_sector_carries_the_largest_eigenvalue() {
+    // The arrow flux through the cut is conserved (found from the tables, not from the file
+    // name). On small cylinders the chosen sector must give the full-space λ, and no other
+    // sector may exceed it: full space, chosen sector and every sector computed here.
+    let l = load("square-ice.yaml");
+    for width in 2..=8 {
+        let full = transfer::strip(
+            &l.crystal,
+            width,
+            &StripConfig {
+                sectors: Sectors::Full,
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        assert_eq!(full.sector, None);
+        assert_eq!(full.states, 1 << width);
+        let chosen = transfer::strip(&l.crystal, width, &StripConfig::default()).unwrap();
+        let q = chosen.sector.expect("square ice conserves the flux");
+        assert!(
+            (chosen.ln_lambda - full.ln_lambda).abs() < 1e-11,
+            "width {width}: sector {q} gives {} against {}",
+            chosen.ln_lambda,
+            full.ln_lambda
+        );
+        // Zero flux: as many of the W bonds crossing the cut point forward as backward,
+        // C(W, W/2) states (C(W, (W−1)/2) for odd W).
+        let half = width / 2;
+        let binomial = (0..half).fold(1usize, |c, k| c * (width - k) / (k + 1));
+        assert_eq!(chosen.states, binomial, "width {width}");
+        let mut sectors = 0;
+        for other in -(width as i64)..=width as i64 {
+            let config = StripConfig {
+                sectors: Sectors::Charge(other),
+                ..Default::default()
+            };
+            let Ok(r) = transfer::strip(&l.crystal, width, &config) else {
+                continue;
+            };
+            sectors += 1;
+            assert!(
+                r.ln_lambda <= chosen.ln_lambda + 1e-11,
+                "width {width}: sector {other} above the chosen {q}"
+            );
+        }
+        assert!(sectors >= width, "width {width}: {sectors} sectors");
+    }
+    // Rules without an additive conservation law keep the full space.
+    for name in [
+        "hard-squares.yaml",
+        "square-dimers.yaml",
+        "triangular-afm.yaml",
+    ] {
+        let r = transfer::strip(&load(name).crystal, 4, &StripConfig::default()).unwrap();
+        assert_eq!(r.sector, None, "{name}");
+    }
 }

@@ -75,6 +75,8 @@ use crate::error::{Error, Result};
 use crate::estimate::{Estimate, Method};
 use crate::model::{Model, Table};
 
+pub mod sector;
+
 /// Options of a strip computation.
 #[derive(Clone, Debug)]
 pub struct StripConfig {
@@ -90,6 +92,22 @@ pub struct StripConfig {
     pub max_iterations: usize,
     /// Stop with [`Error::Deadline`] after this instant.
     pub deadline: Option<Instant>,
+    /// Which states the operator acts on: one charge sector or all.
+    pub sectors: Sectors,
+}
+
+/// The state space of the operator when the rule conserves a charge across the column
+/// (see [`sector`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Sectors {
+    /// The sector that holds the most assignments of the boundary fields (the zero arrow
+    /// flux of square ice on even widths); the full space when no charge is conserved.
+    Largest,
+    /// A given charge (states of other charges are dropped); the full space when no charge
+    /// is conserved.
+    Charge(i64),
+    /// Every state (needed for torus traces, where all sectors count).
+    Full,
 }
 
 impl Default for StripConfig {
@@ -101,6 +119,7 @@ impl Default for StripConfig {
             tolerance: 1e-12,
             max_iterations: 200_000,
             deadline: None,
+            sectors: Sectors::Largest,
         }
     }
 }
@@ -132,6 +151,8 @@ pub struct StripResult {
     pub ln_w_per_unit: f64,
     /// Wall time in seconds (building the operator and iterating).
     pub seconds: f64,
+    /// The charge of the sector the operator was restricted to, if any.
+    pub sector: Option<i64>,
 }
 
 /// A constraint of the template, compiled against the bit layout of its step.
@@ -181,6 +202,11 @@ pub struct Column {
     sizes: Vec<usize>,
     /// Build time in seconds.
     build_seconds: f64,
+    /// (offset, coefficient) of the boundary fields in the conserved charge (empty when the
+    /// rule conserves none).
+    charge: Vec<(u32, i64)>,
+    /// The sector kept, if the state space is restricted to one.
+    sector: Option<i64>,
 }
 
 /// Strips of several widths and their extrapolation to the infinite crystal.
@@ -513,6 +539,50 @@ impl Column {
                 }
             }
         }
+        // The conserved charge, if the rule has one (see `sector`): the coefficient of a
+        // boundary field (k, a) adds the relations of the constraints reading it that have
+        // completed, those with depth − offset < a.
+        let mut charge = Vec::new();
+        if config.sectors != Sectors::Full {
+            let relations: Vec<Option<sector::Relation>> =
+                model.tables.iter().map(sector::relation).collect();
+            // One column adds Σ b of its constraints to the charge; unless that is 0 no
+            // arrangement continues for ever (and the recurrence test will say so).
+            let added: i64 = templates
+                .iter()
+                .filter_map(|t| relations[t.table].as_ref().map(|r| r.constant))
+                .sum();
+            if added == 0 && sector::cancels(&model, &relations) {
+                for k in 0..m {
+                    let Some((age, _)) = last_use[k] else {
+                        continue;
+                    };
+                    for a in 1..=age {
+                        let mut c = 0i64;
+                        for t in &templates {
+                            if let Some(r) = &relations[t.table] {
+                                for (i, &(kk, d)) in t.entries.iter().enumerate() {
+                                    if kk == k && t.depth - d < a {
+                                        c += r.coefficients[i];
+                                    }
+                                }
+                            }
+                        }
+                        if c != 0 {
+                            charge.push((canonical[&(k, a)], c));
+                        }
+                    }
+                }
+            }
+        }
+        let sector = match config.sectors {
+            _ if charge.is_empty() => None,
+            Sectors::Full => None,
+            Sectors::Charge(q) => Some(q),
+            Sectors::Largest => Some(sector::most_populous(
+                &charge.iter().map(|c| c.1).collect::<Vec<_>>(),
+            )),
+        };
         let depth = templates.iter().map(|t| t.depth).max().unwrap_or(0);
         let mut column = Column {
             width,
@@ -528,6 +598,8 @@ impl Column {
             starts: Vec::new(),
             sizes: Vec::new(),
             build_seconds: 0.0,
+            charge,
+            sector,
         };
         column.compile(config)?;
         column.build_seconds = start.elapsed().as_secs_f64();
@@ -609,15 +681,48 @@ impl Column {
         Ok(())
     }
 
-    /// Find the states reachable from an open left end, closed under the column, and
-    /// compile the index lists of every step.
+    /// The charge of a boundary key.
+    fn charge_of(&self, key: u64) -> i64 {
+        self.charge
+            .iter()
+            .map(|&(off, c)| c * ((key >> off) & 1) as i64)
+            .sum()
+    }
+
+    /// Find the states reachable from an open left end (in the chosen sector), closed
+    /// under the column, and compile the index lists of every step.
     fn compile(&mut self, config: &StripConfig) -> Result<()> {
         let mut keys = vec![0u64];
         for t in 0..self.depth {
             keys = self.column_keys(&keys, Some(t), config)?;
         }
+        if let Some(q) = self.sector {
+            let kept: Vec<u64> = keys
+                .iter()
+                .copied()
+                .filter(|&k| self.charge_of(k) == q)
+                .collect();
+            if !kept.is_empty() {
+                keys = kept;
+            } else if config.sectors == Sectors::Largest {
+                // Nothing of that charge follows an open end: keep every sector.
+                self.sector = None;
+            } else {
+                return Err(Error::Model(format!(
+                    "no state of a strip {} cells wide has charge {q}",
+                    self.width
+                )));
+            }
+        }
         for _ in 0..1000 {
             let image = self.column_keys(&keys, None, config)?;
+            if let Some(q) = self.sector
+                && image.iter().any(|&k| self.charge_of(k) != q)
+            {
+                return Err(Error::Model(
+                    "internal: the charge found from the rule tables is not conserved".into(),
+                ));
+            }
             let mut union: Vec<u64> = keys.iter().chain(&image).copied().collect();
             union.sort_unstable();
             union.dedup();
@@ -631,55 +736,95 @@ impl Column {
         let mut sizes = Vec::with_capacity(self.steps.len());
         let mut cur = keys.clone();
         let last = self.steps.len().saturating_sub(1);
+        let too_many = |n: usize| Error::Budget {
+            cells: format!("a strip {} cells wide", self.width),
+            detail: format!("a column step has {n} transitions"),
+        };
         for (s, step) in self.steps.iter().enumerate() {
-            // Every allowed transition as (output key, input index), sorted: equal keys
-            // become one output state, and their inputs (increasing) its row.
-            let mut pairs: Vec<(u64, u32)> = Vec::with_capacity(cur.len() * step.states as usize);
-            for (i, &key) in cur.iter().enumerate() {
-                for x in 0..step.states {
-                    let k = key | (x << step.offset);
-                    if step.checks.iter().all(|c| self.allows(c, k)) {
-                        let out = k & step.keep;
-                        let out = if s == last { self.relabelled(out) } else { out };
-                        pairs.push((out, i as u32));
+            let (sources, starts, next) = if s == last {
+                // Rows follow the boundary states K (a state nothing leads to has an empty
+                // row): a counting sort by the index of the relabelled output in K, filled
+                // in increasing input order.
+                let mut targets: Vec<(u32, u32)> = Vec::new();
+                for (i, &key) in cur.iter().enumerate() {
+                    for x in 0..step.states {
+                        let k = key | (x << step.offset);
+                        if step.checks.iter().all(|c| self.allows(c, k)) {
+                            let out = self.relabelled(k & step.keep);
+                            let j = keys.binary_search(&out).map_err(|_| {
+                                Error::Model("internal: the strip's state set is not closed".into())
+                            })?;
+                            targets.push((j as u32, i as u32));
+                        }
                     }
                 }
-            }
-            if pairs.len() >= u32::MAX as usize {
-                return Err(Error::Budget {
-                    cells: format!("a strip {} cells wide", self.width),
-                    detail: format!("a column step has {} transitions", pairs.len()),
-                });
-            }
-            pairs.sort_unstable();
-            let sources: Vec<u32> = pairs.iter().map(|p| p.1).collect();
-            let mut starts = Vec::new();
-            let next: Vec<u64> = if s == last {
-                // Rows follow the boundary states K; a state nothing leads to has an empty row.
-                let mut p = 0;
-                for &k in &keys {
-                    starts.push(p as u32);
-                    while p < pairs.len() && pairs[p].0 == k {
-                        p += 1;
-                    }
+                if targets.len() >= u32::MAX as usize {
+                    return Err(too_many(targets.len()));
                 }
-                if p != pairs.len() {
-                    return Err(Error::Model(
-                        "internal: the strip's state set is not closed".into(),
-                    ));
+                let mut starts = vec![0u32; keys.len() + 1];
+                for &(j, _) in &targets {
+                    starts[j as usize + 1] += 1;
                 }
-                starts.push(p as u32);
-                keys.clone()
+                for j in 0..keys.len() {
+                    starts[j + 1] += starts[j];
+                }
+                let mut fill = starts.clone();
+                let mut sources = vec![0u32; targets.len()];
+                for &(j, i) in &targets {
+                    sources[fill[j as usize] as usize] = i;
+                    fill[j as usize] += 1;
+                }
+                (sources, starts, keys.clone())
             } else {
-                let mut next = Vec::new();
-                for (p, pair) in pairs.iter().enumerate() {
-                    if next.last() != Some(&pair.0) {
-                        next.push(pair.0);
-                        starts.push(p as u32);
+                // Transitions with the same new value and the same forgotten fields keep
+                // the order of their inputs (a stream); the streams are merged.
+                let mut streams: Vec<((u64, u64), Vec<(u64, u32)>)> = Vec::new();
+                let mut total = 0usize;
+                for (i, &key) in cur.iter().enumerate() {
+                    for x in 0..step.states {
+                        let k = key | (x << step.offset);
+                        if step.checks.iter().all(|c| self.allows(c, k)) {
+                            let id = (x, k & !step.keep);
+                            let p = match streams.iter().position(|st| st.0 == id) {
+                                Some(p) => p,
+                                None => {
+                                    streams.push((id, Vec::new()));
+                                    streams.len() - 1
+                                }
+                            };
+                            streams[p].1.push((k & step.keep, i as u32));
+                            total += 1;
+                        }
                     }
                 }
-                starts.push(pairs.len() as u32);
-                next
+                if total >= u32::MAX as usize {
+                    return Err(too_many(total));
+                }
+                let mut heads = vec![0usize; streams.len()];
+                let mut sources = Vec::with_capacity(total);
+                let mut starts = Vec::new();
+                let mut next: Vec<u64> = Vec::new();
+                loop {
+                    let mut best: Option<(usize, (u64, u32))> = None;
+                    for (j, st) in streams.iter().enumerate() {
+                        if let Some(&p) = st.1.get(heads[j])
+                            && best.is_none_or(|b| p < b.1)
+                        {
+                            best = Some((j, p));
+                        }
+                    }
+                    let Some((j, (out, input))) = best else {
+                        break;
+                    };
+                    heads[j] += 1;
+                    if next.last() != Some(&out) {
+                        next.push(out);
+                        starts.push(sources.len() as u32);
+                    }
+                    sources.push(input);
+                }
+                starts.push(sources.len() as u32);
+                (sources, starts, next)
             };
             self.within_budget(next.len(), config)?;
             all_sources.push(sources);
@@ -747,6 +892,11 @@ impl Column {
     /// constraint (so that no constraint of the torus reads a variable twice along the
     /// strip).
     pub fn trace_power(&self, length: usize) -> Result<BigUint> {
+        if let Some(q) = self.sector {
+            return Err(Error::Cells(format!(
+                "a torus trace needs every charge sector; this operator keeps only charge {q} (build it with Sectors::Full)"
+            )));
+        }
         if length <= self.depth {
             return Err(Error::Cells(format!(
                 "a torus trace needs more than {} columns along the strip",
@@ -828,6 +978,7 @@ impl Column {
                     units_per_column: self.units_per_column,
                     ln_w_per_unit: ln_lambda / self.units_per_column,
                     seconds: self.build_seconds + start.elapsed().as_secs_f64(),
+                    sector: self.sector,
                 });
             }
             if iteration % 16 == 0 && config.deadline.is_some_and(|d| Instant::now() > d) {
@@ -948,6 +1099,7 @@ mod tests {
                 for width in 1..=4 {
                     let config = StripConfig {
                         along,
+                        sectors: Sectors::Full,
                         ..Default::default()
                     };
                     let column = Column::new(&l.crystal, width, &config).unwrap();
@@ -973,7 +1125,11 @@ mod tests {
     fn square_ice_tori_by_trace() {
         let l = lattice("square-ice.yaml");
         for (n, expected) in [(3usize, 148u64), (4, 2970), (5, 143224)] {
-            let column = Column::new(&l.crystal, n, &StripConfig::default()).unwrap();
+            let config = StripConfig {
+                sectors: Sectors::Full,
+                ..Default::default()
+            };
+            let column = Column::new(&l.crystal, n, &config).unwrap();
             assert_eq!(column.trace_power(n).unwrap(), BigUint::from(expected));
         }
     }
