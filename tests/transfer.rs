@@ -307,7 +307,15 @@ fn the_largest_flux_sector_carries_the_largest_eigenvalue() {
         // C(W, W/2) states (C(W, (W−1)/2) for odd W).
         let half = width / 2;
         let binomial = (0..half).fold(1usize, |c, k| c * (width - k) / (k + 1));
-        assert_eq!(chosen.states, binomial, "width {width}");
+        // Even widths: zero flux maps to itself under reversing every arrow, and the
+        // states are paired with their reversals (halving them).
+        assert_eq!(chosen.reversal, width % 2 == 0, "width {width}");
+        let expected = if chosen.reversal {
+            binomial / 2
+        } else {
+            binomial
+        };
+        assert_eq!(chosen.states, expected, "width {width}");
         let mut sectors = 0;
         for other in -(width as i64)..=width as i64 {
             let config = StripConfig {
@@ -333,5 +341,36 @@ fn the_largest_flux_sector_carries_the_largest_eigenvalue() {
     ] {
         let r = transfer::strip(&load(name).crystal, 4, &StripConfig::default()).unwrap();
         assert_eq!(r.sector, None, "{name}");
+    }
+}
+
+#[test]
+fn pairing_states_with_their_reversal_keeps_lambda() {
+    // Reversing every spin of the triangular antiferromagnet (and every arrow of square ice)
+    // maps allowed columns to allowed columns; the largest eigenvector is symmetric, so the
+    // operator on the pairs has the full-space λ, and its bracket still contains it.
+    for (name, widths) in [("triangular-afm.yaml", 2..=9), ("square-ice.yaml", 2..=8)] {
+        let l = load(name);
+        for width in widths {
+            let full = transfer::strip(
+                &l.crystal,
+                width,
+                &StripConfig {
+                    sectors: Sectors::Full,
+                    ..Default::default()
+                },
+            )
+            .unwrap();
+            let paired = transfer::strip(&l.crystal, width, &StripConfig::default()).unwrap();
+            if name == "triangular-afm.yaml" {
+                assert!(paired.reversal && paired.states * 2 == full.states);
+            }
+            assert!(
+                (paired.ln_lambda - full.ln_lambda).abs() < 1e-11,
+                "{name} width {width}"
+            );
+            assert!(paired.ln_bracket.0 <= full.ln_lambda + 1e-12);
+            assert!(full.ln_lambda <= paired.ln_bracket.1 + 1e-12);
+        }
     }
 }

@@ -153,6 +153,9 @@ pub struct StripResult {
     pub seconds: f64,
     /// The charge of the sector the operator was restricted to, if any.
     pub sector: Option<i64>,
+    /// Whether states were paired with their images under reversing every variable (the
+    /// largest eigenvector is symmetric under it, so λ is that of the symmetric part).
+    pub reversal: bool,
 }
 
 /// A constraint of the template, compiled against the bit layout of its step.
@@ -172,6 +175,8 @@ struct Step {
     offset: u32,
     checks: Vec<Check>,
     keep: u64,
+    /// The bits of every field on the frontier after the step (before relabelling).
+    occupied: u64,
 }
 
 /// The compiled transfer operator of one column of a strip.
@@ -207,6 +212,9 @@ pub struct Column {
     charge: Vec<(u32, i64)>,
     /// The sector kept, if the state space is restricted to one.
     sector: Option<i64>,
+    /// When every state is identified with its image under reversing every binary
+    /// variable, the bits of the boundary fields (XOR with them is the reversal).
+    flip: Option<u64>,
 }
 
 /// Strips of several widths and their extrapolation to the infinite crystal.
@@ -528,6 +536,7 @@ impl Column {
                 offset: off,
                 checks,
                 keep: !forget,
+                occupied: used,
             });
         }
         let mut relabel = Vec::new();
@@ -583,6 +592,22 @@ impl Column {
                 &charge.iter().map(|c| c.1).collect::<Vec<_>>(),
             )),
         };
+        // Reversing every variable (arrows, spins) maps allowed columns to allowed columns
+        // when every variable is binary and every table is closed under complements; the
+        // sector must map to itself (charge q ↦ Σc − q).
+        let boundary_bits = (1u64 << next_bit) - 1;
+        let binary = (0..m).all(|k| last_use[k].is_none() || states[k] == 2);
+        let closed = steps.iter().flat_map(|s| &s.checks).all(|c| {
+            let t = &model.tables[c.table];
+            (0..t.size).all(|i| t.allows(i) == t.allows(t.size - 1 - i))
+        });
+        let total_charge: i64 = charge.iter().map(|c| c.1).sum();
+        let flip = (config.sectors != Sectors::Full
+            && binary
+            && closed
+            && next_bit > 0
+            && sector.is_none_or(|q| 2 * q == total_charge))
+        .then_some(boundary_bits);
         let depth = templates.iter().map(|t| t.depth).max().unwrap_or(0);
         let mut column = Column {
             width,
@@ -600,6 +625,7 @@ impl Column {
             build_seconds: 0.0,
             charge,
             sector,
+            flip,
         };
         column.compile(config)?;
         column.build_seconds = start.elapsed().as_secs_f64();
@@ -731,6 +757,14 @@ impl Column {
             }
             keys = union;
         }
+        if self.sector.is_none() && config.sectors == Sectors::Largest && !self.charge.is_empty() {
+            // The fallback to every sector: reversal maps sectors onto each other only.
+            self.flip = None;
+        }
+        if let Some(m) = self.flip {
+            // One representative (the smaller key) of every pair {k, k XOR m}.
+            keys.retain(|&k| k < k ^ m);
+        }
         let mut all_sources = Vec::with_capacity(self.steps.len());
         let mut all_starts = Vec::with_capacity(self.steps.len());
         let mut sizes = Vec::with_capacity(self.steps.len());
@@ -751,6 +785,7 @@ impl Column {
                         let k = key | (x << step.offset);
                         if step.checks.iter().all(|c| self.allows(c, k)) {
                             let out = self.relabelled(k & step.keep);
+                            let out = self.flip.map_or(out, |m| out.min(out ^ m));
                             let j = keys.binary_search(&out).map_err(|_| {
                                 Error::Model("internal: the strip's state set is not closed".into())
                             })?;
@@ -778,13 +813,17 @@ impl Column {
             } else {
                 // Transitions with the same new value and the same forgotten fields keep
                 // the order of their inputs (a stream); the streams are merged.
-                let mut streams: Vec<((u64, u64), Vec<(u64, u32)>)> = Vec::new();
+                let mut streams: Vec<((u64, u64, bool), Vec<(u64, u32)>)> = Vec::new();
                 let mut total = 0usize;
                 for (i, &key) in cur.iter().enumerate() {
                     for x in 0..step.states {
                         let k = key | (x << step.offset);
                         if step.checks.iter().all(|c| self.allows(c, k)) {
-                            let id = (x, k & !step.keep);
+                            let out = k & step.keep;
+                            // A reversed key runs backwards within its stream.
+                            let flipped = self.flip.is_some() && out ^ step.occupied < out;
+                            let out = if flipped { out ^ step.occupied } else { out };
+                            let id = (x, k & !step.keep, flipped);
                             let p = match streams.iter().position(|st| st.0 == id) {
                                 Some(p) => p,
                                 None => {
@@ -792,13 +831,16 @@ impl Column {
                                     streams.len() - 1
                                 }
                             };
-                            streams[p].1.push((k & step.keep, i as u32));
+                            streams[p].1.push((out, i as u32));
                             total += 1;
                         }
                     }
                 }
                 if total >= u32::MAX as usize {
                     return Err(too_many(total));
+                }
+                for st in streams.iter_mut().filter(|st| st.0.2) {
+                    st.1.reverse();
                 }
                 let mut heads = vec![0usize; streams.len()];
                 let mut sources = Vec::with_capacity(total);
@@ -892,6 +934,11 @@ impl Column {
     /// constraint (so that no constraint of the torus reads a variable twice along the
     /// strip).
     pub fn trace_power(&self, length: usize) -> Result<BigUint> {
+        if self.flip.is_some() {
+            return Err(Error::Cells(
+                "a torus trace needs every state; this operator pairs each state with its reversal (build it with Sectors::Full)".into(),
+            ));
+        }
         if let Some(q) = self.sector {
             return Err(Error::Cells(format!(
                 "a torus trace needs every charge sector; this operator keeps only charge {q} (build it with Sectors::Full)"
@@ -979,6 +1026,7 @@ impl Column {
                     ln_w_per_unit: ln_lambda / self.units_per_column,
                     seconds: self.build_seconds + start.elapsed().as_secs_f64(),
                     sector: self.sector,
+                    reversal: self.flip.is_some(),
                 });
             }
             if iteration % 16 == 0 && config.deadline.is_some_and(|d| Instant::now() > d) {
