@@ -75,6 +75,7 @@ use crate::error::{Error, Result};
 use crate::estimate::{Estimate, Method};
 use crate::model::{Model, Table};
 
+mod krylov;
 pub mod sector;
 
 /// Options of a strip computation.
@@ -992,8 +993,17 @@ impl Column {
             .iter()
             .map(|&r| if r { 1.0 / size as f64 } else { 0.0 })
             .collect();
+        // Arnoldi first (it never decides λ; the power iteration below certifies it).
+        let restarts = (config.max_iterations / (2 * BASIS)).min(MAX_RESTARTS);
+        let mut applied = 0;
+        if size >= KRYLOV_MIN && restarts > 0 {
+            let mut op = |a: &[f64], b: &mut Vec<f64>| self.apply(a, b, &mut scratch);
+            let (v, used) = krylov::restarted(&mut op, &x, BASIS, restarts, 1e-13);
+            x = v;
+            applied = used;
+        }
         let mut lambda = 0.0;
-        for iteration in 1..=config.max_iterations {
+        for iteration in applied + 1..=config.max_iterations {
             self.apply(&x, &mut y, &mut scratch);
             let sum_x: f64 = x.iter().sum();
             let sum_y: f64 = y.iter().sum();
@@ -1110,6 +1120,15 @@ const PARALLEL_MIN: usize = 1 << 15;
 
 /// Output states per parallel task.
 const CHUNK: usize = 1 << 12;
+
+/// Arnoldi basis size (common practice: a few tens of vectors at most).
+const BASIS: usize = 12;
+
+/// Largest number of Arnoldi restarts before the power iteration.
+const MAX_RESTARTS: usize = 8;
+
+/// Operators with fewer recurrent states go straight to the power iteration.
+const KRYLOV_MIN: usize = 64;
 
 /// Shift of the power iteration, relative to the current estimate of λ.
 const SHIFT: f64 = 0.25;
