@@ -907,7 +907,7 @@ impl Column {
         y.clear();
         y.extend_from_slice(x);
         for s in 0..self.steps.len() {
-            scratch.clear();
+            // Every output is written below, so old contents need no clearing.
             scratch.resize(self.sizes[s], 0.0);
             let (sources, starts) = (&self.sources[s], &self.starts[s]);
             let input: &[f64] = y;
