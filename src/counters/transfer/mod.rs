@@ -23,11 +23,23 @@
 //!
 //! The operator is never stored as a matrix. Once per width a symbolic pass finds the set
 //! K of frontier states reachable from an open left end (closed under T) and compiles, for
-//! every step of the column, a dense index list: for input state i and value x, the index of
-//! the output state (or none). Applying T is then `m` gather-scatter passes over flat `f64`
-//! arrays (m = variables per column), with no hash map or search in the hot loop.
+//! every step of the column, compressed rows: for each output state the indices of its
+//! input states (found by merging sorted streams of transitions, never by sorting).
+//! Applying T is then `m` gather passes over flat `f64` arrays (m = variables per column),
+//! with no hash map or search in the hot loop.
 //!
-//! The eigenvalue comes from power iteration on the shifted operator T + σλ̃ (σ = 1/4, λ̃
+//! Two reductions shrink K (both on by default, [`Sectors::Full`] turns them off):
+//!
+//! * **Charge sectors** ([`sector`]): when the constraint tables imply an additive quantity
+//!   that T conserves (the arrow flux of ice rules), K keeps one sector, the one holding the
+//!   most boundary assignments (zero flux for even square-ice widths: C(W, W/2) states
+//!   instead of 2^W). Every image is checked to keep the charge.
+//! * **Reversal pairs**: when every frontier variable is binary, every table is closed under
+//!   complementing its scope and the sector maps to itself, a state and its complement are
+//!   one state (the largest eigenvector is symmetric under the reversal); this halves K.
+//!
+//! The eigenvalue: a start vector from restarted Arnoldi ([`krylov`]: the Ritz value of
+//! largest real part, so never −λ), then power iteration on the shifted operator T + σλ̃ (σ = 1/4, λ̃
 //! the current estimate) with L1-normalised vectors, started on the recurrent states R (the
 //! states with an arbitrarily long past; T maps R into itself, every other state is
 //! transient; R empty means that no arrangement continues for ever, an error). The shift
@@ -50,10 +62,12 @@
 //!
 //! # Complexity
 //!
-//! Memory O(Σ_steps S_t · q_t) 4-byte indices plus a few f64 vectors of length max S_t; time
-//! per iteration O(Σ_steps S_t · q_t), with S_t the number of frontier states at step t. For
-//! a sweep across a column S_t ≤ q^(width · depth + 1), much less under restrictive rules
-//! (2^width for square ice, about 1.618^width for hard squares).
+//! Memory O(Σ_steps S_t · q_t) 4-byte indices plus about 14 f64 vectors of length max S_t
+//! (the Arnoldi basis); time per application O(Σ_steps S_t · q_t), with S_t the number of
+//! frontier states at step t. For a sweep across a column S_t ≤ q^(width · depth + 1), much
+//! less under restrictive rules and sectors (C(W, W/2)/2 at a square-ice boundary for even
+//! W and about 15 times that inside a column; about 1.618^W for hard squares). Building is
+//! O(Σ_t S_t q_t · streams) plus one pass over the full boundary space from the open end.
 //!
 //! # Reference
 //!
@@ -814,7 +828,7 @@ impl Column {
             } else {
                 // Transitions with the same new value and the same forgotten fields keep
                 // the order of their inputs (a stream); the streams are merged.
-                let mut streams: Vec<((u64, u64, bool), Vec<(u64, u32)>)> = Vec::new();
+                let mut streams: Vec<(StreamId, Vec<(u64, u32)>)> = Vec::new();
                 let mut total = 0usize;
                 for (i, &key) in cur.iter().enumerate() {
                     for x in 0..step.states {
@@ -1120,6 +1134,9 @@ const PARALLEL_MIN: usize = 1 << 15;
 
 /// Output states per parallel task.
 const CHUNK: usize = 1 << 12;
+
+/// A stream of one step: (new value, forgotten fields, reversed).
+type StreamId = (u64, u64, bool);
 
 /// Arnoldi basis size (common practice: a few tens of vectors at most).
 const BASIS: usize = 12;
