@@ -4,7 +4,7 @@
 use groundcount::Lattice;
 use groundcount::cluster::Cells;
 use groundcount::counters::extrapolate::Scaling;
-use groundcount::counters::transfer::{self, Column, Sectors, StripConfig};
+use groundcount::counters::transfer::{self, Column, Sectors, StripConfig, torus};
 
 use crate::util::{lattice, run};
 
@@ -393,4 +393,62 @@ fn results_do_not_depend_on_the_thread_count() {
     assert_eq!(one.ln_bracket.0.to_bits(), two.ln_bracket.0.to_bits());
     assert_eq!(one.ln_bracket.1.to_bits(), two.ln_bracket.1.to_bits());
     assert_eq!(one.iterations, two.iterations);
+}
+
+#[test]
+fn torus_counts_by_trace_and_by_frontier_agree_with_oeis() {
+    // OEIS A054759: square ice on the L×L torus, L = 1…8. The trace of T^L (full space,
+    // every flux sector) and the frontier counter are two independent routes.
+    let published: [u64; 8] = [
+        4,
+        18,
+        148,
+        2970,
+        143224,
+        16448400,
+        4484823396,
+        2901094068042,
+    ];
+    let l = load("square-ice.yaml");
+    for (n, &expected) in (1..=8).zip(&published) {
+        let cells = Cells::parse(&format!("{n}x{n}"), None, 2).unwrap();
+        let frontier = l.count_exact(&cells, &Default::default()).unwrap();
+        assert_eq!(frontier.count.clone().unwrap(), expected.into(), "{n}x{n}");
+        // The template reaches one column back: the trace needs L ≥ 2.
+        let Some(route) = torus::route(&l.crystal, &cells, 1 << 16) else {
+            assert_eq!(n, 1);
+            continue;
+        };
+        assert!(route.work() > 0.0);
+        let trace = route
+            .count(frontier.formula_units, &format!("{n}x{n} periodic"))
+            .unwrap();
+        assert_eq!(trace.count, frontier.count, "{n}x{n}");
+        assert!((trace.ln_w_per_unit - frontier.ln_w_per_unit).abs() < 1e-12);
+    }
+}
+
+#[test]
+fn exact_takes_the_trace_route_on_a_long_thin_torus() {
+    // 2×100 square ice: the predicted trace work (4 column states) is below the frontier
+    // plan's; the count must equal the frontier counter's, digit for digit.
+    let l = load("square-ice.yaml");
+    let cells = Cells::parse("2x100", None, 2).unwrap();
+    let frontier = l.count_exact(&cells, &Default::default()).unwrap();
+    let out = run(&[
+        "exact",
+        lattice("square-ice.yaml").to_str().unwrap(),
+        "--cells",
+        "2x100",
+        "--format",
+        "json",
+    ]);
+    assert!(out.status.success());
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["route"], "trace");
+    let printed = v["count"]
+        .as_str()
+        .map(str::to_string)
+        .unwrap_or_else(|| v["count"].to_string());
+    assert_eq!(printed, frontier.count.unwrap().to_string());
 }

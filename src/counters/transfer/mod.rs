@@ -91,6 +91,7 @@ use crate::model::{Model, Table};
 
 mod krylov;
 pub mod sector;
+pub mod torus;
 
 /// Options of a strip computation.
 #[derive(Clone, Debug)]
