@@ -8,7 +8,7 @@
 
 mod common;
 
-use criterion::{Criterion, criterion_group, criterion_main};
+use criterion::{Criterion, Throughput, criterion_group, criterion_main};
 use groundcount::counters::transfer::{Column, StripConfig};
 
 fn transfer(c: &mut Criterion) {
@@ -27,9 +27,12 @@ fn transfer(c: &mut Criterion) {
         let x = vec![1.0; column.states()];
         let (mut y, mut scratch) = (Vec::new(), Vec::new());
         let name = file.trim_end_matches(".yaml");
+        // Throughput in transitions (one gather-add each) per second.
+        group.throughput(Throughput::Elements(column.transitions() as u64));
         group.bench_function(format!("column {name} W={width}"), |b| {
             b.iter(|| column.apply(&x, &mut y, &mut scratch))
         });
+        group.throughput(Throughput::Elements(1));
         group.bench_function(format!("build {name} W={width}"), |b| {
             b.iter(|| Column::new(&l.crystal, width, &config).expect("operator"))
         });

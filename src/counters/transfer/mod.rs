@@ -912,6 +912,11 @@ impl Column {
             .max(self.keys.len())
     }
 
+    /// Transitions (index-list entries) per application of T, summed over the steps.
+    pub fn transitions(&self) -> usize {
+        self.sources.iter().map(Vec::len).sum()
+    }
+
     /// Formula units per column.
     pub fn units_per_column(&self) -> f64 {
         self.units_per_column
