@@ -452,3 +452,33 @@ fn exact_takes_the_trace_route_on_a_long_thin_torus() {
         .unwrap_or_else(|| v["count"].to_string());
     assert_eq!(printed, frontier.count.unwrap().to_string());
 }
+
+#[test]
+fn arnoldi_start_keeps_the_guard_against_minus_lambda() {
+    // Dimers on open strips of odd width m alternate the parity of the dimers crossing a
+    // column boundary, so T has −λ as well as λ; at m = 9 (512 states) the Arnoldi start
+    // runs before the shifted power iteration. Kasteleyn's product for m × n rectangles
+    // (Kasteleyn 1961, Physica 27, 1209) gives per column
+    // λ = Π_{j=1}^{⌊m/2⌋} (c_j + √(1 + c_j²)), c_j = cos(πj/(m + 1)) (the column limit of the
+    // product, derived from memory; at m = 3 it gives λ² = 2 + √3 as OEIS A001835 does).
+    let l = load("square-dimers.yaml");
+    for m in [5usize, 9] {
+        let config = StripConfig {
+            periodic: false,
+            ..Default::default()
+        };
+        let r = transfer::strip(&l.crystal, m, &config).unwrap();
+        let expected: f64 = (1..=m / 2)
+            .map(|j| {
+                let c = (std::f64::consts::PI * j as f64 / (m + 1) as f64).cos();
+                (c + (1.0 + c * c).sqrt()).ln()
+            })
+            .sum();
+        assert!(
+            (r.ln_lambda - expected).abs() < 1e-11,
+            "m = {m}: {} against {expected}",
+            r.ln_lambda
+        );
+        assert!(r.ln_bracket.0 <= expected + 1e-12 && expected <= r.ln_bracket.1 + 1e-12);
+    }
+}
