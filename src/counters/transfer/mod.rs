@@ -228,6 +228,8 @@ pub struct Column {
     charge: Vec<(u32, i64)>,
     /// The sector kept, if the state space is restricted to one.
     sector: Option<i64>,
+    /// The bits of the boundary fields.
+    boundary_bits: u64,
     /// When every state is identified with its image under reversing every binary
     /// variable, the bits of the boundary fields (XOR with them is the reversal).
     flip: Option<u64>,
@@ -642,6 +644,7 @@ impl Column {
             charge,
             sector,
             flip,
+            boundary_bits,
         };
         column.compile(config)?;
         column.build_seconds = start.elapsed().as_secs_f64();
@@ -731,14 +734,55 @@ impl Column {
             .sum()
     }
 
+    /// Every boundary key of charge q, sorted, when every boundary field is a charge field
+    /// (the set is then closed under T because T keeps the charge).
+    fn sector_keys(&self, q: i64, config: &StripConfig) -> Result<Vec<u64>> {
+        let fields = &self.charge;
+        // Smallest and largest charge the fields from i on can still add.
+        let mut low = vec![0i64; fields.len() + 1];
+        let mut high = vec![0i64; fields.len() + 1];
+        for i in (0..fields.len()).rev() {
+            low[i] = low[i + 1] + fields[i].1.min(0);
+            high[i] = high[i + 1] + fields[i].1.max(0);
+        }
+        let mut keys = Vec::new();
+        let mut stack = vec![(0usize, 0u64, 0i64)];
+        while let Some((i, key, charge)) = stack.pop() {
+            if i == fields.len() {
+                keys.push(key);
+                self.within_budget(keys.len(), config)?;
+                continue;
+            }
+            let (off, c) = fields[i];
+            for (k, ch) in [(key, charge), (key | (1 << off), charge + c)] {
+                if (low[i + 1]..=high[i + 1]).contains(&(q - ch)) {
+                    stack.push((i + 1, k, ch));
+                }
+            }
+        }
+        keys.sort_unstable();
+        Ok(keys)
+    }
+
     /// Find the states reachable from an open left end (in the chosen sector), closed
     /// under the column, and compile the index lists of every step.
     fn compile(&mut self, config: &StripConfig) -> Result<()> {
         let mut keys = vec![0u64];
-        for t in 0..self.depth {
-            keys = self.column_keys(&keys, Some(t), config)?;
+        let every_field_charged = self.charge.len() as u32 == self.boundary_bits.count_ones();
+        if let Some(q) = self.sector
+            && every_field_charged
+        {
+            // No pass from the open end: the sector is every key of charge q (states
+            // without a past among them are pruned as transient before iterating).
+            keys = self.sector_keys(q, config)?;
+        } else {
+            for t in 0..self.depth {
+                keys = self.column_keys(&keys, Some(t), config)?;
+            }
         }
-        if let Some(q) = self.sector {
+        if let Some(q) = self.sector
+            && !every_field_charged
+        {
             let kept: Vec<u64> = keys
                 .iter()
                 .copied()
@@ -757,6 +801,10 @@ impl Column {
             }
         }
         for _ in 0..1000 {
+            if self.sector.is_some() && every_field_charged {
+                // Closed by construction; the last step's look-up checks every image.
+                break;
+            }
             let image = self.column_keys(&keys, None, config)?;
             if let Some(q) = self.sector
                 && image.iter().any(|&k| self.charge_of(k) != q)
