@@ -4,11 +4,15 @@ use std::fmt::Write;
 use std::path::PathBuf;
 
 use groundcount::cluster::{Cells, Cluster};
+use groundcount::counters::transfer::torus;
 use groundcount::counters::{exact, pauling};
 use groundcount::model::Model;
 use groundcount::report::{self, sig};
 
 use super::{Common, Format, cell_header, load, pauling_line, with_threads};
+
+/// Largest column state space tried for the trace route of a torus.
+const TRACE_MAX_STATES: usize = 1 << 16;
 
 /// Arguments of `exact`.
 #[derive(clap::Args, Debug)]
@@ -33,7 +37,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let c = &lattice.crystal;
     let cells = Cells::parse(&args.cells, args.open.as_deref(), c.dimensions)?;
     let p = pauling::estimate(c)?;
-    let cluster = Cluster::new(c, cells)?;
+    let cluster = Cluster::new(c, cells.clone())?;
     let model = Model::new(&cluster)?;
     let (progress, bar) = args
         .common
@@ -43,7 +47,21 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         deadline: None,
         progress,
     };
-    let e = with_threads(args.common.threads, || exact::count(&model, &config));
+    // A 2D torus may be cheaper as the trace of T^L: compare the predicted work of both
+    // routes (the trace's column is tried with a small state budget only).
+    let frontier_work = exact::plan_for(&model).map_or(f64::INFINITY, |p| p.cost);
+    let trace = if model.contradiction.is_none() {
+        with_threads(args.common.threads, || {
+            torus::route(c, &cells, args.max_states.min(TRACE_MAX_STATES))
+        })?
+        .filter(|r| r.work() < frontier_work)
+    } else {
+        None
+    };
+    let e = with_threads(args.common.threads, || match &trace {
+        Some(r) => r.count(model.formula_units, &model.cells),
+        None => exact::count(&model, &config),
+    });
     if let Some(b) = bar {
         b.finish_and_clear();
     }
@@ -55,6 +73,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             v["variables"] = model.variables.len().into();
             v["constraints"] = model.constraints.len().into();
             v["content_hash"] = lattice.content_hash.clone().into();
+            v["route"] = if trace.is_some() { "trace" } else { "frontier" }.into();
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
         Format::Csv => Ok(report::comparison_table(&[p, e], unit).render_csv()),
@@ -75,12 +94,21 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             )?;
             out += &pauling_line(&p, unit);
             writeln!(out)?;
-            writeln!(
-                out,
-                "exact frontier count, {} s, at most {} partial states held",
-                sig(e.seconds, 3),
-                e.peak_states.unwrap_or(0)
-            )?;
+            match &trace {
+                Some(r) => writeln!(
+                    out,
+                    "exact count as the trace of the transfer matrix T^L ({} column states; predicted cheaper than the frontier count), {} s, at most {} states held",
+                    r.states(),
+                    sig(e.seconds, 3),
+                    e.peak_states.unwrap_or(0)
+                )?,
+                None => writeln!(
+                    out,
+                    "exact frontier count, {} s, at most {} partial states held",
+                    sig(e.seconds, 3),
+                    e.peak_states.unwrap_or(0)
+                )?,
+            }
             if model.has_repeats {
                 writeln!(
                     out,

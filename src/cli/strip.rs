@@ -6,7 +6,7 @@ use std::path::PathBuf;
 
 use clap::ValueEnum;
 use groundcount::counters::extrapolate::Scaling;
-use groundcount::counters::transfer::{self, StripConfig};
+use groundcount::counters::transfer::{self, Sectors, StripConfig};
 use groundcount::report::{self, Table, sig};
 use serde_json::json;
 
@@ -47,6 +47,17 @@ pub enum ScalingArg {
     Gapped,
 }
 
+/// Which states the operator keeps.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum SectorsArg {
+    /// The charge sector with the most boundary states (when the rule conserves a charge,
+    /// such as the arrow flux of ice rules), states paired with their reversals when the
+    /// rule allows it.
+    Largest,
+    /// Every state.
+    Full,
+}
+
 /// Arguments of `strip`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
@@ -70,6 +81,9 @@ pub struct Args {
     /// Largest number of frontier states at any step of a column.
     #[arg(long, default_value_t = 1 << 24)]
     max_states: usize,
+    /// State space: the largest conserved-charge sector, or every state.
+    #[arg(long, value_enum, default_value_t = SectorsArg::Largest)]
+    sectors: SectorsArg,
     /// Power iterations allowed per width before giving up.
     #[arg(long, default_value_t = 200_000)]
     max_iterations: usize,
@@ -125,6 +139,10 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         periodic: args.around == Around::Periodic,
         max_states: args.max_states,
         max_iterations: args.max_iterations,
+        sectors: match args.sectors {
+            SectorsArg::Largest => Sectors::Largest,
+            SectorsArg::Full => Sectors::Full,
+        },
         ..Default::default()
     };
     let scaling = match args.scaling {
@@ -165,6 +183,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     "bracket_certified": r.certified,
                     "peak_states": r.peak_states,
                     "iterations": r.iterations,
+                    "sector": r.sector,
+                    "reversal_pairs": r.reversal,
                     "seconds": r.seconds,
                 })).collect::<Vec<_>>(),
                 "scaling": scaling_name,

@@ -23,11 +23,23 @@
 //!
 //! The operator is never stored as a matrix. Once per width a symbolic pass finds the set
 //! K of frontier states reachable from an open left end (closed under T) and compiles, for
-//! every step of the column, a dense index list: for input state i and value x, the index of
-//! the output state (or none). Applying T is then `m` gather-scatter passes over flat `f64`
-//! arrays (m = variables per column), with no hash map or search in the hot loop.
+//! every step of the column, compressed rows: for each output state the indices of its
+//! input states (found by merging sorted streams of transitions, never by sorting).
+//! Applying T is then `m` gather passes over flat `f64` arrays (m = variables per column),
+//! with no hash map or search in the hot loop.
 //!
-//! The eigenvalue comes from power iteration on the shifted operator T + σλ̃ (σ = 1/4, λ̃
+//! Two reductions shrink K (both on by default, [`Sectors::Full`] turns them off):
+//!
+//! * **Charge sectors** ([`sector`]): when the constraint tables imply an additive quantity
+//!   that T conserves (the arrow flux of ice rules), K keeps one sector, the one holding the
+//!   most boundary assignments (zero flux for even square-ice widths: C(W, W/2) states
+//!   instead of 2^W). Every image is checked to keep the charge.
+//! * **Reversal pairs**: when every frontier variable is binary, every table is closed under
+//!   complementing its scope and the sector maps to itself, a state and its complement are
+//!   one state (the largest eigenvector is symmetric under the reversal); this halves K.
+//!
+//! The eigenvalue: a start vector from restarted Arnoldi ([`krylov`]: the Ritz value of
+//! largest real part, so never −λ), then power iteration on the shifted operator T + σλ̃ (σ = 1/4, λ̃
 //! the current estimate) with L1-normalised vectors, started on the recurrent states R (the
 //! states with an arbitrarily long past; T maps R into itself, every other state is
 //! transient; R empty means that no arrangement continues for ever, an error). The shift
@@ -50,10 +62,12 @@
 //!
 //! # Complexity
 //!
-//! Memory O(Σ_steps S_t · q_t) 4-byte indices plus a few f64 vectors of length max S_t; time
-//! per iteration O(Σ_steps S_t · q_t), with S_t the number of frontier states at step t. For
-//! a sweep across a column S_t ≤ q^(width · depth + 1), much less under restrictive rules
-//! (2^width for square ice, about 1.618^width for hard squares).
+//! Memory O(Σ_steps S_t · q_t) 4-byte indices plus about 14 f64 vectors of length max S_t
+//! (the Arnoldi basis); time per application O(Σ_steps S_t · q_t), with S_t the number of
+//! frontier states at step t. For a sweep across a column S_t ≤ q^(width · depth + 1), much
+//! less under restrictive rules and sectors (C(W, W/2)/2 at a square-ice boundary for even
+//! W and about 15 times that inside a column; about 1.618^W for hard squares). Building is
+//! O(Σ_t S_t q_t · streams) plus one pass over the full boundary space from the open end.
 //!
 //! # Reference
 //!
@@ -75,6 +89,10 @@ use crate::error::{Error, Result};
 use crate::estimate::{Estimate, Method};
 use crate::model::{Model, Table};
 
+mod krylov;
+pub mod sector;
+pub mod torus;
+
 /// Options of a strip computation.
 #[derive(Clone, Debug)]
 pub struct StripConfig {
@@ -90,6 +108,22 @@ pub struct StripConfig {
     pub max_iterations: usize,
     /// Stop with [`Error::Deadline`] after this instant.
     pub deadline: Option<Instant>,
+    /// Which states the operator acts on: one charge sector or all.
+    pub sectors: Sectors,
+}
+
+/// The state space of the operator when the rule conserves a charge across the column
+/// (see [`sector`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Sectors {
+    /// The sector that holds the most assignments of the boundary fields (the zero arrow
+    /// flux of square ice on even widths); the full space when no charge is conserved.
+    Largest,
+    /// A given charge (states of other charges are dropped); the full space when no charge
+    /// is conserved.
+    Charge(i64),
+    /// Every state (needed for torus traces, where all sectors count).
+    Full,
 }
 
 impl Default for StripConfig {
@@ -101,6 +135,7 @@ impl Default for StripConfig {
             tolerance: 1e-12,
             max_iterations: 200_000,
             deadline: None,
+            sectors: Sectors::Largest,
         }
     }
 }
@@ -132,6 +167,11 @@ pub struct StripResult {
     pub ln_w_per_unit: f64,
     /// Wall time in seconds (building the operator and iterating).
     pub seconds: f64,
+    /// The charge of the sector the operator was restricted to, if any.
+    pub sector: Option<i64>,
+    /// Whether states were paired with their images under reversing every variable (the
+    /// largest eigenvector is symmetric under it, so λ is that of the symmetric part).
+    pub reversal: bool,
 }
 
 /// A constraint of the template, compiled against the bit layout of its step.
@@ -151,6 +191,8 @@ struct Step {
     offset: u32,
     checks: Vec<Check>,
     keep: u64,
+    /// The bits of every field on the frontier after the step (before relabelling).
+    occupied: u64,
 }
 
 /// The compiled transfer operator of one column of a strip.
@@ -181,6 +223,16 @@ pub struct Column {
     sizes: Vec<usize>,
     /// Build time in seconds.
     build_seconds: f64,
+    /// (offset, coefficient) of the boundary fields in the conserved charge (empty when the
+    /// rule conserves none).
+    charge: Vec<(u32, i64)>,
+    /// The sector kept, if the state space is restricted to one.
+    sector: Option<i64>,
+    /// The bits of the boundary fields.
+    boundary_bits: u64,
+    /// When every state is identified with its image under reversing every binary
+    /// variable, the bits of the boundary fields (XOR with them is the reversal).
+    flip: Option<u64>,
 }
 
 /// Strips of several widths and their extrapolation to the infinite crystal.
@@ -502,6 +554,7 @@ impl Column {
                 offset: off,
                 checks,
                 keep: !forget,
+                occupied: used,
             });
         }
         let mut relabel = Vec::new();
@@ -513,6 +566,66 @@ impl Column {
                 }
             }
         }
+        // The conserved charge, if the rule has one (see `sector`): the coefficient of a
+        // boundary field (k, a) adds the relations of the constraints reading it that have
+        // completed, those with depth − offset < a.
+        let mut charge = Vec::new();
+        if config.sectors != Sectors::Full {
+            let relations: Vec<Option<sector::Relation>> =
+                model.tables.iter().map(sector::relation).collect();
+            // One column adds Σ b of its constraints to the charge; unless that is 0 no
+            // arrangement continues for ever (and the recurrence test will say so).
+            let added: i64 = templates
+                .iter()
+                .filter_map(|t| relations[t.table].as_ref().map(|r| r.constant))
+                .sum();
+            if added == 0 && sector::cancels(&model, &relations) {
+                for k in 0..m {
+                    let Some((age, _)) = last_use[k] else {
+                        continue;
+                    };
+                    for a in 1..=age {
+                        let mut c = 0i64;
+                        for t in &templates {
+                            if let Some(r) = &relations[t.table] {
+                                for (i, &(kk, d)) in t.entries.iter().enumerate() {
+                                    if kk == k && t.depth - d < a {
+                                        c += r.coefficients[i];
+                                    }
+                                }
+                            }
+                        }
+                        if c != 0 {
+                            charge.push((canonical[&(k, a)], c));
+                        }
+                    }
+                }
+            }
+        }
+        let sector = match config.sectors {
+            _ if charge.is_empty() => None,
+            Sectors::Full => None,
+            Sectors::Charge(q) => Some(q),
+            Sectors::Largest => Some(sector::most_populous(
+                &charge.iter().map(|c| c.1).collect::<Vec<_>>(),
+            )),
+        };
+        // Reversing every variable (arrows, spins) maps allowed columns to allowed columns
+        // when every variable is binary and every table is closed under complements; the
+        // sector must map to itself (charge q ↦ Σc − q).
+        let boundary_bits = (1u64 << next_bit) - 1;
+        let binary = (0..m).all(|k| last_use[k].is_none() || states[k] == 2);
+        let closed = steps.iter().flat_map(|s| &s.checks).all(|c| {
+            let t = &model.tables[c.table];
+            (0..t.size).all(|i| t.allows(i) == t.allows(t.size - 1 - i))
+        });
+        let total_charge: i64 = charge.iter().map(|c| c.1).sum();
+        let flip = (config.sectors != Sectors::Full
+            && binary
+            && closed
+            && next_bit > 0
+            && sector.is_none_or(|q| 2 * q == total_charge))
+        .then_some(boundary_bits);
         let depth = templates.iter().map(|t| t.depth).max().unwrap_or(0);
         let mut column = Column {
             width,
@@ -528,6 +641,10 @@ impl Column {
             starts: Vec::new(),
             sizes: Vec::new(),
             build_seconds: 0.0,
+            charge,
+            sector,
+            flip,
+            boundary_bits,
         };
         column.compile(config)?;
         column.build_seconds = start.elapsed().as_secs_f64();
@@ -609,15 +726,93 @@ impl Column {
         Ok(())
     }
 
-    /// Find the states reachable from an open left end, closed under the column, and
-    /// compile the index lists of every step.
+    /// The charge of a boundary key.
+    fn charge_of(&self, key: u64) -> i64 {
+        self.charge
+            .iter()
+            .map(|&(off, c)| c * ((key >> off) & 1) as i64)
+            .sum()
+    }
+
+    /// Every boundary key of charge q, sorted, when every boundary field is a charge field
+    /// (the set is then closed under T because T keeps the charge).
+    fn sector_keys(&self, q: i64, config: &StripConfig) -> Result<Vec<u64>> {
+        let fields = &self.charge;
+        // Smallest and largest charge the fields from i on can still add.
+        let mut low = vec![0i64; fields.len() + 1];
+        let mut high = vec![0i64; fields.len() + 1];
+        for i in (0..fields.len()).rev() {
+            low[i] = low[i + 1] + fields[i].1.min(0);
+            high[i] = high[i + 1] + fields[i].1.max(0);
+        }
+        let mut keys = Vec::new();
+        let mut stack = vec![(0usize, 0u64, 0i64)];
+        while let Some((i, key, charge)) = stack.pop() {
+            if i == fields.len() {
+                keys.push(key);
+                self.within_budget(keys.len(), config)?;
+                continue;
+            }
+            let (off, c) = fields[i];
+            for (k, ch) in [(key, charge), (key | (1 << off), charge + c)] {
+                if (low[i + 1]..=high[i + 1]).contains(&(q - ch)) {
+                    stack.push((i + 1, k, ch));
+                }
+            }
+        }
+        keys.sort_unstable();
+        Ok(keys)
+    }
+
+    /// Find the states reachable from an open left end (in the chosen sector), closed
+    /// under the column, and compile the index lists of every step.
     fn compile(&mut self, config: &StripConfig) -> Result<()> {
         let mut keys = vec![0u64];
-        for t in 0..self.depth {
-            keys = self.column_keys(&keys, Some(t), config)?;
+        let every_field_charged = self.charge.len() as u32 == self.boundary_bits.count_ones();
+        if let Some(q) = self.sector
+            && every_field_charged
+        {
+            // No pass from the open end: the sector is every key of charge q (states
+            // without a past among them are pruned as transient before iterating).
+            keys = self.sector_keys(q, config)?;
+        } else {
+            for t in 0..self.depth {
+                keys = self.column_keys(&keys, Some(t), config)?;
+            }
+        }
+        if let Some(q) = self.sector
+            && !every_field_charged
+        {
+            let kept: Vec<u64> = keys
+                .iter()
+                .copied()
+                .filter(|&k| self.charge_of(k) == q)
+                .collect();
+            if !kept.is_empty() {
+                keys = kept;
+            } else if config.sectors == Sectors::Largest {
+                // Nothing of that charge follows an open end: keep every sector.
+                self.sector = None;
+            } else {
+                return Err(Error::Model(format!(
+                    "no state of a strip {} cells wide has charge {q}",
+                    self.width
+                )));
+            }
         }
         for _ in 0..1000 {
+            if self.sector.is_some() && every_field_charged {
+                // Closed by construction; the last step's look-up checks every image.
+                break;
+            }
             let image = self.column_keys(&keys, None, config)?;
+            if let Some(q) = self.sector
+                && image.iter().any(|&k| self.charge_of(k) != q)
+            {
+                return Err(Error::Model(
+                    "internal: the charge found from the rule tables is not conserved".into(),
+                ));
+            }
             let mut union: Vec<u64> = keys.iter().chain(&image).copied().collect();
             union.sort_unstable();
             union.dedup();
@@ -626,60 +821,116 @@ impl Column {
             }
             keys = union;
         }
+        if self.sector.is_none() && config.sectors == Sectors::Largest && !self.charge.is_empty() {
+            // The fallback to every sector: reversal maps sectors onto each other only.
+            self.flip = None;
+        }
+        if let Some(m) = self.flip {
+            // One representative (the smaller key) of every pair {k, k XOR m}.
+            keys.retain(|&k| k < k ^ m);
+        }
         let mut all_sources = Vec::with_capacity(self.steps.len());
         let mut all_starts = Vec::with_capacity(self.steps.len());
         let mut sizes = Vec::with_capacity(self.steps.len());
         let mut cur = keys.clone();
         let last = self.steps.len().saturating_sub(1);
+        let too_many = |n: usize| Error::Budget {
+            cells: format!("a strip {} cells wide", self.width),
+            detail: format!("a column step has {n} transitions"),
+        };
         for (s, step) in self.steps.iter().enumerate() {
-            // Every allowed transition as (output key, input index), sorted: equal keys
-            // become one output state, and their inputs (increasing) its row.
-            let mut pairs: Vec<(u64, u32)> = Vec::with_capacity(cur.len() * step.states as usize);
-            for (i, &key) in cur.iter().enumerate() {
-                for x in 0..step.states {
-                    let k = key | (x << step.offset);
-                    if step.checks.iter().all(|c| self.allows(c, k)) {
-                        let out = k & step.keep;
-                        let out = if s == last { self.relabelled(out) } else { out };
-                        pairs.push((out, i as u32));
+            let (sources, starts, next) = if s == last {
+                // Rows follow the boundary states K (a state nothing leads to has an empty
+                // row): a counting sort by the index of the relabelled output in K, filled
+                // in increasing input order.
+                let mut targets: Vec<(u32, u32)> = Vec::new();
+                for (i, &key) in cur.iter().enumerate() {
+                    for x in 0..step.states {
+                        let k = key | (x << step.offset);
+                        if step.checks.iter().all(|c| self.allows(c, k)) {
+                            let out = self.relabelled(k & step.keep);
+                            let out = self.flip.map_or(out, |m| out.min(out ^ m));
+                            let j = keys.binary_search(&out).map_err(|_| {
+                                Error::Model("internal: the strip's state set is not closed".into())
+                            })?;
+                            targets.push((j as u32, i as u32));
+                        }
                     }
                 }
-            }
-            if pairs.len() >= u32::MAX as usize {
-                return Err(Error::Budget {
-                    cells: format!("a strip {} cells wide", self.width),
-                    detail: format!("a column step has {} transitions", pairs.len()),
-                });
-            }
-            pairs.sort_unstable();
-            let sources: Vec<u32> = pairs.iter().map(|p| p.1).collect();
-            let mut starts = Vec::new();
-            let next: Vec<u64> = if s == last {
-                // Rows follow the boundary states K; a state nothing leads to has an empty row.
-                let mut p = 0;
-                for &k in &keys {
-                    starts.push(p as u32);
-                    while p < pairs.len() && pairs[p].0 == k {
-                        p += 1;
-                    }
+                if targets.len() >= u32::MAX as usize {
+                    return Err(too_many(targets.len()));
                 }
-                if p != pairs.len() {
-                    return Err(Error::Model(
-                        "internal: the strip's state set is not closed".into(),
-                    ));
+                let mut starts = vec![0u32; keys.len() + 1];
+                for &(j, _) in &targets {
+                    starts[j as usize + 1] += 1;
                 }
-                starts.push(p as u32);
-                keys.clone()
+                for j in 0..keys.len() {
+                    starts[j + 1] += starts[j];
+                }
+                let mut fill = starts.clone();
+                let mut sources = vec![0u32; targets.len()];
+                for &(j, i) in &targets {
+                    sources[fill[j as usize] as usize] = i;
+                    fill[j as usize] += 1;
+                }
+                (sources, starts, keys.clone())
             } else {
-                let mut next = Vec::new();
-                for (p, pair) in pairs.iter().enumerate() {
-                    if next.last() != Some(&pair.0) {
-                        next.push(pair.0);
-                        starts.push(p as u32);
+                // Transitions with the same new value and the same forgotten fields keep
+                // the order of their inputs (a stream); the streams are merged.
+                let mut streams: Vec<(StreamId, Vec<(u64, u32)>)> = Vec::new();
+                let mut total = 0usize;
+                for (i, &key) in cur.iter().enumerate() {
+                    for x in 0..step.states {
+                        let k = key | (x << step.offset);
+                        if step.checks.iter().all(|c| self.allows(c, k)) {
+                            let out = k & step.keep;
+                            // A reversed key runs backwards within its stream.
+                            let flipped = self.flip.is_some() && out ^ step.occupied < out;
+                            let out = if flipped { out ^ step.occupied } else { out };
+                            let id = (x, k & !step.keep, flipped);
+                            let p = match streams.iter().position(|st| st.0 == id) {
+                                Some(p) => p,
+                                None => {
+                                    streams.push((id, Vec::new()));
+                                    streams.len() - 1
+                                }
+                            };
+                            streams[p].1.push((out, i as u32));
+                            total += 1;
+                        }
                     }
                 }
-                starts.push(pairs.len() as u32);
-                next
+                if total >= u32::MAX as usize {
+                    return Err(too_many(total));
+                }
+                for st in streams.iter_mut().filter(|st| st.0.2) {
+                    st.1.reverse();
+                }
+                let mut heads = vec![0usize; streams.len()];
+                let mut sources = Vec::with_capacity(total);
+                let mut starts = Vec::new();
+                let mut next: Vec<u64> = Vec::new();
+                loop {
+                    let mut best: Option<(usize, (u64, u32))> = None;
+                    for (j, st) in streams.iter().enumerate() {
+                        if let Some(&p) = st.1.get(heads[j])
+                            && best.is_none_or(|b| p < b.1)
+                        {
+                            best = Some((j, p));
+                        }
+                    }
+                    let Some((j, (out, input))) = best else {
+                        break;
+                    };
+                    heads[j] += 1;
+                    if next.last() != Some(&out) {
+                        next.push(out);
+                        starts.push(sources.len() as u32);
+                    }
+                    sources.push(input);
+                }
+                starts.push(sources.len() as u32);
+                (sources, starts, next)
             };
             self.within_budget(next.len(), config)?;
             all_sources.push(sources);
@@ -709,6 +960,11 @@ impl Column {
             .max(self.keys.len())
     }
 
+    /// Transitions (index-list entries) per application of T, summed over the steps.
+    pub fn transitions(&self) -> usize {
+        self.sources.iter().map(Vec::len).sum()
+    }
+
     /// Formula units per column.
     pub fn units_per_column(&self) -> f64 {
         self.units_per_column
@@ -719,7 +975,7 @@ impl Column {
         y.clear();
         y.extend_from_slice(x);
         for s in 0..self.steps.len() {
-            scratch.clear();
+            // Every output is written below, so old contents need no clearing.
             scratch.resize(self.sizes[s], 0.0);
             let (sources, starts) = (&self.sources[s], &self.starts[s]);
             let input: &[f64] = y;
@@ -747,6 +1003,16 @@ impl Column {
     /// constraint (so that no constraint of the torus reads a variable twice along the
     /// strip).
     pub fn trace_power(&self, length: usize) -> Result<BigUint> {
+        if self.flip.is_some() {
+            return Err(Error::Cells(
+                "a torus trace needs every state; this operator pairs each state with its reversal (build it with Sectors::Full)".into(),
+            ));
+        }
+        if let Some(q) = self.sector {
+            return Err(Error::Cells(format!(
+                "a torus trace needs every charge sector; this operator keeps only charge {q} (build it with Sectors::Full)"
+            )));
+        }
         if length <= self.depth {
             return Err(Error::Cells(format!(
                 "a torus trace needs more than {} columns along the strip",
@@ -795,8 +1061,17 @@ impl Column {
             .iter()
             .map(|&r| if r { 1.0 / size as f64 } else { 0.0 })
             .collect();
+        // Arnoldi first (it never decides λ; the power iteration below certifies it).
+        let restarts = (config.max_iterations / (2 * BASIS)).min(MAX_RESTARTS);
+        let mut applied = 0;
+        if size >= KRYLOV_MIN && restarts > 0 {
+            let mut op = |a: &[f64], b: &mut Vec<f64>| self.apply(a, b, &mut scratch);
+            let (v, used) = krylov::restarted(&mut op, &x, BASIS, restarts, 1e-13);
+            x = v;
+            applied = used;
+        }
         let mut lambda = 0.0;
-        for iteration in 1..=config.max_iterations {
+        for iteration in applied + 1..=config.max_iterations {
             self.apply(&x, &mut y, &mut scratch);
             let sum_x: f64 = x.iter().sum();
             let sum_y: f64 = y.iter().sum();
@@ -828,6 +1103,8 @@ impl Column {
                     units_per_column: self.units_per_column,
                     ln_w_per_unit: ln_lambda / self.units_per_column,
                     seconds: self.build_seconds + start.elapsed().as_secs_f64(),
+                    sector: self.sector,
+                    reversal: self.flip.is_some(),
                 });
             }
             if iteration % 16 == 0 && config.deadline.is_some_and(|d| Instant::now() > d) {
@@ -912,6 +1189,18 @@ const PARALLEL_MIN: usize = 1 << 15;
 /// Output states per parallel task.
 const CHUNK: usize = 1 << 12;
 
+/// A stream of one step: (new value, forgotten fields, reversed).
+type StreamId = (u64, u64, bool);
+
+/// Arnoldi basis size (common practice: a few tens of vectors at most).
+const BASIS: usize = 12;
+
+/// Largest number of Arnoldi restarts before the power iteration.
+const MAX_RESTARTS: usize = 8;
+
+/// Operators with fewer recurrent states go straight to the power iteration.
+const KRYLOV_MIN: usize = 64;
+
 /// Shift of the power iteration, relative to the current estimate of λ.
 const SHIFT: f64 = 0.25;
 
@@ -948,6 +1237,7 @@ mod tests {
                 for width in 1..=4 {
                     let config = StripConfig {
                         along,
+                        sectors: Sectors::Full,
                         ..Default::default()
                     };
                     let column = Column::new(&l.crystal, width, &config).unwrap();
@@ -973,7 +1263,11 @@ mod tests {
     fn square_ice_tori_by_trace() {
         let l = lattice("square-ice.yaml");
         for (n, expected) in [(3usize, 148u64), (4, 2970), (5, 143224)] {
-            let column = Column::new(&l.crystal, n, &StripConfig::default()).unwrap();
+            let config = StripConfig {
+                sectors: Sectors::Full,
+                ..Default::default()
+            };
+            let column = Column::new(&l.crystal, n, &config).unwrap();
             assert_eq!(column.trace_power(n).unwrap(), BigUint::from(expected));
         }
     }
