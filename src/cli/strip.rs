@@ -150,12 +150,37 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         ScalingArg::Critical => Scaling::Critical,
         ScalingArg::Gapped => Scaling::Gapped,
     };
-    if args.common.progress() {
-        eprintln!("transfer matrices for widths {widths:?}…");
-    }
+    // Progress in units of a rough cost model, 2^W per width (the state counts of the
+    // shipped lattices grow like 1.6^W to 2^W), so that the ETA is not far off.
+    let cost = |w: usize| 2f64.powi(w.min(60) as i32);
+    let total: f64 = widths.iter().map(|&w| cost(w)).sum();
+    let bar = args.common.progress().then(|| {
+        let b = indicatif::ProgressBar::new(1000);
+        b.set_style(
+            indicatif::ProgressStyle::with_template(
+                "transfer matrix [{bar:30}] {msg}, elapsed {elapsed}, ETA {eta}",
+            )
+            .expect("valid template")
+            .progress_chars("=> "),
+        );
+        b
+    });
+    let done = std::sync::Mutex::new(0.0f64);
+    let on_width = |w: usize| {
+        let mut d = done.lock().expect("progress counter");
+        if let Some(b) = &bar {
+            b.set_position((1000.0 * *d / total) as u64);
+            b.set_message(format!("cylinder of width {w}"));
+        }
+        *d += cost(w);
+    };
     let s = with_threads(args.common.threads, || {
-        transfer::series(c, &widths, args.step, scaling, &config)
-    })??;
+        transfer::series_with(c, &widths, args.step, scaling, &config, &on_width)
+    });
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let s = s??;
     let e = &s.estimate;
     let x = &s.extrapolation;
     let unit = &c.formula_unit.name;

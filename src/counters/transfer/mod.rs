@@ -260,10 +260,25 @@ pub fn series(
     scaling: Scaling,
     config: &StripConfig,
 ) -> Result<StripSeries> {
+    series_with(crystal, widths, step, scaling, config, &|_| {})
+}
+
+/// [`series`], calling `on_width(w)` before each width `w` is computed (for progress).
+pub fn series_with(
+    crystal: &Crystal,
+    widths: &[usize],
+    step: usize,
+    scaling: Scaling,
+    config: &StripConfig,
+    on_width: &dyn Fn(usize),
+) -> Result<StripSeries> {
     let start = Instant::now();
     let results = widths
         .iter()
-        .map(|&w| strip(crystal, w, config))
+        .map(|&w| {
+            on_width(w);
+            strip(crystal, w, config)
+        })
         .collect::<Result<Vec<_>>>()?;
     let mut out = from_widths(crystal, results, step, scaling, config)?;
     out.estimate.seconds = start.elapsed().as_secs_f64();
