@@ -61,6 +61,17 @@ fn square_ice_6x6_torus_agrees_with_the_exact_count() {
 }
 
 #[test]
+fn square_ice_8x8_torus_agrees_with_the_exact_count() {
+    // Exact count 2901094068042 (OEIS A054759, reproduced by `exact`).
+    agrees_with_exact("square-ice.yaml", "8x8", 600, 0.004);
+}
+
+#[test]
+fn ice_ic_2x1x1_agrees_with_the_exact_count() {
+    agrees_with_exact("ice-ic.yaml", "2x1x1", 1000, 0.006);
+}
+
+#[test]
 fn triangular_antiferromagnet_6x6_agrees_with_the_exact_count() {
     // Exact count 263640 (REFERENCES.md, independent computation; reproduced by `exact`).
     agrees_with_exact("triangular-afm.yaml", "6x6", 1000, 0.003);
@@ -391,4 +402,35 @@ fn wang_landau_reproduces_on_any_thread_count() {
     let one = in_pool(1, || wl("square-ice.yaml", "4x4", 8, 4, 2_000));
     let two = in_pool(2, || wl("square-ice.yaml", "4x4", 8, 4, 2_000));
     assert_eq!(one.per_replica, two.per_replica);
+}
+
+/// Ice Ih extrapolated from three periodic cells agrees within 4σ with Nagle's series
+/// value W = 1.50685 ± 0.00015 per H2O (Nagle 1966, J. Math. Phys. 7, 1484; from memory).
+#[test]
+fn ice_ih_extrapolation_agrees_with_nagle() {
+    let file = lattice("ice-ih.yaml");
+    let o = crate::util::run(&[
+        "sample",
+        file.to_str().unwrap(),
+        "--cells",
+        "4x4x2,6x6x3,8x8x4",
+        "--replicas",
+        "16",
+        "--sweeps",
+        "150",
+        "--seed",
+        "3",
+        "--format",
+        "json",
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let w = v["w_per_unit"].as_f64().unwrap();
+    let sigma = v["uncertainty"].as_f64().unwrap();
+    assert!(sigma < 0.006, "σ = {sigma}");
+    let nagle = 1.50685;
+    assert!(
+        (w - nagle).abs() < 4.0 * sigma.hypot(0.00015),
+        "W = {w} ± {sigma} against {nagle}"
+    );
 }
