@@ -417,7 +417,7 @@ fn ice_ih_extrapolation_agrees_with_nagle() {
         "--replicas",
         "16",
         "--sweeps",
-        "150",
+        "300",
         "--seed",
         "3",
         "--format",
