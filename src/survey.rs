@@ -434,7 +434,7 @@ fn monte_carlo(
     let units = |cells: &Cells| cells.total() as f64 * c.formula_unit.per_cell(c);
     let n1 = units(&cubes[0]);
     // Seconds per formula unit and sweep, from the first cube.
-    let rate = first.sampled.estimate.seconds / (n1 * sample.sweeps as f64);
+    let rate = first.sampled.estimate.seconds.max(1e-6) / (n1 * sample.sweeps as f64);
     let left = end.saturating_duration_since(Instant::now()).as_secs_f64();
     let mut chosen: Vec<Cells> = vec![cubes[0].clone()];
     let mut cost = 0.0;
