@@ -35,7 +35,7 @@ use crate::counters::transfer::{self, StripConfig, StripSeries};
 use crate::counters::{exact, pauling};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
-use crate::estimate::{Estimate, Method};
+use crate::estimate::Estimate;
 use crate::model::Model;
 
 /// What the survey is doing, for progress displays.
@@ -497,25 +497,12 @@ fn monte_carlo(
                 notes.push(format!(
                     "Monte Carlo: {} cells extrapolated to the infinite crystal by the weighted fit {} (χ² = {:.3} for {} degrees of freedom)",
                     results.len(),
-                    if fit.coefficients.len() == 2 {
-                        "s(N) = s∞ + a/N + b ln N/N"
-                    } else {
-                        "s(N) = s∞ + a/N"
-                    },
+                    fit.form(),
                     fit.chi2,
                     fit.dof
                 ));
-                let estimate = Estimate {
-                    method: Method::MonteCarlo,
-                    cells: None,
-                    count: None,
-                    ln_count: fit.value,
-                    formula_units: 1.0,
-                    ln_w_per_unit: fit.value,
-                    sigma_ln_w: Some(fit.sigma),
-                    seconds: results.iter().map(|r| r.sampled.estimate.seconds).sum(),
-                    peak_states: None,
-                };
+                let estimate =
+                    fit.estimate(results.iter().map(|r| r.sampled.estimate.seconds).sum());
                 Some(SizeExtrapolation { fit, estimate })
             }
             Err(e) => {

@@ -517,22 +517,8 @@ fn render_sizes(
         })
         .collect();
     let fit = size::extrapolate(&points)?;
-    let infinite = groundcount::Estimate {
-        method: groundcount::estimate::Method::MonteCarlo,
-        cells: None,
-        count: None,
-        ln_count: fit.value,
-        formula_units: 1.0,
-        ln_w_per_unit: fit.value,
-        sigma_ln_w: Some(fit.sigma),
-        seconds: results.iter().map(|(_, s)| s.estimate.seconds).sum(),
-        peak_states: None,
-    };
-    let form = if fit.coefficients.len() == 2 {
-        "s(N) = s∞ + a/N + b ln N/N"
-    } else {
-        "s(N) = s∞ + a/N"
-    };
+    let infinite = fit.estimate(results.iter().map(|(_, s)| s.estimate.seconds).sum());
+    let form = fit.form();
     let p = pauling::estimate(c)?;
     match format {
         Format::Json => {

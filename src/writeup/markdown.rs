@@ -214,11 +214,7 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
                  crystal by the weighted fit {} in the number N of formula units (χ² = {} for {} degrees \
                  of freedom; σ scaled by √(χ²/dof) when above 1): W = {} per {unit}.\n",
                 cells.join(", "),
-                if x.fit.coefficients.len() == 2 {
-                    "s(N) = s∞ + a/N + b ln N/N"
-                } else {
-                    "s(N) = s∞ + a/N"
-                },
+                x.fit.form(),
                 sig(x.fit.chi2, 3),
                 x.fit.dof,
                 pm(x.estimate.w_per_unit(), x.estimate.sigma_w(), 8)

@@ -133,11 +133,7 @@ impl<'a> Writeup<'a> {
                 crate::report::sig(m.sampled.estimate.formula_units, 6),
                 m.sampled.replicas,
                 m.sampled.seed,
-                if x.fit.coefficients.len() == 2 {
-                    "s(N) = s∞ + a/N + b ln N/N"
-                } else {
-                    "s(N) = s∞ + a/N"
-                }
+                x.fit.form()
             );
         }
         if let Some(m) = &s.sampled {
@@ -235,11 +231,7 @@ impl<'a> Writeup<'a> {
                     "cells": m.cells,
                     "estimate": estimate_json(c, &m.sampled.estimate, Some(p)),
                 })).collect::<Vec<_>>(),
-                "form": if x.fit.coefficients.len() == 2 {
-                    "s(N) = s∞ + a/N + b ln N/N"
-                } else {
-                    "s(N) = s∞ + a/N"
-                },
+                "form": x.fit.form(),
                 "coefficients": x.fit.coefficients,
                 "chi2": x.fit.chi2,
                 "dof": x.fit.dof,

@@ -24,6 +24,7 @@
 //! O(cells), a 3×3 solve.
 
 use crate::error::{Error, Result};
+use crate::estimate::{Estimate, Method};
 
 /// One cell's value: formula units N, ln W per formula unit and its 1σ.
 #[derive(Clone, Copy, Debug)]
@@ -52,6 +53,33 @@ pub struct SizeFit {
     pub dof: usize,
     /// s∞ and σ from the fit s∞ + a/N alone (when the main fit has three terms).
     pub two_term: Option<(f64, f64)>,
+}
+
+impl SizeFit {
+    /// The fitted form, in words.
+    pub fn form(&self) -> &'static str {
+        if self.coefficients.len() == 2 {
+            "s(N) = s∞ + a/N + b ln N/N"
+        } else {
+            "s(N) = s∞ + a/N"
+        }
+    }
+
+    /// s∞ as a Monte Carlo estimate of the infinite crystal; `seconds` is the time of the
+    /// cells behind it.
+    pub fn estimate(&self, seconds: f64) -> Estimate {
+        Estimate {
+            method: Method::MonteCarlo,
+            cells: None,
+            count: None,
+            ln_count: self.value,
+            formula_units: 1.0,
+            ln_w_per_unit: self.value,
+            sigma_ln_w: Some(self.sigma),
+            seconds,
+            peak_states: None,
+        }
+    }
 }
 
 /// Weighted least squares of `points` on the basis functions `basis`; returns the
