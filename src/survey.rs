@@ -106,6 +106,24 @@ pub struct SampledCell {
     pub sampled: Sampled,
 }
 
+/// The sampled cells in words: "3x3x3, 4x4x4 and 5x5x5 periodic".
+pub fn cell_list(cells: &[SampledCell]) -> String {
+    let names: Vec<&str> = cells
+        .iter()
+        .map(|c| c.cells.strip_suffix(" periodic").unwrap_or(&c.cells))
+        .collect();
+    let joined = match names.split_last() {
+        Some((last, rest)) if !rest.is_empty() => format!("{} and {last}", rest.join(", ")),
+        _ => names.join(""),
+    };
+    let all_periodic = cells.iter().all(|c| c.cells.ends_with(" periodic"));
+    if all_periodic {
+        format!("{joined} periodic")
+    } else {
+        joined
+    }
+}
+
 /// Monte Carlo values of several cells extrapolated to the infinite crystal.
 #[derive(Clone, Debug)]
 pub struct SizeExtrapolation {
@@ -468,12 +486,11 @@ fn monte_carlo(
             results.push(run(cells, &sample)?);
         }
     }
-    let list: Vec<&str> = results.iter().map(|r| r.cells.as_str()).collect();
     let s0 = &results[0].sampled;
     notes.push(format!(
         "Monte Carlo: thermodynamic integration on {}, seed {}, {} replicas × {} sweeps per node{}; \
          `groundcount sample` runs larger cells and longer",
-        list.join(", "),
+        cell_list(&results),
         s0.seed,
         s0.replicas,
         sample.sweeps,

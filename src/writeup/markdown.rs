@@ -207,13 +207,12 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
              parts above (for the largest cell). A finite torus gives a larger W than the infinite crystal.\n"
         )?;
         if let Some(x) = &s.extrapolated {
-            let cells: Vec<&str> = s.sampled_sizes.iter().map(|c| c.cells.as_str()).collect();
             writeln!(
                 o,
                 "The cells {} were sampled with the same settings and extrapolated to the infinite \
                  crystal by the weighted fit {} in the number N of formula units (χ² = {} for {} degrees \
                  of freedom; σ scaled by √(χ²/dof) when above 1): W = {} per {unit}.\n",
-                cells.join(", "),
+                crate::survey::cell_list(&s.sampled_sizes),
                 x.fit.form(),
                 sig(x.fit.chi2, 3),
                 x.fit.dof,

@@ -65,6 +65,15 @@ pub struct Comparison {
     pub debye_curve: Vec<(f64, f64)>,
 }
 
+/// A number of formula units in words: a whole number without decimals.
+fn count_of(units: f64) -> String {
+    if (units - units.round()).abs() < 1e-9 {
+        format!("{}", units.round() as u64)
+    } else {
+        crate::report::sig(units, 6)
+    }
+}
+
 impl Comparison {
     /// The measured residual entropy S_stat − S_cal in J/(mol K) and its 1σ (independent
     /// errors added in quadrature).
@@ -126,11 +135,10 @@ impl<'a> Writeup<'a> {
             );
         }
         if let (Some(x), Some(m)) = (&s.extrapolated, &s.sampled) {
-            let cells: Vec<&str> = s.sampled_sizes.iter().map(|c| c.cells.as_str()).collect();
             return format!(
-                "Monte Carlo thermodynamic integration on the periodic cells {} (up to {} {unit}; {} replicas per cell, seed {}), extrapolated to the infinite crystal by the weighted fit {}",
-                cells.join(", "),
-                crate::report::sig(m.sampled.estimate.formula_units, 6),
+                "Monte Carlo thermodynamic integration on the cells {} (up to {} {unit}; {} replicas per cell, seed {}), extrapolated to the infinite crystal by the weighted fit {}",
+                crate::survey::cell_list(&s.sampled_sizes),
+                count_of(m.sampled.estimate.formula_units),
                 m.sampled.replicas,
                 m.sampled.seed,
                 x.fit.form()
@@ -140,7 +148,7 @@ impl<'a> Writeup<'a> {
             return format!(
                 "Monte Carlo thermodynamic integration on a {} cell ({} {unit}; {} replicas, {} measured sweeps, seed {})",
                 m.cells,
-                crate::report::sig(m.sampled.estimate.formula_units, 6),
+                count_of(m.sampled.estimate.formula_units),
                 m.sampled.replicas,
                 m.sampled.samples,
                 m.sampled.seed
