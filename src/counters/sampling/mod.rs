@@ -52,6 +52,9 @@
 //! [`sample`] takes a model and a [`SampleConfig`] and returns [`Sampled`]: an
 //! [`Estimate`] (method [`Method::MonteCarlo`], `sigma_ln_w` set) and the pieces of the
 //! error, the integrand and diagnostics.
+//! [`Plan`] is the same run taken apart (compile once, run any range of replica indices,
+//! combine), which [`shard`] uses to split a run over machines; [`size`] extrapolates
+//! several cells to the infinite crystal; [`wang_landau`] is the independent second method.
 //!
 //! # Complexity
 //!
