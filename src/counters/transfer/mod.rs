@@ -38,7 +38,7 @@
 //!   complementing its scope and the sector maps to itself, a state and its complement are
 //!   one state (the largest eigenvector is symmetric under the reversal); this halves K.
 //!
-//! The eigenvalue: a start vector from restarted Arnoldi ([`krylov`]: the Ritz value of
+//! The eigenvalue: a start vector from restarted Arnoldi (`krylov`: the Ritz value of
 //! largest real part, so never −λ), then power iteration on the shifted operator T + σλ̃ (σ = 1/4, λ̃
 //! the current estimate) with L1-normalised vectors, started on the recurrent states R (the
 //! states with an arbitrarily long past; T maps R into itself, every other state is
