@@ -169,18 +169,19 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
         sweeps: args.sweeps.unwrap_or(100_000) as u64,
         uniform: args.uniform,
     };
-    if args.common.progress() {
-        eprintln!(
-            "Wang–Landau on {} ({} variables): {} walks of {} sweeps…",
-            model.cells,
-            model.variables.len(),
-            config.replicas,
-            config.sweeps
-        );
-    }
+    let bar = replica_bar(args.common.progress(), &model, config.replicas);
+    let on_replica = || {
+        if let Some(b) = &bar {
+            b.inc(1);
+        }
+    };
     let w = with_threads(args.common.threads, || {
-        wang_landau::wang_landau(&model, &config)
-    })??;
+        wang_landau::wang_landau_with(&model, &config, &on_replica)
+    });
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let w = w??;
     let p = pauling::estimate(c)?;
     let e = &w.estimate;
     let unit = &c.formula_unit.name;

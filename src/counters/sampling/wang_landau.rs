@@ -114,6 +114,15 @@ const SALT: u64 = 0x57A9_6C3B_1D4E_8F01;
 
 /// Count a model by Wang–Landau sampling.
 pub fn wang_landau(model: &Model, config: &WangLandauConfig) -> Result<WangLandau> {
+    wang_landau_with(model, config, &|| {})
+}
+
+/// [`wang_landau`], calling `on_replica` whenever a walk finishes (for progress reports).
+pub fn wang_landau_with(
+    model: &Model,
+    config: &WangLandauConfig,
+    on_replica: &(dyn Fn() + Sync),
+) -> Result<WangLandau> {
     let start = Instant::now();
     if config.replicas < 2 {
         return Err(Error::Model(
@@ -144,7 +153,11 @@ pub fn wang_landau(model: &Model, config: &WangLandauConfig) -> Result<WangLanda
     let runs: Vec<Walk> = (0..config.replicas)
         .into_par_iter()
         .with_max_len(1)
-        .map(|r| walk(&kernel, config, window, r))
+        .map(|r| {
+            let w = walk(&kernel, config, window, r);
+            on_replica();
+            w
+        })
         .collect::<Result<Vec<_>>>()?;
     let units = model.formula_units;
     let per_replica: Vec<f64> = runs
