@@ -67,13 +67,17 @@ fn merged_shards_equal_one_run() {
 }
 
 fn write_shard(dir: &Path, name: &str, extra: &[&str]) -> PathBuf {
+    write_shard_of(dir, name, "ice-ih.yaml", "2x1x1", extra)
+}
+
+fn write_shard_of(dir: &Path, name: &str, file: &str, cells: &str, extra: &[&str]) -> PathBuf {
     let out = dir.join(name);
-    let file = lattice("ice-ih.yaml");
+    let file = lattice(file);
     let mut args = vec![
         "sample",
         file.to_str().unwrap(),
         "--cells",
-        "2x1x1",
+        cells,
         "--replicas",
         "2",
         "--sweeps",
@@ -146,26 +150,8 @@ fn merge_command_combines_and_refuses() {
     let e = merge_err(&[&p1, &q2]);
     assert!(e.contains("q2.json") && e.contains("seed is 9"), "{e}");
     // another lattice
-    let other = lattice("ice-ic.yaml");
-    let o = run(&[
-        "sample",
-        other.to_str().unwrap(),
-        "--cells",
-        "1x1x1",
-        "--replicas",
-        "2",
-        "--sweeps",
-        "20",
-        "--nodes",
-        "9",
-        "-q",
-        "--shard",
-        "2/2",
-        "--out",
-        dir.join("ic.json").to_str().unwrap(),
-    ]);
-    assert!(o.status.success());
-    let e = merge_err(&[&p1, &dir.join("ic.json")]);
+    let ic = write_shard_of(&dir, "ic.json", "ice-ic.yaml", "1x1x1", &["--shard", "2/2"]);
+    let e = merge_err(&[&p1, &ic]);
     assert!(e.contains("content hash"), "{e}");
     // an edited number
     let text = std::fs::read_to_string(&p2).unwrap();
