@@ -9,7 +9,7 @@ use groundcount::counters::sampling::shard::{self, Shard};
 use groundcount::counters::sampling::{self, SampleConfig};
 use groundcount::model::Model;
 
-use crate::util::{lattice, run};
+use crate::util::{lattice, run, run_json};
 
 fn config(replicas: usize) -> SampleConfig {
     SampleConfig {
@@ -112,17 +112,15 @@ fn merge_command_combines_and_refuses() {
     let p2 = write_shard(&dir, "p2.json", &["--shard", "2/2"]);
 
     // merged = one run of 4 replicas
-    let o = run(&[
+    let merged = run_json(&[
         "merge",
         p1.to_str().unwrap(),
         p2.to_str().unwrap(),
         "--format",
         "json",
     ]);
-    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    let merged: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     let file = lattice("ice-ih.yaml");
-    let o = run(&[
+    let whole = run_json(&[
         "sample",
         file.to_str().unwrap(),
         "--cells",
@@ -136,7 +134,6 @@ fn merge_command_combines_and_refuses() {
         "--format",
         "json",
     ]);
-    let whole: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(merged["w_per_unit"], whole["w_per_unit"]);
     assert_eq!(merged["uncertainty"], whole["uncertainty"]);
     assert_eq!(merged["replicas"], 4);

@@ -26,3 +26,15 @@ pub fn run(args: &[&str]) -> Output {
         .output()
         .expect("the groundcount binary runs")
 }
+
+/// Run the binary with arguments that end in `--format json`; assert success and parse
+/// standard output.
+pub fn run_json(args: &[&str]) -> serde_json::Value {
+    let o = run(args);
+    assert!(
+        o.status.success(),
+        "{args:?}: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    serde_json::from_slice(&o.stdout).expect("the command prints JSON")
+}
