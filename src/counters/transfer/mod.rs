@@ -18,7 +18,9 @@
 //! one column. One column is then applied as a sequence of frontier steps, exactly as in the
 //! exact counter ([`super::exact`]): add one variable of the new column, check the
 //! constraints whose last variable it is, forget the variables that no unfinished constraint
-//! reads. States are frontier assignments packed into `u64` bit fields; at the end of a
+//! reads. The variables are added in the order the constraints across the strip need them
+//! (`sweep_order`), and a variable that completes no constraint is added in one step with
+//! the next one, so that no step holds states that the next check would discard. States are frontier assignments packed into `u64` bit fields; at the end of a
 //! column the fields are relabelled by age so that the state space repeats.
 //!
 //! The operator is never stored as a matrix. Once per width a symbolic pass finds the set
@@ -66,7 +68,8 @@
 //! (the Arnoldi basis); time per application O(Σ_steps S_t · q_t), with S_t the number of
 //! frontier states at step t. For a sweep across a column S_t ≤ q^(width · depth + 1), much
 //! less under restrictive rules and sectors (C(W, W/2)/2 at a square-ice boundary for even
-//! W and about 15 times that inside a column; about 1.618^W for hard squares). Building is
+//! W and C(W+2, W/2+1)/2, about 3.8 times that, inside a column; about 1.618^W for hard
+//! squares). Building is
 //! O(Σ_t S_t q_t · streams) plus one pass over the full boundary space from the open end.
 //!
 //! # Reference
@@ -184,11 +187,12 @@ struct Check {
     depth: usize,
 }
 
-/// One step of a column: add a variable, check, forget.
+/// One step of a column: add one variable (or a few, when the earlier ones complete no
+/// constraint), check, forget.
 #[derive(Clone, Debug)]
 struct Step {
-    states: u64,
-    offset: u32,
+    /// Every assignment of the added variables, as bits at their fields.
+    patterns: Vec<u64>,
     checks: Vec<Check>,
     keep: u64,
     /// The bits of every field on the frontier after the step (before relabelling).
@@ -333,7 +337,7 @@ fn variable_columns(
     cluster: &Cluster,
     model: &Model,
     along: usize,
-) -> Result<(Vec<usize>, Vec<usize>, usize)> {
+) -> Result<(Vec<usize>, Vec<usize>, Vec<usize>)> {
     let crystal = cluster.crystal;
     let across = 1 - along;
     // (is bond, crystal index, cell along, cell across), in the model's numbering: the
@@ -390,7 +394,128 @@ fn variable_columns(
             })
         })
         .collect::<Result<Vec<_>>>()?;
-    Ok((columns, kinds, first.len()))
+    Ok((columns, kinds, first.iter().map(|f| f.0).collect()))
+}
+
+/// A constraint of one column's template: the constraints whose first column is 0.
+struct Template {
+    /// (kind, column offset) per scope variable, in table order.
+    entries: Vec<(usize, usize)>,
+    table: usize,
+    /// Columns between the first and the last column the constraint reads.
+    depth: usize,
+    /// The kind, read in the last column, after which the constraint is checked.
+    last: usize,
+}
+
+/// The template constraints of a periodic cluster `n` columns long.
+fn templates(model: &Model, columns: &[usize], kinds: &[usize], n: usize) -> Result<Vec<Template>> {
+    let mut out = Vec::new();
+    for con in &model.constraints {
+        let cols: Vec<usize> = con.scope.iter().map(|&v| columns[v]).collect();
+        let (first, span) = cols
+            .iter()
+            .map(|&s| (s, cols.iter().map(|&c| (c + n - s) % n).max().unwrap_or(0)))
+            .min_by_key(|&(_, span)| span)
+            .expect("constraints have a scope");
+        if 2 * span + 1 > n {
+            return Err(Error::Model(format!(
+                "internal: a constraint spans {span} columns of a {n}-column template"
+            )));
+        }
+        if first != 0 {
+            continue;
+        }
+        let entries: Vec<(usize, usize)> = con
+            .scope
+            .iter()
+            .map(|&v| (kinds[v], (columns[v] + n - first) % n))
+            .collect();
+        let last = entries
+            .iter()
+            .filter(|e| e.1 == span)
+            .map(|e| e.0)
+            .max()
+            .expect("some entry is in the last column");
+        out.push(Template {
+            entries,
+            table: con.table,
+            depth: span,
+            last,
+        });
+    }
+    Ok(out)
+}
+
+/// The order in which a column adds its variables, as a new index for every kind.
+///
+/// The constraints are taken across the strip in the order of where they sit (on a
+/// cylinder, the start of the shortest arc of cells holding the variables they read in
+/// the newest column), and each adds the variables of the newest column it reads that
+/// are not yet added; variables no constraint reads in the newest column come at their
+/// own cell. Sorting the variables by their own cell instead would, on a cylinder, keep
+/// the constraint at the seam open for the whole column (for square ice that makes the
+/// frontier about four times larger).
+fn sweep_order(
+    templates: &[Template],
+    across: &[usize],
+    width: usize,
+    periodic: bool,
+) -> Vec<usize> {
+    let m = across.len();
+    let place = |cells: &[usize]| -> (usize, usize) {
+        if !periodic {
+            return (cells.iter().copied().min().unwrap_or(0), 0);
+        }
+        cells
+            .iter()
+            .map(|&s| {
+                (
+                    s,
+                    cells
+                        .iter()
+                        .map(|&c| (c + width - s) % width)
+                        .max()
+                        .unwrap_or(0),
+                )
+            })
+            .min_by_key(|&(s, span)| (span, s))
+            .unwrap_or((0, 0))
+    };
+    // (place across, arc length, 0 for a constraint / 1 for a lone variable, index, kinds)
+    let mut items: Vec<(usize, usize, usize, usize, Vec<usize>)> = Vec::new();
+    let mut read = vec![false; m];
+    for (i, t) in templates.iter().enumerate() {
+        let mut newest: Vec<usize> = t
+            .entries
+            .iter()
+            .filter(|e| e.1 == t.depth)
+            .map(|e| e.0)
+            .collect();
+        newest.sort_unstable();
+        newest.dedup();
+        for &k in &newest {
+            read[k] = true;
+        }
+        let cells: Vec<usize> = newest.iter().map(|&k| across[k]).collect();
+        let (at, span) = place(&cells);
+        items.push((at, span, 0, i, newest));
+    }
+    for k in (0..m).filter(|&k| !read[k]) {
+        items.push((across[k], 0, 1, k, vec![k]));
+    }
+    items.sort_unstable();
+    let mut rank = vec![usize::MAX; m];
+    let mut next = 0;
+    for item in &items {
+        for &k in &item.4 {
+            if rank[k] == usize::MAX {
+                rank[k] = next;
+                next += 1;
+            }
+        }
+    }
+    rank
 }
 
 impl Column {
@@ -429,51 +554,23 @@ impl Column {
                 "the strip has no arrangement at all: {why}"
             )));
         }
-        let (columns, kinds, m) = variable_columns(&cluster, &model, along)?;
+        let (columns, mut kinds, across) = variable_columns(&cluster, &model, along)?;
+        let m = across.len();
+        // Add the variables of a column in the order its constraints need them (see
+        // `sweep_order`), so that each constraint is checked as soon as possible.
+        let rank = sweep_order(
+            &templates(&model, &columns, &kinds, n)?,
+            &across,
+            width,
+            config.periodic,
+        );
+        for k in kinds.iter_mut() {
+            *k = rank[*k];
+        }
+        let templates = templates(&model, &columns, &kinds, n)?;
         let mut states = vec![0u32; m];
         for (v, &k) in kinds.iter().enumerate() {
             states[k] = model.variables[v].states;
-        }
-        // Template constraints: those whose first column is 0. Entries (kind, offset).
-        struct Template {
-            entries: Vec<(usize, usize)>,
-            table: usize,
-            depth: usize,
-            last: usize,
-        }
-        let mut templates = Vec::new();
-        for con in &model.constraints {
-            let cols: Vec<usize> = con.scope.iter().map(|&v| columns[v]).collect();
-            let (first, span) = cols
-                .iter()
-                .map(|&s| (s, cols.iter().map(|&c| (c + n - s) % n).max().unwrap_or(0)))
-                .min_by_key(|&(_, span)| span)
-                .expect("constraints have a scope");
-            if 2 * span + 1 > n {
-                return Err(Error::Model(format!(
-                    "internal: a constraint spans {span} columns of a {n}-column template"
-                )));
-            }
-            if first != 0 {
-                continue;
-            }
-            let entries: Vec<(usize, usize)> = con
-                .scope
-                .iter()
-                .map(|&v| (kinds[v], (columns[v] + n - first) % n))
-                .collect();
-            let last = entries
-                .iter()
-                .filter(|e| e.1 == span)
-                .map(|e| e.0)
-                .max()
-                .expect("some entry is in the last column");
-            templates.push(Template {
-                entries,
-                table: con.table,
-                depth: span,
-                last,
-            });
         }
         // Last use of each kind: (age in columns, step) of the latest completion reading it.
         let mut last_use: Vec<Option<(usize, usize)>> = vec![None; m];
@@ -517,7 +614,7 @@ impl Column {
                 canonical[&(k, age)]
             }
         };
-        let mut steps = Vec::new();
+        let mut steps: Vec<Step> = Vec::new();
         for k in 0..m {
             if last_use[k].is_none() {
                 continue;
@@ -564,9 +661,22 @@ impl Column {
                 }
             }
             used &= !forget;
+            let mut patterns: Vec<u64> = (0..states[k] as u64).map(|x| x << off).collect();
+            // A variable that completes no constraint only multiplies the states: add it
+            // together with the next one (it forgets nothing either).
+            if let Some(prev) = steps.last()
+                && prev.checks.is_empty()
+                && prev.patterns.len() * patterns.len() <= MERGE_MAX
+            {
+                let prev: Step = steps.pop().expect("a previous step");
+                patterns = prev
+                    .patterns
+                    .iter()
+                    .flat_map(|&p| patterns.iter().map(move |&x| p | x))
+                    .collect();
+            }
             steps.push(Step {
-                states: states[k] as u64,
-                offset: off,
+                patterns,
                 checks,
                 keep: !forget,
                 occupied: used,
@@ -687,10 +797,10 @@ impl Column {
     /// Apply one step to a sorted set of keys; `column` is the column number from an open
     /// left end (checks reaching before it are skipped), `None` in the steady state.
     fn step_keys(&self, step: &Step, keys: &[u64], column: Option<usize>) -> Vec<u64> {
-        let mut out = Vec::with_capacity(keys.len() * step.states as usize);
+        let mut out = Vec::with_capacity(keys.len() * step.patterns.len());
         for &key in keys {
-            for x in 0..step.states {
-                let k = key | (x << step.offset);
+            for &x in &step.patterns {
+                let k = key | x;
                 if step
                     .checks
                     .iter()
@@ -860,8 +970,8 @@ impl Column {
                 // in increasing input order.
                 let mut targets: Vec<(u32, u32)> = Vec::new();
                 for (i, &key) in cur.iter().enumerate() {
-                    for x in 0..step.states {
-                        let k = key | (x << step.offset);
+                    for &x in &step.patterns {
+                        let k = key | x;
                         if step.checks.iter().all(|c| self.allows(c, k)) {
                             let out = self.relabelled(k & step.keep);
                             let out = self.flip.map_or(out, |m| out.min(out ^ m));
@@ -895,8 +1005,8 @@ impl Column {
                 let mut streams: Vec<(StreamId, Vec<(u64, u32)>)> = Vec::new();
                 let mut total = 0usize;
                 for (i, &key) in cur.iter().enumerate() {
-                    for x in 0..step.states {
-                        let k = key | (x << step.offset);
+                    for &x in &step.patterns {
+                        let k = key | x;
                         if step.checks.iter().all(|c| self.allows(c, k)) {
                             let out = k & step.keep;
                             // A reversed key runs backwards within its stream.
@@ -1215,6 +1325,10 @@ const MAX_RESTARTS: usize = 8;
 
 /// Operators with fewer recurrent states go straight to the power iteration.
 const KRYLOV_MIN: usize = 64;
+
+/// Largest number of value patterns of one step when variables that complete no
+/// constraint are added together with the next one.
+const MERGE_MAX: usize = 64;
 
 /// Shift of the power iteration, relative to the current estimate of λ.
 const SHIFT: f64 = 0.25;
