@@ -288,10 +288,13 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                         .to_string()
                 }
                 (_, c) => format!(
-                    "critical: polynomial fits in 1/W² over {} fits (orders, windows, families W mod {}); \
-                     uncertainty is their spread{}",
+                    "critical: {} polynomial fits in 1/W² (orders, windows, families W mod {}); \
+                     value and spread of the family W ≡ {} (mod {}), widened where another \
+                     family disagrees beyond its own spread{}",
                     x.fits.len(),
-                    2 * args.step,
+                    x.period,
+                    x.fits[0].family,
+                    x.period,
                     c.map(|c| format!("; central charge of the 1/W² term {}", sig(c, 4)))
                         .unwrap_or_default()
                 ),

@@ -8,20 +8,29 @@
 //!
 //! # Method
 //!
-//! The widths are split into families by W mod (2·step) (sublattice and parity effects make
-//! the families converge differently, e.g. square ice on odd cylinders cannot carry zero
-//! arrow flux).
+//! The widths are split into families by W mod p (sublattice and parity effects make the
+//! families converge differently, e.g. square ice on odd cylinders cannot carry zero arrow
+//! flux). The period p is the smallest of step, 2·step, 3·step and 6·step at which the last
+//! five values of every family change monotonically (one sign, shrinking steps); 2·step
+//! when none does. For square ice and dimers that gives W mod 2, for the triangular
+//! antiferromagnet W mod 3 (with `--step 3` a single family).
 //!
 //! * **Critical** models (square ice, dimers, the triangular antiferromagnet) approach the
 //!   limit as s(W) = s∞ + a₁/W² + a₂/W⁴ + … on periodic cylinders (conformal invariance:
 //!   Blöte, Cardy & Nightingale 1986, Phys. Rev. Lett. 56, 742; Affleck 1986, Phys. Rev.
-//!   Lett. 56, 746). In every family, the polynomial in 1/W² of the highest order p (up to
-//!   5, and at most the family's widths less two) through the p + 1 largest widths and
-//!   through the p + 1 widths before the last, and of order p − 1 through the p largest
-//!   widths, is evaluated at 1/W² = 0. The central value is the order-p fit ending at the
-//!   largest width; the uncertainty is the largest distance from it of every other fit
-//!   (order, window and family) — never a least-squares error. The central charge follows from a₁ = π c A / (6 u |t|²), with
-//!   A the cell area, t the transverse cell vector and u the formula units per cell.
+//!   Lett. 56, 746). In every family, the polynomial in 1/W² of the highest order q (up to
+//!   5, and at most the widths of the largest width's family less two) through the q + 1
+//!   largest widths and through the q + 1 widths before the last, and of order q − 1
+//!   through the q largest widths, is evaluated at 1/W² = 0. A family's value is its
+//!   order-q fit through its largest widths, its spread the largest distance of its other
+//!   fits from it. The central family is the one with the smallest spread among those with
+//!   all three fits; its value is the result. The uncertainty is its spread, widened to
+//!   |v_f − v| − σ_f for every other family f whose value v_f lies further from it than its
+//!   own spread σ_f — never a least-squares error. (The even dimer cylinders, whose
+//!   corrections form a slowly converging series, then do not swamp the odd ones, which
+//!   reach 1e-10; a family that truly disagrees still shows in the bar.) The central charge
+//!   follows from a₁ = π c A / (6 u |t|²), with A the cell area, t the transverse cell
+//!   vector and u the formula units per cell.
 //! * **Gapped** models (hard squares) converge exponentially: the value is s at the largest
 //!   width; the uncertainty is the larger of its last difference within its family and its
 //!   distance from the largest width of every other family.
@@ -54,7 +63,7 @@ pub enum Scaling {
 /// One extrapolation of one family.
 #[derive(Clone, Debug)]
 pub struct Fit {
-    /// Residue class W mod (2·step) of the family.
+    /// Residue class W mod [`Extrapolation::period`] of the family.
     pub family: usize,
     /// Correction terms (0 for the gapped rule: the last value).
     pub order: usize,
@@ -79,6 +88,8 @@ pub struct Extrapolation {
     pub a1: Option<f64>,
     /// Every fit made, the central one first.
     pub fits: Vec<Fit>,
+    /// The families are the widths of each residue W mod `period`.
+    pub period: usize,
 }
 
 /// Highest order of the polynomial in 1/W² (five correction terms: with square-ice widths
@@ -139,7 +150,7 @@ pub fn extrapolate(
             "an extrapolation needs at least two widths".into(),
         ));
     }
-    let period = 2 * step.max(1);
+    let period = family_period(&points, step.max(1));
     let largest = points.last().expect("two points").0;
     let mut families: Vec<(usize, Vec<(usize, f64)>)> = Vec::new();
     for &p in &points {
@@ -196,6 +207,7 @@ pub fn extrapolate(
             scaling,
             a1: None,
             fits,
+            period,
         });
     }
     // The highest order leaves at least one width of the family unused (so that the
@@ -228,24 +240,89 @@ pub fn extrapolate(
             "the widths give no extrapolation; give at least two widths of one family".into(),
         ));
     }
-    let central = fits[0].clone();
-    let mut uncertainty = fits
+    // Per family: its value (the highest order through its largest widths) and its own
+    // spread (the distance of its other fits; the size of the correction when it has one).
+    let own: Vec<(usize, f64, f64, usize)> = families
         .iter()
-        .skip(1)
-        .map(|f| (f.value - central.value).abs())
-        .fold(0.0, f64::max);
-    if fits.len() == 1 {
-        // A single fit has no spread: fall back to the size of its own correction.
-        uncertainty = (central.value - central_value).abs();
-    }
+        .filter_map(|(r, f)| {
+            let mine: Vec<&Fit> = fits.iter().filter(|x| x.family == *r).collect();
+            let first = mine.first()?;
+            let spread = if mine.len() > 1 {
+                mine.iter()
+                    .skip(1)
+                    .map(|x| (x.value - first.value).abs())
+                    .fold(0.0, f64::max)
+            } else {
+                (first.value - f[f.len() - 1].1).abs()
+            };
+            Some((*r, first.value, spread, mine.len()))
+        })
+        .collect();
+    // The central family: the smallest spread among the families with every fit (the
+    // family of the largest width when none has).
+    let complete = own
+        .iter()
+        .filter(|o| o.3 == 3)
+        .min_by(|a, b| a.2.total_cmp(&b.2));
+    let central_family = complete.unwrap_or(&own[0]);
+    // Every other family must agree within its own spread; what it does not widens the bar.
+    let uncertainty = own
+        .iter()
+        .filter(|o| o.0 != central_family.0)
+        .map(|o| (o.1 - central_family.1).abs() - o.2)
+        .fold(central_family.2, f64::max);
+    fits.sort_by_key(|x| x.family != central_family.0);
+    let central = fits[0].clone();
     Ok(Extrapolation {
         value: central.value,
         uncertainty,
         scaling,
         a1: central.a1,
         fits,
+        period,
     })
 }
+
+/// The period of the families: the smallest of step, 2·step, 3·step and 6·step at which the
+/// last values of every family change monotonically (one sign, shrinking steps), the
+/// signature of one smooth sequence; 2·step when none is (or there are too few widths to
+/// tell).
+fn family_period(points: &[(usize, f64)], step: usize) -> usize {
+    let smooth = |period: usize| -> bool {
+        let mut classes: Vec<usize> = points.iter().map(|p| p.0 % period).collect();
+        classes.sort_unstable();
+        classes.dedup();
+        let mut judged = false;
+        for r in classes {
+            let values: Vec<f64> = points
+                .iter()
+                .filter(|p| p.0 % period == r)
+                .map(|p| p.1)
+                .collect();
+            let tail = &values[values.len().saturating_sub(SMOOTH_POINTS)..];
+            if tail.len() < 4 {
+                continue;
+            }
+            judged = true;
+            let d: Vec<f64> = tail.windows(2).map(|w| w[1] - w[0]).collect();
+            let one_sign = d.iter().all(|&x| x > 0.0) || d.iter().all(|&x| x < 0.0);
+            let shrinking = d.windows(2).all(|w| w[1].abs() < w[0].abs());
+            if !(one_sign && shrinking) {
+                return false;
+            }
+        }
+        judged
+    };
+    [1, 2, 3, 6]
+        .into_iter()
+        .map(|k| k * step)
+        .find(|&p| smooth(p))
+        .unwrap_or(2 * step)
+}
+
+/// Values at the end of a family that must change monotonically for it to count as one
+/// smooth sequence.
+const SMOOTH_POINTS: usize = 5;
 
 #[cfg(test)]
 mod tests {
@@ -264,6 +341,50 @@ mod tests {
         assert!((e.value - 0.4).abs() < 1e-12, "{}", e.value);
         assert!(e.uncertainty < 1e-10);
         assert!((e.a1.unwrap() - 0.3).abs() < 1e-8);
+    }
+
+    #[test]
+    fn smooth_residue_classes_become_one_family_each() {
+        // Three classes W mod 3 with their own 1/W² coefficients, one limit: with step 1
+        // the families are found to be W mod 3 and every fit gives the limit.
+        let points: Vec<(usize, f64)> = (2..=20)
+            .map(|w| {
+                let u = 1.0 / (w * w) as f64;
+                (w, 0.3 + [0.45, -0.2, -0.1][w % 3] * u + 0.05 * u * u)
+            })
+            .collect();
+        let e = extrapolate(&points, 1, Scaling::Critical).unwrap();
+        assert_eq!(e.period, 3);
+        assert!((e.value - 0.3).abs() < 1e-12 && e.uncertainty < 1e-10);
+        // Steps of 3 through one class: one family, period 3.
+        let every_third: Vec<(usize, f64)> =
+            points.iter().copied().filter(|p| p.0 % 3 == 0).collect();
+        assert_eq!(
+            extrapolate(&every_third, 3, Scaling::Critical)
+                .unwrap()
+                .period,
+            3
+        );
+    }
+
+    #[test]
+    fn a_family_that_disagrees_widens_the_error_bar() {
+        // Even and odd widths with exact polynomials but limits 1e-6 apart: each family
+        // alone has no spread, so the bar must come from their disagreement.
+        let points: Vec<(usize, f64)> = (4..=20)
+            .map(|w| {
+                let u = 1.0 / (w * w) as f64;
+                let limit = if w % 2 == 0 { 0.4 } else { 0.4 + 1e-6 };
+                (w, limit + [0.5, -0.25][w % 2] * u)
+            })
+            .collect();
+        let e = extrapolate(&points, 1, Scaling::Critical).unwrap();
+        assert_eq!(e.period, 2);
+        assert!(
+            e.uncertainty >= 0.99e-6 && e.uncertainty < 1.01e-6,
+            "{}",
+            e.uncertainty
+        );
     }
 
     #[test]
