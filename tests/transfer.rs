@@ -290,14 +290,6 @@ fn strip_command_table_and_bad_widths() {
             .unwrap()
             .contains("did not converge")
     );
-    let three_d = lattice("ice-ih.yaml");
-    let out = run(&["strip", three_d.to_str().unwrap(), "--widths", "2..3"]);
-    assert_eq!(out.status.code(), Some(1));
-    assert!(
-        String::from_utf8(out.stderr)
-            .unwrap()
-            .contains("two-dimensional")
-    );
 }
 
 #[test]
@@ -504,4 +496,84 @@ fn arnoldi_start_keeps_the_guard_against_minus_lambda() {
         );
         assert!(r.ln_bracket.0 <= expected + 1e-12 && expected <= r.ln_bracket.1 + 1e-12);
     }
+}
+
+#[test]
+fn prisms_of_three_dimensional_crystals_trace_to_the_frontier_count() {
+    // A prism of a 3D crystal, infinitely long along one axis: the trace of T^L is the
+    // count of the periodic section × L cell, which the frontier counter finds on its own.
+    for (name, along, width, depth) in [
+        ("ice-ih.yaml", 2, 1, None),
+        ("ice-ih.yaml", 2, 2, None),
+        ("ice-ih.yaml", 0, 1, None),
+        ("spin-ice.yaml", 1, 1, None),
+        ("ice-ic.yaml", 0, 1, Some(1)),
+    ] {
+        let l = load(name);
+        let config = StripConfig {
+            along,
+            depth,
+            sectors: Sectors::Full,
+            ..Default::default()
+        };
+        let column = Column::new(&l.crystal, width, &config).unwrap();
+        for length in 2..=3 {
+            let across: Vec<usize> = (0..3).filter(|&a| a != along).collect();
+            let mut counts = [length; 3];
+            counts[across[0]] = width;
+            counts[across[1]] = depth.unwrap_or(width);
+            let shape = format!("{}x{}x{}", counts[0], counts[1], counts[2]);
+            let cells = Cells::parse(&shape, None, 3).unwrap();
+            let frontier = l.count_exact(&cells, &Default::default()).unwrap();
+            assert_eq!(
+                column.trace_power(length).unwrap(),
+                frontier.count.unwrap(),
+                "{name} {shape}"
+            );
+        }
+    }
+}
+
+#[test]
+fn strip_command_builds_prisms_and_refuses_a_depth_in_two_dimensions() {
+    let out = run(&[
+        "strip",
+        lattice("ice-ih.yaml").to_str().unwrap(),
+        "--along",
+        "c",
+        "--widths",
+        "1,2",
+        "--format",
+        "json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["along"], "c");
+    assert_eq!(v["widths"].as_array().unwrap().len(), 2);
+    // The extrapolation from two prisms is rough and must say so by its size.
+    assert!(v["uncertainty"].as_f64().unwrap() > 1e-3);
+    let out = run(&[
+        "strip",
+        lattice("square-ice.yaml").to_str().unwrap(),
+        "--depth",
+        "2",
+    ]);
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("--depth") && err.contains("three-dimensional"),
+        "{err}"
+    );
+    let out = run(&[
+        "strip",
+        lattice("square-ice.yaml").to_str().unwrap(),
+        "--along",
+        "c",
+    ]);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("a or b"));
 }

@@ -16,7 +16,7 @@ use super::{Common, Format, load, shown, with_threads};
 const MAX_WIDTH: usize = 64;
 
 /// Axis names.
-const AXES: [&str; 2] = ["a", "b"];
+const AXES: [&str; 3] = ["a", "b", "c"];
 
 /// Boundary across the strip.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
@@ -34,6 +34,8 @@ pub enum Axis {
     A,
     /// The second cell vector.
     B,
+    /// The third cell vector (three-dimensional crystals).
+    C,
 }
 
 /// How the strip values approach the limit.
@@ -61,7 +63,8 @@ pub enum SectorsArg {
 /// Arguments of `strip`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML) of a two-dimensional crystal.
+    /// Lattice file (YAML) of a two-dimensional crystal, or of a three-dimensional one for
+    /// thin prisms (infinitely long along `--along`, a finite periodic or open section).
     file: PathBuf,
     /// Widths in cells across the strip: a range `2..12` (inclusive) or a list `4,6,8`.
     #[arg(long, default_value = "2..12")]
@@ -72,6 +75,11 @@ pub struct Args {
     /// Cell axis along the strip.
     #[arg(long, value_enum, default_value_t = Axis::A)]
     along: Axis,
+    /// Three-dimensional crystals: cells along the second axis across the prism, the width
+    /// being along the first (the axes other than `--along`, in the order a, b, c). Without
+    /// it the sections are square, width × width.
+    #[arg(long)]
+    depth: Option<usize>,
     /// Boundary across the strip.
     #[arg(long, value_enum, default_value_t = Around::Periodic)]
     around: Around,
@@ -89,6 +97,34 @@ pub struct Args {
     max_iterations: usize,
     #[command(flatten)]
     common: Common,
+}
+
+/// The section of a prism of a three-dimensional crystal, for the report.
+struct Section {
+    /// Cells along the second axis across (null: as many as the width).
+    depth: Option<usize>,
+    /// "; sections W × 3 cells (across b × c)", or nothing in two dimensions.
+    words: String,
+}
+
+impl Section {
+    fn of(dimensions: usize, along: usize, depth: Option<usize>) -> Section {
+        if dimensions != 3 {
+            return Section {
+                depth: None,
+                words: String::new(),
+            };
+        }
+        let across: Vec<&str> = (0..3).filter(|&a| a != along).map(|a| AXES[a]).collect();
+        let second = depth.map_or("W".to_string(), |d| d.to_string());
+        Section {
+            depth,
+            words: format!(
+                "; sections W × {second} cells (across {} × {}), W the width",
+                across[0], across[1]
+            ),
+        }
+    }
 }
 
 /// Parse `2..12`, `2..=12` or `4,6,8` with a step.
@@ -131,11 +167,20 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let widths = parse_widths(&args.widths, args.step)?;
     let lattice = load(Some(&args.file))?;
     let c = &lattice.crystal;
+    if args.depth.is_some() && c.dimensions != 3 {
+        anyhow::bail!(
+            "--depth sets the second axis across a prism of a three-dimensional crystal; '{}' has {} dimensions",
+            c.name,
+            c.dimensions
+        );
+    }
     let config = StripConfig {
         along: match args.along {
             Axis::A => 0,
             Axis::B => 1,
+            Axis::C => 2,
         },
+        depth: args.depth,
         periodic: args.around == Around::Periodic,
         max_states: args.max_states,
         max_iterations: args.max_iterations,
@@ -181,6 +226,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         b.finish_and_clear();
     }
     let s = s??;
+    let section = Section::of(c.dimensions, config.along, args.depth);
     let e = &s.estimate;
     let x = &s.extrapolation;
     let unit = &c.formula_unit.name;
@@ -198,6 +244,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "method": e.method.name(),
                 "along": AXES[config.along],
                 "around": if config.periodic { "periodic" } else { "open" },
+                "depth": section.depth,
                 "widths": s.widths.iter().map(|r| json!({
                     "width": r.width,
                     "ln_lambda": r.ln_lambda,
@@ -253,11 +300,17 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             let mut out = String::new();
             writeln!(
                 out,
-                "{} ({}), strips along {} with {} boundaries across",
+                "{} ({}), {} along {} with {} boundaries across{}",
                 c.name,
                 shown(&Some(args.file.clone())),
+                if c.dimensions == 3 {
+                    "prisms"
+                } else {
+                    "strips"
+                },
                 AXES[config.along],
-                if config.periodic { "periodic" } else { "open" }
+                if config.periodic { "periodic" } else { "open" },
+                section.words
             )?;
             writeln!(out)?;
             out += &t.render();
@@ -288,10 +341,15 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                         .to_string()
                 }
                 (_, c) => format!(
-                    "critical: {} polynomial fits in 1/W² (orders, windows, families W mod {}); \
+                    "critical: {} polynomial fits in {} (orders, windows, families W mod {}); \
                      value and spread of the family W ≡ {} (mod {}), widened where another \
                      family disagrees beyond its own spread{}",
                     x.fits.len(),
+                    match x.exponent {
+                        1 => "1/W (open edges)".to_string(),
+                        2 => "1/W²".to_string(),
+                        e => format!("1/W^{e} (the leading term only on prisms)"),
+                    },
                     x.period,
                     x.fits[0].family,
                     x.period,

@@ -71,7 +71,7 @@ pub struct Fit {
     pub widths: Vec<usize>,
     /// Extrapolated s∞.
     pub value: f64,
-    /// Coefficient of 1/W² (critical fits).
+    /// Coefficient of the leading correction, 1/W^e (critical fits).
     pub a1: Option<f64>,
 }
 
@@ -84,12 +84,14 @@ pub struct Extrapolation {
     pub uncertainty: f64,
     /// Scaling used (never `Auto`).
     pub scaling: Scaling,
-    /// Coefficient of 1/W² of the central fit (critical only).
+    /// Coefficient of the leading correction of the central fit (critical only).
     pub a1: Option<f64>,
     /// Every fit made, the central one first.
     pub fits: Vec<Fit>,
     /// The families are the widths of each residue W mod `period`.
     pub period: usize,
+    /// The corrections are powers of 1/W^exponent.
+    pub exponent: i32,
 }
 
 /// Highest order of the polynomial in 1/W² (five correction terms: with square-ice widths
@@ -124,23 +126,35 @@ fn solve(mut a: Vec<Vec<f64>>, mut b: Vec<f64>) -> Option<Vec<f64>> {
     Some(x)
 }
 
-/// The polynomial in 1/W² through the points, as coefficients (s∞, a₁, …).
-fn polynomial(points: &[(usize, f64)]) -> Option<Vec<f64>> {
+/// The polynomial in 1/W^e through the points, as coefficients (s∞, a₁, …).
+fn polynomial(points: &[(usize, f64)], exponent: i32) -> Option<Vec<f64>> {
     let a = points
         .iter()
         .map(|&(w, _)| {
-            let u = 1.0 / (w as f64 * w as f64);
+            let u = (w as f64).powi(-exponent);
             (0..points.len()).map(|k| u.powi(k as i32)).collect()
         })
         .collect();
     solve(a, points.iter().map(|p| p.1).collect())
 }
 
-/// Extrapolate s(W) to W → ∞.
+/// Extrapolate s(W) of periodic cylinders (corrections in powers of 1/W²) to W → ∞.
 pub fn extrapolate(
     points: &[(usize, f64)],
     step: usize,
     scaling: Scaling,
+) -> Result<Extrapolation> {
+    extrapolate_in(points, step, scaling, 2)
+}
+
+/// [`extrapolate`] with critical corrections in powers of 1/W^`exponent`: 2 on periodic
+/// cylinders, 1 on open strips (the edges add a 1/W term), 3 for the leading term on
+/// periodic prisms of a three-dimensional crystal.
+pub fn extrapolate_in(
+    points: &[(usize, f64)],
+    step: usize,
+    scaling: Scaling,
+    exponent: i32,
 ) -> Result<Extrapolation> {
     let mut points = points.to_vec();
     points.sort_by_key(|p| p.0);
@@ -208,6 +222,7 @@ pub fn extrapolate(
             a1: None,
             fits,
             period,
+            exponent,
         });
     }
     // The highest order leaves at least one width of the family unused (so that the
@@ -223,7 +238,7 @@ pub fn extrapolate(
                 }
                 let end = f.len() - back;
                 let window = &f[end - order - 1..end];
-                if let Some(c) = polynomial(window) {
+                if let Some(c) = polynomial(window, exponent) {
                     fits.push(Fit {
                         family: *r,
                         order,
@@ -280,13 +295,14 @@ pub fn extrapolate(
         a1: central.a1,
         fits,
         period,
+        exponent,
     })
 }
 
 /// The period of the families: the smallest of step, 2·step, 3·step and 6·step at which the
 /// last values of every family change monotonically (one sign, shrinking steps), the
 /// signature of one smooth sequence; 2·step when none is (or there are too few widths to
-/// tell).
+/// tell), unless that leaves every family a single width.
 fn family_period(points: &[(usize, f64)], step: usize) -> usize {
     let smooth = |period: usize| -> bool {
         let mut classes: Vec<usize> = points.iter().map(|p| p.0 % period).collect();
@@ -313,11 +329,16 @@ fn family_period(points: &[(usize, f64)], step: usize) -> usize {
         }
         judged
     };
+    let split_pays = {
+        let mut classes: Vec<usize> = points.iter().map(|p| p.0 % (2 * step)).collect();
+        classes.sort_unstable();
+        classes.windows(2).any(|w| w[0] == w[1])
+    };
     [1, 2, 3, 6]
         .into_iter()
         .map(|k| k * step)
         .find(|&p| smooth(p))
-        .unwrap_or(2 * step)
+        .unwrap_or(if split_pays { 2 * step } else { step })
 }
 
 /// Values at the end of a family that must change monotonically for it to count as one

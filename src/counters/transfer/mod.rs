@@ -3,7 +3,8 @@
 //! # What it computes
 //!
 //! For a strip `width` cells wide (transverse axis periodic — a cylinder — or open) and
-//! infinitely long along one cell axis, the largest eigenvalue λ of the column-to-column
+//! infinitely long along one cell axis — or, for a three-dimensional crystal, a prism whose
+//! section is `width` × `depth` cells across the two other axes ([`StripConfig::depth`]) — the largest eigenvalue λ of the column-to-column
 //! transfer operator T. The number of arrangements of a strip of M columns grows like λ^M,
 //! so ln W per formula unit of the infinite strip is ln λ / (formula units per column).
 //! [`Column::trace_power`] gives the exact integer trace of T^L, which is the exact count of
@@ -84,7 +85,7 @@ use std::time::Instant;
 use num_bigint::BigUint;
 use rayon::prelude::*;
 
-use super::extrapolate::{Extrapolation, Scaling, extrapolate};
+use super::extrapolate::{Extrapolation, Scaling, extrapolate_in};
 use super::order::width as field_width;
 use crate::cluster::{Cells, Cluster};
 use crate::crystal::Crystal;
@@ -99,8 +100,11 @@ pub mod torus;
 /// Options of a strip computation.
 #[derive(Clone, Debug)]
 pub struct StripConfig {
-    /// Cell axis along the strip (0 = a, 1 = b); the other axis is transverse.
+    /// Cell axis along the strip (0 = a, 1 = b, 2 = c); the other axes are transverse.
     pub along: usize,
+    /// Three-dimensional crystals: cells along the second transverse axis (the first has
+    /// the width); `None` makes the section square, width × width.
+    pub depth: Option<usize>,
     /// Periodic (a cylinder) or open transverse boundaries.
     pub periodic: bool,
     /// Largest number of frontier states at any step.
@@ -133,6 +137,7 @@ impl Default for StripConfig {
     fn default() -> Self {
         StripConfig {
             along: 0,
+            depth: None,
             periodic: true,
             max_states: 1 << 24,
             tolerance: 1e-12,
@@ -298,8 +303,13 @@ pub fn from_widths(
     config: &StripConfig,
 ) -> Result<StripSeries> {
     let points: Vec<(usize, f64)> = results.iter().map(|r| (r.width, r.ln_w_per_unit)).collect();
-    let extrapolation = extrapolate(&points, step, scaling)?;
-    let central_charge = extrapolation.a1.filter(|_| config.periodic).map(|a1| {
+    let exponent = match (config.periodic, crystal.dimensions) {
+        (false, _) => 1,
+        (true, 3) => 3,
+        _ => 2,
+    };
+    let extrapolation = extrapolate_in(&points, step, scaling, exponent)?;
+    let central_charge = extrapolation.a1.filter(|_| exponent == 2).map(|a1| {
         let v = crystal.vectors;
         let area = (v[0][0] * v[1][1] - v[0][1] * v[1][0]).abs();
         let t = v[1 - config.along];
@@ -332,24 +342,56 @@ pub fn strip(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<St
     Column::new(crystal, width, config)?.largest_eigenvalue(config)
 }
 
-/// Where each model variable sits: (column along the strip, kind within a column).
+/// The cell axes across a strip along `along`, in increasing order.
+fn transverse_axes(along: usize, dimensions: usize) -> Vec<usize> {
+    (0..dimensions).filter(|&a| a != along).collect()
+}
+
+/// Cells along the second transverse axis (1 for a two-dimensional crystal; the width
+/// unless [`StripConfig::depth`] says otherwise).
+fn section_depth(dimensions: usize, width: usize, config: &StripConfig) -> usize {
+    if dimensions == 3 {
+        config.depth.unwrap_or(width)
+    } else {
+        1
+    }
+}
+
+/// Where the model's variables sit in a strip.
+struct Placement {
+    /// Per variable, its column along the strip.
+    columns: Vec<usize>,
+    /// Per variable, its kind within a column.
+    kinds: Vec<usize>,
+    /// Per kind, its cell across the strip (second coordinate 0 in two dimensions).
+    across: Vec<[usize; 2]>,
+}
+
+/// Where each model variable sits (see [`Placement`]).
 fn variable_columns(
     cluster: &Cluster,
     model: &Model,
     along: usize,
-) -> Result<(Vec<usize>, Vec<usize>, Vec<usize>)> {
+    transverse: &[usize],
+) -> Result<Placement> {
     let crystal = cluster.crystal;
-    let across = 1 - along;
-    // (is bond, crystal index, cell along, cell across), in the model's numbering: the
-    // sites first when sites carry variables, then the bonds.
-    let mut ids: Vec<(bool, usize, usize, usize, [f64; 3])> = Vec::new();
+    let across = |cell: [usize; 3]| -> [usize; 2] {
+        [
+            cell[transverse[0]],
+            transverse.get(1).map_or(0, |&t| cell[t]),
+        ]
+    };
+    // (is bond, crystal index, cell along, cell across, position), in the model's
+    // numbering: the sites first when sites carry variables, then the bonds.
+    type Id = (bool, usize, usize, [usize; 2], [f64; 3]);
+    let mut ids: Vec<Id> = Vec::new();
     if crystal.site_variables.is_some() {
         for (i, s) in cluster.sites.iter().enumerate() {
             ids.push((
                 false,
                 s.site,
                 s.cell[along],
-                s.cell[across],
+                across(s.cell),
                 cluster.site_position(i),
             ));
         }
@@ -360,7 +402,7 @@ fn variable_columns(
                 true,
                 b.bond,
                 b.cell[along],
-                b.cell[across],
+                across(b.cell),
                 cluster.bond_position(i),
             ));
         }
@@ -375,26 +417,32 @@ fn variable_columns(
             "internal: the model's variables do not follow the cluster's sites and bonds".into(),
         ));
     }
-    let mut first: Vec<(usize, bool, usize)> = ids
+    let mut first: Vec<([usize; 2], bool, usize)> = ids
         .iter()
         .filter(|id| id.2 == 0)
-        .map(|id| (id.3, id.0, id.1))
+        .map(|id| ([id.3[1], id.3[0]], id.0, id.1))
         .collect();
     first.sort_unstable();
-    let kind: HashMap<(usize, bool, usize), usize> =
+    let kind: HashMap<([usize; 2], bool, usize), usize> =
         first.iter().enumerate().map(|(k, &id)| (id, k)).collect();
     let columns = ids.iter().map(|id| id.2).collect();
     let kinds = ids
         .iter()
         .map(|id| {
-            kind.get(&(id.3, id.0, id.1)).copied().ok_or_else(|| {
-                Error::Model(
-                    "internal: the strip's columns are not translates of each other".into(),
-                )
-            })
+            kind.get(&([id.3[1], id.3[0]], id.0, id.1))
+                .copied()
+                .ok_or_else(|| {
+                    Error::Model(
+                        "internal: the strip's columns are not translates of each other".into(),
+                    )
+                })
         })
         .collect::<Result<Vec<_>>>()?;
-    Ok((columns, kinds, first.iter().map(|f| f.0).collect()))
+    Ok(Placement {
+        columns,
+        kinds,
+        across: first.iter().map(|f| [f.0[1], f.0[0]]).collect(),
+    })
 }
 
 /// A constraint of one column's template: the constraints whose first column is 0.
@@ -458,29 +506,28 @@ fn templates(model: &Model, columns: &[usize], kinds: &[usize], n: usize) -> Res
 /// frontier about four times larger).
 fn sweep_order(
     templates: &[Template],
-    across: &[usize],
-    width: usize,
+    across: &[[usize; 2]],
+    size: [usize; 2],
     periodic: bool,
 ) -> Vec<usize> {
     let m = across.len();
-    let place = |cells: &[usize]| -> (usize, usize) {
+    // Where a set of cells sits along one transverse axis of `n` cells: the start of the
+    // shortest arc holding them on a ring, the smallest on an open edge; and the arc length.
+    let place1 = |cells: &[usize], n: usize| -> (usize, usize) {
         if !periodic {
             return (cells.iter().copied().min().unwrap_or(0), 0);
         }
         cells
             .iter()
-            .map(|&s| {
-                (
-                    s,
-                    cells
-                        .iter()
-                        .map(|&c| (c + width - s) % width)
-                        .max()
-                        .unwrap_or(0),
-                )
-            })
+            .map(|&s| (s, cells.iter().map(|&c| (c + n - s) % n).max().unwrap_or(0)))
             .min_by_key(|&(s, span)| (span, s))
             .unwrap_or((0, 0))
+    };
+    // The second transverse axis is the slower one (the kinds are numbered that way).
+    let place = |cells: &[[usize; 2]]| -> (usize, usize) {
+        let (a0, s0) = place1(&cells.iter().map(|c| c[0]).collect::<Vec<_>>(), size[0]);
+        let (a1, s1) = place1(&cells.iter().map(|c| c[1]).collect::<Vec<_>>(), size[1]);
+        (a1 * size[0] + a0, s1 * size[0] + s0)
     };
     // (place across, arc length, 0 for a constraint / 1 for a lone variable, index, kinds)
     let mut items: Vec<(usize, usize, usize, usize, Vec<usize>)> = Vec::new();
@@ -497,12 +544,12 @@ fn sweep_order(
         for &k in &newest {
             read[k] = true;
         }
-        let cells: Vec<usize> = newest.iter().map(|&k| across[k]).collect();
+        let cells: Vec<[usize; 2]> = newest.iter().map(|&k| across[k]).collect();
         let (at, span) = place(&cells);
         items.push((at, span, 0, i, newest));
     }
     for k in (0..m).filter(|&k| !read[k]) {
-        items.push((across[k], 0, 1, k, vec![k]));
+        items.push((across[k][1] * size[0] + across[k][0], 0, 1, k, vec![k]));
     }
     items.sort_unstable();
     let mut rank = vec![usize::MAX; m];
@@ -522,30 +569,44 @@ impl Column {
     /// Build the transfer operator of a strip `width` cells wide.
     pub fn new(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<Column> {
         let start = Instant::now();
-        if crystal.dimensions != 2 {
+        let dimensions = crystal.dimensions;
+        if dimensions != 2 && dimensions != 3 {
             return Err(Error::Cells(format!(
-                "a strip needs a two-dimensional crystal; '{}' has {} dimensions",
-                crystal.name, crystal.dimensions
+                "a strip needs a two- or three-dimensional crystal; '{}' has {} dimension(s)",
+                crystal.name, dimensions
             )));
         }
-        if width == 0 {
+        if width == 0 || config.depth == Some(0) {
             return Err(Error::Cells("a strip must be at least 1 cell wide".into()));
         }
         let along = config.along;
-        if along > 1 {
-            return Err(Error::Cells("the strip axis must be a or b".into()));
+        if along >= dimensions {
+            return Err(Error::Cells(format!(
+                "the strip axis must be {} for a {dimensions}-dimensional crystal",
+                if dimensions == 2 {
+                    "a or b"
+                } else {
+                    "a, b or c"
+                }
+            )));
         }
+        let transverse = transverse_axes(along, dimensions);
+        let depth = section_depth(dimensions, width, config);
         let reach = crystal.reach().max(1) as usize;
         let n = 4 * reach + 3;
         let mut counts = [1usize; 3];
         counts[along] = n;
-        counts[1 - along] = width;
+        counts[transverse[0]] = width;
         let mut periodic = [true; 3];
-        periodic[1 - along] = config.periodic;
+        periodic[transverse[0]] = config.periodic;
+        if let Some(&t) = transverse.get(1) {
+            counts[t] = depth;
+            periodic[t] = config.periodic;
+        }
         let cells = Cells {
             counts,
             periodic,
-            dimensions: 2,
+            dimensions,
         };
         let cluster = Cluster::new(crystal, cells)?;
         let model = Model::new(&cluster)?;
@@ -554,14 +615,18 @@ impl Column {
                 "the strip has no arrangement at all: {why}"
             )));
         }
-        let (columns, mut kinds, across) = variable_columns(&cluster, &model, along)?;
+        let Placement {
+            columns,
+            mut kinds,
+            across,
+        } = variable_columns(&cluster, &model, along, &transverse)?;
         let m = across.len();
         // Add the variables of a column in the order its constraints need them (see
         // `sweep_order`), so that each constraint is checked as soon as possible.
         let rank = sweep_order(
             &templates(&model, &columns, &kinds, n)?,
             &across,
-            width,
+            [width, depth],
             config.periodic,
         );
         for k in kinds.iter_mut() {
