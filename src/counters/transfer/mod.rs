@@ -1,11 +1,13 @@
-//! Transfer matrices on strips and cylinders of a two-dimensional crystal.
+//! Transfer matrices on strips and cylinders of a two-dimensional crystal, and on thin
+//! prisms of a three-dimensional one.
 //!
 //! # What it computes
 //!
 //! For a strip `width` cells wide (transverse axis periodic — a cylinder — or open) and
-//! infinitely long along one cell axis — or, for a three-dimensional crystal, a prism whose
-//! section is `width` × `depth` cells across the two other axes ([`StripConfig::depth`]) — the largest eigenvalue λ of the column-to-column
-//! transfer operator T. The number of arrangements of a strip of M columns grows like λ^M,
+//! infinitely long along one cell axis — or, for a three-dimensional crystal, a prism
+//! whose section is `width` × `depth` cells across the two other axes
+//! ([`StripConfig::depth`]) — the largest eigenvalue λ of the column-to-column transfer
+//! operator T. The number of arrangements of a strip of M columns grows like λ^M,
 //! so ln W per formula unit of the infinite strip is ln λ / (formula units per column).
 //! [`Column::trace_power`] gives the exact integer trace of T^L, which is the exact count of
 //! the `width × L` torus.
