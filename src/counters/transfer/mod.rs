@@ -94,8 +94,10 @@ use crate::crystal::Crystal;
 use crate::error::{Error, Result};
 use crate::estimate::{Estimate, Method};
 use crate::model::{Model, Table};
+use rows::{CHUNK, Rows};
 
 mod krylov;
+mod rows;
 pub mod sector;
 pub mod torus;
 
@@ -224,12 +226,9 @@ pub struct Column {
     units_per_column: f64,
     /// Frontier states at a column boundary, sorted.
     keys: Vec<u64>,
-    /// Per step, the inputs of every output state, in compressed rows: output j sums the
-    /// inputs `sources[starts[j]..starts[j + 1]]` (in increasing order, so sums do not
+    /// Per step, the inputs of every output state (in increasing order, so sums do not
     /// depend on the number of threads).
-    sources: Vec<Vec<u32>>,
-    /// Per step, the row starts of `sources` (one more than the outputs).
-    starts: Vec<Vec<u32>>,
+    rows: Vec<Rows>,
     /// Per step: number of output states.
     sizes: Vec<usize>,
     /// Build time in seconds.
@@ -829,8 +828,7 @@ impl Column {
             free_states,
             units_per_column: model.formula_units / n as f64,
             keys: Vec::new(),
-            sources: Vec::new(),
-            starts: Vec::new(),
+            rows: Vec::new(),
             sizes: Vec::new(),
             build_seconds: 0.0,
             charge,
@@ -1021,8 +1019,7 @@ impl Column {
             // One representative (the smaller key) of every pair {k, k XOR m}.
             keys.retain(|&k| k < k ^ m);
         }
-        let mut all_sources = Vec::with_capacity(self.steps.len());
-        let mut all_starts = Vec::with_capacity(self.steps.len());
+        let mut all_rows = Vec::with_capacity(self.steps.len());
         let mut sizes = Vec::with_capacity(self.steps.len());
         let mut cur = keys.clone();
         let last = self.steps.len().saturating_sub(1);
@@ -1125,14 +1122,16 @@ impl Column {
                 (sources, starts, next)
             };
             self.within_budget(next.len(), config)?;
-            all_sources.push(sources);
-            all_starts.push(starts);
+            if cur.len() > rows::MAX_INPUT {
+                return Err(too_many(cur.len()));
+            }
+            all_rows.push(Rows::from_compressed(&sources, &starts));
+            drop((sources, starts));
             sizes.push(next.len());
             cur = next;
         }
         self.keys = keys;
-        self.sources = all_sources;
-        self.starts = all_starts;
+        self.rows = all_rows;
         self.sizes = sizes;
         Ok(())
     }
@@ -1154,7 +1153,7 @@ impl Column {
 
     /// Transitions (index-list entries) per application of T, summed over the steps.
     pub fn transitions(&self) -> usize {
-        self.sources.iter().map(Vec::len).sum()
+        self.rows.iter().map(Rows::transitions).sum()
     }
 
     /// Formula units per column.
@@ -1169,22 +1168,16 @@ impl Column {
         for s in 0..self.steps.len() {
             // Every output is written below, so old contents need no clearing.
             scratch.resize(self.sizes[s], 0.0);
-            let (sources, starts) = (&self.sources[s], &self.starts[s]);
+            let rows = &self.rows[s];
+            debug_assert_eq!(rows.outputs(), self.sizes[s]);
             let input: &[f64] = y;
-            let rows = |first: usize, out: &mut [f64]| {
-                for (k, o) in out.iter_mut().enumerate() {
-                    let j = first + k;
-                    let row = &sources[starts[j] as usize..starts[j + 1] as usize];
-                    *o = row.iter().map(|&i| input[i as usize]).sum();
-                }
-            };
             if scratch.len() >= PARALLEL_MIN {
                 scratch
                     .par_chunks_mut(CHUNK)
                     .enumerate()
-                    .for_each(|(c, out)| rows(c * CHUNK, out));
+                    .for_each(|(c, out)| rows.gather(c * CHUNK, out, input));
             } else {
-                rows(0, scratch);
+                rows.gather(0, scratch, input);
             }
             std::mem::swap(y, scratch);
         }
@@ -1218,16 +1211,13 @@ impl Column {
             cur[start] = BigUint::from(1u32);
             for _ in 0..length {
                 for s in 0..self.steps.len() {
-                    let (sources, starts) = (&self.sources[s], &self.starts[s]);
-                    cur = (0..self.sizes[s])
-                        .map(|j| {
-                            let mut acc = zero.clone();
-                            for &i in &sources[starts[j] as usize..starts[j + 1] as usize] {
-                                acc += &cur[i as usize];
-                            }
-                            acc
-                        })
-                        .collect();
+                    let mut next = vec![zero.clone(); self.sizes[s]];
+                    self.rows[s].for_each_row(|j, inputs| {
+                        for i in inputs {
+                            next[j] += &cur[i];
+                        }
+                    });
+                    cur = next;
                 }
             }
             total += &cur[start];
@@ -1377,9 +1367,6 @@ const SUPPORT: f64 = 1e-8;
 
 /// Steps with fewer output states than this run on one thread.
 const PARALLEL_MIN: usize = 1 << 15;
-
-/// Output states per parallel task.
-const CHUNK: usize = 1 << 12;
 
 /// A stream of one step: (new value, forgotten fields, reversed).
 type StreamId = (u64, u64, bool);

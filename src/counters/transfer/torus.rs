@@ -75,8 +75,7 @@ pub fn route(crystal: &Crystal, cells: &Cells, max_states: usize) -> Option<Toru
 impl TorusRoute {
     /// Predicted big-integer additions of the trace.
     pub fn work(&self) -> f64 {
-        let per_column: usize = self.column.sources.iter().map(Vec::len).sum::<usize>()
-            + self.column.sizes.iter().sum::<usize>();
+        let per_column: usize = self.column.transitions() + self.column.sizes.iter().sum::<usize>();
         self.column.states() as f64 * self.length as f64 * per_column as f64
     }
 
