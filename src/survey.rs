@@ -177,7 +177,7 @@ impl Survey {
 
     /// The estimate a user should cite: the transfer-matrix extrapolation, else the Monte
     /// Carlo extrapolation to the infinite crystal, else the Monte Carlo count of the largest
-    /// cell, else the largest exact cell, else Pauling's estimate.
+    /// cell, else the largest exact cell with an arrangement, else Pauling's estimate.
     pub fn best(&self) -> &Estimate {
         if let Some(s) = &self.strips {
             return &s.estimate;
@@ -188,7 +188,16 @@ impl Survey {
         if let Some(s) = &self.sampled {
             return &s.sampled.estimate;
         }
-        self.exact.last().unwrap_or(&self.pauling)
+        self.largest_exact().unwrap_or(&self.pauling)
+    }
+
+    /// The largest exact cell that has at least one arrangement (cells of the wrong parity,
+    /// such as odd tori for dimers, have none and say nothing about W).
+    pub fn largest_exact(&self) -> Option<&Estimate> {
+        self.exact
+            .iter()
+            .rev()
+            .find(|e| e.ln_w_per_unit.is_finite())
     }
 }
 

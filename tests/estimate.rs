@@ -87,3 +87,29 @@ fn spin_ice_estimate_extrapolates_to_the_infinite_crystal() {
         assert!(w < c["w_per_unit"].as_f64().unwrap());
     }
 }
+
+/// Odd tori carry no dimer covering: the summary line must name the largest cell that has
+/// one (an even torus), never a W of zero.
+#[test]
+fn dimer_summary_names_a_cell_with_an_arrangement() {
+    let out = run(&[
+        "estimate",
+        lattice("square-dimers.yaml").to_str().unwrap(),
+        "--budget",
+        "2",
+    ]);
+    assert_eq!(out.status.code(), Some(0));
+    let text = String::from_utf8_lossy(&out.stdout);
+    let line = text
+        .lines()
+        .find(|l| l.starts_with("largest cell counted with an arrangement:"))
+        .expect("summary line");
+    let cell = line
+        .split_whitespace()
+        .nth(6)
+        .unwrap()
+        .trim_end_matches(',');
+    let side: usize = cell.split('x').next().unwrap().parse().unwrap();
+    assert_eq!(side % 2, 0, "{line}");
+    assert!(!line.contains("W = 0 "), "{line}");
+}

@@ -84,10 +84,10 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "Exact counts are for finite periodic cells; they approach the infinite crystal as the cell grows. \
                  Cells that wrap a bond onto itself (the smallest) are exact for that torus only."
             )?;
-            if let Some(last) = s.exact.last() {
+            if let Some(last) = s.largest_exact() {
                 writeln!(
                     out,
-                    "largest cell counted: {}, W = {} per {unit} (Pauling {}; difference {:+.3} %)",
+                    "largest cell counted with an arrangement: {}, W = {} per {unit} (Pauling {}; difference {:+.3} %)",
                     last.cells.as_deref().unwrap_or(""),
                     sig(last.w_per_unit(), 8),
                     sig(p.w_per_unit(), 8),

@@ -154,7 +154,7 @@ impl<'a> Writeup<'a> {
                 m.sampled.seed
             );
         }
-        if let Some(e) = s.exact.last() {
+        if let Some(e) = s.largest_exact() {
             return format!(
                 "an exact count of the arrangements of a {} cell ({} {unit}; a finite cell, not the infinite crystal)",
                 e.cells.as_deref().unwrap_or(""),
