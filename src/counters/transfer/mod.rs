@@ -28,7 +28,7 @@
 //!
 //! The operator is never stored as a matrix. Once per width a symbolic pass finds the set
 //! K of frontier states reachable from an open left end (closed under T) and compiles, for
-//! every step of the column, compressed rows: for each output state the indices of its
+//! every step of the column, the rows ([`rows`]): for each output state the indices of its
 //! input states (found by merging sorted streams of transitions, never by sorting).
 //! Applying T is then `m` gather passes over flat `f64` arrays (m = variables per column),
 //! with no hash map or search in the hot loop.
@@ -238,6 +238,9 @@ pub struct Column {
     charge: Vec<(u32, i64)>,
     /// The sector kept, if the state space is restricted to one.
     sector: Option<i64>,
+    /// T maps charge q to `charge_sign`·q (−1 when the signs of the constraints alternate
+    /// from column to column, as the checkerboard of dimers does).
+    charge_sign: i64,
     /// The bits of the boundary fields.
     boundary_bits: u64,
     /// When every state is identified with its image under reversing every binary
@@ -455,12 +458,18 @@ struct Template {
     depth: usize,
     /// The kind, read in the last column, after which the constraint is checked.
     last: usize,
+    /// Its index in the model.
+    constraint: usize,
+    /// The model index of its translate one column on, if found.
+    next: Option<usize>,
 }
 
 /// The template constraints of a periodic cluster `n` columns long.
 fn templates(model: &Model, columns: &[usize], kinds: &[usize], n: usize) -> Result<Vec<Template>> {
     let mut out = Vec::new();
-    for con in &model.constraints {
+    // Constraints whose first column is 1, by (entries, table): the translates.
+    let mut second: HashMap<(Vec<(usize, usize)>, usize), usize> = HashMap::new();
+    for (index, con) in model.constraints.iter().enumerate() {
         let cols: Vec<usize> = con.scope.iter().map(|&v| columns[v]).collect();
         let (first, span) = cols
             .iter()
@@ -472,7 +481,7 @@ fn templates(model: &Model, columns: &[usize], kinds: &[usize], n: usize) -> Res
                 "internal: a constraint spans {span} columns of a {n}-column template"
             )));
         }
-        if first != 0 {
+        if first > 1 {
             continue;
         }
         let entries: Vec<(usize, usize)> = con
@@ -480,6 +489,10 @@ fn templates(model: &Model, columns: &[usize], kinds: &[usize], n: usize) -> Res
             .iter()
             .map(|&v| (kinds[v], (columns[v] + n - first) % n))
             .collect();
+        if first == 1 {
+            second.insert((entries, con.table), index);
+            continue;
+        }
         let last = entries
             .iter()
             .filter(|e| e.1 == span)
@@ -491,7 +504,12 @@ fn templates(model: &Model, columns: &[usize], kinds: &[usize], n: usize) -> Res
             table: con.table,
             depth: span,
             last,
+            constraint: index,
+            next: None,
         });
+    }
+    for t in &mut out {
+        t.next = second.get(&(t.entries.clone(), t.table)).copied();
     }
     Ok(out)
 }
@@ -594,7 +612,8 @@ impl Column {
         let transverse = transverse_axes(along, dimensions);
         let depth = section_depth(dimensions, width, config);
         let reach = crystal.reach().max(1) as usize;
-        let n = 4 * reach + 3;
+        // Even, so that signs alternating from column to column fit around the cluster.
+        let n = 4 * reach + 4;
         let mut counts = [1usize; 3];
         counts[along] = n;
         counts[transverse[0]] = width;
@@ -761,33 +780,56 @@ impl Column {
         // boundary field (k, a) adds the relations of the constraints reading it that have
         // completed, those with depth − offset < a.
         let mut charge = Vec::new();
+        let mut charge_sign = 1i64;
         if config.sectors != Sectors::Full {
             let relations: Vec<Option<sector::Relation>> =
                 model.tables.iter().map(sector::relation).collect();
-            // One column adds Σ b of its constraints to the charge; unless that is 0 no
-            // arrangement continues for ever (and the recurrence test will say so).
-            let added: i64 = templates
-                .iter()
-                .filter_map(|t| relations[t.table].as_ref().map(|r| r.constant))
-                .sum();
-            if added == 0 && sector::cancels(&model, &relations) {
-                for k in 0..m {
-                    let Some((age, _)) = last_use[k] else {
-                        continue;
-                    };
-                    for a in 1..=age {
-                        let mut c = 0i64;
-                        for t in &templates {
-                            if let Some(r) = &relations[t.table] {
-                                for (i, &(kk, d)) in t.entries.iter().enumerate() {
-                                    if kk == k && t.depth - d < a {
-                                        c += r.coefficients[i];
+            // Signs ε per constraint (all +1 for ice rules, a checkerboard for dimers) make
+            // every variable's coefficients cancel; see `sector::signs`.
+            if let Some(eps) = sector::signs(&model, &relations) {
+                // One column adds Σ ε b of its constraints to the charge; unless that is 0
+                // no arrangement continues for ever (and the recurrence test will say so).
+                let added: i64 = templates
+                    .iter()
+                    .filter_map(|t| {
+                        relations[t.table]
+                            .as_ref()
+                            .map(|r| eps[t.constraint] * r.constant)
+                    })
+                    .sum();
+                // The charge of the next column's boundary is read with the next column's
+                // signs: ε of every translate is ε times one common factor s = ±1, and T
+                // maps charge q to s·q.
+                let factors: Vec<Option<i64>> = templates
+                    .iter()
+                    .filter(|t| relations[t.table].is_some())
+                    .map(|t| t.next.map(|j| eps[j] * eps[t.constraint]))
+                    .collect();
+                let common = factors
+                    .first()
+                    .copied()
+                    .flatten()
+                    .filter(|&f| factors.iter().all(|&g| g == Some(f)));
+                if let (0, Some(f)) = (added, common) {
+                    charge_sign = f;
+                    for k in 0..m {
+                        let Some((age, _)) = last_use[k] else {
+                            continue;
+                        };
+                        for a in 1..=age {
+                            let mut c = 0i64;
+                            for t in &templates {
+                                if let Some(r) = &relations[t.table] {
+                                    for (i, &(kk, d)) in t.entries.iter().enumerate() {
+                                        if kk == k && t.depth - d < a {
+                                            c += eps[t.constraint] * r.coefficients[i];
+                                        }
                                     }
                                 }
                             }
-                        }
-                        if c != 0 {
-                            charge.push((canonical[&(k, a)], c));
+                            if c != 0 {
+                                charge.push((canonical[&(k, a)], c));
+                            }
                         }
                     }
                 }
@@ -799,8 +841,18 @@ impl Column {
             Sectors::Charge(q) => Some(q),
             Sectors::Largest => Some(sector::most_populous(
                 &charge.iter().map(|c| c.1).collect::<Vec<_>>(),
-            )),
+            ))
+            .filter(|&q| charge_sign == 1 || q == 0),
         };
+        if let Some(q) = sector
+            && charge_sign == -1
+            && q != 0
+        {
+            return Err(Error::Model(format!(
+                "the column operator maps charge {q} to {}: only charge 0 is a sector of its own",
+                -q
+            )));
+        }
         // Reversing every variable (arrows, spins) maps allowed columns to allowed columns
         // when every variable is binary and every table is closed under complements; the
         // sector must map to itself (charge q ↦ Σc − q).
@@ -833,6 +885,7 @@ impl Column {
             build_seconds: 0.0,
             charge,
             sector,
+            charge_sign,
             flip,
             boundary_bits,
         };
@@ -997,7 +1050,9 @@ impl Column {
             }
             let image = self.column_keys(&keys, None, config)?;
             if let Some(q) = self.sector
-                && image.iter().any(|&k| self.charge_of(k) != q)
+                && image
+                    .iter()
+                    .any(|&k| self.charge_of(k) != self.charge_sign * q)
             {
                 return Err(Error::Model(
                     "internal: the charge found from the rule tables is not conserved".into(),

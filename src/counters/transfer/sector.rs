@@ -15,17 +15,22 @@
 //!    set lies in exactly one hyperplane Σ aᵢ xᵢ = b gives the *relation* (a, b), scaled to
 //!    the smallest integers with the first nonzero aᵢ positive (two in, two out at a site:
 //!    x_in₁ + x_in₂ − x_out₁ − x_out₂ = 0 in the orientation of the file).
-//! 2. [`cancels`]: the relations of all constraints of the periodic strip model are added
-//!    with weight 1. When every variable's coefficients add up to zero (each arrow counts +1
-//!    at one end and −1 at the other), the partial sums over the constraints completed so
-//!    far, restricted to the frontier, form the charge: the sum over all completed
-//!    constraints equals Σ b (each relation holds), every variable that has left the frontier
-//!    contributes its full coefficient sum 0, and one column adds Σ b over one column's
-//!    constraints, a constant; a finite state space with an infinite past forces it to 0.
-//!    The coefficient of a boundary field is the sum of the relation coefficients of the
-//!    constraints reading it that have completed (`Column::new` computes it from the
-//!    template). Rules without such relations (hard-core exclusion, not-all-equal) give no
-//!    charge, and the full space is used.
+//! 2. [`signs`]: the relations of all constraints of the periodic strip model are added
+//!    with signs ε_c = ±1 chosen so that every variable's coefficients add up to zero: all
+//!    +1 when they already cancel ([`cancels`]: each arrow counts +1 at one end and −1 at
+//!    the other), else a two-colouring of the constraints (one dimer per site: +1 on one
+//!    sublattice, −1 on the other; an odd cylinder has none). Then the partial sums over
+//!    the constraints completed so far, restricted to the frontier, form the charge: the
+//!    signed sum over all completed constraints equals Σ ε b (each relation holds), every
+//!    variable that has left the frontier contributes its full signed coefficient sum 0,
+//!    and one column adds Σ ε b over one column's constraints, a constant; a finite state
+//!    space with an infinite past forces it to 0. The coefficient of a boundary field is
+//!    the signed sum of the relation coefficients of the constraints reading it that have
+//!    completed (`Column::new` computes it from the template). When the signs alternate
+//!    from column to column (the dimer checkerboard) the next boundary's charge is read
+//!    with the opposite signs, so T maps charge q to −q and only q = 0 is a sector of its
+//!    own. Rules without relations (hard-core exclusion, not-all-equal) give no charge, and
+//!    the full space is used.
 //! 3. [`most_populous`]: the sector chosen is the charge value that holds the most
 //!    assignments of the boundary fields (a generating-function product over the fields);
 //!    ties go to the smaller charge. For square ice this is zero flux for even widths and
@@ -151,6 +156,69 @@ pub fn cancels(model: &Model, relations: &[Option<Relation>]) -> bool {
         }
     }
     any && total.iter().all(|&t| t == 0)
+}
+
+/// Signs ε_c = ±1 for the constraints with a relation (0 for the others) such that
+/// Σ_c ε_c a_{c,v} = 0 for every variable v: all +1 when the relations already cancel (ice
+/// rules: an arrow counts +1 at one end and −1 at the other), a two-colouring of the
+/// constraints otherwise (one dimer per site on a bipartite lattice: +1 on one sublattice,
+/// −1 on the other). `None` when no such signs exist (a non-bipartite cylinder) or no
+/// variable has a nonzero coefficient.
+pub fn signs(model: &Model, relations: &[Option<Relation>]) -> Option<Vec<i64>> {
+    if cancels(model, relations) {
+        return Some(
+            model
+                .constraints
+                .iter()
+                .map(|c| i64::from(relations[c.table].is_some()))
+                .collect(),
+        );
+    }
+    // Per variable, the (constraint, coefficient) pairs with a nonzero coefficient; a
+    // colouring needs exactly two of equal size.
+    let mut reads: Vec<Vec<(usize, i64)>> = vec![Vec::new(); model.variables.len()];
+    for (c, con) in model.constraints.iter().enumerate() {
+        if let Some(r) = &relations[con.table] {
+            for (&v, &a) in con.scope.iter().zip(&r.coefficients) {
+                if a != 0 {
+                    reads[v].push((c, a));
+                }
+            }
+        }
+    }
+    // Edges: ε_j = f · ε_i with f = −a_i / a_j.
+    let mut edges: Vec<Vec<(usize, i64)>> = vec![Vec::new(); model.constraints.len()];
+    for r in &reads {
+        match r.as_slice() {
+            [] => {}
+            [(i, a), (j, b)] if a.abs() == b.abs() && i != j => {
+                let f = -a.signum() * b.signum();
+                edges[*i].push((*j, f));
+                edges[*j].push((*i, f));
+            }
+            _ => return None,
+        }
+    }
+    let mut eps = vec![0i64; model.constraints.len()];
+    for start in 0..eps.len() {
+        if eps[start] != 0 || relations[model.constraints[start].table].is_none() {
+            continue;
+        }
+        eps[start] = 1;
+        let mut stack = vec![start];
+        while let Some(i) = stack.pop() {
+            for &(j, f) in &edges[i] {
+                let want = f * eps[i];
+                if eps[j] == 0 {
+                    eps[j] = want;
+                    stack.push(j);
+                } else if eps[j] != want {
+                    return None;
+                }
+            }
+        }
+    }
+    reads.iter().any(|r| !r.is_empty()).then_some(eps)
 }
 
 /// The charge value held by the most assignments of binary fields with these
