@@ -36,9 +36,10 @@
 //! Two reductions shrink K (both on by default, [`Sectors::Full`] turns them off):
 //!
 //! * **Charge sectors** ([`sector`]): when the constraint tables imply an additive quantity
-//!   that T conserves (the arrow flux of ice rules), K keeps one sector, the one holding the
-//!   most boundary assignments (zero flux for even square-ice widths: C(W, W/2) states
-//!   instead of 2^W). Every image is checked to keep the charge.
+//!   that T conserves (the arrow flux of ice rules; the sublattice balance of dimers, which
+//!   T negates), K keeps one sector, the one holding the most boundary assignments (zero
+//!   flux for even square-ice widths: C(W, W/2) states instead of 2^W). Every image is
+//!   checked to keep the charge.
 //! * **Reversal pairs**: when every frontier variable is binary, every table is closed under
 //!   complementing its scope and the sector maps to itself, a state and its complement are
 //!   one state (the largest eigenvector is symmetric under the reversal); this halves K.
