@@ -21,6 +21,7 @@ fn transfer(c: &mut Criterion) {
     for (file, width) in [
         ("square-ice.yaml", 12),
         ("square-ice.yaml", 20),
+        ("square-ice.yaml", 24),
         ("hard-squares.yaml", 28),
         ("square-dimers.yaml", 20),
         ("triangular-afm.yaml", 18),
