@@ -23,8 +23,9 @@
 //! constraints whose last variable it is, forget the variables that no unfinished constraint
 //! reads. The variables are added in the order the constraints across the strip need them
 //! (`sweep_order`), and a variable that completes no constraint is added in one step with
-//! the next one, so that no step holds states that the next check would discard. States are frontier assignments packed into `u64` bit fields; at the end of a
-//! column the fields are relabelled by age so that the state space repeats.
+//! the next one, so that no step holds states that the next check would discard. States
+//! are frontier assignments packed into `u64` bit fields; at the end of a column the fields
+//! are relabelled by age so that the state space repeats.
 //!
 //! The operator is never stored as a matrix. Once per width a symbolic pass finds the set
 //! K of frontier states reachable from an open left end (closed under T) and compiles, for
@@ -73,8 +74,8 @@
 //! frontier states at step t. For a sweep across a column S_t ≤ q^(width · depth + 1), much
 //! less under restrictive rules and sectors (C(W, W/2)/2 at a square-ice boundary for even
 //! W and C(W+2, W/2+1)/2, about 3.8 times that, inside a column; about 1.618^W for hard
-//! squares). Building is
-//! O(Σ_t S_t q_t · streams) plus one pass over the full boundary space from the open end.
+//! squares). Building is O(Σ_t S_t q_t · streams) plus one pass over the full boundary
+//! space from the open end.
 //!
 //! # Reference
 //!
