@@ -56,7 +56,7 @@ fn hard_squares_approach_baxter_enting_tsang() {
         &(2..=22).collect::<Vec<_>>(),
         1,
         s,
-        5e-9,
+        1e-10,
     );
 }
 

@@ -335,11 +335,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 sig(e.sigma_s_j_per_mol_k().unwrap_or(0.0), 2)
             )?;
             let detail = match (x.scaling, s.central_charge) {
-                (Scaling::Gapped, _) => {
-                    "gapped (exponential convergence): the value of the largest width; \
-                     uncertainty from the last differences"
-                        .to_string()
-                }
+                (Scaling::Gapped, _) => format!(
+                    "gapped (exponential convergence): Aitken's Δ² on the last three widths of \
+                     each family W mod {}; value of the family W ≡ {}, uncertainty from its \
+                     window before, widened where another family disagrees",
+                    x.period, x.fits[0].family
+                ),
                 (_, c) => format!(
                     "critical: {} polynomial fits in {} (orders, windows, families W mod {}); \
                      value and spread of the family W ≡ {} (mod {}), widened where another \

@@ -31,9 +31,13 @@
 //!   reach 1e-10; a family that truly disagrees still shows in the bar.) The central charge
 //!   follows from a₁ = π c A / (6 u |t|²), with A the cell area, t the transverse cell
 //!   vector and u the formula units per cell.
-//! * **Gapped** models (hard squares) converge exponentially: the value is s at the largest
-//!   width; the uncertainty is the larger of its last difference within its family and its
-//!   distance from the largest width of every other family.
+//! * **Gapped** models (hard squares) converge exponentially. In every family, Aitken's Δ²
+//!   limit s₂ − Δ₂²/(Δ₂ − Δ₁) of its last three widths (when the differences keep one sign
+//!   and shrink by a ratio below 0.95; else the last value) is its value, and its distance
+//!   from the Δ² limit of the three widths before the last its spread. The families are
+//!   then combined as for critical models. (Hard squares to width 30: the Δ² value is
+//!   off by 6.5e-15 in ln W, the last width by 5.6e-13; the bar, 3.2e-14, exceeds the true
+//!   error by a factor of about 5, as it does for every largest width from 10 to 31.)
 //! * **Automatic** choice: the local exponent p = ln(Δ_{k−1}/Δ_k) / ln(W_k/W_{k−1}) of the
 //!   last differences within the family of the largest width is about 3 for a 1/W² law and
 //!   grows without bound for exponential convergence; above 8 the model is taken as gapped.
@@ -195,28 +199,55 @@ pub fn extrapolate_in(
         }
         s => s,
     };
-    let central_value = main.last().expect("a family has a point").1;
     if scaling == Scaling::Gapped {
         let mut fits = Vec::new();
+        let mut own = Vec::new();
         for (r, f) in &families {
-            let last = f[f.len() - 1];
-            fits.push(Fit {
-                family: *r,
-                order: 0,
-                widths: vec![last.0],
-                value: last.1,
-                a1: None,
-            });
+            let n = f.len();
+            let last = f[n - 1];
+            let step_back = if n >= 2 {
+                (last.1 - f[n - 2].1).abs()
+            } else {
+                0.0
+            };
+            match (n >= 3).then(|| aitken(&f[n - 3..])).flatten() {
+                Some(v) => {
+                    fits.push(Fit {
+                        family: *r,
+                        order: 1,
+                        widths: f[n - 3..].iter().map(|p| p.0).collect(),
+                        value: v,
+                        a1: None,
+                    });
+                    let before = (n >= 4).then(|| aitken(&f[n - 4..n - 1])).flatten();
+                    if let Some(w) = before {
+                        fits.push(Fit {
+                            family: *r,
+                            order: 1,
+                            widths: f[n - 4..n - 1].iter().map(|p| p.0).collect(),
+                            value: w,
+                            a1: None,
+                        });
+                    }
+                    let spread = before.map_or((v - last.1).abs(), |w| (v - w).abs());
+                    own.push((*r, v, spread, if before.is_some() { 3 } else { 1 }));
+                }
+                None => {
+                    fits.push(Fit {
+                        family: *r,
+                        order: 0,
+                        widths: vec![last.0],
+                        value: last.1,
+                        a1: None,
+                    });
+                    own.push((*r, last.1, step_back, 1));
+                }
+            }
         }
-        let mut uncertainty = fits
-            .iter()
-            .map(|f| (f.value - central_value).abs())
-            .fold(0.0, f64::max);
-        if main.len() >= 2 {
-            uncertainty = uncertainty.max((main[main.len() - 1].1 - main[main.len() - 2].1).abs());
-        }
+        let (family, value, uncertainty) = combine(&own);
+        fits.sort_by_key(|x| x.family != family);
         return Ok(Extrapolation {
-            value: central_value,
+            value,
             uncertainty,
             scaling,
             a1: None,
@@ -273,20 +304,8 @@ pub fn extrapolate_in(
             Some((*r, first.value, spread, mine.len()))
         })
         .collect();
-    // The central family: the smallest spread among the families with every fit (the
-    // family of the largest width when none has).
-    let complete = own
-        .iter()
-        .filter(|o| o.3 == 3)
-        .min_by(|a, b| a.2.total_cmp(&b.2));
-    let central_family = complete.unwrap_or(&own[0]);
-    // Every other family must agree within its own spread; what it does not widens the bar.
-    let uncertainty = own
-        .iter()
-        .filter(|o| o.0 != central_family.0)
-        .map(|o| (o.1 - central_family.1).abs() - o.2)
-        .fold(central_family.2, f64::max);
-    fits.sort_by_key(|x| x.family != central_family.0);
+    let (family, _, uncertainty) = combine(&own);
+    fits.sort_by_key(|x| x.family != family);
     let central = fits[0].clone();
     Ok(Extrapolation {
         value: central.value,
@@ -297,6 +316,32 @@ pub fn extrapolate_in(
         period,
         exponent,
     })
+}
+
+/// The combination of the families (family, value, spread, fits made; 3 = every fit): the
+/// central family is the one with the smallest spread among those with every fit (the
+/// first, the largest width's, when none has); the uncertainty is its spread, widened to
+/// |v_f − v| − σ_f by every other family f. Returns (central family, value, uncertainty).
+fn combine(own: &[(usize, f64, f64, usize)]) -> (usize, f64, f64) {
+    let complete = own
+        .iter()
+        .filter(|o| o.3 == 3)
+        .min_by(|a, b| a.2.total_cmp(&b.2));
+    let central = complete.unwrap_or(&own[0]);
+    let uncertainty = own
+        .iter()
+        .filter(|o| o.0 != central.0)
+        .map(|o| (o.1 - central.1).abs() - o.2)
+        .fold(central.2, f64::max);
+    (central.0, central.1, uncertainty)
+}
+
+/// Aitken's Δ² limit of three values converging geometrically (successive differences of
+/// one sign shrinking by a ratio below 0.95); `None` otherwise.
+fn aitken(p: &[(usize, f64)]) -> Option<f64> {
+    let (d1, d2) = (p[1].1 - p[0].1, p[2].1 - p[1].1);
+    let r = d2 / d1;
+    (d1 != 0.0 && r > 0.0 && r < 0.95).then(|| p[2].1 - d2 * d2 / (d2 - d1))
 }
 
 /// The period of the families: the smallest of step, 2·step, 3·step and 6·step at which the
@@ -404,6 +449,31 @@ mod tests {
         assert!(
             e.uncertainty >= 0.99e-6 && e.uncertainty < 1.01e-6,
             "{}",
+            e.uncertainty
+        );
+    }
+
+    #[test]
+    fn geometric_tails_are_summed_by_aitken() {
+        // Two families with their own amplitudes and a faster second term: the Δ² limit
+        // is far closer than the last width, and its bar covers the error.
+        let points: Vec<(usize, f64)> = (6..=24)
+            .map(|w| {
+                let a = [0.3, -0.2][w % 2];
+                (
+                    w,
+                    1.0 + a * 0.6f64.powi(w as i32) + 0.05 * 0.3f64.powi(w as i32),
+                )
+            })
+            .collect();
+        let e = extrapolate(&points, 1, Scaling::Auto).unwrap();
+        assert_eq!((e.scaling, e.period), (Scaling::Gapped, 2));
+        let error = (e.value - 1.0).abs();
+        let last = (points[points.len() - 1].1 - 1.0).abs();
+        assert!(error <= e.uncertainty, "{} ± {}", e.value, e.uncertainty);
+        assert!(
+            e.uncertainty < last / 100.0,
+            "{} against {last}",
             e.uncertainty
         );
     }
