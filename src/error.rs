@@ -72,8 +72,9 @@ pub enum Error {
     /// An exact count whose frontier would exceed the state budget.
     #[error(
         "the exact count on {cells} needs more than the state budget: {detail}; \
-         try a smaller cell or a statistical method (`groundcount sample` for Monte Carlo, \
-         `groundcount strip` for 2D lattices)"
+         try a smaller cell or width, a larger --max-states if memory allows, or a \
+         statistical method (`groundcount sample` for Monte Carlo; `groundcount strip` \
+         for the infinite crystal of a 2D lattice)"
     )]
     Budget {
         /// The cell that was asked for.
