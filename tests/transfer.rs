@@ -617,3 +617,36 @@ fn strip_command_builds_prisms_and_refuses_a_depth_in_two_dimensions() {
     assert_eq!(out.status.code(), Some(1));
     assert!(String::from_utf8_lossy(&out.stderr).contains("a or b"));
 }
+
+#[test]
+fn open_strips_extrapolate_with_their_edge_term() {
+    // Open strips carry a surface term a/W; fitted in powers of 1/W, with the widths'
+    // convergence tolerance propagated through the fit, the bar covers the published limit:
+    // κ = 1.5030480824753323 (Baxter, Enting & Tsang 1980) and G/π (Kasteleyn 1961).
+    for (name, published, widths) in [
+        ("hard-squares.yaml", 1.5030480824753323f64.ln(), 2..=20),
+        (
+            "square-dimers.yaml",
+            0.915_965_594_177_219 / std::f64::consts::PI,
+            2..=16,
+        ),
+    ] {
+        let l = load(name);
+        let config = StripConfig {
+            periodic: false,
+            ..Default::default()
+        };
+        let widths: Vec<usize> = widths.collect();
+        let s = transfer::series(&l.crystal, &widths, 1, Scaling::Auto, &config).unwrap();
+        let x = &s.extrapolation;
+        assert_eq!(x.exponent, 1, "{name}");
+        assert!(x.noise > 0.0);
+        assert!(
+            (x.value - published).abs() <= x.uncertainty,
+            "{name}: {} ± {} misses {published}",
+            x.value,
+            x.uncertainty
+        );
+        assert!(x.uncertainty < 1e-5, "{name}: {}", x.uncertainty);
+    }
+}

@@ -38,6 +38,11 @@
 //!   then combined as for critical models. (Hard squares to width 30: the Δ² value is
 //!   off by 6.5e-15 in ln W, the last width by 5.6e-13; the bar, 3.2e-14, exceeds the true
 //!   error by a factor of about 5, as it does for every largest width from 10 to 31.)
+//! * **Numerical precision**: each s(W) is converged only to the iteration tolerance; those
+//!   errors, propagated through the central fit (its Lagrange weights at 1/W^e = 0, or the
+//!   derivatives of Aitken's Δ²), are added to the uncertainty (`noise`). It matters where
+//!   the fit amplifies them strongly: open strips in powers of 1/W through widths 15…20
+//!   amplify by about 5·10⁵, cylinders in 1/W² through 14…24 by about 900.
 //! * **Automatic** choice: the local exponent p = ln(Δ_{k−1}/Δ_k) / ln(W_k/W_{k−1}) of the
 //!   last differences within the family of the largest width is about 3 for a 1/W² law and
 //!   grows without bound for exponential convergence; above 8 the model is taken as gapped.
@@ -84,8 +89,11 @@ pub struct Fit {
 pub struct Extrapolation {
     /// s∞ per formula unit.
     pub value: f64,
-    /// Uncertainty of s∞ (spread of the fits, or the last difference).
+    /// Uncertainty of s∞: the spread of the fits (widened by disagreeing families), plus
+    /// `noise`.
     pub uncertainty: f64,
+    /// The values' own numerical uncertainties propagated through the central fit.
+    pub noise: f64,
     /// Scaling used (never `Auto`).
     pub scaling: Scaling,
     /// Coefficient of the leading correction of the central fit (critical only).
@@ -148,18 +156,37 @@ pub fn extrapolate(
     step: usize,
     scaling: Scaling,
 ) -> Result<Extrapolation> {
-    extrapolate_in(points, step, scaling, 2)
+    extrapolate_in(points, &[], step, scaling, 2)
 }
 
 /// [`extrapolate`] with critical corrections in powers of 1/W^`exponent`: 2 on periodic
 /// cylinders, 1 on open strips (the edges add a 1/W term), 3 for the leading term on
 /// periodic prisms of a three-dimensional crystal.
+///
+/// `errors` (empty, or one per point) are the numerical uncertainties of the values; they
+/// are propagated through the central fit (polynomial fits amplify them: through widths
+/// 15…20 in powers of 1/W by about 5·10⁵) and added to the uncertainty.
 pub fn extrapolate_in(
     points: &[(usize, f64)],
+    errors: &[f64],
     step: usize,
     scaling: Scaling,
     exponent: i32,
 ) -> Result<Extrapolation> {
+    let error_of: std::collections::HashMap<usize, f64> =
+        points.iter().zip(errors).map(|(p, &e)| (p.0, e)).collect();
+    let propagated = |fit: &Fit| -> f64 {
+        let values: Vec<f64> = fit
+            .widths
+            .iter()
+            .map(|w| points.iter().find(|p| p.0 == *w).map_or(0.0, |p| p.1))
+            .collect();
+        weights(fit, &values, exponent)
+            .iter()
+            .zip(&fit.widths)
+            .map(|(c, w)| c.abs() * error_of.get(w).copied().unwrap_or(0.0))
+            .sum()
+    };
     let mut points = points.to_vec();
     points.sort_by_key(|p| p.0);
     points.dedup_by_key(|p| p.0);
@@ -246,9 +273,11 @@ pub fn extrapolate_in(
         }
         let (family, value, uncertainty) = combine(&own);
         fits.sort_by_key(|x| x.family != family);
+        let noise = propagated(&fits[0]);
         return Ok(Extrapolation {
             value,
-            uncertainty,
+            uncertainty: uncertainty + noise,
+            noise,
             scaling,
             a1: None,
             fits,
@@ -307,9 +336,11 @@ pub fn extrapolate_in(
     let (family, _, uncertainty) = combine(&own);
     fits.sort_by_key(|x| x.family != family);
     let central = fits[0].clone();
+    let noise = propagated(&central);
     Ok(Extrapolation {
         value: central.value,
-        uncertainty,
+        uncertainty: uncertainty + noise,
+        noise,
         scaling,
         a1: central.a1,
         fits,
@@ -334,6 +365,39 @@ fn combine(own: &[(usize, f64, f64, usize)]) -> (usize, f64, f64) {
         .map(|o| (o.1 - central.1).abs() - o.2)
         .fold(central.2, f64::max);
     (central.0, central.1, uncertainty)
+}
+
+/// d(value of the fit)/d(value at each of its widths): the Lagrange weights at 1/W^e = 0
+/// for a polynomial fit, the derivatives of Aitken's Δ² for a gapped one (`values` are the
+/// fit's inputs), 1 for the last value.
+fn weights(fit: &Fit, values: &[f64], exponent: i32) -> Vec<f64> {
+    match (fit.a1, fit.order, values) {
+        (None, 1, &[s0, s1, s2]) => {
+            let (u, d) = (s2 - s1, s2 - 2.0 * s1 + s0);
+            let d2 = d * d;
+            vec![
+                u * u / d2,
+                (2.0 * u * d - 2.0 * u * u) / d2,
+                1.0 - (2.0 * u * d - u * u) / d2,
+            ]
+        }
+        (None, _, _) => vec![1.0; values.len()],
+        _ => {
+            let x: Vec<f64> = fit
+                .widths
+                .iter()
+                .map(|&w| (w as f64).powi(-exponent))
+                .collect();
+            (0..x.len())
+                .map(|i| {
+                    (0..x.len())
+                        .filter(|&j| j != i)
+                        .map(|j| x[j] / (x[j] - x[i]))
+                        .product()
+                })
+                .collect()
+        }
+    }
 }
 
 /// Aitken's Δ² limit of three values converging geometrically (successive differences of
@@ -476,6 +540,51 @@ mod tests {
             "{} against {last}",
             e.uncertainty
         );
+    }
+
+    #[test]
+    fn the_values_own_errors_are_propagated_through_the_central_fit() {
+        // Moving one input by δ moves the result by its weight times δ, and the noise term
+        // is Σ |weight| · error: check both for a critical and a gapped series.
+        for (gapped, exponent) in [(false, 2), (false, 1), (true, 2)] {
+            let value = |w: usize| {
+                if gapped {
+                    1.0 + 0.3 * 0.5f64.powi(w as i32)
+                } else {
+                    0.4 + 0.3 / (w as f64).powi(exponent)
+                }
+            };
+            let points: Vec<(usize, f64)> = (8..=20).step_by(2).map(|w| (w, value(w))).collect();
+            let scaling = if gapped {
+                Scaling::Gapped
+            } else {
+                Scaling::Critical
+            };
+            let plain = extrapolate_in(&points, &[], 2, scaling, exponent).unwrap();
+            assert_eq!(plain.noise, 0.0);
+            let errors = vec![1e-9; points.len()];
+            let noisy = extrapolate_in(&points, &errors, 2, scaling, exponent).unwrap();
+            let fit = &noisy.fits[0];
+            let inputs: Vec<f64> = fit.widths.iter().map(|&w| value(w)).collect();
+            let w = weights(fit, &inputs, exponent);
+            assert!((w.iter().sum::<f64>() - 1.0).abs() < 1e-6, "{w:?}");
+            let expected: f64 = w.iter().map(|c| c.abs() * 1e-9).sum();
+            assert!((noisy.noise - expected).abs() < 1e-12 * expected.max(1.0));
+            assert!((noisy.uncertainty - plain.uncertainty - noisy.noise).abs() < 1e-15);
+            // Finite difference on the last width of the central fit.
+            let last = *fit.widths.last().unwrap();
+            let moved: Vec<(usize, f64)> = points
+                .iter()
+                .map(|&(x, v)| (x, if x == last { v + 1e-10 } else { v }))
+                .collect();
+            let shifted = extrapolate_in(&moved, &[], 2, scaling, exponent).unwrap();
+            let slope = (shifted.value - plain.value) / 1e-10;
+            let want = w[w.len() - 1];
+            assert!(
+                (slope - want).abs() < 1e-3 * want.abs().max(1.0),
+                "gapped {gapped}, exponent {exponent}: slope {slope}, weight {want}"
+            );
+        }
     }
 
     #[test]

@@ -314,7 +314,12 @@ pub fn from_widths(
         (true, 3) => 3,
         _ => 2,
     };
-    let extrapolation = extrapolate_in(&points, step, scaling, exponent)?;
+    // Each width's ln λ is converged to the iteration tolerance (relative in λ).
+    let errors: Vec<f64> = results
+        .iter()
+        .map(|r| config.tolerance / r.units_per_column)
+        .collect();
+    let extrapolation = extrapolate_in(&points, &errors, step, scaling, exponent)?;
     let central_charge = extrapolation.a1.filter(|_| exponent == 2).map(|a1| {
         let v = crystal.vectors;
         let area = (v[0][0] * v[1][1] - v[0][1] * v[1][0]).abs();
