@@ -73,7 +73,9 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
     writeln!(
         o,
         "W is the number of allowed arrangements per {unit}; S0 = R ln W per mole of {unit}, \
-         R = {} J/(mol K). Uncertainties are one standard error; exact counts have none.\n",
+         R = {} J/(mol K). Monte Carlo uncertainties are one standard error; transfer-matrix \
+         uncertainties are the spread of the extrapolations to infinite width (a systematic \
+         estimate); exact counts have none.\n",
         crate::thermo::R
     )?;
     let mut t = Table::new(&[

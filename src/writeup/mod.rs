@@ -21,7 +21,7 @@ mod plots;
 use serde_json::{Value, json};
 
 use crate::Lattice;
-use crate::estimate::Estimate;
+use crate::estimate::{Estimate, Method};
 use crate::report::{estimate_json, method_label};
 use crate::survey::Survey;
 use crate::thermo;
@@ -164,7 +164,7 @@ impl<'a> Writeup<'a> {
         "Pauling's independent-constraint estimate (no count ran)".into()
     }
 
-    /// The sentence a user can paste into a paper.
+    /// The sentence a user can paste into a paper (see [`uncertainty_meaning`]).
     pub fn sentence(&self) -> String {
         let c = &self.lattice.crystal;
         let unit = &c.formula_unit.name;
@@ -181,7 +181,7 @@ impl<'a> Writeup<'a> {
         format!(
             "The configurational (residual) entropy of {} was computed with groundcount {} on {} from {}: \
              W = {} arrangements per {unit}, i.e. S0 = R ln W = {} J/(mol K) per mole of {unit} \
-             (Pauling's estimate: W = {}, S0 = {} J/(mol K)); uncertainties are one standard error.",
+             (Pauling's estimate: W = {}, S0 = {} J/(mol K)); {}.",
             c.name,
             self.meta.version,
             self.meta.date,
@@ -190,6 +190,7 @@ impl<'a> Writeup<'a> {
             value(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 6),
             crate::report::sig(p.w_per_unit(), 8),
             crate::report::sig(p.s_j_per_mol_k(), 6),
+            uncertainty_meaning(b.method),
         )
     }
 
@@ -303,5 +304,17 @@ impl<'a> Writeup<'a> {
     /// The SVG figures that apply to this survey.
     pub fn figures(&self) -> Vec<Figure> {
         plots::figures(self)
+    }
+}
+
+/// What the ± of a cited value means, by the method behind it.
+pub fn uncertainty_meaning(method: Method) -> &'static str {
+    match method {
+        Method::TransferMatrix => {
+            "the uncertainty is the spread of the extrapolations to infinite width over fit \
+             orders, windows and width families (a systematic estimate, not a standard error)"
+        }
+        Method::MonteCarlo => "the uncertainty is one standard error",
+        Method::Exact | Method::Pauling => "the value has no statistical uncertainty",
     }
 }
