@@ -342,10 +342,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     x.period, x.fits[0].family
                 ),
                 (_, c) => format!(
-                    "critical: {} polynomial fits in {} (orders, windows, families W mod {}); \
+                    "critical: {} polynomial {} in {} (orders, windows, families W mod {}); \
                      value and spread of the family W ≡ {} (mod {}), widened where another \
                      family disagrees beyond its own spread{}",
                     x.fits.len(),
+                    if x.fits.len() == 1 { "fit" } else { "fits" },
                     match x.exponent {
                         1 => "1/W (open edges)".to_string(),
                         2 => "1/W²".to_string(),

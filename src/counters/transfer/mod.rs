@@ -309,9 +309,11 @@ pub fn from_widths(
     config: &StripConfig,
 ) -> Result<StripSeries> {
     let points: Vec<(usize, f64)> = results.iter().map(|r| (r.width, r.ln_w_per_unit)).collect();
-    let exponent = match (config.periodic, crystal.dimensions) {
-        (false, _) => 1,
-        (true, 3) => 3,
+    // Open edges add a 1/W term; a cylinder, or a slab of fixed depth, has 1/W²
+    // corrections; square sections of a 3D prism approach the bulk as 1/W³ at leading order.
+    let exponent = match (config.periodic, crystal.dimensions, config.depth) {
+        (false, _, _) => 1,
+        (true, 3, None) => 3,
         _ => 2,
     };
     // Each width's ln λ is converged to the iteration tolerance (relative in λ).
