@@ -47,7 +47,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         deadline: None,
         progress,
     };
-    // A 2D torus may be cheaper as the trace of T^L: compare the predicted work of both
+    // A torus may be cheaper as the trace of T^L: compare the predicted work of both
     // routes (the trace's column is tried with a small state budget only).
     let frontier_work = exact::plan_for(&model).map_or(f64::INFINITY, |p| p.cost);
     let trace = if model.contradiction.is_none() {

@@ -1,16 +1,17 @@
-//! Exact counts of a two-dimensional periodic cell (a torus) by the trace of T^L, and the
+//! Exact counts of a periodic cell (a torus, 2D or 3D) by the trace of T^L, and the
 //! estimate of its work that decides between it and the frontier counter.
 //!
 //! # What it computes
 //!
 //! For an A × B cell periodic along both axes, the number of arrangements Tr T^L, with T
 //! the column operator of a cylinder of width min(A, B) and L = max(A, B) columns along the
-//! other axis (every charge sector, every state: [`super::Sectors::Full`]).
+//! other axis (every charge sector, every state: [`super::Sectors::Full`]). In 3D, the
+//! longest axis is L and the other two make the section of a prism.
 //!
 //! # Method
 //!
-//! [`route`] builds the full-space column (refusing, with `None`, cells that are not 2D,
-//! not periodic both ways, or too short for the template's depth, and columns above the
+//! [`route`] builds the full-space column (refusing, with `None`, cells that are not
+//! periodic along every axis, or too short for the template's depth, and columns above the
 //! state budget) and estimates the work of the trace: K · L · Σ_steps (transitions +
 //! outputs) big-integer additions, K the boundary states (one propagation per start
 //! state). The frontier counter's work is bounded by its plan's cost (Σ over steps of the
@@ -44,26 +45,28 @@ pub struct TorusRoute {
     build_seconds: f64,
 }
 
-/// The trace route for a periodic 2D cell, or `None` where it does not apply.
+/// The trace route for a periodic 2D or 3D cell, or `None` where it does not apply. The
+/// longest axis runs along the strip; in 3D the other two make the prism's section.
 pub fn route(crystal: &Crystal, cells: &Cells, max_states: usize) -> Option<TorusRoute> {
-    if crystal.dimensions != 2 || cells.dimensions != 2 || !cells.periodic[0] || !cells.periodic[1]
-    {
+    let d = cells.dimensions;
+    if crystal.dimensions != d || !(2..=3).contains(&d) || !cells.periodic[..d].iter().all(|&p| p) {
         return None;
     }
     let start = Instant::now();
-    let along = if cells.counts[0] >= cells.counts[1] {
-        0
-    } else {
-        1
-    };
+    let along = (0..d)
+        .rev()
+        .max_by_key(|&a| cells.counts[a])
+        .expect("two axes");
+    let across: Vec<usize> = (0..d).filter(|&a| a != along).collect();
     let config = StripConfig {
         along,
+        depth: across.get(1).map(|&t| cells.counts[t]),
         periodic: true,
         max_states,
         sectors: Sectors::Full,
         ..Default::default()
     };
-    let column = Column::new(crystal, cells.counts[1 - along], &config).ok()?;
+    let column = Column::new(crystal, cells.counts[across[0]], &config).ok()?;
     let length = cells.counts[along];
     (length > column.depth).then(|| TorusRoute {
         column,
