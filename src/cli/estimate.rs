@@ -85,9 +85,15 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                  Cells that wrap a bond onto itself (the smallest) are exact for that torus only."
             )?;
             if let Some(last) = s.largest_exact() {
+                // Say so when a larger cell had none (odd tori for dimers).
+                let which = if std::ptr::eq(last, s.exact.last().expect("a cell")) {
+                    "largest cell counted"
+                } else {
+                    "largest cell counted with an arrangement"
+                };
                 writeln!(
                     out,
-                    "largest cell counted with an arrangement: {}, W = {} per {unit} (Pauling {}; difference {:+.3} %)",
+                    "{which}: {}, W = {} per {unit} (Pauling {}; difference {:+.3} %)",
                     last.cells.as_deref().unwrap_or(""),
                     sig(last.w_per_unit(), 8),
                     sig(p.w_per_unit(), 8),
