@@ -292,6 +292,29 @@ fn strip_command_table_and_bad_widths() {
     );
 }
 
+/// The full-space result and the default (reduced) one of a width, which must agree on λ.
+fn full_and_chosen(l: &Lattice, width: usize) -> (transfer::StripResult, transfer::StripResult) {
+    let config = StripConfig {
+        sectors: Sectors::Full,
+        ..Default::default()
+    };
+    let full = transfer::strip(&l.crystal, width, &config).unwrap();
+    let chosen = transfer::strip(&l.crystal, width, &StripConfig::default()).unwrap();
+    assert!(
+        (chosen.ln_lambda - full.ln_lambda).abs() < 1e-11,
+        "width {width}: sector {:?} gives {} against {}",
+        chosen.sector,
+        chosen.ln_lambda,
+        full.ln_lambda
+    );
+    (full, chosen)
+}
+
+/// C(n, k).
+fn binomial(n: usize, k: usize) -> usize {
+    (0..k).fold(1, |c, i| c * (n - i) / (i + 1))
+}
+
 #[test]
 fn the_largest_flux_sector_carries_the_largest_eigenvalue() {
     // The arrow flux through the cut is conserved (found from the tables, not from the file
@@ -299,29 +322,13 @@ fn the_largest_flux_sector_carries_the_largest_eigenvalue() {
     // sector may exceed it: full space, chosen sector and every sector computed here.
     let l = load("square-ice.yaml");
     for width in 2..=8 {
-        let full = transfer::strip(
-            &l.crystal,
-            width,
-            &StripConfig {
-                sectors: Sectors::Full,
-                ..Default::default()
-            },
-        )
-        .unwrap();
+        let (full, chosen) = full_and_chosen(&l, width);
         assert_eq!(full.sector, None);
         assert_eq!(full.states, 1 << width);
-        let chosen = transfer::strip(&l.crystal, width, &StripConfig::default()).unwrap();
         let q = chosen.sector.expect("square ice conserves the flux");
-        assert!(
-            (chosen.ln_lambda - full.ln_lambda).abs() < 1e-11,
-            "width {width}: sector {q} gives {} against {}",
-            chosen.ln_lambda,
-            full.ln_lambda
-        );
         // Zero flux: as many of the W bonds crossing the cut point forward as backward,
         // C(W, W/2) states (C(W, (W−1)/2) for odd W).
-        let half = width / 2;
-        let binomial = (0..half).fold(1usize, |c, k| c * (width - k) / (k + 1));
+        let binomial = binomial(width, width / 2);
         // Even widths: zero flux maps to itself under reversing every arrow, and the
         // states are paired with their reversals (halving them).
         assert_eq!(chosen.reversal, width % 2 == 0, "width {width}");
@@ -364,31 +371,15 @@ fn dimer_cylinders_keep_the_balanced_sublattice_sector() {
     // bipartite and keep every state.
     let l = load("square-dimers.yaml");
     for width in 2..=10 {
-        let full = transfer::strip(
-            &l.crystal,
-            width,
-            &StripConfig {
-                sectors: Sectors::Full,
-                ..Default::default()
-            },
-        )
-        .unwrap();
-        let chosen = transfer::strip(&l.crystal, width, &StripConfig::default()).unwrap();
-        assert!(
-            (chosen.ln_lambda - full.ln_lambda).abs() < 1e-11,
-            "width {width}: {} against {}",
-            chosen.ln_lambda,
-            full.ln_lambda
-        );
+        let (_, chosen) = full_and_chosen(&l, width);
         if width % 2 == 1 {
             assert_eq!((chosen.sector, chosen.states), (None, 1 << width));
             continue;
         }
-        let half = width / 2;
-        let binomial = (0..half).fold(1usize, |c, k| c * (width - k) / (k + 1));
+        let expected = binomial(width, width / 2);
         assert_eq!(
             (chosen.sector, chosen.states),
-            (Some(0), binomial),
+            (Some(0), expected),
             "width {width}"
         );
         let other = StripConfig {
