@@ -15,6 +15,8 @@ use crate::thermo;
 pub enum Method {
     /// Pauling's estimate: independent local constraints.
     Pauling,
+    /// The Bethe approximation: belief propagation on the factor graph.
+    Bethe,
     /// Exact count on a finite cell (frontier dynamic programming).
     Exact,
     /// Monte Carlo thermodynamic integration on a finite cell.
@@ -28,6 +30,7 @@ impl Method {
     pub fn name(self) -> &'static str {
         match self {
             Method::Pauling => "pauling",
+            Method::Bethe => "bethe",
             Method::Exact => "exact",
             Method::MonteCarlo => "monte-carlo",
             Method::TransferMatrix => "transfer-matrix",

@@ -107,6 +107,7 @@ pub fn sig(x: f64, digits: usize) -> String {
 pub fn method_label(e: &Estimate) -> String {
     match e.method {
         crate::estimate::Method::Pauling => "Pauling".into(),
+        crate::estimate::Method::Bethe => "Bethe".into(),
         crate::estimate::Method::Exact => "exact count".into(),
         crate::estimate::Method::MonteCarlo => "Monte Carlo".into(),
         crate::estimate::Method::TransferMatrix => "transfer matrix".into(),

@@ -32,7 +32,7 @@ use crate::counters::extrapolate::Scaling;
 use crate::counters::sampling::size::{self, SizeFit};
 use crate::counters::sampling::{self, SampleConfig, Sampled};
 use crate::counters::transfer::{self, StripConfig, StripSeries};
-use crate::counters::{exact, pauling};
+use crate::counters::{bethe, exact, pauling};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
 use crate::estimate::Estimate;
@@ -138,6 +138,8 @@ pub struct SizeExtrapolation {
 pub struct Survey {
     /// Pauling's independent-constraint estimate.
     pub pauling: Estimate,
+    /// The Bethe approximation (belief propagation), when its messages settled.
+    pub bethe: Option<Estimate>,
     /// Exact counts, smallest cell first.
     pub exact: Vec<Estimate>,
     /// Why the exact counts stopped (empty when they ran to the requested limit).
@@ -157,9 +159,11 @@ pub struct Survey {
 }
 
 impl Survey {
-    /// Every estimate, Pauling first, then exact counts, then the infinite-crystal methods.
+    /// Every estimate, Pauling and Bethe first, then exact counts, then the
+    /// infinite-crystal methods.
     pub fn estimates(&self) -> Vec<Estimate> {
         let mut v = vec![self.pauling.clone()];
+        v.extend(self.bethe.iter().cloned());
         v.extend(self.exact.iter().cloned());
         if let Some(s) = &self.strips {
             v.push(s.estimate.clone());
@@ -231,6 +235,14 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
         }
     };
     let pauling = pauling::estimate(c)?;
+    let mut notes = Vec::new();
+    let bethe = match bethe::estimate(c) {
+        Ok(b) => Some(b),
+        Err(e) => {
+            notes.push(format!("Bethe approximation left out: {e}"));
+            None
+        }
+    };
     let start = Instant::now();
     // Exact counts get the first 40 % of the budget; the rest goes to strips (2D) or
     // sampling (3D).
@@ -293,7 +305,6 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
             break;
         }
     }
-    let mut notes = Vec::new();
     let mut strips = None;
     let mut sampled_sizes = Vec::new();
     let mut extrapolated = None;
@@ -307,6 +318,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
     let sampled = sampled_sizes.last().cloned();
     Ok(Survey {
         pauling,
+        bethe,
         exact: exact_counts,
         stopped,
         strips,

@@ -118,3 +118,14 @@ fn dimer_summary_names_a_cell_with_an_arrangement() {
     assert_eq!(side % 2, 0, "{line}");
     assert!(!line.contains("W = 0 "), "{line}");
 }
+
+/// The Bethe row sits beside Pauling's: for dimers on the square lattice it is 3^(3/2)/4
+/// per site (derived in `counters::bethe`), where Pauling's estimate is 1.
+#[test]
+fn estimate_reports_the_bethe_approximation() {
+    let v = estimate_json("square-dimers.yaml", "1");
+    assert_eq!(v["bethe"]["method"], "bethe");
+    let w = v["bethe"]["w_per_unit"].as_f64().unwrap();
+    assert!((w - 27f64.sqrt() / 4.0).abs() < 1e-9, "{w}");
+    assert!((v["pauling"]["w_per_unit"].as_f64().unwrap() - 1.0).abs() < 1e-12);
+}

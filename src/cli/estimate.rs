@@ -55,6 +55,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "content_hash": lattice.content_hash,
                 "formula_unit": unit,
                 "pauling": report::estimate_json(c, p, None),
+                "bethe": s.bethe.as_ref().map(|e| report::estimate_json(c, e, Some(p))),
                 "exact": s.exact.iter().map(|e| report::estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
                 "transfer_matrix": transfer.map(|e| report::estimate_json(c, e, Some(p))),
                 "monte_carlo": monte_carlo.map(|e| report::estimate_json(c, e, Some(p))),

@@ -2,6 +2,7 @@
 //! compiled model on a cell large enough to show every constraint whole) and returns an
 //! [`crate::estimate::Estimate`].
 
+pub mod bethe;
 pub mod brute;
 pub mod exact;
 pub mod extrapolate;

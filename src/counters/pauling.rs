@@ -46,18 +46,25 @@ pub fn for_model(model: &Model) -> f64 {
     }
 }
 
-/// Pauling's estimate for the infinite crystal.
-pub fn estimate(crystal: &Crystal) -> Result<Estimate> {
-    let start = Instant::now();
+/// The model of a periodic cube just large enough that no constraint reads a variable
+/// twice (3 cells per axis, more for long shifts, at most 9), on which local estimates of
+/// the infinite crystal are evaluated.
+pub fn tree_free_model(crystal: &Crystal) -> Result<Model> {
     let mut n = (2 * crystal.reach() + 1).max(3) as usize;
-    let model = loop {
+    loop {
         let cluster = Cluster::new(crystal, Cells::cube(n, crystal.dimensions))?;
         let model = Model::new(&cluster)?;
         if !model.has_repeats || n >= 9 {
-            break model;
+            return Ok(model);
         }
         n += 2;
-    };
+    }
+}
+
+/// Pauling's estimate for the infinite crystal.
+pub fn estimate(crystal: &Crystal) -> Result<Estimate> {
+    let start = Instant::now();
+    let model = tree_free_model(crystal)?;
     let ln_w = for_model(&model);
     // Reported per unit cell of the crystal.
     let units = crystal.formula_unit.per_cell(crystal);

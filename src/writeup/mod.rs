@@ -285,6 +285,7 @@ impl<'a> Writeup<'a> {
                 "estimate": estimate_json(c, b, Some(p)),
             },
             "pauling": estimate_json(c, p, None),
+            "bethe": s.bethe.as_ref().map(|e| estimate_json(c, e, Some(p))),
             "exact": s.exact.iter().map(|e| estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
             "exact_stopped": s.stopped,
             "transfer_matrix": strips,
@@ -315,6 +316,8 @@ pub fn uncertainty_meaning(method: Method) -> &'static str {
              orders, windows and width families (a systematic estimate, not a standard error)"
         }
         Method::MonteCarlo => "the uncertainty is one standard error",
-        Method::Exact | Method::Pauling => "the value has no statistical uncertainty",
+        Method::Exact | Method::Pauling | Method::Bethe => {
+            "the value has no statistical uncertainty"
+        }
     }
 }
