@@ -244,4 +244,27 @@ mod tests {
         let closed = 1.5 * 3f64.ln() - 4f64.ln();
         assert!((b - closed).abs() < 1e-10, "{b} against {closed}");
     }
+
+    /// Hard squares (z = 4): on a tree a site is occupied, given its parent empty, with
+    /// probability a = (1 − a)³ / ((1 − a)³ + 1); the bond beliefs are ∝ (1 − a)², a(1 − a),
+    /// a(1 − a) and the Bethe entropy per site is (z/2) H(bond) − (z − 1) H(site). Solved
+    /// here by plain iteration, independently of the message code.
+    #[test]
+    fn hard_squares_follow_the_cavity_recursion() {
+        let mut a = 0.3f64;
+        for _ in 0..10_000 {
+            a = 0.5 * a + 0.5 * (1.0 - a).powi(3) / ((1.0 - a).powi(3) + 1.0);
+        }
+        let z = (1.0 - a).powi(2) + 2.0 * a * (1.0 - a);
+        let (b00, b01) = ((1.0 - a).powi(2) / z, a * (1.0 - a) / z);
+        let h_bond = -(b00 * b00.ln() + 2.0 * b01 * b01.ln());
+        let h_site = -(b01 * b01.ln() + (1.0 - b01) * (1.0 - b01).ln());
+        let expected = 2.0 * h_bond - 3.0 * h_site;
+        let c = &lattice("hard-squares.yaml").crystal;
+        let b = estimate(c).unwrap().ln_w_per_unit;
+        assert!((b - expected).abs() < 1e-10, "{b} against {expected}");
+        // Between Pauling's 9/8 and the exact κ = 1.5030480824753 (Baxter, Enting & Tsang
+        // 1980, J. Stat. Phys. 22, 465).
+        assert!(b.exp() > 1.125 && b.exp() < 1.5030480824753);
+    }
 }
