@@ -192,18 +192,12 @@ pub fn estimate(crystal: &Crystal) -> Result<Estimate> {
     let start = Instant::now();
     let model = super::pauling::tree_free_model(crystal)?;
     let ln_w = for_model(&model)?;
-    let units = crystal.formula_unit.per_cell(crystal);
-    Ok(Estimate {
-        method: Method::Bethe,
-        cells: None,
-        count: None,
-        ln_count: ln_w * units,
-        formula_units: units,
-        ln_w_per_unit: ln_w,
-        sigma_ln_w: None,
-        seconds: start.elapsed().as_secs_f64(),
-        peak_states: None,
-    })
+    Ok(super::pauling::infinite_crystal(
+        Method::Bethe,
+        crystal,
+        ln_w,
+        start,
+    ))
 }
 
 #[cfg(test)]

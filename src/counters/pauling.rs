@@ -65,11 +65,20 @@ pub fn tree_free_model(crystal: &Crystal) -> Result<Model> {
 pub fn estimate(crystal: &Crystal) -> Result<Estimate> {
     let start = Instant::now();
     let model = tree_free_model(crystal)?;
-    let ln_w = for_model(&model);
-    // Reported per unit cell of the crystal.
+    Ok(infinite_crystal(
+        Method::Pauling,
+        crystal,
+        for_model(&model),
+        start,
+    ))
+}
+
+/// A local estimate of the infinite crystal (no count, no error bar) from ln W per formula
+/// unit, reported per unit cell of the crystal.
+pub fn infinite_crystal(method: Method, crystal: &Crystal, ln_w: f64, start: Instant) -> Estimate {
     let units = crystal.formula_unit.per_cell(crystal);
-    Ok(Estimate {
-        method: Method::Pauling,
+    Estimate {
+        method,
         cells: None,
         count: None,
         ln_count: ln_w * units,
@@ -78,5 +87,5 @@ pub fn estimate(crystal: &Crystal) -> Result<Estimate> {
         sigma_ln_w: None,
         seconds: start.elapsed().as_secs_f64(),
         peak_states: None,
-    })
+    }
 }
