@@ -523,6 +523,29 @@ fn templates(model: &Model, columns: &[usize], kinds: &[usize], n: usize) -> Res
     Ok(out)
 }
 
+/// The charge coefficient of the boundary field of kind `k` and age `a`: the signed
+/// relation coefficients of the template constraints reading it that have completed
+/// (depth − offset < a).
+fn boundary_coefficient(
+    templates: &[Template],
+    relations: &[Option<sector::Relation>],
+    eps: &[i64],
+    k: usize,
+    a: usize,
+) -> i64 {
+    templates
+        .iter()
+        .filter_map(|t| relations[t.table].as_ref().map(|r| (t, r)))
+        .flat_map(|(t, r)| {
+            t.entries
+                .iter()
+                .zip(&r.coefficients)
+                .filter(move |(e, _)| e.0 == k && t.depth - e.1 < a)
+                .map(move |(_, &c)| eps[t.constraint] * c)
+        })
+        .sum()
+}
+
 /// The order in which a column adds its variables, as a new index for every kind.
 ///
 /// The constraints are taken across the strip in the order of where they sit (on a
@@ -826,16 +849,7 @@ impl Column {
                             continue;
                         };
                         for a in 1..=age {
-                            let mut c = 0i64;
-                            for t in &templates {
-                                if let Some(r) = &relations[t.table] {
-                                    for (i, &(kk, d)) in t.entries.iter().enumerate() {
-                                        if kk == k && t.depth - d < a {
-                                            c += eps[t.constraint] * r.coefficients[i];
-                                        }
-                                    }
-                                }
-                            }
+                            let c = boundary_coefficient(&templates, &relations, &eps, k, a);
                             if c != 0 {
                                 charge.push((canonical[&(k, a)], c));
                             }
