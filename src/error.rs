@@ -102,6 +102,12 @@ pub enum Error {
         /// What is wrong with it.
         message: String,
     },
+    /// The user asked the computation to stop (Ctrl-C) before it finished.
+    #[error("interrupted while {what}")]
+    Interrupted {
+        /// What was being computed.
+        what: String,
+    },
     /// An iterative method stopped at its iteration cap before converging.
     #[error("{what} did not converge in {iterations} iterations ({detail})")]
     NotConverged {

@@ -10,7 +10,8 @@ use num_traits::ToPrimitive;
 use crate::thermo;
 
 /// How a number was obtained.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
 #[non_exhaustive]
 pub enum Method {
     /// Pauling's estimate: independent local constraints.

@@ -36,7 +36,9 @@
 
 pub mod calorimetry;
 pub mod cluster;
+pub mod context;
 pub mod counters;
+pub mod crosscheck;
 pub mod crystal;
 pub mod error;
 pub mod estimate;

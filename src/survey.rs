@@ -152,6 +152,8 @@ pub struct Survey {
     pub sampled_sizes: Vec<SampledCell>,
     /// The Monte Carlo values extrapolated to the infinite crystal (two or more cells).
     pub extrapolated: Option<SizeExtrapolation>,
+    /// Cited values compared with a second route computed in the same run.
+    pub checks: Vec<crate::crosscheck::CrossCheck>,
     /// Plain sentences on what ran, what stopped and why.
     pub notes: Vec<String>,
     /// The budget in seconds.
@@ -325,6 +327,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
         sampled,
         sampled_sizes,
         extrapolated,
+        checks: Vec::new(),
         notes,
         budget: config.budget,
     })

@@ -1,7 +1,8 @@
 //! Command-line layer: flag definitions, output format, exit codes. One file per command.
 //!
 //! Exit codes: 0 success; 1 usage or input error; 2 a budget (states or time) was exceeded
-//! or an iteration did not converge.
+//! or an iteration did not converge; 130 interrupted (Ctrl-C) before anything could be
+//! reported.
 
 mod calorimetry;
 mod estimate;
@@ -214,10 +215,33 @@ pub fn run() -> i32 {
                 Some(
                     Error::Budget { .. } | Error::Deadline { .. } | Error::NotConverged { .. },
                 ) => 2,
+                Some(Error::Interrupted { .. }) => 130,
                 _ => 1,
             }
         }
     }
+}
+
+/// The interrupt raised by Ctrl-C: the first call installs the handler; every call
+/// returns the same flag. A second Ctrl-C ends the process at once.
+#[allow(dead_code)] // the long-running commands take it up one by one
+fn interrupt() -> groundcount::context::Interrupt {
+    use std::sync::OnceLock;
+    static FLAG: OnceLock<groundcount::context::Interrupt> = OnceLock::new();
+    FLAG.get_or_init(|| {
+        let flag = groundcount::context::Interrupt::new();
+        let raised = flag.clone();
+        // If no handler can be installed, Ctrl-C keeps its default meaning.
+        let _ = ctrlc::set_handler(move || {
+            if raised.raised() {
+                std::process::exit(130);
+            }
+            raised.raise();
+            eprintln!("\ninterrupted: finishing what is under way (Ctrl-C again to quit at once)");
+        });
+        flag
+    })
+    .clone()
 }
 
 /// Load a lattice file, or the built-in ice Ih description when none is given.
