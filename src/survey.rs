@@ -81,6 +81,8 @@ pub struct SurveyConfig {
     pub sample: SampleConfig,
     /// Told what is being computed.
     pub observer: Option<Observer>,
+    /// Once raised, the survey stops what it is doing and returns what it has.
+    pub interrupt: crate::context::Interrupt,
 }
 
 impl Default for SurveyConfig {
@@ -93,6 +95,7 @@ impl Default for SurveyConfig {
             sample_cells: None,
             sample: SampleConfig::default(),
             observer: None,
+            interrupt: Default::default(),
         }
     }
 }
@@ -278,6 +281,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
             max_states: config.max_states,
             deadline: Some(deadline),
             progress,
+            interrupt: config.interrupt.clone(),
         };
         let outcome = exact::count(&model, &exact_config);
         tell(Stage::ExactDone);

@@ -46,6 +46,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         max_states: args.max_states,
         deadline: None,
         progress,
+        interrupt: super::interrupt(),
     };
     // A torus may be cheaper as the trace of T^L: compare the predicted work of both
     // routes (the trace's column is tried with a small state budget only).

@@ -224,7 +224,6 @@ pub fn run() -> i32 {
 
 /// The interrupt raised by Ctrl-C: the first call installs the handler; every call
 /// returns the same flag. A second Ctrl-C ends the process at once.
-#[allow(dead_code)] // the long-running commands take it up one by one
 fn interrupt() -> groundcount::context::Interrupt {
     use std::sync::OnceLock;
     static FLAG: OnceLock<groundcount::context::Interrupt> = OnceLock::new();

@@ -100,6 +100,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         loops: !args.no_loops,
         target_error: args.target_error,
         max_replicas: args.max_replicas,
+        interrupt: super::interrupt(),
     };
     let shown = Shown {
         file: args.file.display().to_string(),

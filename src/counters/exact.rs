@@ -54,6 +54,8 @@ pub struct ExactConfig {
     pub deadline: Option<Instant>,
     /// Told after every step: (steps done, steps in all, frontier states).
     pub progress: Option<ProgressHook>,
+    /// Stop with [`Error::Interrupted`] once raised.
+    pub interrupt: crate::context::Interrupt,
 }
 
 /// A callback for progress reports (the library never prints; the caller decides).
@@ -72,6 +74,7 @@ impl Default for ExactConfig {
             max_states: DEFAULT_MAX_STATES,
             deadline: None,
             progress: None,
+            interrupt: Default::default(),
         }
     }
 }
@@ -617,6 +620,11 @@ fn run<C: Tally>(
         {
             return Err(Failure::Stop(Error::Deadline {
                 cells: model.cells.clone(),
+            }));
+        }
+        if config.interrupt.raised() {
+            return Err(Failure::Stop(Error::Interrupted {
+                what: format!("counting {}", model.cells),
             }));
         }
         frontier.step(step)?;

@@ -100,6 +100,8 @@ pub struct SampleConfig {
     pub target_error: Option<f64>,
     /// Most replicas a `target_error` run may use.
     pub max_replicas: usize,
+    /// Start no further replica once raised.
+    pub interrupt: crate::context::Interrupt,
 }
 
 impl Default for SampleConfig {
@@ -114,6 +116,7 @@ impl Default for SampleConfig {
             loops: true,
             target_error: None,
             max_replicas: 1024,
+            interrupt: Default::default(),
         }
     }
 }

@@ -181,6 +181,7 @@ fn config_of(settings: &Settings) -> SampleConfig {
         loops: settings.loops,
         target_error: None,
         max_replicas: settings.replicas_per_shard,
+        interrupt: Default::default(),
     }
 }
 

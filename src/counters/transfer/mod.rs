@@ -123,6 +123,8 @@ pub struct StripConfig {
     pub deadline: Option<Instant>,
     /// Which states the operator acts on: one charge sector or all.
     pub sectors: Sectors,
+    /// Stop with [`Error::Interrupted`] once raised.
+    pub interrupt: crate::context::Interrupt,
 }
 
 /// The state space of the operator when the rule conserves a charge across the column
@@ -150,6 +152,7 @@ impl Default for StripConfig {
             max_iterations: 200_000,
             deadline: None,
             sectors: Sectors::Largest,
+            interrupt: Default::default(),
         }
     }
 }
