@@ -746,7 +746,7 @@ mod tests {
         assert_eq!(number(f64::NAN), "");
         assert_eq!(optional(None), "");
         for x in [
-            1.5396007178390020f64,
+            1.539_600_717_839_002_f64,
             3.371224484330793,
             1e-12,
             6.02214076e23,

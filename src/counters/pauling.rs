@@ -122,10 +122,9 @@ impl Caveat {
     pub fn explain(&self, unit: &str) -> String {
         match self {
             Caveat::BelowOne { w_per_unit } => format!(
-                "W = {} per {unit} is below 1 (S0 < 0): the independent-constraint product is \
-                 not meaningful for this rule, since a count of arrangements is 0 or at least 1 \
-                 and W per {unit} therefore 0 or at least 1",
-                crate::report::sig(*w_per_unit, 6)
+                "W = {w_per_unit:.6} per {unit} is below 1 (S0 < 0): the independent-constraint \
+                 product is not meaningful for this rule, since a count of arrangements is 0 or \
+                 at least 1 and W per {unit} therefore 0 or at least 1"
             ),
         }
     }
