@@ -80,13 +80,20 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         Format::Csv => Ok(table.render_csv()),
         Format::Markdown => {
             let mut out = table.render_markdown();
-            if !s.checks.is_empty() {
-                writeln!(out)?;
-                out += &report::checks_table(&s.checks, &unit).render_markdown();
-            }
             writeln!(out)?;
+            if s.checks.is_empty() {
+                writeln!(out, "cross-checks: none computed in this run\n")?;
+            } else {
+                writeln!(out, "cross-checks (a second route computed in this run):\n")?;
+                out += &report::checks_table(&s.checks, &unit).render_markdown();
+                writeln!(out)?;
+            }
             for line in below_table(&s, &unit) {
-                writeln!(out, "{line}\n")?;
+                // A leading `*` marks a row, not a list item.
+                match line.strip_prefix("* ") {
+                    Some(rest) => writeln!(out, "\\* {rest}\n")?,
+                    None => writeln!(out, "{line}\n")?,
+                }
             }
             Ok(out)
         }

@@ -80,7 +80,10 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
         "{}",
         report::survey_table(s, unit, columns).render_markdown()
     )?;
-    writeln!(o, "`units` is the number of formula units ({unit}) in the cell.\n")?;
+    writeln!(
+        o,
+        "`units` is the number of formula units ({unit}) in the cell.\n"
+    )?;
     for e in [Some(p), s.bethe.as_ref()].into_iter().flatten() {
         if let Some(caveat) = pauling::caveat(e) {
             writeln!(
