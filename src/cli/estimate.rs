@@ -102,8 +102,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             writeln!(out, "{} ({})", c.name, shown(&args.file))?;
             writeln!(
                 out,
-                "formula unit {unit} ({}): W = arrangements per {unit}, S0 = R ln W per mole of {unit}, \
-                 units = formula units in the cell",
+                "formula unit {unit} ({}); units = formula units in the cell\n\
+                 W = arrangements per {unit}; S0 = R ln W per mole of {unit}",
                 c.formula_unit.describe()
             )?;
             writeln!(out)?;
