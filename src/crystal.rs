@@ -787,13 +787,7 @@ impl Crystal {
             return ck.at(&s.id, format!("site '{}' carries an arrow variable and needs an `axis` (the direction of state 0)", s.id.value));
         }
 
-        // Rules.
-        if spec.rules.is_empty() {
-            return ck.err(
-                Position::default(),
-                "the file lists no rules; expected at least one",
-            );
-        }
+        // Rules. A file may list none: every variable is then free (W = q per variable).
         for r in &spec.rules {
             let rule = crystal.validate_rule(r, &ck)?;
             crystal.rules.push(rule);

@@ -159,6 +159,12 @@ impl Model {
                             tables.len() - 1
                         }
                     };
+                    // A constraint that allows every assignment of its scope restricts
+                    // nothing: it is factored out, and a variable no other constraint reads
+                    // is free (it multiplies every count by its number of states).
+                    if tables[table].allowed == tables[table].size {
+                        continue;
+                    }
                     if scope.is_empty() {
                         if tables[table].allowed == 0 && contradiction.is_none() {
                             contradiction = Some(format!(
@@ -268,10 +274,33 @@ mod tests {
     fn self_loops_on_the_one_cell_torus() {
         // Each bond wraps onto the single site: it points both in and out, so the inward
         // count is always 2 and every one of the 4 assignments is allowed (OEIS A054759: 4).
+        // Such a constraint restricts nothing and is factored out: both arrows are free.
         let m = model("1x1", None);
         assert!(m.has_repeats);
-        assert_eq!(m.constraints[0].scope.len(), 2);
-        assert_eq!(m.tables[m.constraints[0].table].allowed, 4);
+        assert!(m.constraints.is_empty());
+        assert_eq!(m.variables.len(), 2);
+    }
+
+    /// A rule that allows every assignment compiles to no constraint, so that the
+    /// counters see free variables (ln q each) instead of a frontier of useless states.
+    #[test]
+    fn issue11_rules_that_allow_everything_are_factored_out() {
+        let yaml = "name: t\ndimensions: 2\ncell: {vectors: [[1, 0], [0, 1]]}\n\
+                    sites: [{id: P, at: [0, 0]}]\n\
+                    bonds: [{id: h, from: P, to: P, shift: [1, 0]}]\n\
+                    variables: [{on: sites, kind: occupancy}]\n\
+                    rules: [{kind: occupied, at: bonds, allowed: [0, 1, 2]}]\n\
+                    formula_unit: {name: site, per: sites}\n";
+        let l = Lattice::from_yaml(yaml, "t.yaml").unwrap();
+        let cluster = Cluster::new(&l.crystal, Cells::parse("4x4", None, 2).unwrap()).unwrap();
+        let m = Model::new(&cluster).unwrap();
+        assert_eq!(m.variables.len(), 16);
+        assert!(m.constraints.is_empty());
+        // With `allowed: [0, 1]` (hard-core exclusion) every bond is a constraint.
+        let hard = yaml.replace("[0, 1, 2]", "[0, 1]");
+        let l = Lattice::from_yaml(&hard, "t.yaml").unwrap();
+        let cluster = Cluster::new(&l.crystal, Cells::parse("4x4", None, 2).unwrap()).unwrap();
+        assert_eq!(Model::new(&cluster).unwrap().constraints.len(), 16);
     }
 
     #[test]

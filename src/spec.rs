@@ -45,7 +45,8 @@ pub struct LatticeSpec {
     pub groups: Vec<GroupSpec>,
     /// Which degrees of freedom live where.
     pub variables: Vec<VariableSpec>,
-    /// The local rules.
+    /// The local rules; none (the key left out or an empty list) leaves every variable free.
+    #[serde(default)]
     pub rules: Vec<RuleSpec>,
     /// What one formula unit is.
     pub formula_unit: FormulaUnitSpec,

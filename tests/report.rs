@@ -225,3 +225,60 @@ fn inspect_prints_every_format() {
             .contains("| site | species |")
     );
 }
+
+/// `--statistical S` without an uncertainty is accepted with σ = 0, and the output says so:
+/// the residual's 1σ is then the calorimetric one alone (σ_res = √(σ_cal² + 0²)).
+#[test]
+fn issue11_statistical_entropy_without_an_uncertainty() {
+    let data = lattice("quillonite-dihydrate-cp.csv");
+    let v = crate::util::run_json(&[
+        "calorimetry",
+        data.to_str().unwrap(),
+        "--statistical",
+        "186.77",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(v["s_stat_uncertainty"], 0.0);
+    assert_eq!(v["s_stat_uncertainty_given"], false);
+    assert_eq!(v["residual_uncertainty"], v["s_cal_uncertainty"]);
+    let notes = v["notes"].to_string();
+    assert!(notes.contains("without an uncertainty"), "{notes}");
+    let given = crate::util::run_json(&[
+        "calorimetry",
+        data.to_str().unwrap(),
+        "--statistical",
+        "186.77±0.30",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(given["s_stat_uncertainty_given"], true);
+    assert!(
+        !given["notes"]
+            .to_string()
+            .contains("without an uncertainty")
+    );
+
+    let dir = out_dir("report-statistical-without-sigma");
+    report(&[
+        lattice("square-ice.yaml").to_str().unwrap(),
+        "-o",
+        dir.to_str().unwrap(),
+        "--widths",
+        "2..6",
+        "--max-exact-units",
+        "9",
+        "--budget",
+        "600",
+        "--quiet",
+        "--calorimetry",
+        data.to_str().unwrap(),
+        "--statistical",
+        "186.77",
+    ]);
+    let md = std::fs::read_to_string(dir.join("report.md")).unwrap();
+    assert!(md.contains("given without 1σ (0 used)"), "{md}");
+    assert!(md.contains("given without an uncertainty"), "{md}");
+    let j = read_json(&dir);
+    assert_eq!(j["calorimetry"]["s_stat_uncertainty_given"], false);
+}

@@ -5,7 +5,7 @@ use std::fmt::Write;
 use std::path::PathBuf;
 
 use groundcount::calorimetry::{self, CalorimetryConfig, HeatCapacityData, ThirdLaw, Transition};
-use groundcount::report::{Table, sig};
+use groundcount::report::{self, Table, sig};
 use serde_json::json;
 
 use super::Format;
@@ -40,7 +40,8 @@ pub struct Options {
     /// (default debye:4).
     #[arg(long = "low-t", value_name = "debye:N")]
     low_t: Option<String>,
-    /// Statistical entropy at the target temperature, S±σ in J/(mol K) (or S+-σ).
+    /// Statistical entropy at the target temperature, S±σ in J/(mol K) (or S+-σ); S alone
+    /// is taken with σ = 0, and the output says so.
     #[arg(long, value_name = "S±σ", allow_hyphen_values = true)]
     statistical: Option<String>,
 }
@@ -59,7 +60,8 @@ impl Options {
             c.low_t_points = parse_low_t(l)?;
         }
         if let Some(s) = &self.statistical {
-            c.statistical = Some(parse_statistical(s)?);
+            let (v, e) = parse_statistical(s)?;
+            c.statistical = Some((v, e.unwrap_or(0.0)));
         }
         Ok(c)
     }
@@ -75,6 +77,15 @@ impl Options {
     /// Whether a statistical entropy was given.
     pub fn has_statistical(&self) -> bool {
         self.statistical.is_some()
+    }
+
+    /// Whether the statistical entropy was given with its 1σ (false also when none was
+    /// given, or it does not parse).
+    pub fn statistical_sigma_given(&self) -> bool {
+        self.statistical
+            .as_deref()
+            .and_then(|s| parse_statistical(s).ok())
+            .is_some_and(|(_, e)| e.is_some())
     }
 }
 
@@ -106,20 +117,26 @@ fn parse_low_t(s: &str) -> anyhow::Result<usize> {
     n.trim().parse().map_err(|_| bad())
 }
 
-/// `S±σ` or `S+-σ` in J/(mol K).
-fn parse_statistical(s: &str) -> anyhow::Result<(f64, f64)> {
+/// `S±σ` or `S+-σ` in J/(mol K), or `S` alone (no σ).
+fn parse_statistical(s: &str) -> anyhow::Result<(f64, Option<f64>)> {
     let bad = || {
         anyhow::anyhow!(
-            "--statistical expects S±σ in J/(mol K) (e.g. 44.81±0.05 or 44.81+-0.05), found `{s}`"
+            "--statistical expects S±σ or S in J/(mol K) (e.g. 44.81±0.05, 44.81+-0.05 or \
+             44.81), found `{s}`"
         )
     };
-    let (v, e) = s
-        .split_once('±')
-        .or_else(|| s.split_once("+-"))
-        .ok_or_else(bad)?;
+    let (v, e) = match s.split_once('±').or_else(|| s.split_once("+-")) {
+        Some((v, e)) => {
+            let e: f64 = e.trim().parse().map_err(|_| bad())?;
+            if !(e.is_finite() && e >= 0.0) {
+                return Err(bad());
+            }
+            (v, Some(e))
+        }
+        None => (s, None),
+    };
     let v: f64 = v.trim().parse().map_err(|_| bad())?;
-    let e: f64 = e.trim().parse().map_err(|_| bad())?;
-    if !(v.is_finite() && e.is_finite() && e >= 0.0) {
+    if !v.is_finite() {
         return Err(bad());
     }
     Ok((v, e))
@@ -132,120 +149,207 @@ pub fn analyse(data: &std::path::Path, options: &Options) -> anyhow::Result<Thir
     Ok(calorimetry::analyse(&d, &config)?)
 }
 
-/// The summary as rows: quantity, value, 1σ, unit.
-fn rows(r: &ThirdLaw) -> Vec<[String; 4]> {
+/// One quantity of the summary: a label, the value (`None`: not available, with the words
+/// shown instead), its 1σ when there is one, the number of significant digits shown, and
+/// the unit.
+struct Quantity {
+    label: String,
+    value: Result<f64, &'static str>,
+    sigma: Option<f64>,
+    digits: usize,
+    unit: &'static str,
+}
+
+impl Quantity {
+    fn new(
+        label: String,
+        value: f64,
+        sigma: Option<f64>,
+        digits: usize,
+        unit: &'static str,
+    ) -> Self {
+        Quantity {
+            label,
+            value: Ok(value),
+            sigma,
+            digits,
+            unit,
+        }
+    }
+}
+
+/// The summary: quantity, value, 1σ, unit. Labels stay short so that the table fits in 100
+/// columns; what the fit used is in the notes.
+fn quantities(r: &ThirdLaw, sigma_given: bool) -> Vec<Quantity> {
     let f = &r.low_t;
     let u = &r.uncertainty;
-    let temps: Vec<String> = f.temperatures_k.iter().map(|t| sig(*t, 5)).collect();
+    let t = |x: f64| report::trimmed(x, 6);
     let mut out = vec![
-        [
+        Quantity::new(
             format!(
-                "T³ fit: Cp = a T³ on the lowest {} points ({} K), {}",
-                f.points.len(),
-                temps.join(", "),
-                if f.weighted {
-                    "weighted by 1/σ²"
-                } else {
-                    "unweighted"
-                }
+                "T³ coefficient a (Cp = a T³, lowest {} points)",
+                f.points.len()
             ),
-            sig(f.a, 6),
-            sig(f.a_sigma, 2),
-            "J/(mol K⁴)".into(),
-        ],
-        [
-            "Debye temperature θ_D = (12π⁴R/(5a))^(1/3), one atom per formula unit".into(),
-            sig(f.debye_temperature_k, 6),
-            sig(f.debye_temperature_sigma, 2),
-            "K".into(),
-        ],
-        [
-            format!("extrapolated entropy 0..{} K, a T₀³/3", sig(f.lowest_k, 5)),
-            sig(f.entropy, 6),
-            sig(f.entropy_sigma, 2),
-            "J/(mol K)".into(),
-        ],
-        [
+            f.a,
+            Some(f.a_sigma),
+            6,
+            "J/(mol K⁴)",
+        ),
+        Quantity::new(
+            "Debye temperature θ_D".into(),
+            f.debye_temperature_k,
+            Some(f.debye_temperature_sigma),
+            6,
+            "K",
+        ),
+        Quantity::new(
+            format!("entropy below {} K, a T₀³/3", t(f.lowest_k)),
+            f.entropy,
+            Some(f.entropy_sigma),
+            6,
+            "J/(mol K)",
+        ),
+        Quantity::new(
             format!(
-                "∫ Cp d(ln T) {}..{} K (monotone cubic)",
-                sig(f.lowest_k, 5),
-                sig(r.target_k, 5)
+                "∫ Cp d(ln T), {}..{} K, monotone cubic",
+                t(f.lowest_k),
+                t(r.target_k)
             ),
-            sig(r.integral, 8),
-            String::new(),
-            "J/(mol K)".into(),
-        ],
-        [
-            "the same by the trapezoid rule".into(),
-            sig(r.integral_trapezoid, 8),
-            String::new(),
-            "J/(mol K)".into(),
-        ],
+            r.integral,
+            None,
+            8,
+            "J/(mol K)",
+        ),
+        Quantity::new(
+            "  the same by the trapezoid rule".into(),
+            r.integral_trapezoid,
+            None,
+            8,
+            "J/(mol K)",
+        ),
     ];
     for x in &r.transitions {
-        out.push([
+        out.push(Quantity::new(
             format!(
-                "transition at {} K, ΔH = {} J/mol: ΔH/T",
-                sig(x.transition.t_k, 6),
-                sig(x.transition.dh_j_per_mol, 6)
+                "transition at {} K: ΔH/T, ΔH = {} J/mol",
+                t(x.transition.t_k),
+                t(x.transition.dh_j_per_mol)
             ),
-            sig(x.entropy, 6),
-            String::new(),
-            "J/(mol K)".into(),
-        ]);
+            x.entropy,
+            None,
+            6,
+            "J/(mol K)",
+        ));
     }
-    out.push([
-        format!("third-law entropy S_cal({} K)", sig(r.target_k, 5)),
-        sig(r.s_cal, 6),
-        sig(u.total, 2),
-        "J/(mol K)".into(),
-    ]);
-    out.push([
-        "  1σ from the Cp uncertainties".into(),
-        u.data.map_or("not given".into(), |d| sig(d, 2)),
-        String::new(),
-        "J/(mol K)".into(),
-    ]);
-    out.push([
+    out.push(Quantity::new(
+        format!("third-law entropy S_cal({} K)", t(r.target_k)),
+        r.s_cal,
+        Some(u.total),
+        6,
+        "J/(mol K)",
+    ));
+    out.push(Quantity {
+        label: "  1σ from the Cp uncertainties".into(),
+        value: u.data.ok_or("not given"),
+        sigma: None,
+        digits: 2,
+        unit: "J/(mol K)",
+    });
+    out.push(Quantity::new(
         "  1σ of the T³ extrapolation".into(),
-        sig(u.extrapolation, 2),
-        String::new(),
-        "J/(mol K)".into(),
-    ]);
-    out.push([
+        u.extrapolation,
+        None,
+        2,
+        "J/(mol K)",
+    ));
+    out.push(Quantity::new(
         "  quadrature (cubic − trapezoid)".into(),
-        sig(u.quadrature, 2),
-        String::new(),
-        "J/(mol K)".into(),
-    ]);
+        u.quadrature,
+        None,
+        2,
+        "J/(mol K)",
+    ));
     if let Some(s) = &r.residual {
-        out.push([
+        out.push(Quantity::new(
             "statistical entropy S_stat (given)".into(),
-            sig(s.s_stat, 6),
-            sig(s.s_stat_sigma, 2),
-            "J/(mol K)".into(),
-        ]);
-        out.push([
+            s.s_stat,
+            sigma_given.then_some(s.s_stat_sigma),
+            6,
+            "J/(mol K)",
+        ));
+        out.push(Quantity::new(
             "residual entropy S0 = S_stat − S_cal".into(),
-            sig(s.residual, 6),
-            sig(s.residual_sigma, 2),
-            "J/(mol K)".into(),
-        ]);
-        out.push([
-            "W = exp(S0/R) per formula unit".into(),
-            sig(s.w_per_unit, 6),
-            sig(s.w_sigma, 2),
-            "arrangements per formula unit".into(),
-        ]);
+            s.residual,
+            Some(s.residual_sigma),
+            6,
+            "J/(mol K)",
+        ));
+        out.push(Quantity::new(
+            "W = exp(S0/R)".into(),
+            s.w_per_unit,
+            Some(s.w_sigma),
+            6,
+            "per formula unit",
+        ));
     }
     out
 }
 
-/// Notes under the table.
-fn notes(r: &ThirdLaw) -> Vec<String> {
+/// The summary table: rounded values for reading, plain numbers in the CSV layout (an
+/// empty cell where there is no value or no 1σ).
+fn summary_table(r: &ThirdLaw, sigma_given: bool) -> Table {
+    let mut t = Table::new(&["quantity", "value", "1σ", "unit"])
+        .with_csv(&["quantity", "value", "1σ", "unit"]);
+    for q in quantities(r, sigma_given) {
+        t.row(vec![
+            q.label.clone(),
+            match q.value {
+                Ok(v) => sig(v, q.digits),
+                Err(words) => words.into(),
+            },
+            q.sigma.map_or_else(String::new, |s| sig(s, 2)),
+            q.unit.into(),
+        ]);
+        t.csv_row(vec![
+            q.label,
+            q.value.map_or_else(|_| String::new(), report::number),
+            report::optional(q.sigma),
+            q.unit.into(),
+        ]);
+    }
+    t
+}
+
+/// Notes under the table; `sigma_given` says whether the statistical entropy came with
+/// its 1σ.
+fn notes(r: &ThirdLaw, sigma_given: bool) -> Vec<String> {
     let mut n = Vec::new();
     if let Some(t) = &r.target_note {
         n.push(t.clone());
+    }
+    let f = &r.low_t;
+    let temps: Vec<String> = f
+        .temperatures_k
+        .iter()
+        .map(|t| report::trimmed(*t, 6))
+        .collect();
+    n.push(format!(
+        "the T³ fit uses the lowest {} points ({} K), {}; θ_D = (12π⁴R/(5a))^(1/3) counts one \
+         atom per formula unit",
+        f.points.len(),
+        temps.join(", "),
+        if f.weighted {
+            "weighted by 1/σ²"
+        } else {
+            "unweighted"
+        }
+    ));
+    if r.residual.is_some() && !sigma_given {
+        n.push(
+            "the statistical entropy was given without an uncertainty: σ = 0 is used, so the \
+             residual's 1σ holds only the calorimetric part"
+                .into(),
+        );
     }
     if r.uncertainty.data.is_none() {
         n.push(
@@ -263,7 +367,7 @@ fn notes(r: &ThirdLaw) -> Vec<String> {
 }
 
 /// The JSON document.
-pub fn json(r: &ThirdLaw) -> serde_json::Value {
+pub fn json(r: &ThirdLaw, sigma_given: bool) -> serde_json::Value {
     let f = &r.low_t;
     let u = &r.uncertainty;
     let mut v = json!({
@@ -302,11 +406,12 @@ pub fn json(r: &ThirdLaw) -> serde_json::Value {
             "cp_j_per_mol_k": p.cp,
             "s_cal_j_per_mol_k": s,
         })).collect::<Vec<_>>(),
-        "notes": notes(r),
+        "notes": notes(r, sigma_given),
     });
     if let Some(s) = &r.residual {
         v["s_stat_j_per_mol_k"] = s.s_stat.into();
         v["s_stat_uncertainty"] = s.s_stat_sigma.into();
+        v["s_stat_uncertainty_given"] = sigma_given.into();
         v["residual_j_per_mol_k"] = s.residual.into();
         v["residual_uncertainty"] = s.residual_sigma.into();
         v["w_per_unit"] = s.w_per_unit.into();
@@ -318,12 +423,10 @@ pub fn json(r: &ThirdLaw) -> serde_json::Value {
 pub fn run(args: Args) -> anyhow::Result<String> {
     let _ = args.quiet;
     let r = analyse(&args.data, &args.options)?;
-    let mut t = Table::new(&["quantity", "value", "1σ", "unit"]);
-    for row in rows(&r) {
-        t.row(row.to_vec());
-    }
+    let sigma_given = args.options.statistical_sigma_given();
+    let t = summary_table(&r, sigma_given);
     match args.format {
-        Format::Json => Ok(serde_json::to_string_pretty(&json(&r))? + "\n"),
+        Format::Json => Ok(serde_json::to_string_pretty(&json(&r, sigma_given))? + "\n"),
         Format::Csv => Ok(t.render_csv()),
         fmt => {
             let mut out = String::new();
@@ -332,12 +435,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "Third-law entropy from {} ({} points, {}..{} K)\n",
                 r.path.display(),
                 r.points.len(),
-                sig(r.points[0].t_k, 5),
-                sig(r.points[r.points.len() - 1].t_k, 5)
+                report::trimmed(r.points[0].t_k, 6),
+                report::trimmed(r.points[r.points.len() - 1].t_k, 6)
             )?;
             let mut p = Table::new(&["T (K)", "Cp (J/(mol K))", "S_cal (J/(mol K))"]);
             for (x, s) in r.points.iter().zip(&r.at_points) {
-                p.row(vec![sig(x.t_k, 6), sig(x.cp, 6), sig(*s, 6)]);
+                p.row(vec![report::trimmed(x.t_k, 6), sig(x.cp, 6), sig(*s, 6)]);
             }
             if fmt == Format::Markdown {
                 out += &t.render_markdown();
@@ -349,7 +452,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 out += &p.render();
             }
             writeln!(out)?;
-            for n in notes(&r) {
+            for n in notes(&r, sigma_given) {
                 writeln!(out, "Note: {n}.")?;
             }
             Ok(out)
@@ -363,9 +466,14 @@ mod tests {
 
     #[test]
     fn option_values_parse() {
-        assert_eq!(parse_statistical("3.43±0.21").unwrap(), (3.43, 0.21));
-        assert_eq!(parse_statistical("3.43+-0.21").unwrap(), (3.43, 0.21));
-        assert!(parse_statistical("3.43").is_err());
+        assert_eq!(parse_statistical("3.43±0.21").unwrap(), (3.43, Some(0.21)));
+        assert_eq!(parse_statistical("3.43+-0.21").unwrap(), (3.43, Some(0.21)));
+        // issue 11: S alone is accepted, with no σ (0 is used and a note says so).
+        assert_eq!(parse_statistical("3.43").unwrap(), (3.43, None));
+        assert_eq!(parse_statistical(" 186.77 ").unwrap(), (186.77, None));
+        for bad in ["", "±0.2", "3.43±", "3.43±-1", "inf", "3.43±x", "x"] {
+            assert!(parse_statistical(bad).is_err(), "{bad}");
+        }
         assert_eq!(parse_low_t("debye:5").unwrap(), 5);
         assert!(parse_low_t("einstein:5").is_err());
         let t = parse_transition("180.5:1200").unwrap();

@@ -1,12 +1,14 @@
 //! `groundcount estimate [FILE]`: the main job. Pauling's estimate, then exact counts on
-//! periodic cells of growing size within a time budget, side by side.
+//! periodic cells of growing size within a time budget, side by side, the cross-checks of
+//! the run, and last one line naming the value to cite ([`Survey::cited`]).
 
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::counters::exact;
-use groundcount::report::{self, sig};
-use groundcount::survey::{SurveyConfig, survey};
+use groundcount::counters::{exact, pauling};
+use groundcount::estimate::Method;
+use groundcount::report::{self, Columns};
+use groundcount::survey::{Survey, SurveyConfig, survey};
 use serde_json::json;
 
 use super::{Common, Format, load, shown, with_threads};
@@ -42,11 +44,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     bars.finish();
     let s = result?;
     let p = &s.pauling;
-    let rows = s.estimates();
-    let stopped = &s.stopped;
-    let notes = &s.notes;
     let transfer = s.strips.as_ref().map(|t| &t.estimate);
     let monte_carlo = s.sampled.as_ref().map(|m| &m.sampled.estimate);
+    let table = report::survey_table(&s, &unit, Columns::default());
     match args.common.format {
         Format::Json => {
             let v = json!({
@@ -60,54 +60,103 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "transfer_matrix": transfer.map(|e| report::estimate_json(c, e, Some(p))),
                 "monte_carlo": monte_carlo.map(|e| report::estimate_json(c, e, Some(p))),
                 "monte_carlo_cells": s.sampled_sizes.iter().map(|m| report::estimate_json(c, &m.sampled.estimate, Some(p))).collect::<Vec<_>>(),
-                "monte_carlo_infinite": s.extrapolated.as_ref().map(|x| report::estimate_json(c, &x.estimate, Some(p))),
-                "cited": report::estimate_json(c, s.best(), Some(p)),
-                "stopped": stopped,
-                "notes": notes,
+                "monte_carlo_infinite": s.extrapolated.as_ref().map(|x| {
+                    let mut v = report::estimate_json(c, &x.estimate, Some(p));
+                    v["fit"] = json!({
+                        "form": x.fit.form(),
+                        "chi2": x.fit.chi2,
+                        "dof": x.fit.dof,
+                    });
+                    v
+                }),
+                "checks": report::checks_json(&s.checks),
+                "cited": report::cited_json(c, &s),
+                "passed_over": report::passed_over_json(&s.cited(), &unit),
+                "stopped": s.stopped,
+                "notes": s.notes,
             });
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
-        Format::Csv => Ok(report::comparison_table(&rows, &unit).render_csv()),
-        Format::Markdown => Ok(report::comparison_table(&rows, &unit).render_markdown()),
+        Format::Csv => Ok(table.render_csv()),
+        Format::Markdown => {
+            let mut out = table.render_markdown();
+            writeln!(out)?;
+            if s.checks.is_empty() {
+                writeln!(out, "cross-checks: none computed in this run\n")?;
+            } else {
+                writeln!(out, "cross-checks (a second route computed in this run):\n")?;
+                out += &report::checks_table(&s.checks, &unit).render_markdown();
+                writeln!(out)?;
+            }
+            for line in below_table(&s, &unit) {
+                // A leading `*` marks a row, not a list item.
+                match line.strip_prefix("* ") {
+                    Some(rest) => writeln!(out, "\\* {rest}\n")?,
+                    None => writeln!(out, "{line}\n")?,
+                }
+            }
+            Ok(out)
+        }
         Format::Table => {
             let mut out = String::new();
             writeln!(out, "{} ({})", c.name, shown(&args.file))?;
             writeln!(
                 out,
-                "formula unit {unit} ({}); S0 = R ln W per mole of {unit}",
+                "formula unit {unit} ({}); units = formula units in the cell\n\
+                 W = arrangements per {unit}; S0 = R ln W per mole of {unit}",
                 c.formula_unit.describe()
             )?;
             writeln!(out)?;
-            out += &report::comparison_table(&rows, &unit).render();
+            out += &table.render();
             writeln!(out)?;
-            writeln!(
-                out,
-                "Exact counts are for finite periodic cells; they approach the infinite crystal as the cell grows. \
-                 Cells that wrap a bond onto itself (the smallest) are exact for that torus only."
-            )?;
-            if let Some(last) = s.largest_exact() {
-                // Say so when a larger cell had none (odd tori for dimers).
-                let which = if std::ptr::eq(last, s.exact.last().expect("a cell")) {
-                    "largest cell counted"
-                } else {
-                    "largest cell counted with an arrangement"
-                };
-                writeln!(
-                    out,
-                    "{which}: {}, W = {} per {unit} (Pauling {}; difference {:+.3} %)",
-                    last.cells.as_deref().unwrap_or(""),
-                    sig(last.w_per_unit(), 8),
-                    sig(p.w_per_unit(), 8),
-                    100.0 * (last.w_per_unit() / p.w_per_unit() - 1.0)
-                )?;
+            if s.checks.is_empty() {
+                writeln!(out, "cross-checks: none computed in this run")?;
+            } else {
+                writeln!(out, "cross-checks (a second route computed in this run):")?;
+                out += &report::checks_table(&s.checks, &unit).render();
             }
-            if !stopped.is_empty() {
-                writeln!(out, "exact counts stopped: {stopped}")?;
-            }
-            for n in notes {
-                writeln!(out, "{n}")?;
+            writeln!(out)?;
+            for line in below_table(&s, &unit) {
+                writeln!(out, "{line}")?;
             }
             Ok(out)
         }
     }
+}
+
+/// The lines under the tables: failed cross-checks (loudly), what a `*` means, what exact
+/// counts are, why stages stopped, notes, and last the value to cite.
+fn below_table(s: &Survey, unit: &str) -> Vec<String> {
+    let mut lines: Vec<String> = s
+        .failed_checks()
+        .into_iter()
+        .map(|c| report::check_failure(c, unit))
+        .collect();
+    for e in [Some(&s.pauling), s.bethe.as_ref()].into_iter().flatten() {
+        if let Some(caveat) = pauling::caveat(e) {
+            lines.push(format!(
+                "* {}: {}{}",
+                report::method_label(e),
+                caveat.explain(unit),
+                if e.method == Method::Pauling && s.bethe.is_some() {
+                    "; the Bethe row carries the mean-field estimate"
+                } else {
+                    ""
+                }
+            ));
+        }
+    }
+    if !s.exact.is_empty() {
+        lines.push(
+            "Exact counts are for finite periodic cells; they approach the infinite crystal as the \
+             cell grows. Cells that wrap a bond onto itself (the smallest) are exact for that torus only."
+                .into(),
+        );
+    }
+    if !s.stopped.is_empty() {
+        lines.push(format!("exact counts stopped: {}", s.stopped));
+    }
+    lines.extend(s.notes.iter().cloned());
+    lines.push(report::cited_line(s, unit));
+    lines
 }

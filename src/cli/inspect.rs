@@ -60,7 +60,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             "groups": c.groups.iter().map(|g| json!({"id": g.id, "members": g.members.len()})).collect::<Vec<_>>(),
             "rules": c.rules.iter().map(|r| json!({"rule": r.label, "instances_per_cell": r.instances.len()})).collect::<Vec<_>>(),
             "formula_unit": {"name": unit, "per_cell": units_per_cell},
-            "pauling": {"w_per_unit": p.w_per_unit(), "s_over_r": p.s_over_r(), "s_j_per_mol_k": p.s_j_per_mol_k()},
+            "pauling": {"w_per_unit": p.w_per_unit(), "s_over_r": p.s_over_r(), "s_j_per_mol_k": p.s_j_per_mol_k(), "not_meaningful": pauling::caveat(&p).map(|k| k.explain(unit))},
         });
         return Ok(serde_json::to_string_pretty(&v)? + "\n");
     }
@@ -83,12 +83,27 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     .join("; "),
             ),
             ("formula unit".into(), unit.clone()),
-            (format!("{unit} per cell"), sig(units_per_cell, 10)),
-            (format!("Pauling W per {unit}"), sig(p.w_per_unit(), 12)),
-            (format!("Pauling S0/R per {unit}"), sig(p.s_over_r(), 12)),
+            (format!("{unit} per cell"), report::number(units_per_cell)),
+            (
+                format!("Pauling W per {unit}"),
+                report::number(p.w_per_unit()),
+            ),
+            (
+                format!("Pauling S0/R per {unit}"),
+                report::number(p.s_over_r()),
+            ),
             (
                 format!("Pauling S0 J/(mol K) per mole of {unit}"),
-                sig(p.s_j_per_mol_k(), 10),
+                report::number(p.s_j_per_mol_k()),
+            ),
+            (
+                "Pauling meaningful".into(),
+                if pauling::caveat(&p).is_some() {
+                    "no"
+                } else {
+                    "yes"
+                }
+                .into(),
             ),
         ];
         for (k, v) in rows {
@@ -201,7 +216,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         out,
         "formula unit: {unit}, {} ({} per cell)",
         c.formula_unit.describe(),
-        sig(units_per_cell, 6)
+        report::amount(units_per_cell)
     )?;
     writeln!(out)?;
     writeln!(
@@ -211,6 +226,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         sig(p.s_over_r(), 8),
         sig(p.s_j_per_mol_k(), 6)
     )?;
+    if let Some(caveat) = pauling::caveat(&p) {
+        writeln!(
+            out,
+            "Not meaningful for this rule: {}. `groundcount estimate` shows the Bethe \
+             approximation beside it.",
+            caveat.explain(unit)
+        )?;
+    }
     Ok(out)
 }
 

@@ -291,7 +291,7 @@ fn cell_header(
         e.cells.as_deref().unwrap_or(""),
         model.variables.len(),
         model.constraints.len(),
-        groundcount::report::sig(e.formula_units, 6),
+        groundcount::report::amount(e.formula_units),
         c.formula_unit.name
     )
 }
@@ -299,9 +299,16 @@ fn cell_header(
 /// The Pauling comparison line under a one-cell result.
 fn pauling_line(p: &groundcount::Estimate, unit: &str) -> String {
     use groundcount::report::sig;
-    format!(
+    let mut line = format!(
         "Pauling (infinite)    W = {} per {unit}, S0 = {} J/(mol K)\n",
         sig(p.w_per_unit(), 10),
         sig(p.s_j_per_mol_k(), 6)
-    )
+    );
+    if let Some(c) = groundcount::counters::pauling::caveat(p) {
+        line += &format!(
+            "                      not meaningful: {}\n",
+            c.explain(unit)
+        );
+    }
+    line
 }

@@ -9,7 +9,7 @@ use groundcount::cluster::Cells;
 use groundcount::counters::exact;
 use groundcount::report::Table;
 use groundcount::survey::{SurveyConfig, survey};
-use groundcount::writeup::{Comparison, Meta, Writeup};
+use groundcount::writeup::{Comparison, Meta, Sentence, Writeup};
 use serde_json::json;
 
 use super::{Common, Format, load, shown, with_threads};
@@ -114,12 +114,16 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         Some(data) => {
             if !args.calorimetric.has_statistical() {
                 anyhow::bail!(
-                    "--calorimetry needs --statistical S±σ (the statistical entropy in J/(mol K) \
-                     at the comparison temperature)"
+                    "--calorimetry needs --statistical S±σ or S (the statistical entropy in \
+                     J/(mol K) at the comparison temperature)"
                 );
             }
             let r = super::calorimetry::analyse(data, &args.calorimetric)?;
-            Some(comparison(&r, data))
+            Some(comparison(
+                &r,
+                data,
+                args.calorimetric.statistical_sigma_given(),
+            ))
         }
         None => {
             if args.calorimetric.is_used() {
@@ -164,12 +168,16 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             .map_err(|e| anyhow::anyhow!("cannot write {}: {e}", path.display()))?;
         written.push(path.display().to_string());
     }
-    let b = w.best();
     match args.common.format {
         Format::Json => Ok(serde_json::to_string_pretty(&json!({
             "directory": args.out.display().to_string(),
             "files": written,
-            "cited": groundcount::report::estimate_json(c, b, Some(&s.pauling)),
+            "cited": groundcount::report::cited_json(c, &s),
+            "checks": groundcount::report::checks_json(&s.checks),
+            "sentence_refused": match w.sentence() {
+                Sentence::Cite(_) => None,
+                Sentence::Refused(why) => Some(why),
+            },
         }))? + "\n"),
         fmt => {
             let mut t = Table::new(&["file written"]);
@@ -182,7 +190,16 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 _ => t.render(),
             };
             writeln!(out)?;
-            writeln!(out, "{}", w.sentence())?;
+            let unit = &c.formula_unit.name;
+            for f in s.failed_checks() {
+                writeln!(out, "{}", groundcount::report::check_failure(f, unit))?;
+            }
+            writeln!(out, "{}", groundcount::report::cited_line(&s, unit))?;
+            writeln!(out)?;
+            match w.sentence() {
+                Sentence::Cite(t) => writeln!(out, "{t}")?,
+                Sentence::Refused(why) => writeln!(out, "NOT FOR CITING: {why}")?,
+            }
             Ok(out)
         }
     }
@@ -190,7 +207,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
 
 /// The report's calorimetric comparison from a third-law analysis with a statistical
 /// entropy.
-fn comparison(r: &ThirdLaw, data: &std::path::Path) -> Comparison {
+fn comparison(r: &ThirdLaw, data: &std::path::Path, sigma_given: bool) -> Comparison {
     let stat = r
         .residual
         .as_ref()
@@ -200,6 +217,7 @@ fn comparison(r: &ThirdLaw, data: &std::path::Path) -> Comparison {
         temperature_k: r.target_k,
         s_cal: (r.s_cal, r.uncertainty.total),
         s_stat: stat,
+        s_stat_sigma_given: sigma_given,
         extrapolated: r.low_t.entropy,
         debye_temperature_k: r.low_t.debye_temperature_k,
         points: r.points.iter().map(|p| (p.t_k, p.cp)).collect(),

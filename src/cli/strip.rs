@@ -278,7 +278,17 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "iterations",
                 "ln λ",
                 &w_head,
-                "ln λ bracket",
+                "ln λ bracket width",
+                "time s",
+            ])
+            .with_csv(&[
+                "width",
+                "states",
+                "iterations",
+                "ln λ",
+                &w_head,
+                "ln λ bracket lower",
+                "ln λ bracket upper",
                 "time s",
             ]);
             for r in &s.widths {
@@ -288,8 +298,18 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     r.iterations.to_string(),
                     sig(r.ln_lambda, 15),
                     sig(r.ln_w_per_unit.exp(), 13),
-                    format!("[{}, {}]", sig(r.ln_bracket.0, 15), sig(r.ln_bracket.1, 15)),
+                    sig(r.ln_bracket.1 - r.ln_bracket.0, 2),
                     format!("{:.3}", r.seconds),
+                ]);
+                t.csv_row(vec![
+                    r.width.to_string(),
+                    r.states.to_string(),
+                    r.iterations.to_string(),
+                    report::number(r.ln_lambda),
+                    report::number(r.ln_w_per_unit.exp()),
+                    report::number(r.ln_bracket.0),
+                    report::number(r.ln_bracket.1),
+                    report::number(r.seconds),
                 ]);
             }
             match format {

@@ -13,6 +13,17 @@
 //! [`estimate`] takes a crystal and returns an [`Estimate`] for the infinite crystal
 //! (`cells: None`); [`for_model`] evaluates the same sum on a given finite model.
 //!
+//! # When it means nothing
+//!
+//! The formula multiplies fractions of allowed local assignments as if the constraints were
+//! independent. For some rules it falls below 1 per formula unit (hard hexagons:
+//! 2 · (3/4)³ = 0.844 per site), a negative entropy. No count can give that: the number of
+//! arrangements of a cell is 0 or at least 1, so W per formula unit is 0 or at least 1, in
+//! every cell and in the limit. [`caveat`] finds such values from the numbers, for any
+//! rule, and says why they are not meaningful; the Bethe approximation, which accounts
+//! for how constraints that share a variable bias each other, then carries the local
+//! estimate.
+//!
 //! # Complexity
 //!
 //! The crystal is compiled on a periodic cell just large enough that no constraint sees a
@@ -20,6 +31,8 @@
 //! that cell's size.
 
 use std::time::Instant;
+
+use serde::Serialize;
 
 use crate::cluster::{Cells, Cluster};
 use crate::crystal::Crystal;
@@ -87,5 +100,103 @@ pub fn infinite_crystal(method: Method, crystal: &Crystal, ln_w: f64, start: Ins
         sigma_ln_w: None,
         seconds: start.elapsed().as_secs_f64(),
         peak_states: None,
+    }
+}
+
+/// Why a local estimate (Pauling's, or the Bethe approximation) is not a meaningful value of
+/// W for the rule it was computed for. Derived from the numbers, never from the rule's kind.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[serde(tag = "kind", rename_all = "kebab-case")]
+#[non_exhaustive]
+pub enum Caveat {
+    /// 0 < W < 1 per formula unit, i.e. S0 < 0: impossible for a count, which is 0 or at
+    /// least 1 in every cell, so that W per formula unit is 0 or at least 1.
+    BelowOne {
+        /// The estimate's W per formula unit.
+        w_per_unit: f64,
+    },
+}
+
+impl Caveat {
+    /// The reason in words (no command-line terms).
+    pub fn explain(&self, unit: &str) -> String {
+        match self {
+            Caveat::BelowOne { w_per_unit } => format!(
+                "W = {w_per_unit:.6} per {unit} is below 1 (S0 < 0): the independent-constraint \
+                 product is not meaningful for this rule, since a count of arrangements is 0 or \
+                 at least 1 and W per {unit} therefore 0 or at least 1"
+            ),
+        }
+    }
+}
+
+/// Whether a local estimate is not meaningful, and why (`None`: nothing against it). A
+/// tolerance of 1e-9 in ln W keeps rounding noise of an exact 1 from raising it.
+pub fn caveat(e: &Estimate) -> Option<Caveat> {
+    let ln = e.ln_w_per_unit;
+    (ln.is_finite() && ln < -1e-9).then(|| Caveat::BelowOne {
+        w_per_unit: ln.exp(),
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::Lattice;
+
+    fn lattice(name: &str) -> Lattice {
+        let path = format!("{}/lattices/{name}", env!("CARGO_MANIFEST_DIR"));
+        Lattice::from_file(std::path::Path::new(&path)).unwrap()
+    }
+
+    /// Hard hexagons: three bonds per site, each allowing 3 of its 4 occupancies, so
+    /// W_P = 2 · (3/4)³ = 27/32 per site, below 1 and flagged; Pauling's 3/2 for ice
+    /// (Pauling 1935, J. Am. Chem. Soc. 57, 2680) and 1 for dimers are not.
+    #[test]
+    fn issue11_pauling_below_one_is_flagged_from_the_number() {
+        let p = estimate(&lattice("hard-hexagons.yaml").crystal).unwrap();
+        assert!(
+            (p.w_per_unit() - 27.0 / 32.0).abs() < 1e-12,
+            "{}",
+            p.w_per_unit()
+        );
+        match caveat(&p) {
+            Some(Caveat::BelowOne { w_per_unit }) => {
+                assert!((w_per_unit - 27.0 / 32.0).abs() < 1e-12)
+            }
+            other => panic!("{other:?}"),
+        }
+        for name in ["ice-ih.yaml", "square-dimers.yaml", "hard-squares.yaml"] {
+            let p = estimate(&lattice(name).crystal).unwrap();
+            assert_eq!(caveat(&p), None, "{name}: W = {}", p.w_per_unit());
+        }
+    }
+
+    /// Spins held fixed by a table rule: a chain … B A B A … with every A fixed to 0 by a
+    /// table on the pairs of neighbouring A's (only (0, 0) allowed), and both of A's bonds
+    /// (to the B on either side) allowing A = 0 with either B. B is free, so the count of
+    /// L cells is 2^L (W = 2 per cell, checked by the exact counter on 4 cells), but the
+    /// product treats the A's as free in every rule: W_P = 2² · (1/4) · (1/2) · (1/2) = 1/4
+    /// per cell, below 1 and flagged.
+    #[test]
+    fn issue11_fixed_spins_give_a_flagged_product() {
+        let yaml = "name: fixed\ndimensions: 1\ncell: {vectors: [[1.0]]}\n\
+                    sites: [{id: A, at: [0.0]}, {id: B, at: [0.5]}]\n\
+                    bonds:\n\
+                    - {id: ab, from: A, to: B, shift: [0]}\n\
+                    - {id: ab2, from: A, to: B, shift: [-1]}\n\
+                    groups: [{id: pin, members: [{site: A}, {site: A, shift: [1]}]}]\n\
+                    variables: [{on: sites, kind: spin}]\n\
+                    rules:\n\
+                    - {kind: table, at: pin, allowed: [[0, 0]]}\n\
+                    - {kind: table, at: bonds, allowed: [[0, 0], [0, 1]]}\n\
+                    formula_unit: {name: cell, per: cell, count: 1}\n";
+        let l = Lattice::from_yaml(yaml, "fixed.yaml").unwrap();
+        let p = estimate(&l.crystal).unwrap();
+        assert!((p.w_per_unit() - 0.25).abs() < 1e-12, "{}", p.w_per_unit());
+        assert!(matches!(caveat(&p), Some(Caveat::BelowOne { .. })));
+        let cells = crate::cluster::Cells::parse("4", None, 1).unwrap();
+        let e = l.count_exact(&cells, &Default::default()).unwrap();
+        assert_eq!(e.count.unwrap(), num_bigint::BigUint::from(16u32));
     }
 }

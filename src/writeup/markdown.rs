@@ -3,16 +3,9 @@
 
 use std::fmt::Write;
 
-use super::Writeup;
-use crate::report::{Table, method_label, sig};
-
-/// `x ± s` with s to two significant digits, or x alone when there is no s.
-fn pm(x: f64, s: Option<f64>, digits: usize) -> String {
-    match s {
-        Some(s) => format!("{} ± {}", sig(x, digits), sig(s, 2)),
-        None => sig(x, digits),
-    }
-}
+use super::{Sentence, Writeup};
+use crate::counters::pauling;
+use crate::report::{self, Columns, Table, amount, method_label, plus_minus as pm, sig};
 
 /// Render the report.
 pub fn render(w: &Writeup<'_>) -> String {
@@ -27,7 +20,7 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
     let s = w.survey;
     let unit = &c.formula_unit.name;
     let p = &s.pauling;
-    let b = w.best();
+    let cited = w.cited();
     writeln!(o, "# Residual entropy of {}\n", c.name)?;
     if let Some(a) = &c.about {
         writeln!(o, "{}\n", a.trim())?;
@@ -64,7 +57,7 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
         format!(
             "{unit}: {}, {} per cell",
             c.formula_unit.describe(),
-            sig(c.formula_unit.per_cell(c), 6)
+            amount(c.formula_unit.per_cell(c))
         ),
     ]);
     writeln!(o, "{}", t.render_markdown())?;
@@ -78,43 +71,91 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
          estimate); exact counts have none.\n",
         crate::thermo::R
     )?;
-    let mut t = Table::new(&[
-        "method",
-        "cell",
-        "formula units",
-        &format!("W per {unit}"),
-        "S0/R",
-        "S0 J/(mol K)",
-    ]);
-    for e in s.estimates() {
-        t.row(vec![
-            method_label(&e),
-            e.cells.clone().unwrap_or_else(|| "infinite crystal".into()),
-            if e.cells.is_some() {
-                sig(e.formula_units, 6)
-            } else {
-                "—".into()
-            },
-            pm(e.w_per_unit(), e.sigma_w(), 10),
-            pm(e.s_over_r(), e.sigma_ln_w, 8),
-            pm(e.s_j_per_mol_k(), e.sigma_s_j_per_mol_k(), 6),
-        ]);
-    }
-    writeln!(o, "{}", t.render_markdown())?;
+    let columns = Columns {
+        count: false,
+        time: false,
+    };
     writeln!(
         o,
-        "**Cited value** ({}{}): W = {} per {unit}, S0 = {} J/(mol K) = {} R; \
-         {:+.3} % in W from Pauling's estimate.\n",
-        method_label(b),
-        b.cells
-            .as_deref()
-            .map(|c| format!(", {c}"))
-            .unwrap_or_default(),
-        pm(b.w_per_unit(), b.sigma_w(), 8),
-        pm(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 6),
-        pm(b.s_over_r(), b.sigma_ln_w, 6),
-        100.0 * (b.w_per_unit() / p.w_per_unit() - 1.0)
+        "{}",
+        report::survey_table(s, unit, columns).render_markdown()
     )?;
+    writeln!(
+        o,
+        "`units` is the number of formula units ({unit}) in the cell.\n"
+    )?;
+    for e in [Some(p), s.bethe.as_ref()].into_iter().flatten() {
+        if let Some(caveat) = pauling::caveat(e) {
+            writeln!(
+                o,
+                "\\* {}: {}{}.\n",
+                method_label(e),
+                caveat.explain(unit),
+                if e.method == crate::estimate::Method::Pauling && s.bethe.is_some() {
+                    "; the Bethe row carries the mean-field estimate"
+                } else {
+                    ""
+                }
+            )?;
+        }
+    }
+    writeln!(o, "### Cross-checks\n")?;
+    if s.checks.is_empty() {
+        writeln!(
+            o,
+            "None computed in this run: the cited value is not compared with a second route.\n"
+        )?;
+    } else {
+        writeln!(
+            o,
+            "Each value compared with a second route computed in the same run (ln W per {unit}).\n"
+        )?;
+        writeln!(
+            o,
+            "{}",
+            report::checks_table(&s.checks, unit).render_markdown()
+        )?;
+        for f in s.failed_checks() {
+            writeln!(o, "**{}.**\n", report::check_failure(f, unit))?;
+        }
+    }
+    match &cited.value {
+        Some(v) => {
+            let b = v.estimate;
+            // Compared with the local estimate that means something: Pauling's, else Bethe's.
+            let local = [Some(p), s.bethe.as_ref()]
+                .into_iter()
+                .flatten()
+                .find(|e| pauling::caveat(e).is_none());
+            writeln!(
+                o,
+                "**Cited value** ({}, {}): W = {} per {unit}, S0 = {} J/(mol K) = {} R{}. \
+                 Why this one: {}.\n",
+                method_label(b),
+                report::cell_label(b),
+                pm(b.w_per_unit(), b.sigma_w(), 12),
+                pm(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 12),
+                pm(b.s_over_r(), b.sigma_ln_w, 12),
+                local
+                    .filter(|l| !std::ptr::eq(*l, b))
+                    .map(|l| format!(
+                        "; {:+.3} % in W from {}",
+                        100.0 * (b.w_per_unit() / l.w_per_unit() - 1.0),
+                        if l.method == crate::estimate::Method::Pauling {
+                            "Pauling's estimate"
+                        } else {
+                            "the Bethe approximation"
+                        }
+                    ))
+                    .unwrap_or_default(),
+                report::reason_words(s, v)
+            )?;
+        }
+        None => writeln!(o, "**No value can be cited** from this run.\n")?,
+    }
+    for passed in &cited.passed_over {
+        writeln!(o, "**Warning:** {}.\n", report::refusal_words(passed, unit))?;
+    }
     if !s.stopped.is_empty() {
         writeln!(o, "Exact counts stopped: {}.\n", s.stopped)?;
     }
@@ -136,7 +177,7 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
         for e in &s.exact {
             t.row(vec![
                 e.cells.clone().unwrap_or_default(),
-                sig(e.formula_units, 6),
+                amount(e.formula_units),
                 e.count.as_ref().map(|c| c.to_string()).unwrap_or_default(),
                 sig(e.w_per_unit(), 10),
             ]);
@@ -186,7 +227,7 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
         t.row(vec!["cell (the largest sampled)".into(), m.cells.clone()]);
         t.row(vec![
             "formula units".into(),
-            sig(x.estimate.formula_units, 6),
+            amount(x.estimate.formula_units),
         ]);
         t.row(vec!["seed".into(), x.seed.to_string()]);
         t.row(vec!["replicas".into(), x.replicas.to_string()]);
@@ -242,7 +283,14 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
         ]);
         t.row(vec![
             "statistical entropy S_stat (given)".into(),
-            format!("{} J/(mol K)", pm(k.s_stat.0, Some(k.s_stat.1), 6)),
+            if k.s_stat_sigma_given {
+                format!("{} J/(mol K)", pm(k.s_stat.0, Some(k.s_stat.1), 6))
+            } else {
+                format!(
+                    "{} J/(mol K), given without 1σ (0 used)",
+                    sig(k.s_stat.0, 6)
+                )
+            },
         ]);
         t.row(vec![
             "residual S_stat − S_cal".into(),
@@ -252,30 +300,53 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
             format!("W per {unit} = exp(residual/R)"),
             pm(wk, Some(dwk), 4),
         ]);
+        if let Some(v) = &cited.value {
+            let b = v.estimate;
+            t.row(vec![
+                format!("computed ({}, cited)", method_label(b)),
+                format!(
+                    "{} J/(mol K)",
+                    pm(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 6)
+                ),
+            ]);
+        }
         t.row(vec![
-            format!("computed ({})", method_label(b)),
-            format!(
-                "{} J/(mol K)",
-                pm(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 6)
-            ),
-        ]);
-        t.row(vec![
-            "Pauling".into(),
+            if pauling::caveat(p).is_some() {
+                "Pauling (not meaningful: W below 1)".into()
+            } else {
+                "Pauling".into()
+            },
             format!("{} J/(mol K)", sig(p.s_j_per_mol_k(), 6)),
         ]);
         writeln!(o, "{}", t.render_markdown())?;
-        let z = (b.s_j_per_mol_k() - r) / b.sigma_s_j_per_mol_k().unwrap_or(0.0).hypot(dr);
-        writeln!(
-            o,
-            "The computed value differs from the calorimetric residual by {} combined standard errors \
-             ({}).\n",
-            sig(z.abs(), 2),
-            if z.abs() <= 2.0 {
-                "consistent"
-            } else {
-                "not consistent at 2σ"
+        if !k.s_stat_sigma_given {
+            writeln!(
+                o,
+                "The statistical entropy was given without an uncertainty: σ = 0 is used, so the \
+                 residual's 1σ holds only the calorimetric part.\n"
+            )?;
+        }
+        match &cited.value {
+            Some(v) => {
+                let b = v.estimate;
+                let z = (b.s_j_per_mol_k() - r) / b.sigma_s_j_per_mol_k().unwrap_or(0.0).hypot(dr);
+                writeln!(
+                    o,
+                    "The computed value differs from the calorimetric residual by {} combined standard errors \
+                     ({}).\n",
+                    sig(z.abs(), 2),
+                    if z.abs() <= 2.0 {
+                        "consistent"
+                    } else {
+                        "not consistent at 2σ"
+                    }
+                )?;
             }
-        )?;
+            None => writeln!(
+                o,
+                "No computed value can be cited from this run, so none is compared.\n"
+            )?,
+        }
     }
     let figures = w.figures();
     if !figures.is_empty() {
@@ -312,7 +383,10 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
     }
     writeln!(o)?;
     writeln!(o, "## To cite\n")?;
-    writeln!(o, "> {}\n", w.sentence())?;
+    match w.sentence() {
+        Sentence::Cite(t) => writeln!(o, "> {t}\n")?,
+        Sentence::Refused(why) => writeln!(o, "**Not for citing:** {why}.\n")?,
+    }
     writeln!(o, "## Run\n")?;
     writeln!(o, "- groundcount {}, {}", w.meta.version, w.meta.date)?;
     writeln!(o, "- budget: {} s", sig(s.budget, 4))?;

@@ -21,9 +21,10 @@ mod plots;
 use serde_json::{Value, json};
 
 use crate::Lattice;
-use crate::estimate::{Estimate, Method};
-use crate::report::{estimate_json, method_label};
-use crate::survey::Survey;
+use crate::counters::pauling;
+use crate::estimate::Method;
+use crate::report::{amount, estimate_json, method_label, plus_minus, sig};
+use crate::survey::{Cited, CitedReason, CitedValue, Survey};
 use crate::thermo;
 
 pub use plots::Figure;
@@ -51,6 +52,8 @@ pub struct Comparison {
     pub s_cal: (f64, f64),
     /// Statistical entropy at that temperature, J/(mol K), and its 1σ.
     pub s_stat: (f64, f64),
+    /// Whether the statistical entropy came with a 1σ (without one, σ = 0 is used).
+    pub s_stat_sigma_given: bool,
     /// Entropy added below the lowest measured temperature (Debye T³), J/(mol K).
     pub extrapolated: f64,
     /// Debye temperature of the low-temperature fit, K.
@@ -63,15 +66,6 @@ pub struct Comparison {
     pub curve: Vec<(f64, f64)>,
     /// The Debye T³ extrapolation below the data: (T in K, Cp/T in J/(mol K²)).
     pub debye_curve: Vec<(f64, f64)>,
-}
-
-/// A number of formula units in words: a whole number without decimals.
-fn count_of(units: f64) -> String {
-    if (units - units.round()).abs() < 1e-9 {
-        format!("{}", units.round() as u64)
-    } else {
-        crate::report::sig(units, 6)
-    }
 }
 
 impl Comparison {
@@ -117,81 +111,141 @@ impl<'a> Writeup<'a> {
         }
     }
 
-    /// The estimate to cite (see [`Survey::best`]).
-    pub fn best(&self) -> &Estimate {
-        self.survey.best()
+    /// The value to cite and why (see [`Survey::cited`]).
+    pub fn cited(&self) -> Cited<'a> {
+        self.survey.cited()
     }
 
     /// How the cited number was made, in words, for the paste-able sentence.
-    fn provenance(&self) -> String {
+    fn provenance(&self, v: &CitedValue<'_>) -> String {
         let s = self.survey;
         let unit = &self.lattice.crystal.formula_unit.name;
-        if let Some(t) = &s.strips {
-            let w: Vec<usize> = t.widths.iter().map(|r| r.width).collect();
-            return format!(
-                "the largest eigenvalue of the column transfer matrix on periodic strips of width {}..{} cells, extrapolated to infinite width",
-                w.first().copied().unwrap_or(0),
-                w.last().copied().unwrap_or(0)
-            );
-        }
-        if let (Some(x), Some(m)) = (&s.extrapolated, &s.sampled) {
-            return format!(
-                "Monte Carlo thermodynamic integration on the cells {} (up to {} {unit}; {} replicas per cell, seed {}), extrapolated to the infinite crystal by the weighted fit {}",
-                crate::survey::cell_list(&s.sampled_sizes),
-                count_of(m.sampled.estimate.formula_units),
-                m.sampled.replicas,
-                m.sampled.seed,
-                x.fit.form()
-            );
-        }
-        if let Some(m) = &s.sampled {
-            return format!(
-                "Monte Carlo thermodynamic integration on a {} cell ({} {unit}; {} replicas, {} measured sweeps, seed {})",
-                m.cells,
-                count_of(m.sampled.estimate.formula_units),
-                m.sampled.replicas,
-                m.sampled.samples,
-                m.sampled.seed
-            );
-        }
-        if let Some(e) = s.largest_exact() {
-            return format!(
+        let e = v.estimate;
+        match v.reason {
+            CitedReason::TransferMatrix => {
+                let w: Vec<usize> = s
+                    .strips
+                    .as_ref()
+                    .map(|t| t.widths.iter().map(|r| r.width).collect())
+                    .unwrap_or_default();
+                format!(
+                    "the largest eigenvalue of the column transfer matrix on periodic strips of width {}..{} cells, extrapolated to infinite width",
+                    w.first().copied().unwrap_or(0),
+                    w.last().copied().unwrap_or(0)
+                )
+            }
+            CitedReason::MonteCarloExtrapolated => {
+                let (m, form) = match (&s.sampled, &s.extrapolated) {
+                    (Some(m), Some(x)) => (m, x.fit.form()),
+                    _ => return "Monte Carlo thermodynamic integration".into(),
+                };
+                format!(
+                    "Monte Carlo thermodynamic integration on the cells {} (up to {} {unit}; {} replicas per cell, seed {}), extrapolated to the infinite crystal by the weighted fit {}",
+                    crate::survey::cell_list(&s.sampled_sizes),
+                    amount(m.sampled.estimate.formula_units),
+                    m.sampled.replicas,
+                    m.sampled.seed,
+                    form
+                )
+            }
+            CitedReason::MonteCarloCell => match &s.sampled {
+                Some(m) => format!(
+                    "Monte Carlo thermodynamic integration on a {} cell ({} {unit}; {} replicas, {} measured sweeps, seed {}; a finite cell, not the infinite crystal)",
+                    m.cells,
+                    amount(m.sampled.estimate.formula_units),
+                    m.sampled.replicas,
+                    m.sampled.samples,
+                    m.sampled.seed
+                ),
+                None => "Monte Carlo thermodynamic integration on a finite cell".into(),
+            },
+            CitedReason::ExactCell => format!(
                 "an exact count of the arrangements of a {} cell ({} {unit}; a finite cell, not the infinite crystal)",
                 e.cells.as_deref().unwrap_or(""),
-                crate::report::sig(e.formula_units, 6)
-            );
+                amount(e.formula_units)
+            ),
+            CitedReason::Bethe => {
+                "the Bethe approximation (belief propagation; an approximation, no count ran)"
+                    .into()
+            }
+            CitedReason::Pauling => {
+                "Pauling's independent-constraint estimate (an approximation; no count ran)".into()
+            }
         }
-        "Pauling's independent-constraint estimate (no count ran)".into()
     }
 
-    /// The sentence a user can paste into a paper (see [`uncertainty_meaning`]).
-    pub fn sentence(&self) -> String {
+    /// The sentence a user can paste into a paper (see [`uncertainty_meaning`]), or the
+    /// reason there is none: nothing can be cited, or a cross-check of the run failed (a
+    /// disagreement means some number of the run is wrong, so none is offered for pasting).
+    pub fn sentence(&self) -> Sentence {
         let c = &self.lattice.crystal;
         let unit = &c.formula_unit.name;
-        let b = self.best();
-        let p = &self.survey.pauling;
-        let value = |x: f64, s: Option<f64>, digits: usize| match s {
-            Some(s) => format!(
-                "{} ± {}",
-                crate::report::sig(x, digits),
-                crate::report::sig(s, 2)
-            ),
-            None => crate::report::sig(x, digits),
+        let cited = self.cited();
+        let failed = self.survey.failed_checks();
+        if !failed.is_empty() {
+            let what: Vec<String> = failed
+                .iter()
+                .map(|k| {
+                    format!(
+                        "{} against the {} (W = {} against {} per {unit})",
+                        method_label_of(k.method),
+                        crate::report::route_words(&k.route),
+                        sig(k.value.exp(), 8),
+                        sig(k.reference.exp(), 8)
+                    )
+                })
+                .collect();
+            return Sentence::Refused(format!(
+                "no sentence to paste: a cross-check of this run failed ({}); a disagreement \
+                 means a number of this run is wrong, so none is offered for citing until it \
+                 is understood",
+                what.join("; ")
+            ));
+        }
+        let Some(v) = &cited.value else {
+            let why: Vec<String> = cited
+                .passed_over
+                .iter()
+                .map(|p| crate::report::refusal_words(p, unit))
+                .collect();
+            return Sentence::Refused(format!(
+                "no sentence to paste: no value of this run can be cited ({})",
+                why.join("; ")
+            ));
         };
-        format!(
+        let b = v.estimate;
+        let p = &self.survey.pauling;
+        let local = match (pauling::caveat(p), &self.survey.bethe) {
+            (None, _) => format!(
+                "Pauling's estimate: W = {}, S0 = {} J/(mol K)",
+                sig(p.w_per_unit(), 8),
+                sig(p.s_j_per_mol_k(), 6)
+            ),
+            (Some(_), Some(bethe)) => format!(
+                "Pauling's independent-constraint estimate, W = {}, is below 1 and not \
+                 meaningful for this rule; the Bethe approximation gives W = {}, S0 = {} J/(mol K)",
+                sig(p.w_per_unit(), 6),
+                sig(bethe.w_per_unit(), 8),
+                sig(bethe.s_j_per_mol_k(), 6)
+            ),
+            (Some(_), None) => format!(
+                "Pauling's independent-constraint estimate, W = {}, is below 1 and not \
+                 meaningful for this rule",
+                sig(p.w_per_unit(), 6)
+            ),
+        };
+        Sentence::Cite(format!(
             "The configurational (residual) entropy of {} was computed with groundcount {} on {} from {}: \
              W = {} arrangements per {unit}, i.e. S0 = R ln W = {} J/(mol K) per mole of {unit} \
-             (Pauling's estimate: W = {}, S0 = {} J/(mol K)); {}.",
+             ({local}); {}.",
             c.name,
             self.meta.version,
             self.meta.date,
-            self.provenance(),
-            value(b.w_per_unit(), b.sigma_w(), 8),
-            value(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 6),
-            crate::report::sig(p.w_per_unit(), 8),
-            crate::report::sig(p.s_j_per_mol_k(), 6),
+            self.provenance(v),
+            plus_minus(b.w_per_unit(), b.sigma_w(), 12),
+            plus_minus(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 12),
             uncertainty_meaning(b.method),
-        )
+        ))
     }
 
     /// The report as one JSON document.
@@ -199,7 +253,8 @@ impl<'a> Writeup<'a> {
         let c = &self.lattice.crystal;
         let s = self.survey;
         let p = &s.pauling;
-        let b = self.best();
+        let cited = self.cited();
+        let unit = &c.formula_unit.name;
         let strips = s.strips.as_ref().map(|t| {
             json!({
                 "estimate": estimate_json(c, &t.estimate, Some(p)),
@@ -262,8 +317,11 @@ impl<'a> Writeup<'a> {
                 "residual_uncertainty": dr,
                 "w_per_unit": w,
                 "w_uncertainty": dw,
-                "computed_minus_measured_sigmas": (b.s_j_per_mol_k() - r)
-                    / b.sigma_s_j_per_mol_k().unwrap_or(0.0).hypot(dr),
+                "s_stat_uncertainty_given": k.s_stat_sigma_given,
+                "computed_minus_measured_sigmas": cited.value.as_ref().map(|v| {
+                    let b = v.estimate;
+                    (b.s_j_per_mol_k() - r) / b.sigma_s_j_per_mol_k().unwrap_or(0.0).hypot(dr)
+                }),
             })
         });
         json!({
@@ -279,11 +337,16 @@ impl<'a> Writeup<'a> {
                 "per_cell": c.formula_unit.per_cell(c),
             },
             "budget_seconds": s.budget,
-            "cited": {
-                "method": b.method.name(),
-                "label": method_label(b),
-                "estimate": estimate_json(c, b, Some(p)),
-            },
+            "cited": cited.value.as_ref().map(|v| json!({
+                "method": v.estimate.method.name(),
+                "label": method_label(v.estimate),
+                "reason": v.reason,
+                "why": crate::report::reason_words(s, v),
+                "infinite_crystal": v.reason.is_infinite_crystal(),
+                "estimate": estimate_json(c, v.estimate, Some(p)),
+            })),
+            "passed_over": crate::report::passed_over_json(&cited, unit),
+            "checks": crate::report::checks_json(&s.checks),
             "pauling": estimate_json(c, p, None),
             "bethe": s.bethe.as_ref().map(|e| estimate_json(c, e, Some(p))),
             "exact": s.exact.iter().map(|e| estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
@@ -293,7 +356,14 @@ impl<'a> Writeup<'a> {
             "monte_carlo_infinite": sizes,
             "calorimetry": comparison,
             "notes": s.notes,
-            "sentence": self.sentence(),
+            "sentence": match self.sentence() {
+                Sentence::Cite(t) => Value::from(t),
+                Sentence::Refused(_) => Value::Null,
+            },
+            "sentence_refused": match self.sentence() {
+                Sentence::Cite(_) => Value::Null,
+                Sentence::Refused(why) => Value::from(why),
+            },
         })
     }
 
@@ -305,6 +375,35 @@ impl<'a> Writeup<'a> {
     /// The SVG figures that apply to this survey.
     pub fn figures(&self) -> Vec<Figure> {
         plots::figures(self)
+    }
+}
+
+/// The sentence to paste into a paper, or why there is none.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Sentence {
+    /// The sentence.
+    Cite(String),
+    /// Why no sentence is offered (a failed cross-check, or nothing citable).
+    Refused(String),
+}
+
+impl Sentence {
+    /// The sentence, or the refusal in words.
+    pub fn text(&self) -> &str {
+        match self {
+            Sentence::Cite(t) | Sentence::Refused(t) => t,
+        }
+    }
+}
+
+/// A method's name as in tables.
+fn method_label_of(m: Method) -> &'static str {
+    match m {
+        Method::Pauling => "Pauling",
+        Method::Bethe => "Bethe",
+        Method::Exact => "exact count",
+        Method::MonteCarlo => "Monte Carlo",
+        Method::TransferMatrix => "transfer matrix",
     }
 }
 
