@@ -36,7 +36,7 @@ pub struct LatticeSpec {
     /// The unit cell.
     pub cell: CellSpec,
     /// Sites in fractional coordinates.
-    pub sites: Vec<SiteSpec>,
+    pub sites: Located<Vec<SiteSpec>>,
     /// Bonds, listed or generated from a distance window.
     #[serde(default)]
     pub bonds: Vec<BondSpec>,
@@ -44,7 +44,7 @@ pub struct LatticeSpec {
     #[serde(default)]
     pub groups: Vec<GroupSpec>,
     /// Which degrees of freedom live where.
-    pub variables: Vec<VariableSpec>,
+    pub variables: Located<Vec<VariableSpec>>,
     /// The local rules.
     pub rules: Vec<RuleSpec>,
     /// What one formula unit is.
