@@ -34,6 +34,10 @@ pub const MAX_WINDOW_COORDINATION: usize = 32;
 /// Most (site pair, cell shift) candidates a distance window may test.
 pub const MAX_WINDOW_CANDIDATES: u64 = 50_000_000;
 
+/// Most sites and bonds the smallest periodic cluster of a crystal (a cube of 2·reach + 1
+/// cells) may hold; longer shifts are refused when the file is read.
+pub const MAX_PROBE_ENTITIES: u64 = 1 << 22;
+
 /// Fewest and most formula units a `per: cell` count may give one cell.
 pub const UNITS_PER_CELL_RANGE: (f64, f64) = (0.01, 1e6);
 
@@ -387,7 +391,11 @@ pub fn number_word(x: f64) -> String {
     if x.is_nan() {
         "NaN (not a number)".into()
     } else if x.is_infinite() {
-        if x > 0.0 { "infinity".into() } else { "-infinity".into() }
+        if x > 0.0 {
+            "infinity".into()
+        } else {
+            "-infinity".into()
+        }
     } else if x != 0.0 && !(1e-4..1e15).contains(&x.abs()) {
         format!("{x:e}")
     } else {
@@ -981,7 +989,62 @@ impl Crystal {
             return ck.at(&fu.per, "`count` applies only with `per: cell`");
         }
         crystal.formula_unit.basis = basis;
+        crystal.check_probe_size(&spec, &ck)?;
         Ok(crystal)
+    }
+
+    /// Refuse shifts so long that the smallest periodic cluster the counters build (a cube
+    /// of 2·reach + 1 cells, at least 3, for Pauling's estimate and `inspect`) would be out of
+    /// all proportion, pointing at the longest shift.
+    fn check_probe_size(&self, spec: &LatticeSpec, ck: &Checker) -> Result<()> {
+        let reach = self.reach();
+        let n = (2 * reach + 1).max(3) as u64;
+        let per_cell = (self.sites.len() + self.bonds.len()) as u64;
+        let cells = n.saturating_pow(self.dimensions as u32);
+        let entities = cells.saturating_mul(per_cell);
+        if entities <= MAX_PROBE_ENTITIES {
+            return Ok(());
+        }
+        // The written shift (or window) that reaches farthest.
+        let longest = |v: &[i64]| v.iter().map(|x| x.unsigned_abs()).max().unwrap_or(0);
+        let mut culprit: (u64, Position) = (0, Position::default());
+        let mut consider = |r: u64, p: Position| {
+            if r > culprit.0 || culprit.1.known().is_none() {
+                culprit = (r, p);
+            }
+        };
+        for b in &spec.bonds {
+            if let Some(sh) = &b.shift {
+                consider(longest(&sh.value), position_of(sh));
+            }
+            if let Some(d) = &b.distance {
+                let r = self
+                    .bonds
+                    .iter()
+                    .filter(|x| x.id.starts_with(&b.id.value))
+                    .map(|x| longest(&x.shift))
+                    .max()
+                    .unwrap_or(0);
+                consider(r, position_of(d));
+            }
+        }
+        for g in &spec.groups {
+            for m in &g.members.value {
+                if let Some(sh) = &m.shift {
+                    consider(longest(&sh.value), position_of(sh));
+                }
+            }
+        }
+        let size = vec![n.to_string(); self.dimensions].join("x");
+        ck.err(
+            culprit.1,
+            format!(
+                "shifts reaching {reach} cells make the smallest periodic cluster {size} cells of {} \
+                 sites and bonds each ({entities} in all, at most {MAX_PROBE_ENTITIES}); expected shifts \
+                 to nearby cells",
+                per_cell
+            ),
+        )
     }
 
     /// Cells to search along each axis for pairs up to distance `max` (cell heights bound
