@@ -378,6 +378,9 @@ fn plain_message(first: &str, found: &str) -> String {
             expected_words(expected)
         );
     }
+    if first.starts_with("non-finite float") {
+        return format!("expected a finite number here{found}");
+    }
     if first.starts_with("cannot deserialize null") || first.contains("use Option<") {
         return format!("expected a value here{found}");
     }
@@ -392,7 +395,7 @@ fn plain_message(first: &str, found: &str) -> String {
         _ => {
             if first.starts_with("expected ") && !first.contains(" found") {
                 format!("{first}{found}")
-            } else if let Some(at) = found.strip_prefix(", found ") {
+            } else if let Some(at) = found.strip_prefix(", found ").filter(|at| *at != "nothing") {
                 format!("{first} (at {at})")
             } else {
                 first.to_string()
