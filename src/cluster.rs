@@ -144,6 +144,50 @@ impl fmt::Display for Cells {
     }
 }
 
+/// A lower bound on the number of unit cells that any sweep of the frontier counter keeps on
+/// its frontier at once, when it is clear without building the cell: the crystal's rules
+/// tie each cell to its neighbours along every axis, so sweeping along any axis keeps a
+/// whole cross-section open — at least the second-largest of the sizes (the smaller in
+/// 2D, the middle one in 3D). `None` when some axis is not tied or the crystal is 1D.
+///
+/// Each cell on the frontier holds at least one variable of at least one bit, so a bound
+/// above the counter's 63 bits means the count cannot run, whatever the order.
+pub fn frontier_cells_lower_bound(crystal: &Crystal, cells: &Cells) -> Option<usize> {
+    let dims = crystal.dimensions;
+    if dims < 2 || cells.dimensions != dims {
+        return None;
+    }
+    // Axes along which some rule instance reads variables in two cells one step apart.
+    let mut tied = [false; 3];
+    for rule in &crystal.rules {
+        for inst in &rule.instances {
+            let homes: Vec<Shift> = inst
+                .slots
+                .iter()
+                .map(|s| match s.entity {
+                    Entity::Site { shift, .. } | Entity::Bond { shift, .. } => shift,
+                })
+                .collect();
+            for a in &homes {
+                for b in &homes {
+                    let d = [b[0] - a[0], b[1] - a[1], b[2] - a[2]];
+                    for k in 0..dims {
+                        if d[k].abs() == 1 && (0..dims).all(|j| j == k || d[j] == 0) {
+                            tied[k] = true;
+                        }
+                    }
+                }
+            }
+        }
+    }
+    if !tied[..dims].iter().all(|&t| t) {
+        return None;
+    }
+    let mut sizes: Vec<usize> = cells.counts[..dims].to_vec();
+    sizes.sort_unstable();
+    Some(sizes[dims - 2])
+}
+
 /// A site of the cluster: which crystal site, in which cell.
 #[derive(Clone, Copy, Debug)]
 pub struct ClusterSite {

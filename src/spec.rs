@@ -382,7 +382,7 @@ fn plain_message(first: &str, found: &str) -> String {
         return format!("expected a finite number here{found}");
     }
     if first.starts_with("cannot deserialize null") || first.contains("use Option<") {
-        return format!("expected a value here{found}");
+        return "expected a value here, found nothing".to_string();
     }
     match first {
         "expected sequence start" => {

@@ -30,17 +30,38 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     super::check_budget(args.budget)?;
     let lattice = load(args.file.as_deref())?;
     let c = &lattice.crystal;
-    let unit = c.formula_unit.name.clone();
     let (observer, bars) = args.common.survey_progress();
-    let config = SurveyConfig {
+    let mut config = SurveyConfig {
         budget: args.budget,
         max_states: args.max_states,
         observer,
+        interrupt: super::interrupt(),
         ..SurveyConfig::default()
     };
+    config.sample.interrupt = config.interrupt.clone();
     let result = with_threads(args.common.threads, || survey(c, &config))?;
     bars.finish();
     let s = result?;
+    if s.interrupted {
+        // Print what was finished, then say it was interrupted (exit 130).
+        let output = render(&args, &lattice, &s)?;
+        return Err(super::Partial {
+            output,
+            note: "the table holds what was finished before Ctrl-C".into(),
+        }
+        .into());
+    }
+    render(&args, &lattice, &s)
+}
+
+/// The output of a finished (or interrupted) survey.
+fn render(
+    args: &Args,
+    lattice: &groundcount::Lattice,
+    s: &groundcount::survey::Survey,
+) -> anyhow::Result<String> {
+    let c = &lattice.crystal;
+    let unit = c.formula_unit.name.clone();
     let p = &s.pauling;
     let rows = s.estimates();
     let stopped = &s.stopped;
