@@ -29,7 +29,7 @@ pub const MAX_SITES: usize = 10_000;
 /// Most bonds one distance window may give a single site: physical coordinations stay far
 /// below; a window that gives more is almost surely wider than meant, and would make the
 /// rule tables and the clusters built from it enormous.
-pub const MAX_WINDOW_COORDINATION: usize = 32;
+pub const MAX_WINDOW_COORDINATION: usize = 16;
 
 /// Most (site pair, cell shift) candidates a distance window may test.
 pub const MAX_WINDOW_CANDIDATES: u64 = 50_000_000;

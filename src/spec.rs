@@ -234,7 +234,23 @@ pub fn read_file(path: &Path) -> Result<Vec<u8>> {
             "is a directory; expected a lattice YAML file".into(),
         ));
     }
-    std::fs::read(path).map_err(|e| read_error(e.to_string()))
+    std::fs::read(path).map_err(|e| read_error(io_words(&e)))
+}
+
+/// An operating-system error in words, without its error number.
+pub fn io_words(e: &std::io::Error) -> String {
+    use std::io::ErrorKind;
+    match e.kind() {
+        ErrorKind::NotFound => "no such file".into(),
+        ErrorKind::PermissionDenied => "permission denied".into(),
+        _ => {
+            let text = e.to_string();
+            match text.find(" (os error") {
+                Some(i) => text[..i].to_string(),
+                None => text,
+            }
+        }
+    }
 }
 
 /// The bytes of a lattice file as text. Bytes that are not UTF-8 are an [`Error::Syntax`]

@@ -618,7 +618,7 @@ fn issue11_subnormal_formula_unit_count_is_refused() {
 fn issue11_window_with_countless_bonds_is_refused_at_once() {
     let name = "window-with-countless-bonds.yaml";
     let out = run_within(&["inspect", arg(&fixture(name))], Duration::from_secs(30));
-    assert_input_error(&out, name, Some(16), "more than 32 bonds");
+    assert_input_error(&out, name, Some(16), "more than 16 bonds");
 }
 
 #[test]

@@ -62,14 +62,25 @@ impl HeatCapacityData {
         let bytes = std::fs::read(path).map_err(|e| Error::Data {
             path: path.to_path_buf(),
             line: 0,
-            message: format!("cannot read the heat-capacity file: {e}"),
+            message: format!(
+                "cannot read the heat-capacity file: {}",
+                crate::spec::io_words(&e)
+            ),
         })?;
-        let text = String::from_utf8(bytes).map_err(|e| Error::Data {
-            path: path.to_path_buf(),
-            line: 0,
-            message: format!("the heat-capacity file is not UTF-8 text ({e})"),
+        let text = std::str::from_utf8(&bytes).map_err(|e| {
+            let offset = e.valid_up_to();
+            let line = bytes[..offset].iter().filter(|&&b| b == b'\n').count() as u64 + 1;
+            Error::Data {
+                path: path.to_path_buf(),
+                line,
+                message: format!(
+                    "the byte 0x{:02X} at byte offset {offset} is not UTF-8 text; expected \
+                     comma-separated text in UTF-8",
+                    bytes[offset]
+                ),
+            }
         })?;
-        Self::parse(&text, path)
+        Self::parse(text, path)
     }
 
     /// Parse and check the text of a data file; `path` stands for the file in messages.
