@@ -411,6 +411,25 @@ mod tests {
     }
 
     #[test]
+    fn issue11_cross_section_bound_only_where_every_axis_is_tied() {
+        let ice =
+            crate::Lattice::from_yaml(include_str!("../lattices/square-ice.yaml"), "ice.yaml")
+                .unwrap();
+        let cells = Cells::parse("2000x70", None, 2).unwrap();
+        assert_eq!(frontier_cells_lower_bound(&ice.crystal, &cells), Some(70));
+        // Chains along a, not tied along b: the cross-section bound does not hold.
+        let chains = crate::Lattice::from_yaml(
+            "name: chains\ndimensions: 2\ncell: {vectors: [[1, 0], [0, 1]]}\n\
+             sites: [{id: S, at: [0, 0]}]\nbonds: [{id: h, from: S, to: S, shift: [1, 0]}]\n\
+             variables: [{on: bonds, kind: arrow}]\nrules: [{kind: inward, at: sites, allowed: [1]}]\n\
+             formula_unit: {name: S, per: sites}\n",
+            "chains.yaml",
+        )
+        .unwrap();
+        assert_eq!(frontier_cells_lower_bound(&chains.crystal, &cells), None);
+    }
+
+    #[test]
     fn refuses_bad_sizes() {
         for bad in ["0x4", "4by4", "4x", "4x4x4", "-1x2", "99999999x99999999"] {
             assert!(Cells::parse(bad, None, 2).is_err(), "{bad}");

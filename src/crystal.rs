@@ -539,7 +539,11 @@ impl Crystal {
                     ),
                 );
             }
-            if let Some(x) = s.at.value.iter().find(|x| !(x.abs() <= MAX_FRACTION)) {
+            if let Some(x) =
+                s.at.value
+                    .iter()
+                    .find(|x| x.is_nan() || x.abs() > MAX_FRACTION)
+            {
                 return ck.at(
                     &s.at,
                     format!(

@@ -558,3 +558,73 @@ fn found_at(text: &str, position: Position) -> Option<String> {
 pub fn embedded_path(name: &str) -> PathBuf {
     PathBuf::from(format!("<built-in {name}>"))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn message(text: &str) -> String {
+        LatticeSpec::from_yaml(text, Path::new("f.yaml"))
+            .unwrap_err()
+            .to_string()
+    }
+
+    #[test]
+    fn positions_count_every_kind_of_line_break() {
+        assert_eq!(end_position(""), Position { line: 1, column: 1 });
+        assert_eq!(end_position("ab\ncd"), Position { line: 2, column: 3 });
+        assert_eq!(
+            end_position("a\r\nb\rcd\r"),
+            Position { line: 4, column: 1 }
+        );
+        assert_eq!(end_position("é"), Position { line: 1, column: 2 });
+    }
+
+    #[test]
+    fn the_value_at_a_position() {
+        let text = "a: [1, {b: 2}, x]  # c\nname: [p, q]\n";
+        assert_eq!(
+            found_at(text, Position { line: 1, column: 5 }),
+            Some("1".into())
+        );
+        assert_eq!(
+            found_at(text, Position { line: 1, column: 8 }),
+            Some("{b: 2}".into())
+        );
+        assert_eq!(
+            found_at(text, Position { line: 2, column: 7 }),
+            Some("[p, q]".into())
+        );
+        assert_eq!(found_at(text, Position { line: 9, column: 1 }), None);
+    }
+
+    #[test]
+    fn whole_words_only() {
+        assert_eq!(
+            replace_word("u32 or u320 or (u32)", "u32", "N"),
+            "N or u320 or (N)"
+        );
+    }
+
+    #[test]
+    fn issue11_empty_comment_only_and_cr_only_files() {
+        assert_eq!(
+            message(""),
+            "f.yaml:1:1: the file is empty; expected a lattice description (see the lattice format in README.md)"
+        );
+        assert!(message("# a\n# b\n").starts_with("f.yaml:3:1: the file holds only comments"));
+        // CR alone ends a line: a comment on the first line does not hide the rest.
+        let m = message("# a comment\rname: x\rdimensions: two\r");
+        assert!(m.starts_with("f.yaml:3:13: expected a whole number"), "{m}");
+    }
+
+    #[test]
+    fn issue11_not_utf8_gives_the_byte_offset() {
+        let e = text_of(b"name: x\n  ab\xffc", Path::new("f.yaml")).unwrap_err();
+        assert_eq!(
+            e.to_string(),
+            "f.yaml:2:5: the byte 0xFF at byte offset 12 is not UTF-8 text; expected a lattice \
+             description in UTF-8 (save the file as UTF-8)"
+        );
+    }
+}
