@@ -273,8 +273,7 @@ pub fn text_of<'a>(bytes: &'a [u8], path: &Path) -> Result<&'a str> {
 
 /// The lines of a text, with any of the YAML line breaks (LF, CR LF, or CR alone).
 fn yaml_lines(text: &str) -> impl Iterator<Item = &str> {
-    text.split('\n')
-        .flat_map(|l| l.strip_suffix('\r').unwrap_or(l).split('\r'))
+    text.split("\r\n").flat_map(|l| l.split(['\n', '\r']))
 }
 
 /// The line and column just after `text` (1-based), counting any YAML line break.

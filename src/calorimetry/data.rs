@@ -96,9 +96,7 @@ impl HeatCapacityData {
         let mut columns: Option<Vec<String>> = None;
         let mut points: Vec<Point> = Vec::new();
         // Lines end in LF, CR LF or (old spreadsheets) CR alone.
-        let lines = text
-            .split('\n')
-            .flat_map(|l| l.strip_suffix('\r').unwrap_or(l).split('\r'));
+        let lines = text.split("\r\n").flat_map(|l| l.split(['\n', '\r']));
         for (i, raw) in lines.enumerate() {
             let line = i as u64 + 1;
             let content = raw.split('#').next().unwrap_or("").trim();
