@@ -6,7 +6,8 @@
 //! column (or, for bytes that are not UTF-8, a byte offset) and speaks the file's words (no
 //! parser or Rust type names). No panic, no hang.
 //!
-//! CI runs a small seeded sample (`issue11_fuzz_the_loader`, 400 cases). The long run is
+//! CI runs a small seeded sample (`issue11_fuzz_the_loader`, 2000 cases, about a second).
+//! The long run is
 //!
 //! ```text
 //! GROUNDCOUNT_FUZZ_CASES=30000 GROUNDCOUNT_FUZZ_SEED=7 \
@@ -342,7 +343,7 @@ fn env_number(name: &str, default: u64) -> u64 {
 
 #[test]
 fn issue11_fuzz_the_loader() {
-    let cases = env_number("GROUNDCOUNT_FUZZ_CASES", 400) as usize;
+    let cases = env_number("GROUNDCOUNT_FUZZ_CASES", 2000) as usize;
     let mut rng = Mix(env_number("GROUNDCOUNT_FUZZ_SEED", 11));
     let dir = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("lattices");
     let mut originals: Vec<(String, Vec<u8>)> = std::fs::read_dir(&dir)
