@@ -22,7 +22,10 @@
 //!
 //! A budget out of range ([`Error::Setting`]), a cell too large to build, or a counter failing for
 //! a reason other than its budget. Budgets running out are not errors: the survey stops
-//! that method and says why in [`Survey::stopped`] and [`Survey::notes`].
+//! that method and says why in [`Survey::stopped`] and [`Survey::notes`]. Nor is an
+//! interrupt ([`SurveyConfig::interrupt`]): the exact counts stop between steps, stages not
+//! yet begun are skipped, and the survey returns what it finished with
+//! [`Survey::interrupted`] set.
 
 use std::sync::Arc;
 use std::time::{Duration, Instant};
@@ -359,8 +362,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
     }
     if interrupted {
         notes.push(
-            "interrupted (Ctrl-C): the values above are what was finished before the interrupt"
-                .into(),
+            "interrupted (Ctrl-C): the values given are those finished before the interrupt".into(),
         );
     }
     let sampled = sampled_sizes.last().cloned();
