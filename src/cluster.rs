@@ -144,6 +144,50 @@ impl fmt::Display for Cells {
     }
 }
 
+/// A lower bound on the number of unit cells that any sweep of the frontier counter keeps on
+/// its frontier at once, when it is clear without building the cell: the crystal's rules
+/// tie each cell to its neighbours along every axis, so sweeping along any axis keeps a
+/// whole cross-section open — at least the second-largest of the sizes (the smaller in
+/// 2D, the middle one in 3D). `None` when some axis is not tied or the crystal is 1D.
+///
+/// Each cell on the frontier holds at least one variable of at least one bit, so a bound
+/// above the counter's 63 bits means the count cannot run, whatever the order.
+pub fn frontier_cells_lower_bound(crystal: &Crystal, cells: &Cells) -> Option<usize> {
+    let dims = crystal.dimensions;
+    if dims < 2 || cells.dimensions != dims {
+        return None;
+    }
+    // Axes along which some rule instance reads variables in two cells one step apart.
+    let mut tied = [false; 3];
+    for rule in &crystal.rules {
+        for inst in &rule.instances {
+            let homes: Vec<Shift> = inst
+                .slots
+                .iter()
+                .map(|s| match s.entity {
+                    Entity::Site { shift, .. } | Entity::Bond { shift, .. } => shift,
+                })
+                .collect();
+            for a in &homes {
+                for b in &homes {
+                    let d = [b[0] - a[0], b[1] - a[1], b[2] - a[2]];
+                    for k in 0..dims {
+                        if d[k].abs() == 1 && (0..dims).all(|j| j == k || d[j] == 0) {
+                            tied[k] = true;
+                        }
+                    }
+                }
+            }
+        }
+    }
+    if !tied[..dims].iter().all(|&t| t) {
+        return None;
+    }
+    let mut sizes: Vec<usize> = cells.counts[..dims].to_vec();
+    sizes.sort_unstable();
+    Some(sizes[dims - 2])
+}
+
 /// A site of the cluster: which crystal site, in which cell.
 #[derive(Clone, Copy, Debug)]
 pub struct ClusterSite {
@@ -364,6 +408,25 @@ mod tests {
         let one = Cells::parse("5", None, 2).unwrap();
         assert_eq!(one.counts, [5, 5, 1]);
         assert_eq!(one.to_string(), "5x5 periodic");
+    }
+
+    #[test]
+    fn issue11_cross_section_bound_only_where_every_axis_is_tied() {
+        let ice =
+            crate::Lattice::from_yaml(include_str!("../lattices/square-ice.yaml"), "ice.yaml")
+                .unwrap();
+        let cells = Cells::parse("2000x70", None, 2).unwrap();
+        assert_eq!(frontier_cells_lower_bound(&ice.crystal, &cells), Some(70));
+        // Chains along a, not tied along b: the cross-section bound does not hold.
+        let chains = crate::Lattice::from_yaml(
+            "name: chains\ndimensions: 2\ncell: {vectors: [[1, 0], [0, 1]]}\n\
+             sites: [{id: S, at: [0, 0]}]\nbonds: [{id: h, from: S, to: S, shift: [1, 0]}]\n\
+             variables: [{on: bonds, kind: arrow}]\nrules: [{kind: inward, at: sites, allowed: [1]}]\n\
+             formula_unit: {name: S, per: sites}\n",
+            "chains.yaml",
+        )
+        .unwrap();
+        assert_eq!(frontier_cells_lower_bound(&chains.crystal, &cells), None);
     }
 
     #[test]

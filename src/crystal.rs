@@ -14,6 +14,33 @@ use crate::spec::{AllowedSpec, LatticeSpec, Located, position_of};
 /// Largest cell shift a bond or group member may use.
 pub const MAX_SHIFT: i64 = 64;
 
+/// Shortest and longest cell vector, in the file's length units: far beyond any unit of
+/// length a crystal is described in, and far inside the range where lengths, areas and
+/// volumes are still ordinary floating-point numbers.
+pub const LENGTH_RANGE: (f64, f64) = (1e-30, 1e30);
+
+/// Largest absolute fractional coordinate of a site (sites normally lie in the cell,
+/// 0 ≤ x < 1).
+pub const MAX_FRACTION: f64 = 1000.0;
+
+/// Most sites a unit cell may list.
+pub const MAX_SITES: usize = 10_000;
+
+/// Most bonds one distance window may give a single site: physical coordinations stay far
+/// below; a window that gives more is almost surely wider than meant, and would make the
+/// rule tables and the clusters built from it enormous.
+pub const MAX_WINDOW_COORDINATION: usize = 16;
+
+/// Most (site pair, cell shift) candidates a distance window may test.
+pub const MAX_WINDOW_CANDIDATES: u64 = 50_000_000;
+
+/// Most sites and bonds the smallest periodic cluster of a crystal (a cube of 2·reach + 1
+/// cells) may hold; longer shifts are refused when the file is read.
+pub const MAX_PROBE_ENTITIES: u64 = 1 << 22;
+
+/// Fewest and most formula units a `per: cell` count may give one cell.
+pub const UNITS_PER_CELL_RANGE: (f64, f64) = (0.01, 1e6);
+
 /// Cell displacement (unused axes are zero).
 pub type Shift = [i64; 3];
 
@@ -350,6 +377,32 @@ fn determinant(m: &[[f64; 3]; 3]) -> f64 {
         + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
 }
 
+/// The length of a vector without overflow or underflow in the squares.
+fn robust_norm(a: [f64; 3]) -> f64 {
+    let m = a.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    if m == 0.0 || !m.is_finite() {
+        return m;
+    }
+    m * norm(a.map(|x| x / m))
+}
+
+/// A number as a person would write it in the file: `.nan`, `.inf`, `-.inf` or the value.
+pub fn number_word(x: f64) -> String {
+    if x.is_nan() {
+        "NaN (not a number)".into()
+    } else if x.is_infinite() {
+        if x > 0.0 {
+            "infinity".into()
+        } else {
+            "-infinity".into()
+        }
+    } else if x != 0.0 && !(1e-4..1e15).contains(&x.abs()) {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
+    }
+}
+
 fn add_shift(a: Shift, b: Shift) -> Shift {
     [a[0] + b[0], a[1] + b[1], a[2] + b[2]]
 }
@@ -410,17 +463,42 @@ impl Crystal {
                     ),
                 );
             }
-            if v.iter().any(|x| !x.is_finite()) {
-                return ck.at(vecs, format!("cell vector {} is not finite", k + 1));
+            if let Some(x) = v.iter().find(|x| !x.is_finite()) {
+                return ck.at(
+                    vecs,
+                    format!(
+                        "cell vector {} has the component {}; expected finite numbers",
+                        k + 1,
+                        number_word(*x)
+                    ),
+                );
             }
             vectors[k][..dims].copy_from_slice(v);
+            let length = robust_norm(vectors[k]);
+            let (shortest, longest) = LENGTH_RANGE;
+            if length != 0.0 && !(shortest..=longest).contains(&length) {
+                return ck.at(
+                    vecs,
+                    format!(
+                        "cell vector {} is {length:e} length units long; expected a length between \
+                         {shortest:e} and {longest:e}",
+                        k + 1
+                    ),
+                );
+            }
         }
         for (k, row) in vectors.iter_mut().enumerate().skip(dims) {
             row[k] = 1.0;
         }
-        let scale: f64 = vectors.iter().map(|v| norm(*v)).product();
-        let det = determinant(&vectors);
-        if scale == 0.0 || det.abs() <= 1e-9 * scale {
+        // Linear dependence is judged on the vectors scaled to unit length, so that the test
+        // does not depend on the unit of length.
+        let lengths = vectors.map(robust_norm);
+        let det = if lengths.contains(&0.0) {
+            0.0
+        } else {
+            determinant(&[0, 1, 2].map(|k| vectors[k].map(|x| x / lengths[k])))
+        };
+        if det.abs() <= 1e-9 {
             return ck.at(
                 vecs,
                 "the cell vectors are zero or linearly dependent (collinear or coplanar); \
@@ -430,14 +508,25 @@ impl Crystal {
 
         // Sites.
         let mut sites: Vec<Site> = Vec::new();
-        if spec.sites.is_empty() {
+        let sites_position = position_of(&spec.sites);
+        if spec.sites.value.is_empty() {
             return ck.err(
-                Position::default(),
-                "the file lists no sites; expected at least one",
+                sites_position,
+                "`sites` is an empty list; expected at least one site",
             );
         }
-        for s in &spec.sites {
-            if sites.iter().any(|o| o.id == s.id.value) {
+        if spec.sites.value.len() > MAX_SITES {
+            return ck.at(
+                &spec.sites.value[MAX_SITES].id,
+                format!(
+                    "the file lists {} sites; at most {MAX_SITES} sites per unit cell are supported",
+                    spec.sites.value.len()
+                ),
+            );
+        }
+        let mut site_ids: HashSet<&str> = HashSet::new();
+        for s in &spec.sites.value {
+            if !site_ids.insert(s.id.value.as_str()) {
                 return ck.at(&s.id, format!("site id '{}' is used twice", s.id.value));
             }
             if s.at.value.len() != dims {
@@ -447,6 +536,21 @@ impl Crystal {
                         "site '{}' has {} fractional coordinates; expected {dims}",
                         s.id.value,
                         s.at.value.len()
+                    ),
+                );
+            }
+            if let Some(x) =
+                s.at.value
+                    .iter()
+                    .find(|x| x.is_nan() || x.abs() > MAX_FRACTION)
+            {
+                return ck.at(
+                    &s.at,
+                    format!(
+                        "site '{}' has the fractional coordinate {}; expected a finite number \
+                         between -{MAX_FRACTION} and {MAX_FRACTION} (sites normally lie in the cell, 0 to 1)",
+                        s.id.value,
+                        number_word(*x)
                     ),
                 );
             }
@@ -465,12 +569,25 @@ impl Crystal {
                             ),
                         );
                     }
+                    if let Some(x) = a.value.iter().find(|x| !x.is_finite()) {
+                        return ck.at(
+                            a,
+                            format!(
+                                "the axis of site '{}' has the component {}; expected finite numbers",
+                                s.id.value,
+                                number_word(*x)
+                            ),
+                        );
+                    }
                     let mut v = [0.0; 3];
                     v[..dims].copy_from_slice(&a.value);
-                    if norm(v) == 0.0 {
+                    let length = robust_norm(v);
+                    if length == 0.0 {
                         return ck.at(a, "an arrow axis must not be the zero vector");
                     }
-                    Some(v)
+                    // Only the direction matters: keep it as a unit vector, so that huge or
+                    // tiny components cannot overflow later products.
+                    Some(v.map(|x| x / length))
                 }
             };
             sites.push(Site {
@@ -533,10 +650,13 @@ impl Crystal {
                         ),
                     );
                 }
-                if s.value.iter().any(|x| x.abs() > MAX_SHIFT) {
+                if let Some(x) = s.value.iter().find(|x| x.unsigned_abs() > MAX_SHIFT as u64) {
                     return ck.at(
                         s,
-                        format!("the shift of {what} reaches beyond ±{MAX_SHIFT} cells; expected a shift to a nearby cell"),
+                        format!(
+                            "the shift of {what} has the component {x}, beyond ±{MAX_SHIFT} cells; \
+                             expected a shift to a nearby cell"
+                        ),
                     );
                 }
                 out[..dims].copy_from_slice(&s.value);
@@ -585,9 +705,13 @@ impl Crystal {
                 }
                 let w = &distance.value;
                 if w.len() != 2 || !(w[0] >= 0.0 && w[1] > w[0] && w[1].is_finite()) {
+                    let found: Vec<String> = w.iter().map(|x| number_word(*x)).collect();
                     return ck.at(
                         distance,
-                        "`distance` must be [min, max] with 0 <= min < max",
+                        format!(
+                            "`distance` is [{}]; expected [min, max] with finite numbers, 0 <= min < max",
+                            found.join(", ")
+                        ),
                     );
                 }
                 let reach = crystal.window_reach(w[1]);
@@ -597,11 +721,17 @@ impl Crystal {
                         format!(
                             "the distance window reaches {} length units, more than {MAX_SHIFT} cells along some axis; \
                              expected a window around the bond length",
-                            w[1]
+                            number_word(w[1])
                         ),
                     );
                 }
-                let found = crystal.generate_bonds(&b.id.value, &between.value, w[0], w[1]);
+                let found = crystal
+                    .generate_bonds(&b.id.value, &between.value, w[0], w[1])
+                    .map_err(|why| Error::Invalid {
+                        path: path.to_path_buf(),
+                        position: position_of(distance),
+                        message: why,
+                    })?;
                 if found.is_empty() {
                     return ck.at(
                         distance,
@@ -649,8 +779,12 @@ impl Crystal {
                 });
             }
         }
+        // Repeated ids and repeated bonds, through hash maps (a window may give thousands).
+        let mut bond_ids: HashSet<&str> = HashSet::new();
+        let mut bond_ends: std::collections::HashMap<(usize, usize, Shift), usize> =
+            std::collections::HashMap::new();
         for (i, b) in bonds.iter().enumerate() {
-            if bonds[..i].iter().any(|o| o.id == b.id) {
+            if !bond_ids.insert(b.id.as_str()) {
                 let spec_bond = spec
                     .bonds
                     .iter()
@@ -658,11 +792,15 @@ impl Crystal {
                     .unwrap_or(&spec.bonds[0]);
                 return ck.at(&spec_bond.id, format!("bond id '{}' is used twice", b.id));
             }
-            let same = |o: &Bond| {
-                (o.from == b.from && o.to == b.to && o.shift == b.shift)
-                    || (o.from == b.to && o.to == b.from && o.shift == sub_shift([0; 3], b.shift))
-            };
-            if let Some(o) = bonds[..i].iter().find(|o| same(o)) {
+            // The same bond read backwards: (to, from, −shift).
+            let key = (b.from, b.to, b.shift);
+            let reversed = (b.to, b.from, sub_shift([0; 3], b.shift));
+            let earlier = bond_ends
+                .get(&key)
+                .or_else(|| bond_ends.get(&reversed))
+                .copied();
+            bond_ends.entry(key).or_insert(i);
+            if let Some(o) = earlier.map(|j| &bonds[j]) {
                 let spec_bond = spec
                     .bonds
                     .iter()
@@ -720,13 +858,13 @@ impl Crystal {
         }
 
         // Variables.
-        if spec.variables.is_empty() {
-            return ck.err(
-                Position::default(),
-                "the file declares no variables; expected e.g. `- {on: bonds, kind: arrow}`",
+        if spec.variables.value.is_empty() {
+            return ck.at(
+                &spec.variables,
+                "`variables` is an empty list; expected e.g. `- {on: bonds, kind: arrow}`",
             );
         }
-        for v in &spec.variables {
+        for v in &spec.variables.value {
             let kind = match v.kind.value.as_str() {
                 "arrow" => VariableKind::Arrow,
                 "spin" => VariableKind::Spin,
@@ -777,12 +915,12 @@ impl Crystal {
         }
         if crystal.bond_variables.is_some() && crystal.bonds.is_empty() {
             return ck.at(
-                &spec.variables[0].on,
+                &spec.variables.value[0].on,
                 "variables are declared on bonds but the file has no bonds",
             );
         }
         if crystal.site_variables == Some(VariableKind::Arrow)
-            && let Some(s) = spec.sites.iter().find(|s| s.axis.is_none())
+            && let Some(s) = spec.sites.value.iter().find(|s| s.axis.is_none())
         {
             return ck.at(&s.id, format!("site '{}' carries an arrow variable and needs an `axis` (the direction of state 0)", s.id.value));
         }
@@ -813,11 +951,19 @@ impl Crystal {
                 UnitBasis::Bonds
             }
             "cell" => match &fu.count {
-                Some(c) if c.value > 0.0 && c.value.is_finite() => UnitBasis::Cell(c.value),
+                Some(c) if (UNITS_PER_CELL_RANGE.0..=UNITS_PER_CELL_RANGE.1).contains(&c.value) => {
+                    UnitBasis::Cell(c.value)
+                }
                 Some(c) => {
                     return ck.at(
                         c,
-                        "`count` must be a positive number of formula units per cell",
+                        format!(
+                            "`count` is {}; expected the number of formula units in one cell, \
+                             between {} and {:e}",
+                            number_word(c.value),
+                            UNITS_PER_CELL_RANGE.0,
+                            UNITS_PER_CELL_RANGE.1
+                        ),
                     );
                 }
                 None => {
@@ -841,7 +987,62 @@ impl Crystal {
             return ck.at(&fu.per, "`count` applies only with `per: cell`");
         }
         crystal.formula_unit.basis = basis;
+        crystal.check_probe_size(&spec, &ck)?;
         Ok(crystal)
+    }
+
+    /// Refuse shifts so long that the smallest periodic cluster the counters build (a cube
+    /// of 2·reach + 1 cells, at least 3, for Pauling's estimate and `inspect`) would be out of
+    /// all proportion, pointing at the longest shift.
+    fn check_probe_size(&self, spec: &LatticeSpec, ck: &Checker) -> Result<()> {
+        let reach = self.reach();
+        let n = (2 * reach + 1).max(3) as u64;
+        let per_cell = (self.sites.len() + self.bonds.len()) as u64;
+        let cells = n.saturating_pow(self.dimensions as u32);
+        let entities = cells.saturating_mul(per_cell);
+        if entities <= MAX_PROBE_ENTITIES {
+            return Ok(());
+        }
+        // The written shift (or window) that reaches farthest.
+        let longest = |v: &[i64]| v.iter().map(|x| x.unsigned_abs()).max().unwrap_or(0);
+        let mut culprit: (u64, Position) = (0, Position::default());
+        let mut consider = |r: u64, p: Position| {
+            if r > culprit.0 || culprit.1.known().is_none() {
+                culprit = (r, p);
+            }
+        };
+        for b in &spec.bonds {
+            if let Some(sh) = &b.shift {
+                consider(longest(&sh.value), position_of(sh));
+            }
+            if let Some(d) = &b.distance {
+                let r = self
+                    .bonds
+                    .iter()
+                    .filter(|x| x.id.starts_with(&b.id.value))
+                    .map(|x| longest(&x.shift))
+                    .max()
+                    .unwrap_or(0);
+                consider(r, position_of(d));
+            }
+        }
+        for g in &spec.groups {
+            for m in &g.members.value {
+                if let Some(sh) = &m.shift {
+                    consider(longest(&sh.value), position_of(sh));
+                }
+            }
+        }
+        let size = vec![n.to_string(); self.dimensions].join("x");
+        ck.err(
+            culprit.1,
+            format!(
+                "shifts reaching {reach} cells make the smallest periodic cluster {size} cells of {} \
+                 sites and bonds each ({entities} in all, at most {MAX_PROBE_ENTITIES}); expected shifts \
+                 to nearby cells",
+                per_cell
+            ),
+        )
     }
 
     /// Cells to search along each axis for pairs up to distance `max` (cell heights bound
@@ -868,14 +1069,34 @@ impl Crystal {
         self.window_reaches(max).into_iter().max().unwrap_or(0)
     }
 
-    /// Every pair of sites of the two species whose distance lies in `[min, max]`.
-    fn generate_bonds(&self, prefix: &str, between: &[String], min: f64, max: f64) -> Vec<Bond> {
+    /// Every pair of sites of the two species whose distance lies in `[min, max]`; refused
+    /// (with the reason, in the file's words) when the search or its result would be far
+    /// larger than any physical window gives.
+    fn generate_bonds(
+        &self,
+        prefix: &str,
+        between: &[String],
+        min: f64,
+        max: f64,
+    ) -> std::result::Result<Vec<Bond>, String> {
         let reach = self.window_reaches(max);
         let pair_ok = |i: usize, j: usize| {
             let (a, b) = (&self.sites[i], &self.sites[j]);
             (a.matches(&between[0]) && b.matches(&between[1]))
                 || (a.matches(&between[1]) && b.matches(&between[0]))
         };
+        let first = self.sites.iter().filter(|s| s.matches(&between[0])).count() as u64;
+        let second = self.sites.iter().filter(|s| s.matches(&between[1])).count() as u64;
+        let shifts: u64 = reach.iter().map(|&r| 2 * r.max(0) as u64 + 1).product();
+        let candidates = first.saturating_mul(second).saturating_mul(shifts);
+        if candidates > MAX_WINDOW_CANDIDATES {
+            return Err(format!(
+                "the distance window up to {max} length units would test about {candidates} site pairs \
+                 across {shifts} neighbouring cells (at most {MAX_WINDOW_CANDIDATES}); expected a window \
+                 around the bond length"
+            ));
+        }
+        let mut coordination = vec![0usize; self.sites.len()];
         let mut out = Vec::new();
         for i in 0..self.sites.len() {
             for j in i..self.sites.len() {
@@ -893,6 +1114,20 @@ impl Crystal {
                             let c = self.cartesian(j, n);
                             let d = norm([c[0] - a[0], c[1] - a[1], c[2] - a[2]]);
                             if d >= min && d <= max {
+                                coordination[i] += 1;
+                                coordination[j] += 1;
+                                if let Some(k) = [i, j]
+                                    .into_iter()
+                                    .find(|&k| coordination[k] > MAX_WINDOW_COORDINATION)
+                                {
+                                    return Err(format!(
+                                        "the distance window [{min}, {max}] gives site '{}' more than \
+                                         {MAX_WINDOW_COORDINATION} bonds; expected a window around the \
+                                         bond length (run `inspect` with a narrower window to see the \
+                                         bond lengths)",
+                                        self.sites[k].id
+                                    ));
+                                }
                                 out.push(Bond {
                                     id: format!("{prefix}{}", out.len() + 1),
                                     from: i,
@@ -906,7 +1141,7 @@ impl Crystal {
                 }
             }
         }
-        out
+        Ok(out)
     }
 
     /// Slots of the arrows on the bonds that join the member set to the rest of the crystal.

@@ -71,9 +71,13 @@ pub struct Lattice {
 impl Lattice {
     /// Read, parse and validate a lattice file.
     pub fn from_file(path: &Path) -> Result<Lattice> {
-        let spec = spec::LatticeSpec::from_file(path)?;
-        let text = std::fs::read_to_string(path).unwrap_or_default();
-        Self::from_spec(spec, path, &text)
+        Self::from_bytes(&spec::read_file(path)?, path)
+    }
+
+    /// Parse and validate the bytes of a lattice file; `path` stands for the file in
+    /// messages. Bytes that are not UTF-8 are refused at their byte offset.
+    pub fn from_bytes(bytes: &[u8], path: impl AsRef<Path>) -> Result<Lattice> {
+        Self::from_yaml(spec::text_of(bytes, path.as_ref())?, path)
     }
 
     /// Parse and validate YAML text; `name` stands for the file in messages.

@@ -153,7 +153,13 @@ impl Model {
                     let table = match table_ids.get(&key) {
                         Some(&t) => t,
                         None => {
-                            let t = compile_table(rule, &key.1, &key.2, &inst.label)?;
+                            let t = compile_table(rule, &key.1, &key.2, &inst.label).map_err(
+                                |message| Error::Invalid {
+                                    path: crystal.path.clone(),
+                                    position: rule.position,
+                                    message,
+                                },
+                            )?;
                             tables.push(t);
                             table_ids.insert(key, tables.len() - 1);
                             tables.len() - 1
@@ -205,17 +211,25 @@ fn compile_table(
     local: &[(usize, u32)],
     radices: &[u32],
     label: &str,
-) -> Result<Table> {
+) -> std::result::Result<Table, String> {
     let size: u64 = radices
         .iter()
         .map(|&q| q as u64)
         .try_fold(1u64, |a, q| a.checked_mul(q))
         .unwrap_or(u64::MAX);
     if size > MAX_TABLE {
-        return Err(Error::Model(format!(
-            "rule '{}' at {label} has {size} local assignments (more than {MAX_TABLE}); split it into smaller rules",
-            rule.label
-        )));
+        // The product saturates at u64::MAX: say so rather than print it as a count.
+        let size = if size == u64::MAX {
+            "more than 2^64".to_string()
+        } else {
+            size.to_string()
+        };
+        return Err(format!(
+            "rule '{}' at {label} reads {} variables, {size} local assignments (at most {MAX_TABLE}); \
+             split it into smaller rules or narrow its scope",
+            rule.label,
+            radices.len()
+        ));
     }
     // The rule reads the occurrences that remain (an open boundary may have dropped some).
     let inward: Vec<u32> = local.iter().map(|&(_, w)| w).collect();

@@ -22,7 +22,10 @@
 //!
 //! A budget out of range ([`Error::Setting`]), a cell too large to build, or a counter failing for
 //! a reason other than its budget. Budgets running out are not errors: the survey stops
-//! that method and says why in [`Survey::stopped`] and [`Survey::notes`].
+//! that method and says why in [`Survey::stopped`] and [`Survey::notes`]. Nor is an
+//! interrupt ([`SurveyConfig::interrupt`]): the exact counts stop between steps, stages not
+//! yet begun are skipped, and the survey returns what it finished with
+//! [`Survey::interrupted`] set.
 
 use std::sync::Arc;
 use std::time::{Duration, Instant};
@@ -245,6 +248,9 @@ pub struct Survey {
     pub notes: Vec<String>,
     /// The budget in seconds.
     pub budget: f64,
+    /// Whether the interrupt stopped the survey before it ran everything: the estimates
+    /// are what was finished.
+    pub interrupted: bool,
 }
 
 impl Survey {
@@ -405,7 +411,13 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
     let mut stopped = String::new();
     let largest = 1usize << 20; // never build absurdly large clusters
     let per_cell = c.formula_unit.per_cell(c);
+    let mut interrupted = false;
     for cells in cell_sequence(c.dimensions) {
+        if config.interrupt.raised() {
+            interrupted = true;
+            stopped = "interrupted".into();
+            break;
+        }
         if config
             .max_exact_units
             .is_some_and(|m| cells.total() as f64 * per_cell > m)
@@ -460,6 +472,11 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
                 );
                 break;
             }
+            Err(Error::Interrupted { .. }) => {
+                interrupted = true;
+                stopped = format!("interrupted while counting {cells}");
+                break;
+            }
             Err(e) => return Err(e),
         }
         if Instant::now() > deadline {
@@ -473,12 +490,39 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
     let mut strips = None;
     let mut sampled_sizes = Vec::new();
     let mut extrapolated = None;
-    match c.dimensions {
-        2 => strips = strip_series(c, end, config, &tell, &mut notes)?,
-        3 => {
-            (sampled_sizes, extrapolated) = monte_carlo(c, config, end, &tell, &mut notes)?;
+    // Stage boundary: an interrupt skips what has not begun; a stage that stops on it
+    // keeps what it finished.
+    let stage = match c.dimensions {
+        2 => "transfer matrix",
+        3 => "Monte Carlo",
+        _ => "",
+    };
+    if interrupted || config.interrupt.raised() {
+        interrupted = true;
+        if !stage.is_empty() {
+            notes.push(format!("{stage}: not run (interrupted)"));
         }
-        _ => {}
+    } else {
+        let outcome = match c.dimensions {
+            2 => strip_series(c, end, config, &tell, &mut notes).map(|s| strips = s),
+            3 => monte_carlo(c, config, end, &tell, &mut notes)
+                .map(|(sizes, x)| (sampled_sizes, extrapolated) = (sizes, x)),
+            _ => Ok(()),
+        };
+        match outcome {
+            Ok(()) => {}
+            Err(Error::Interrupted { .. }) => {
+                notes.push(format!("{stage}: stopped (interrupted)"));
+                interrupted = true;
+            }
+            Err(e) => return Err(e),
+        }
+        interrupted |= config.interrupt.raised();
+    }
+    if interrupted {
+        notes.push(
+            "interrupted (Ctrl-C): the values given are those finished before the interrupt".into(),
+        );
     }
     let sampled = sampled_sizes.last().cloned();
     Ok(Survey {
@@ -493,6 +537,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
         checks: Vec::new(),
         notes,
         budget: config.budget,
+        interrupted,
     })
 }
 
@@ -506,6 +551,7 @@ fn strip_series(
 ) -> Result<Option<StripSeries>> {
     let strip_config = StripConfig {
         deadline: Some(end),
+        interrupt: config.interrupt.clone(),
         ..StripConfig::default()
     };
     let widths: Box<dyn Iterator<Item = usize>> = match &config.widths {

@@ -249,17 +249,13 @@ fn directory_as_file() {
 
 #[test]
 fn empty_file() {
-    assert_rejected(&fixture("empty.yaml"), "empty.yaml", None, "empty");
+    assert_fixture_rejected("empty.yaml", 1, "empty");
 }
 
 #[test]
 fn file_with_only_comments() {
-    assert_rejected(
-        &fixture("only-comments.yaml"),
-        "only-comments.yaml",
-        None,
-        "expected a lattice description",
-    );
+    // The position is the end of the file, after the last comment.
+    assert_fixture_rejected("only-comments.yaml", 5, "expected a lattice description");
 }
 
 #[test]
@@ -274,7 +270,14 @@ fn control_characters() {
 
 #[test]
 fn binary_file() {
-    assert_rejected(&fixture("binary.yaml"), "binary.yaml", None, "not UTF-8");
+    // The first byte that is not UTF-8 is 0xFF, the sixth byte of the first line.
+    assert_fixture_rejected("binary.yaml", 1, "not UTF-8");
+    let out = run(&["inspect", arg(&fixture("binary.yaml"))]);
+    assert!(
+        stderr_of(&out).contains("binary.yaml:1:6: the byte 0xFF at byte offset 5"),
+        "{}",
+        stderr_of(&out)
+    );
 }
 
 // ---------------------------------------------------------------------------------------
@@ -282,7 +285,7 @@ fn binary_file() {
 
 #[test]
 fn unknown_key() {
-    assert_fixture_rejected("unknown-key.yaml", 7, "unknown field `shfit`");
+    assert_fixture_rejected("unknown-key.yaml", 7, "unknown key `shfit`");
     let out = run(&["inspect", arg(&fixture("unknown-key.yaml"))]);
     assert!(
         mentions(&stderr_of(&out), "expected one of id, from, to, shift"),
@@ -554,4 +557,288 @@ fn messages_show_the_path_as_given() {
         message.starts_with("error: tests/data/unknown-key.yaml:7:"),
         "{message}"
     );
+}
+
+// ---------------------------------------------------------------------------------------
+// Issue 11: bad input that still got through.
+
+/// Words of the parser or of Rust that must not reach a user (the loader fuzz test in
+/// tests/fuzz.rs checks the same over thousands of mutated files).
+const FOREIGN_WORDS: [&str; 8] = [
+    "untagged",
+    "enum",
+    "Option<",
+    "invalid type",
+    "sequence",
+    "scalar",
+    "u32",
+    "18446744073709551615",
+];
+
+fn assert_plain_words(out: &Output) {
+    let e = stderr_of(out);
+    for w in FOREIGN_WORDS {
+        assert!(!e.contains(w), "`{w}` in the message: {e}");
+    }
+}
+
+#[test]
+fn issue11_nan_axis_is_refused() {
+    // Accepted before: spin ice 1x1x1 then had 0 arrangements instead of 6.
+    assert_fixture_rejected(
+        "nan-axis.yaml",
+        11,
+        "axis of site 'M0' has the component NaN",
+    );
+    let out = run(&["exact", arg(&lattice("spin-ice.yaml")), "--cells", "1"]);
+    assert!(success(&out).contains("arrangements          6\n"));
+}
+
+#[test]
+fn issue11_shift_of_minus_two_to_the_63_is_refused() {
+    // `abs()` overflowed and the shift passed the ±64 check (square ice 3x3 gave 4096).
+    assert_fixture_rejected(
+        "shift-minus-two-to-the-63.yaml",
+        11,
+        "-9223372036854775808, beyond ±64 cells",
+    );
+}
+
+#[test]
+fn issue11_nan_site_coordinate_is_refused() {
+    assert_fixture_rejected("nan-site-coordinate.yaml", 10, "fractional coordinate NaN");
+}
+
+#[test]
+fn issue11_subnormal_formula_unit_count_is_refused() {
+    assert_fixture_rejected("subnormal-unit-count.yaml", 18, "`count` is 5e-324");
+}
+
+#[test]
+fn issue11_window_with_countless_bonds_is_refused_at_once() {
+    let name = "window-with-countless-bonds.yaml";
+    let out = run_within(&["inspect", arg(&fixture(name))], Duration::from_secs(30));
+    assert_input_error(&out, name, Some(16), "more than 16 bonds");
+}
+
+#[test]
+fn issue11_cr_only_line_endings_are_line_breaks() {
+    // Called "only comments" before: the first comment line ran to the end of the file.
+    let file = fixture("cr-line-endings.yaml");
+    let out = run(&["exact", arg(&file), "--cells", "3x3"]);
+    assert!(success(&out).contains("arrangements          148\n")); // OEIS A054759
+}
+
+#[test]
+fn issue11_loader_messages_speak_the_files_words() {
+    for (name, line, phrase) in [
+        ("allowed-not-a-list.yaml", 15, "found `two`"),
+        ("name-without-value.yaml", 2, "found nothing"),
+        ("unknown-key.yaml", 7, "expected one of id, from, to, shift"),
+        ("dimensions-not-a-number.yaml", 3, "expected a whole number"),
+    ] {
+        assert_fixture_rejected(name, line, phrase);
+        assert_plain_words(&run(&["inspect", arg(&fixture(name))]));
+    }
+}
+
+#[test]
+fn issue11_oversized_rule_table_names_the_file_and_says_beyond_2_64() {
+    // The saturated product 18446744073709551615 was printed as a number of assignments,
+    // and the message named no file.
+    let name = "rule-table-too-large.yaml";
+    let out = run(&["inspect", arg(&fixture(name))]);
+    assert_input_error(&out, name, Some(22), "more than 2^64 local assignments");
+    assert_plain_words(&out);
+}
+
+#[test]
+fn issue11_too_many_threads_is_refused() {
+    let out = exact_square_ice(&["--cells", "3x3", "--threads", "100000"]);
+    assert_flag_error(&out, "--threads 100000", "at most 1024");
+}
+
+#[test]
+fn issue11_huge_exact_cell_is_refused_before_it_is_built() {
+    // Refused only after 110 s and 3 GB before.
+    let file = lattice("square-ice.yaml");
+    let out = run_within(
+        &["exact", arg(&file), "--cells", "2000x2000"],
+        Duration::from_secs(20),
+    );
+    let message = error_line(&out, BUDGET_EXCEEDED);
+    assert!(
+        message.contains("at least 2000 cells on the frontier") && message.contains("GB"),
+        "says why and how much memory: {message}"
+    );
+}
+
+/// A fresh directory for one test, under the target directory.
+fn scratch(name: &str) -> PathBuf {
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(format!("issue11-{name}"));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("a scratch directory");
+    dir
+}
+
+#[test]
+fn issue11_unwritable_output_is_found_before_the_run() {
+    // A file stands where the directory should be: nothing can be written below it.
+    let blocked = fixture("empty.yaml").join("shard.json");
+    let ice = lattice("ice-ih.yaml");
+    // 4x4x4 with 100000 replicas would take hours: the refusal must come first.
+    let out = run_within(
+        &[
+            "sample",
+            arg(&ice),
+            "--cells",
+            "4x4x4",
+            "--replicas",
+            "100000",
+            "--shard",
+            "1/2",
+            "--out",
+            arg(&blocked),
+        ],
+        Duration::from_secs(20),
+    );
+    assert_flag_error(&out, "--out", "does not exist");
+    let report_dir = fixture("empty.yaml").join("report");
+    let out = run_within(
+        &[
+            "report",
+            arg(&ice),
+            "-o",
+            arg(&report_dir),
+            "--budget",
+            "1000",
+        ],
+        Duration::from_secs(20),
+    );
+    assert_flag_error(&out, "-o", "does not exist");
+}
+
+#[test]
+fn issue11_report_replaces_an_earlier_report_whole() {
+    let dir = scratch("report-replaced");
+    let out_dir = dir.join("report");
+    std::fs::create_dir_all(&out_dir).unwrap();
+    std::fs::write(out_dir.join("report.md"), "old").unwrap();
+    std::fs::write(out_dir.join("stale-figure.svg"), "<svg/>").unwrap();
+    let file = lattice("square-ice.yaml");
+    let out = run(&[
+        "report",
+        arg(&file),
+        "-o",
+        arg(&out_dir),
+        "--widths",
+        "2..6",
+        "--max-exact-units",
+        "9",
+        "--budget",
+        "20",
+        "--threads",
+        "1",
+    ]);
+    success(&out);
+    assert!(
+        !out_dir.join("stale-figure.svg").exists(),
+        "no stale figure"
+    );
+    let md = std::fs::read_to_string(out_dir.join("report.md")).unwrap();
+    assert!(md.len() > 100 && md != "old");
+    let leftovers: Vec<_> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    assert_eq!(leftovers, vec![std::ffi::OsString::from("report")]);
+}
+
+#[test]
+fn issue11_report_refuses_a_directory_that_holds_other_files() {
+    let dir = scratch("report-refused");
+    std::fs::write(dir.join("notes.txt"), "mine").unwrap();
+    let file = lattice("square-ice.yaml");
+    let out = run_within(
+        &["report", arg(&file), "-o", arg(&dir), "--budget", "1000"],
+        Duration::from_secs(20),
+    );
+    assert_flag_error(&out, "-o", "not a report (notes.txt)");
+    assert_eq!(
+        std::fs::read_to_string(dir.join("notes.txt")).unwrap(),
+        "mine"
+    );
+}
+
+/// Start the binary, send it Ctrl-C (SIGINT) after `after`, and collect its output.
+fn interrupted(args: &[&str], after: Duration) -> Output {
+    let child = Command::new(env!("CARGO_BIN_EXE_groundcount"))
+        .args(args)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the groundcount binary starts");
+    std::thread::sleep(after);
+    let status = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .expect("kill runs");
+    assert!(status.success());
+    let start = Instant::now();
+    let out = child.wait_with_output().expect("the child's output");
+    assert!(
+        start.elapsed() < Duration::from_secs(30),
+        "stopped within 30 s of Ctrl-C"
+    );
+    out
+}
+
+#[test]
+fn issue11_interrupted_estimate_prints_what_it_finished() {
+    // Ice Ih's exact count of 3x2x2 ends within 0.1 s; that of 3x3x2 takes seconds before
+    // it outgrows the state budget: the interrupt lands inside it.
+    let file = lattice("ice-ih.yaml");
+    let out = interrupted(
+        &["estimate", arg(&file), "--budget", "200", "--threads", "1"],
+        Duration::from_millis(1500),
+    );
+    assert_eq!(out.status.code(), Some(130), "{}", stderr_of(&out));
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        stdout.contains("Pauling"),
+        "the table is printed:\n{stdout}"
+    );
+    assert!(
+        stdout.contains("interrupted"),
+        "the table says so:\n{stdout}"
+    );
+    assert!(
+        stderr_of(&out).contains("interrupted: the table holds what was finished"),
+        "{}",
+        stderr_of(&out)
+    );
+}
+
+#[test]
+fn issue11_interrupted_report_writes_what_it_finished() {
+    let dir = scratch("report-interrupted");
+    let out_dir = dir.join("report");
+    let file = lattice("ice-ih.yaml");
+    let out = interrupted(
+        &[
+            "report",
+            arg(&file),
+            "-o",
+            arg(&out_dir),
+            "--budget",
+            "200",
+            "--threads",
+            "1",
+        ],
+        Duration::from_millis(1500),
+    );
+    assert_eq!(out.status.code(), Some(130), "{}", stderr_of(&out));
+    let md = std::fs::read_to_string(out_dir.join("report.md")).expect("report.md is written");
+    assert!(md.contains("interrupted"), "the report says so");
+    assert!(stderr_of(&out).contains("interrupted: the report in"));
 }

@@ -6,6 +6,7 @@ mod calorimetry;
 mod cli_errors;
 mod counts;
 mod estimate;
+mod fuzz;
 mod report;
 mod sampling;
 mod shards;

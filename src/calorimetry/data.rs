@@ -62,14 +62,25 @@ impl HeatCapacityData {
         let bytes = std::fs::read(path).map_err(|e| Error::Data {
             path: path.to_path_buf(),
             line: 0,
-            message: format!("cannot read the heat-capacity file: {e}"),
+            message: format!(
+                "cannot read the heat-capacity file: {}",
+                crate::spec::io_words(&e)
+            ),
         })?;
-        let text = String::from_utf8(bytes).map_err(|e| Error::Data {
-            path: path.to_path_buf(),
-            line: 0,
-            message: format!("the heat-capacity file is not UTF-8 text ({e})"),
+        let text = std::str::from_utf8(&bytes).map_err(|e| {
+            let offset = e.valid_up_to();
+            let line = bytes[..offset].iter().filter(|&&b| b == b'\n').count() as u64 + 1;
+            Error::Data {
+                path: path.to_path_buf(),
+                line,
+                message: format!(
+                    "the byte 0x{:02X} at byte offset {offset} is not UTF-8 text; expected \
+                     comma-separated text in UTF-8",
+                    bytes[offset]
+                ),
+            }
         })?;
-        Self::parse(&text, path)
+        Self::parse(text, path)
     }
 
     /// Parse and check the text of a data file; `path` stands for the file in messages.
@@ -80,9 +91,13 @@ impl HeatCapacityData {
             line,
             message,
         };
+        // A byte-order mark (spreadsheets write one) is not part of the first cell.
+        let text = text.strip_prefix('\u{feff}').unwrap_or(text);
         let mut columns: Option<Vec<String>> = None;
         let mut points: Vec<Point> = Vec::new();
-        for (i, raw) in text.lines().enumerate() {
+        // Lines end in LF, CR LF or (old spreadsheets) CR alone.
+        let lines = text.split("\r\n").flat_map(|l| l.split(['\n', '\r']));
+        for (i, raw) in lines.enumerate() {
             let line = i as u64 + 1;
             let content = raw.split('#').next().unwrap_or("").trim();
             if content.is_empty() {
@@ -260,5 +275,22 @@ mod tests {
         assert!(message("T,Cp\n1,0.1\n2,0.2\n3,1\n").contains("at least 4"));
         assert!(message("T,Cp\n1,NaN\n2,0.2\n3,1\n4,2\n").contains("found `NaN`"));
         assert!(message("# nothing\n").contains("no header"));
+    }
+
+    #[test]
+    fn issue11_byte_order_mark_and_cr_line_endings() {
+        // A headerless file behind a byte-order mark was read with its first point as the
+        // header, silently one point short; it is refused at line 1 like any headerless file.
+        let m = message("\u{feff}1,0.1\n2,0.8\n3,2.7\n4,6.4\n5,12\n");
+        assert!(m.starts_with("cp.csv:1: expected a header"), "{m}");
+        // With a header, the mark is ignored and every point is kept.
+        let d = HeatCapacityData::parse("\u{feff}T,Cp\n1,0.1\n2,0.8\n3,2.7\n4,6.4\n", "cp.csv")
+            .unwrap();
+        assert_eq!(d.columns[0], "T");
+        assert_eq!(d.points.len(), 4);
+        // CR-only line endings are line breaks, and lines are counted.
+        let d = HeatCapacityData::parse("T,Cp\r1,0.1\r2,0.8\r3,2.7\r4,6.4\r", "cp.csv").unwrap();
+        assert_eq!(d.points.len(), 4);
+        assert_eq!(d.points[3].line, 5);
     }
 }

@@ -24,7 +24,8 @@
 //!
 //! # Complexity
 //!
-//! Linear in the number of points.
+//! Building an interpolant is linear in the number of points; an integral to a temperature
+//! is then O(log n) and one sensitivity ∂S/∂Cpᵢ ([`monotone_sensitivity`]) O(1).
 
 /// A piecewise-cubic Hermite interpolant of Cp against ln T over one stretch of data:
 /// the monotone one ([`Interpolant::monotone`]) or the straight lines of the trapezoid rule
@@ -37,6 +38,8 @@ pub struct Interpolant {
     start: Vec<f64>,
     /// dCp/d(ln T) at the end of each interval.
     end: Vec<f64>,
+    /// ∫ Cp d(ln T) from the first point to each point.
+    cumulative: Vec<f64>,
 }
 
 impl Interpolant {
@@ -45,12 +48,28 @@ impl Interpolant {
     pub fn monotone(t_k: &[f64], cp: &[f64]) -> Interpolant {
         let u: Vec<f64> = t_k.iter().map(|t| t.ln()).collect();
         let d = derivatives(&u, cp);
+        Interpolant::from_parts(u, cp.to_vec(), &d)
+    }
+
+    /// The Hermite interpolant through (uᵢ, yᵢ) with derivatives dᵢ.
+    fn from_parts(u: Vec<f64>, y: Vec<f64>, d: &[f64]) -> Interpolant {
         let n = u.len();
+        Interpolant::with_slopes(u, y, d[..n - 1].to_vec(), d[1..].to_vec())
+    }
+
+    fn with_slopes(u: Vec<f64>, y: Vec<f64>, start: Vec<f64>, end: Vec<f64>) -> Interpolant {
+        let mut cumulative = vec![0.0; u.len()];
+        for k in 0..u.len() - 1 {
+            let h = u[k + 1] - u[k];
+            cumulative[k + 1] =
+                cumulative[k] + h * (y[k] + y[k + 1]) / 2.0 + h * h * (start[k] - end[k]) / 12.0;
+        }
         Interpolant {
-            start: d[..n - 1].to_vec(),
-            end: d[1..].to_vec(),
             u,
-            y: cp.to_vec(),
+            y,
+            start,
+            end,
+            cumulative,
         }
     }
 
@@ -60,12 +79,7 @@ impl Interpolant {
         let slopes: Vec<f64> = (0..u.len() - 1)
             .map(|k| (cp[k + 1] - cp[k]) / (u[k + 1] - u[k]))
             .collect();
-        Interpolant {
-            start: slopes.clone(),
-            end: slopes,
-            u,
-            y: cp.to_vec(),
-        }
+        Interpolant::with_slopes(u, cp.to_vec(), slopes.clone(), slopes)
     }
 
     /// The first and last temperature, K.
@@ -112,26 +126,23 @@ impl Interpolant {
 
     /// ∫ Cp d(ln T) from the first point to each point: `out[i]` for point i (`out[0]` = 0).
     pub fn cumulative(&self) -> Vec<f64> {
-        let mut out = vec![0.0; self.u.len()];
-        for k in 0..self.u.len() - 1 {
-            let h = self.u[k + 1] - self.u[k];
-            out[k + 1] = out[k]
-                + h * (self.y[k] + self.y[k + 1]) / 2.0
-                + h * h * (self.start[k] - self.end[k]) / 12.0;
-        }
-        out
+        self.cumulative.clone()
     }
 
     /// ∫ Cp d(ln T) from the first point to t (K); negative below the first point. Outside
-    /// the data the end lines of [`Interpolant::value`] are integrated.
+    /// the data the end lines of [`Interpolant::value`] are integrated. O(log n).
     pub fn integral_to(&self, t_k: f64) -> f64 {
-        let u = t_k.ln();
+        self.integral_to_u(t_k.ln())
+    }
+
+    /// [`Interpolant::integral_to`] at u = ln T.
+    fn integral_to_u(&self, u: f64) -> f64 {
         let n = self.u.len();
         if u <= self.u[0] {
             let du = u - self.u[0];
             return du * (self.y[0] + self.start[0] * du / 2.0);
         }
-        let cumulative = self.cumulative();
+        let cumulative = &self.cumulative;
         if u >= self.u[n - 1] {
             let du = u - self.u[n - 1];
             return cumulative[n - 1] + du * (self.y[n - 1] + self.end[n - 2] * du / 2.0);
@@ -151,24 +162,71 @@ pub fn trapezoid(t_k: &[f64], cp: &[f64]) -> f64 {
 
 /// Fritsch–Butland derivatives with shape-preserving end conditions.
 fn derivatives(u: &[f64], y: &[f64]) -> Vec<f64> {
+    (0..u.len()).map(|k| derivative_at(u, y, k)).collect()
+}
+
+/// The Fritsch–Butland derivative at point k, reading points k − 1 … k + 1 (the end
+/// conditions read the three points at their end).
+fn derivative_at(u: &[f64], y: &[f64], k: usize) -> f64 {
     let n = u.len();
-    let h: Vec<f64> = (0..n - 1).map(|k| u[k + 1] - u[k]).collect();
-    let delta: Vec<f64> = (0..n - 1).map(|k| (y[k + 1] - y[k]) / h[k]).collect();
+    let h = |j: usize| u[j + 1] - u[j];
+    let delta = |j: usize| (y[j + 1] - y[j]) / h(j);
     if n == 2 {
-        return vec![delta[0], delta[0]];
+        return delta(0);
     }
-    let mut d = vec![0.0; n];
-    for k in 1..n - 1 {
-        let (a, b) = (delta[k - 1], delta[k]);
-        if a * b > 0.0 {
-            let w1 = 2.0 * h[k] + h[k - 1];
-            let w2 = h[k] + 2.0 * h[k - 1];
-            d[k] = (w1 + w2) / (w1 / a + w2 / b);
-        }
+    if k == 0 {
+        return end_slope(h(0), h(1), delta(0), delta(1));
     }
-    d[0] = end_slope(h[0], h[1], delta[0], delta[1]);
-    d[n - 1] = end_slope(h[n - 2], h[n - 3], delta[n - 2], delta[n - 3]);
-    d
+    if k == n - 1 {
+        return end_slope(h(n - 2), h(n - 3), delta(n - 2), delta(n - 3));
+    }
+    let (a, b) = (delta(k - 1), delta(k));
+    if a * b > 0.0 {
+        let w1 = 2.0 * h(k) + h(k - 1);
+        let w2 = h(k) + 2.0 * h(k - 1);
+        (w1 + w2) / (w1 / a + w2 / b)
+    } else {
+        0.0
+    }
+}
+
+/// ∂/∂cpᵢ of ∫ Cp d(ln T) from `lower` to `upper` (K) under the monotone interpolant of one
+/// stretch, by the central difference of step `step`, in O(1): a change of cpᵢ moves the
+/// interpolant only on the intervals that touch points i − 1 … i + 1 (whose derivatives
+/// read cpᵢ) and, near an end, on the end intervals and end lines, so only those are
+/// integrated again. `cp` is restored before return.
+pub fn monotone_sensitivity(
+    u: &[f64],
+    cp: &mut [f64],
+    i: usize,
+    step: f64,
+    lower: f64,
+    upper: f64,
+) -> f64 {
+    let n = u.len();
+    // Points whose value or derivative may change: i − 1 … i + 1, and the three at an end.
+    let a = if i <= 3 { 0 } else { i - 2 };
+    let b = if i + 3 >= n - 1 { n - 1 } else { i + 2 };
+    let (lo, hi) = (lower.ln(), upper.ln());
+    // Outside the window nothing changes: clamp the bounds to it, except at the ends of
+    // the data, where the end lines change too.
+    let clamp = |x: f64| {
+        let x = if a > 0 { x.max(u[a]) } else { x };
+        if b < n - 1 { x.min(u[b]) } else { x }
+    };
+    let (lo, hi) = (clamp(lo), clamp(hi));
+    let window = |cp: &[f64]| -> f64 {
+        let d: Vec<f64> = (a..=b).map(|k| derivative_at(u, cp, k)).collect();
+        let p = Interpolant::from_parts(u[a..=b].to_vec(), cp[a..=b].to_vec(), &d);
+        p.integral_to_u(hi) - p.integral_to_u(lo)
+    };
+    let original = cp[i];
+    cp[i] = original + step;
+    let up = window(cp);
+    cp[i] = original - step;
+    let down = window(cp);
+    cp[i] = original;
+    (up - down) / (2.0 * step)
 }
 
 /// The shape-preserving three-point end derivative (h0, δ0 the end interval).

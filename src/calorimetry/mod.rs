@@ -41,8 +41,9 @@
 //!
 //! # Complexity
 //!
-//! O(n) for the entropy and O(n²) for the finite-difference sensitivities, n the number of
-//! points.
+//! O(n log n) for the entropy at every point and O(n) for the finite-difference
+//! sensitivities, n the number of points (a point moves the monotone interpolant only on
+//! the few intervals around it, so each sensitivity is recomputed there alone).
 //!
 //! # Reference
 //!
@@ -226,6 +227,8 @@ struct Stretch {
     interpolant: Interpolant,
     lower: f64,
     upper: f64,
+    /// Number of measured points in the stretch (stretches follow each other in order).
+    points: usize,
 }
 
 /// The stretches of one Cp vector.
@@ -267,6 +270,7 @@ impl Pieces {
                 interpolant,
                 lower,
                 upper,
+                points: end - start,
             });
             start = end;
             lower = upper;
@@ -406,26 +410,9 @@ pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<Th
     let (integral_trapezoid, _) = Pieces::new(&t, &cp, &transitions, true).entropy_to(target_k);
     let s_cal = low_t.entropy + integral + transition_entropy;
 
-    let data_part = sigma.as_ref().map(|s| {
-        let scale = cp.iter().fold(0.0f64, |m, &c| m.max(c.abs())).max(1e-300);
-        let mut sum = 0.0;
-        let mut work = cp.clone();
-        for i in 0..cp.len() {
-            let step = 1e-6 * cp[i].abs().max(1e-3 * scale);
-            work[i] = cp[i] + step;
-            let up = Pieces::new(&t, &work, &transitions, false)
-                .entropy_to(target_k)
-                .0;
-            work[i] = cp[i] - step;
-            let down = Pieces::new(&t, &work, &transitions, false)
-                .entropy_to(target_k)
-                .0;
-            work[i] = cp[i];
-            let g = (up - down) / (2.0 * step);
-            sum += (g * s[i]).powi(2);
-        }
-        sum.sqrt()
-    });
+    let data_part = sigma
+        .as_ref()
+        .map(|s| data_uncertainty(&t, &cp, s, &pieces, target_k));
     let quadrature = (integral - integral_trapezoid).abs();
     let extrapolation = low_t.entropy_sigma;
     let total =
@@ -460,6 +447,38 @@ pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<Th
         uncertainty,
         residual,
     })
+}
+
+/// The 1σ of Cp propagated through ∫ Cp d(ln T) up to the target: Σᵢ (∂S/∂Cpᵢ σᵢ)², the
+/// sensitivities by central finite differences of the monotone interpolant of each point's
+/// stretch. A point moves the interpolant only near itself, so each sensitivity is computed
+/// on a few intervals ([`integrate::monotone_sensitivity`]): O(n) in all.
+fn data_uncertainty(t: &[f64], cp: &[f64], sigma: &[f64], pieces: &Pieces, target_k: f64) -> f64 {
+    let scale = cp.iter().fold(0.0f64, |m, &c| m.max(c.abs())).max(1e-300);
+    let mut sum = 0.0;
+    let mut start = 0;
+    for stretch in &pieces.stretches {
+        let end = start + stretch.points;
+        let top = target_k.min(stretch.upper);
+        if top > stretch.lower {
+            let u: Vec<f64> = t[start..end].iter().map(|x| x.ln()).collect();
+            let mut work = cp[start..end].to_vec();
+            for i in start..end {
+                let step = 1e-6 * cp[i].abs().max(1e-3 * scale);
+                let g = integrate::monotone_sensitivity(
+                    &u,
+                    &mut work,
+                    i - start,
+                    step,
+                    stretch.lower,
+                    top,
+                );
+                sum += (g * sigma[i]).powi(2);
+            }
+        }
+        start = end;
+    }
+    sum.sqrt()
 }
 
 /// A stretch bound in words.
@@ -534,5 +553,67 @@ mod tests {
             })
             .contains("outside the data")
         );
+    }
+
+    /// The sensitivities computed on a few intervals around each point equal those of the
+    /// whole interpolation recomputed for every perturbed point (the former O(n²) route,
+    /// written out here), with transitions, a target inside a stretch and ends on both
+    /// sides.
+    #[test]
+    fn issue11_local_sensitivities_equal_the_whole_recomputation() {
+        let mut text = String::from("T,Cp,s\n");
+        let mut t = 2.0f64;
+        let mut k = 0;
+        while t < 300.0 {
+            // Wiggly, rising Cp with uneven spacing: local extrema exercise the zero slopes.
+            let cp =
+                1e-3 * t.powi(2) / (1.0 + 1e-4 * t.powi(2)) + 0.05 * (k as f64 * 1.3).sin().abs();
+            text += &format!("{t},{cp},{}\n", 0.01 + 1e-3 * cp);
+            t *= 1.03 + 0.02 * ((k % 5) as f64);
+            k += 1;
+        }
+        let data = HeatCapacityData::parse(&text, "cp.csv").unwrap();
+        let transitions = vec![
+            Transition {
+                t_k: 71.3,
+                dh_j_per_mol: 40.0,
+            },
+            Transition {
+                t_k: 150.7,
+                dh_j_per_mol: 300.0,
+            },
+        ];
+        let t: Vec<f64> = data.points.iter().map(|p| p.t_k).collect();
+        let cp: Vec<f64> = data.points.iter().map(|p| p.cp).collect();
+        let sigma: Vec<f64> = data.points.iter().map(|p| p.sigma.unwrap()).collect();
+        for target_k in [60.0, 71.3, 120.0, 280.0] {
+            let config = CalorimetryConfig {
+                target_k: Some(target_k),
+                transitions: transitions.clone(),
+                ..Default::default()
+            };
+            let fast = analyse(&data, &config).unwrap().uncertainty.data.unwrap();
+            let scale = cp.iter().fold(0.0f64, |m, &c| m.max(c.abs()));
+            let mut sum = 0.0;
+            let mut work = cp.clone();
+            for i in 0..cp.len() {
+                let step = 1e-6 * cp[i].abs().max(1e-3 * scale);
+                work[i] = cp[i] + step;
+                let up = Pieces::new(&t, &work, &transitions, false)
+                    .entropy_to(target_k)
+                    .0;
+                work[i] = cp[i] - step;
+                let down = Pieces::new(&t, &work, &transitions, false)
+                    .entropy_to(target_k)
+                    .0;
+                work[i] = cp[i];
+                sum += ((up - down) / (2.0 * step) * sigma[i]).powi(2);
+            }
+            let whole = sum.sqrt();
+            assert!(
+                ((fast - whole) / whole).abs() < 1e-6,
+                "target {target_k} K: {fast} against {whole}"
+            );
+        }
     }
 }

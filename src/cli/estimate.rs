@@ -32,21 +32,42 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     super::check_budget(args.budget)?;
     let lattice = load(args.file.as_deref())?;
     let c = &lattice.crystal;
-    let unit = c.formula_unit.name.clone();
     let (observer, bars) = args.common.survey_progress();
-    let config = SurveyConfig {
+    let mut config = SurveyConfig {
         budget: args.budget,
         max_states: args.max_states,
         observer,
+        interrupt: super::interrupt(),
         ..SurveyConfig::default()
     };
+    config.sample.interrupt = config.interrupt.clone();
     let result = with_threads(args.common.threads, || survey(c, &config))?;
     bars.finish();
     let s = result?;
+    if s.interrupted {
+        // Print what was finished, then say it was interrupted (exit 130).
+        let output = render(&args, &lattice, &s)?;
+        return Err(super::Partial {
+            output,
+            note: "the table holds what was finished before Ctrl-C".into(),
+        }
+        .into());
+    }
+    render(&args, &lattice, &s)
+}
+
+/// The output of a finished (or interrupted) survey.
+fn render(
+    args: &Args,
+    lattice: &groundcount::Lattice,
+    s: &groundcount::survey::Survey,
+) -> anyhow::Result<String> {
+    let c = &lattice.crystal;
+    let unit = c.formula_unit.name.clone();
     let p = &s.pauling;
     let transfer = s.strips.as_ref().map(|t| &t.estimate);
     let monte_carlo = s.sampled.as_ref().map(|m| &m.sampled.estimate);
-    let table = report::survey_table(&s, &unit, Columns::default());
+    let table = report::survey_table(s, &unit, Columns::default());
     match args.common.format {
         Format::Json => {
             let v = json!({
@@ -70,7 +91,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     v
                 }),
                 "checks": report::checks_json(&s.checks),
-                "cited": report::cited_json(c, &s),
+                "cited": report::cited_json(c, s),
                 "passed_over": report::passed_over_json(&s.cited(), &unit),
                 "stopped": s.stopped,
                 "notes": s.notes,
@@ -88,7 +109,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 out += &report::checks_table(&s.checks, &unit).render_markdown();
                 writeln!(out)?;
             }
-            for line in below_table(&s, &unit) {
+            for line in below_table(s, &unit) {
                 // A leading `*` marks a row, not a list item.
                 match line.strip_prefix("* ") {
                     Some(rest) => writeln!(out, "\\* {rest}\n")?,
@@ -116,7 +137,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 out += &report::checks_table(&s.checks, &unit).render();
             }
             writeln!(out)?;
-            for line in below_table(&s, &unit) {
+            for line in below_table(s, &unit) {
                 writeln!(out, "{line}")?;
             }
             Ok(out)

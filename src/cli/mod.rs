@@ -1,8 +1,8 @@
 //! Command-line layer: flag definitions, output format, exit codes. One file per command.
 //!
 //! Exit codes: 0 success; 1 usage or input error; 2 a budget (states or time) was exceeded
-//! or an iteration did not converge; 130 interrupted (Ctrl-C) before anything could be
-//! reported.
+//! or an iteration did not converge; 130 interrupted (Ctrl-C): `estimate` and `report` print
+//! or write what they finished first, the other commands stop with a message.
 
 mod calorimetry;
 mod estimate;
@@ -210,6 +210,11 @@ pub fn run() -> i32 {
             0
         }
         Err(e) => {
+            if let Some(p) = e.downcast_ref::<Partial>() {
+                print!("{}", p.output);
+                eprintln!("interrupted: {}", p.note);
+                return 130;
+            }
             eprintln!("error: {e:#}");
             match e.downcast_ref::<Error>() {
                 Some(
@@ -221,6 +226,24 @@ pub fn run() -> i32 {
         }
     }
 }
+
+/// What a command finished before Ctrl-C stopped it: `run` prints the output, then the note
+/// on standard error, and exits with 130.
+#[derive(Debug)]
+pub struct Partial {
+    /// The command's output for what was finished.
+    pub output: String,
+    /// What the output holds and what was left undone.
+    pub note: String,
+}
+
+impl std::fmt::Display for Partial {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "interrupted: {}", self.note)
+    }
+}
+
+impl std::error::Error for Partial {}
 
 /// The interrupt raised by Ctrl-C: the first call installs the handler; every call
 /// returns the same flag. A second Ctrl-C ends the process at once.
@@ -254,6 +277,42 @@ fn load(file: Option<&Path>) -> anyhow::Result<Lattice> {
     })
 }
 
+/// Check, before any computing, that a file can be written at `path` (the flag's value):
+/// its directory exists and takes a new file, and the path is not a directory. Leaves
+/// nothing behind.
+fn check_output_file(path: &Path, flag: &str) -> anyhow::Result<()> {
+    let shown = path.display();
+    if path.is_dir() {
+        anyhow::bail!("{flag} {shown}: is a directory; expected a file name");
+    }
+    let dir = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    if !dir.is_dir() {
+        anyhow::bail!(
+            "{flag} {shown}: the directory {} does not exist; create it first",
+            dir.display()
+        );
+    }
+    let probe = dir.join(format!(".groundcount-write-check-{}", std::process::id()));
+    std::fs::write(&probe, b"").map_err(|e| {
+        anyhow::anyhow!(
+            "{flag} {shown}: cannot write in {}: {e}; choose a writable place",
+            dir.display()
+        )
+    })?;
+    let _ = std::fs::remove_file(&probe);
+    if path.exists() && std::fs::OpenOptions::new().append(true).open(path).is_err() {
+        anyhow::bail!("{flag} {shown}: the file exists and cannot be written");
+    }
+    Ok(())
+}
+
+/// Most worker threads `--threads` accepts (each costs a stack; 100 000 exhausted the
+/// machine before any work began).
+const MAX_THREADS: usize = 1024;
+
 /// Run `f` in a rayon pool of the requested size.
 fn with_threads<T: Send>(
     threads: Option<usize>,
@@ -263,6 +322,13 @@ fn with_threads<T: Send>(
     if let Some(n) = threads {
         if n == 0 {
             anyhow::bail!("--threads must be at least 1");
+        }
+        if n > MAX_THREADS {
+            let cores = std::thread::available_parallelism().map_or(1, |c| c.get());
+            anyhow::bail!(
+                "--threads {n}: at most {MAX_THREADS} worker threads (this machine has {cores} cores; \
+                 more threads than cores only adds overhead)"
+            );
         }
         b = b.num_threads(n);
     }

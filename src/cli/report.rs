@@ -19,7 +19,8 @@ use super::{Common, Format, load, shown, with_threads};
 pub struct Args {
     /// Lattice file (YAML); the built-in ice Ih description when omitted.
     file: Option<PathBuf>,
-    /// Directory to write report.md, report.json and the figures to (created if missing).
+    /// Directory to write report.md, report.json and the figures to: created if missing; an
+    /// earlier report there is replaced whole; a directory holding other files is refused.
     #[arg(long, short = 'o', default_value = "groundcount-report")]
     out: PathBuf,
     /// Time budget in seconds for all counts together.
@@ -134,17 +135,22 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             None
         }
     };
-    std::fs::create_dir_all(&args.out).map_err(|e| {
-        anyhow::anyhow!(
-            "cannot create the output directory {}: {e}",
-            args.out.display()
-        )
-    })?;
+    // The output is checked, and a fresh directory made beside it, before anything is
+    // computed: an unwritable place is found at once, not after the run.
+    let staging = Staging::new(&args.out)?;
     let (observer, bars) = args.common.survey_progress();
     config.observer = observer;
-    let result = with_threads(args.common.threads, || survey(c, &config))?;
+    config.interrupt = super::interrupt();
+    config.sample.interrupt = config.interrupt.clone();
+    let result = with_threads(args.common.threads, || survey(c, &config));
     bars.finish();
-    let s = result?;
+    let s = match result.and_then(|r| r.map_err(anyhow::Error::from)) {
+        Ok(s) => s,
+        Err(e) => {
+            staging.abandon();
+            return Err(e);
+        }
+    };
     let meta = Meta {
         version: env!("CARGO_PKG_VERSION").to_string(),
         date: today(),
@@ -161,47 +167,188 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     for f in w.figures() {
         files.push((f.file, f.svg));
     }
-    let mut written = Vec::new();
-    for (name, text) in &files {
-        let path = args.out.join(name);
-        std::fs::write(&path, text)
-            .map_err(|e| anyhow::anyhow!("cannot write {}: {e}", path.display()))?;
-        written.push(path.display().to_string());
-    }
-    match args.common.format {
-        Format::Json => Ok(serde_json::to_string_pretty(&json!({
-            "directory": args.out.display().to_string(),
-            "files": written,
-            "cited": groundcount::report::cited_json(c, &s),
-            "checks": groundcount::report::checks_json(&s.checks),
-            "sentence_refused": match w.sentence() {
-                Sentence::Cite(_) => None,
-                Sentence::Refused(why) => Some(why),
-            },
-        }))? + "\n"),
-        fmt => {
-            let mut t = Table::new(&["file written"]);
-            for f in &written {
-                t.row(vec![f.clone()]);
+    let written = staging.commit(&files)?;
+    let render = || -> anyhow::Result<String> {
+        match args.common.format {
+            Format::Json => Ok(serde_json::to_string_pretty(&json!({
+                "directory": args.out.display().to_string(),
+                "files": written,
+                "cited": groundcount::report::cited_json(c, &s),
+                "checks": groundcount::report::checks_json(&s.checks),
+                "sentence_refused": match w.sentence() {
+                    Sentence::Cite(_) => None,
+                    Sentence::Refused(why) => Some(why),
+                },
+            }))? + "\n"),
+            fmt => {
+                let mut t = Table::new(&["file written"]);
+                for f in &written {
+                    t.row(vec![f.clone()]);
+                }
+                if fmt == Format::Csv {
+                    return Ok(t.render_csv());
+                }
+                let mut out = if fmt == Format::Markdown {
+                    t.render_markdown()
+                } else {
+                    t.render()
+                };
+                writeln!(out)?;
+                let unit = &c.formula_unit.name;
+                for f in s.failed_checks() {
+                    writeln!(out, "{}", groundcount::report::check_failure(f, unit))?;
+                }
+                writeln!(out, "{}", groundcount::report::cited_line(&s, unit))?;
+                writeln!(out)?;
+                match w.sentence() {
+                    Sentence::Cite(t) => writeln!(out, "{t}")?,
+                    Sentence::Refused(why) => writeln!(out, "NOT FOR CITING: {why}")?,
+                }
+                Ok(out)
             }
-            let mut out = match fmt {
-                Format::Csv => return Ok(t.render_csv()),
-                Format::Markdown => t.render_markdown(),
-                _ => t.render(),
-            };
-            writeln!(out)?;
-            let unit = &c.formula_unit.name;
-            for f in s.failed_checks() {
-                writeln!(out, "{}", groundcount::report::check_failure(f, unit))?;
-            }
-            writeln!(out, "{}", groundcount::report::cited_line(&s, unit))?;
-            writeln!(out)?;
-            match w.sentence() {
-                Sentence::Cite(t) => writeln!(out, "{t}")?,
-                Sentence::Refused(why) => writeln!(out, "NOT FOR CITING: {why}")?,
-            }
-            Ok(out)
         }
+    };
+    let output = render()?;
+    if s.interrupted {
+        return Err(super::Partial {
+            output,
+            note: format!(
+                "the report in {} holds what was finished before Ctrl-C",
+                args.out.display()
+            ),
+        }
+        .into());
+    }
+    Ok(output)
+}
+
+/// The files a report writes: an existing directory holding only these is an earlier
+/// report and is replaced whole.
+fn is_report_file(name: &str) -> bool {
+    name == "report.md" || name == "report.json" || name.ends_with(".svg")
+}
+
+/// A report is written into a fresh directory beside its destination, then renamed into
+/// place: a failed write leaves the destination as it was, and an earlier report in it is
+/// replaced whole (no stale figure survives). A destination that holds anything but an
+/// earlier report is refused before the run.
+struct Staging {
+    /// Where the report goes.
+    out: PathBuf,
+    /// The fresh directory the files are written to first.
+    fresh: PathBuf,
+}
+
+impl Staging {
+    /// Check the destination and make the fresh directory beside it.
+    fn new(out: &std::path::Path) -> anyhow::Result<Staging> {
+        let shown = out.display();
+        if out.exists() {
+            if !out.is_dir() {
+                anyhow::bail!(
+                    "-o {shown}: exists and is not a directory; expected a directory for the report"
+                );
+            }
+            let entries = std::fs::read_dir(out)
+                .map_err(|e| anyhow::anyhow!("-o {shown}: cannot read the directory: {e}"))?;
+            let mut others: Vec<String> = Vec::new();
+            for entry in entries {
+                let entry = entry.map_err(|e| anyhow::anyhow!("-o {shown}: {e}"))?;
+                let name = entry.file_name().to_string_lossy().into_owned();
+                let is_file = entry.file_type().is_ok_and(|t| t.is_file());
+                if !(is_file && is_report_file(&name)) {
+                    others.push(name);
+                }
+            }
+            if !others.is_empty() {
+                others.sort();
+                let shown_names: Vec<&str> = others.iter().take(3).map(String::as_str).collect();
+                anyhow::bail!(
+                    "-o {shown}: the directory holds files that are not a report ({}{}); \
+                     give a new directory, or one that holds only an earlier report (which is replaced)",
+                    shown_names.join(", "),
+                    if others.len() > 3 { ", …" } else { "" }
+                );
+            }
+        }
+        let name = out
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .filter(|n| n != "." && n != "..")
+            .ok_or_else(|| {
+                anyhow::anyhow!("-o {shown}: expected a directory name, e.g. -o my-report")
+            })?;
+        let parent = match out.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+            _ => PathBuf::from("."),
+        };
+        if !parent.is_dir() {
+            anyhow::bail!(
+                "-o {shown}: the directory {} does not exist; create it first",
+                parent.display()
+            );
+        }
+        let fresh = parent.join(format!(".{name}.partial-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&fresh);
+        std::fs::create_dir(&fresh).map_err(|e| {
+            anyhow::anyhow!(
+                "-o {shown}: cannot write in {}: {e}; choose a writable place",
+                parent.display()
+            )
+        })?;
+        Ok(Staging {
+            out: out.to_path_buf(),
+            fresh,
+        })
+    }
+
+    /// Remove the fresh directory (the run failed).
+    fn abandon(&self) {
+        let _ = std::fs::remove_dir_all(&self.fresh);
+    }
+
+    /// Write the files into the fresh directory and put it in place of the destination;
+    /// returns the paths written.
+    fn commit(&self, files: &[(String, String)]) -> anyhow::Result<Vec<String>> {
+        let fail = |what: String| -> anyhow::Error {
+            self.abandon();
+            anyhow::anyhow!("{what}; {} is left as it was", self.out.display())
+        };
+        for (name, text) in files {
+            let path = self.fresh.join(name);
+            std::fs::write(&path, text)
+                .map_err(|e| fail(format!("cannot write {}: {e}", path.display())))?;
+        }
+        if self.out.exists() {
+            // Move the earlier report aside, put the new one in place, then delete the old.
+            let aside = self.fresh.with_extension("old");
+            let _ = std::fs::remove_dir_all(&aside);
+            std::fs::rename(&self.out, &aside).map_err(|e| {
+                fail(format!(
+                    "cannot replace the earlier report in {}: {e}",
+                    self.out.display()
+                ))
+            })?;
+            if let Err(e) = std::fs::rename(&self.fresh, &self.out) {
+                let _ = std::fs::rename(&aside, &self.out);
+                return Err(fail(format!(
+                    "cannot put the report in place at {}: {e}",
+                    self.out.display()
+                )));
+            }
+            let _ = std::fs::remove_dir_all(&aside);
+        } else {
+            std::fs::rename(&self.fresh, &self.out).map_err(|e| {
+                fail(format!(
+                    "cannot put the report in place at {}: {e}",
+                    self.out.display()
+                ))
+            })?;
+        }
+        Ok(files
+            .iter()
+            .map(|(name, _)| self.out.join(name).display().to_string())
+            .collect())
     }
 }
 

@@ -74,6 +74,9 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
+    if let Some(out) = &args.out {
+        super::check_output_file(out, "--out")?; // before any computing
+    }
     let lattice = load(Some(&args.file))?;
     let c = &lattice.crystal;
     let sizes: Vec<Cells> = args
