@@ -401,3 +401,100 @@ pub fn merge(parts: &[(PathBuf, Shard)]) -> Result<Merged> {
         present,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A shard whose runs hold the given energies, every other field filled in.
+    fn shard_with(energies: Vec<Vec<f64>>, seconds: f64, beta_max: f64) -> Shard {
+        let nodes = energies.first().map_or(0, Vec::len);
+        Shard {
+            format: FORMAT.into(),
+            version: "test".into(),
+            method: METHOD.into(),
+            lattice_file: "x.yaml".into(),
+            content_hash: "0".into(),
+            lattice_text: "name: x\n".into(),
+            cells: "2x2x2".into(),
+            settings: Settings {
+                seed: 1,
+                replicas_per_shard: energies.len(),
+                sweeps: 41,
+                equilibration: 10,
+                nodes,
+                beta_max,
+                loops: true,
+            },
+            shard: 1,
+            shards: 1,
+            seconds,
+            runs: energies
+                .into_iter()
+                .enumerate()
+                .map(|(replica, energy)| Run {
+                    replica,
+                    energy,
+                    flipped: 3,
+                    attempted: 7,
+                })
+                .collect(),
+            checksum: String::new(),
+        }
+    }
+
+    /// Issue 11, item 9: untouched shard files were refused as damaged for most `--sweeps`
+    /// values, because a mean energy such as 123/41 did not read back bit for bit and the
+    /// checksum failed. Every ratio k/s for s up to 2000 and a spread of k, and floats of
+    /// every magnitude, must read back exactly and pass the checksum.
+    #[test]
+    fn issue11_shard_floats_read_back_bit_for_bit() {
+        let mut energies = Vec::new();
+        for sweeps in 1..=2000u64 {
+            let run: Vec<f64> = [1u64, 7, 41, 123, 999, 4097, 65_537, 1_234_567]
+                .iter()
+                .map(|&k| (k * 37 + sweeps) as f64 / sweeps as f64)
+                .collect();
+            energies.push(run);
+        }
+        // Floats from a simple generator over many magnitudes, and awkward values.
+        let mut x = 0x9E37_79B9_7F4A_7C15u64;
+        let mut odd = Vec::new();
+        for _ in 0..4000 {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            let mantissa = (x >> 11) as f64 / (1u64 << 53) as f64;
+            let exponent = ((x & 0xff) as i32) - 128;
+            odd.push(mantissa * 2f64.powi(exponent));
+        }
+        odd.extend([
+            0.0,
+            5e-324,
+            f64::MIN_POSITIVE,
+            f64::MAX,
+            0.1 + 0.2,
+            1.0 / 3.0,
+            2f64.sqrt(),
+        ]);
+        for chunk in odd.chunks(8) {
+            if chunk.len() == 8 {
+                energies.push(chunk.to_vec());
+            }
+        }
+        let shard = shard_with(energies, 12.345678901234567, 9.926_022_153_419_93);
+        let text = shard.to_json();
+        let back = Shard::from_json(&text, Path::new("part.json")).expect("reads back");
+        for (a, b) in shard.runs.iter().zip(&back.runs) {
+            let bits = |r: &Run| r.energy.iter().map(|e| e.to_bits()).collect::<Vec<_>>();
+            assert_eq!(bits(a), bits(b), "replica {}", a.replica);
+        }
+        assert_eq!(shard.seconds.to_bits(), back.seconds.to_bits());
+        assert_eq!(
+            shard.settings.beta_max.to_bits(),
+            back.settings.beta_max.to_bits()
+        );
+        // The file written again from what was read is the same text.
+        assert_eq!(back.to_json(), text);
+    }
+}
