@@ -18,6 +18,7 @@ fn config(replicas: usize) -> SampleConfig {
         sweeps: 40,
         equilibration: 10,
         nodes: 21,
+        max_extensions: 0,
         ..SampleConfig::default()
     }
 }
@@ -103,7 +104,9 @@ fn merge_err(parts: &[&Path]) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
 
-/// The command line: shards merge into the JSON of one run, and every kind of mismatch,
+/// The command line: shards merge into the JSON of one run (shards never repeat themselves
+/// after a failed equilibration check, so the run compared has `--max-extensions 0`), and
+/// every kind of mismatch,
 /// duplicate or damage is refused with the file named and the reason given.
 #[test]
 fn merge_command_combines_and_refuses() {
@@ -132,6 +135,8 @@ fn merge_command_combines_and_refuses() {
         "20",
         "--nodes",
         "9",
+        "--max-extensions",
+        "0",
         "--format",
         "json",
     ]);
@@ -154,7 +159,7 @@ fn merge_command_combines_and_refuses() {
     // an edited number
     let text = std::fs::read_to_string(&p2).unwrap();
     let edited = dir.join("edited.json");
-    let from = text.find("\"energy\": [").unwrap() + 40;
+    let from = text.find("\"up\": [").unwrap() + 40;
     let at = from + text[from..].find(|c: char| c.is_ascii_digit()).unwrap();
     let mut bytes = text.into_bytes();
     bytes[at] = if bytes[at] == b'1' { b'2' } else { b'1' };
@@ -169,6 +174,18 @@ fn merge_command_combines_and_refuses() {
     // not a shard at all
     let e = merge_err(&[&file]);
     assert!(e.contains("not a readable shard file"), "{e}");
+    // a shard of the earlier format (one pass per replica)
+    let old = dir.join("old.json");
+    let text = std::fs::read_to_string(&p2).unwrap().replace(
+        "Monte Carlo shard, version 2",
+        "Monte Carlo shard, version 1",
+    );
+    std::fs::write(&old, text).unwrap();
+    let e = merge_err(&[&p1, &old]);
+    assert!(
+        e.contains("old.json") && e.contains("earlier groundcount"),
+        "{e}"
+    );
     // --shard without --out, and a bad K/N
     let o = run(&[
         "sample",
@@ -232,6 +249,8 @@ fn issue11_untouched_shards_merge_for_any_sweeps() {
             sweeps,
             "--seed",
             seed,
+            "--max-extensions",
+            "0",
             "--format",
             "json",
         ]);

@@ -40,7 +40,10 @@ use crate::error::{Error, Result};
 use crate::model::Model;
 
 /// The `format` field of every shard file.
-pub const FORMAT: &str = "groundcount Monte Carlo shard, version 1";
+pub const FORMAT: &str = "groundcount Monte Carlo shard, version 2";
+
+/// The `format` of the files earlier versions wrote (one pass per replica instead of two).
+const OLDER_FORMATS: [&str; 1] = ["groundcount Monte Carlo shard, version 1"];
 
 /// The one method shards exist for.
 pub const METHOD: &str = "thermodynamic-integration";
@@ -116,10 +119,18 @@ impl Shard {
                 "not a readable shard file (damaged or truncated JSON: {e})"
             ))
         })?;
-        if value.get("format").and_then(|f| f.as_str()) != Some(FORMAT) {
-            return Err(bad(format!(
-                "not a groundcount shard file: expected \"format\": \"{FORMAT}\""
-            )));
+        match value.get("format").and_then(|f| f.as_str()) {
+            Some(FORMAT) => {}
+            Some(old) if OLDER_FORMATS.contains(&old) => {
+                return Err(bad(format!(
+                    "a shard file of an earlier groundcount (\"{old}\"), whose replicas were sampled differently: run its shards again with this version"
+                )));
+            }
+            _ => {
+                return Err(bad(format!(
+                    "not a groundcount shard file: expected \"format\": \"{FORMAT}\""
+                )));
+            }
         }
         let shard: Shard =
             serde_json::from_value(value).map_err(|e| bad(format!("damaged shard file: {e}")))?;
@@ -164,6 +175,13 @@ fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String,
     pairs.into_iter().find(|(_, x, y)| x != y)
 }
 
+/// The replica indices of shard `shard` (1-based) of `r` replicas each, or `None` when they
+/// would not fit in a `usize`.
+fn replica_range(shard: usize, r: usize) -> Option<std::ops::Range<usize>> {
+    let from = shard.checked_sub(1)?.checked_mul(r)?;
+    Some(from..from.checked_add(r)?)
+}
+
 /// The text the checksum is taken of.
 fn canonical(s: &Shard) -> String {
     serde_json::to_string(s).expect("a shard serialises")
@@ -181,6 +199,8 @@ fn config_of(settings: &Settings) -> SampleConfig {
         loops: settings.loops,
         target_error: None,
         max_replicas: settings.replicas_per_shard,
+        max_extensions: 0,
+        deadline: None,
         interrupt: Default::default(),
     }
 }
@@ -209,10 +229,29 @@ pub fn run_shard(
     if cells.periodic[..cells.dimensions].iter().any(|p| !p) {
         return Err(Error::Setting("shards are for periodic cells only".into()));
     }
-    let start = Instant::now();
-    let plan = Plan::new(model, config)?;
     let r = config.replicas;
-    let runs = plan.run((shard - 1) * r..shard * r, on_replica);
+    let Some(range) = replica_range(shard, r) else {
+        return Err(Error::Setting(format!(
+            "shard {shard}/{shards} of {r} replicas each would run replicas beyond {}: use fewer shards or fewer replicas per shard",
+            usize::MAX
+        )));
+    };
+    let start = Instant::now();
+    // A shard never extends itself: every shard of a run must hold the same settings.
+    let config = SampleConfig {
+        max_extensions: 0,
+        ..config.clone()
+    };
+    let plan = Plan::new(model, &config)?;
+    let runs = plan.run(range.clone(), on_replica);
+    if runs.len() < range.len() {
+        return Err(Error::Interrupted {
+            what: format!(
+                "running shard {shard}/{shards} ({} of its {r} replicas finished; a shard is written only when complete)",
+                runs.len()
+            ),
+        });
+    }
     let seconds = start.elapsed().as_secs_f64();
     let sampled = plan.finish(&runs, seconds);
     let settings = Settings {
@@ -338,7 +377,17 @@ pub fn merge(parts: &[(PathBuf, Shard)]) -> Result<Merged> {
         }
         seen.push((s.shard, path));
         let r = s.settings.replicas_per_shard;
-        let expected: Vec<usize> = ((s.shard - 1) * r..s.shard * r).collect();
+        let Some(range) = replica_range(s.shard, r) else {
+            return Err(bad(
+                path,
+                format!(
+                    "damaged shard file: shard {} of {r} replicas each names replicas beyond {}",
+                    s.shard,
+                    usize::MAX
+                ),
+            ));
+        };
+        let expected: Vec<usize> = range.collect();
         let got: Vec<usize> = s.runs.iter().map(|run| run.replica).collect();
         if got != expected {
             return Err(bad(
@@ -352,7 +401,8 @@ pub fn merge(parts: &[(PathBuf, Shard)]) -> Result<Merged> {
             ));
         }
         for run in &s.runs {
-            if run.energy.len() != s.settings.nodes || run.energy.iter().any(|e| !e.is_finite()) {
+            let fine = |e: &[f64]| e.len() == s.settings.nodes && e.iter().all(|x| x.is_finite());
+            if !fine(&run.up) || !fine(&run.down) {
                 return Err(bad(
                     path,
                     format!(
@@ -434,7 +484,8 @@ mod tests {
                 .enumerate()
                 .map(|(replica, energy)| Run {
                     replica,
-                    energy,
+                    up: energy.iter().map(|e| e * 1.5).collect(),
+                    down: energy,
                     flipped: 3,
                     attempted: 7,
                 })
@@ -486,7 +537,12 @@ mod tests {
         let text = shard.to_json();
         let back = Shard::from_json(&text, Path::new("part.json")).expect("reads back");
         for (a, b) in shard.runs.iter().zip(&back.runs) {
-            let bits = |r: &Run| r.energy.iter().map(|e| e.to_bits()).collect::<Vec<_>>();
+            let bits = |r: &Run| {
+                r.up.iter()
+                    .chain(&r.down)
+                    .map(|e| e.to_bits())
+                    .collect::<Vec<_>>()
+            };
             assert_eq!(bits(a), bits(b), "replica {}", a.replica);
         }
         assert_eq!(shard.seconds.to_bits(), back.seconds.to_bits());
