@@ -453,6 +453,9 @@ pub const SAMPLE_MIN_UNITS: f64 = 96.0;
 /// Most cells the Monte Carlo extrapolation samples.
 pub const SAMPLE_MAX_CELLS: usize = 5;
 
+/// The cells are chosen so that they fit this many times over at the configured settings.
+const PLAN_REPEAT: f64 = 2.0;
+
 /// Share of the time left that the Monte Carlo plans to use (the rest absorbs the error of
 /// the time prediction).
 const PLAN_SHARE: f64 = 0.9;
@@ -500,9 +503,9 @@ fn spread(candidates: &[f64], last: usize, most: usize) -> Vec<usize> {
 /// With a fixed cell (`sample_cells`), that cell alone. Otherwise cells chosen by formula
 /// units ([`sample_candidates`]): the smallest (about a hundred formula units) runs first
 /// with the configured settings and times the sampler; then the largest cell is chosen for
-/// which up to [`SAMPLE_MAX_CELLS`] cells spread evenly in ln N between the two fit in the
-/// time left, and the replicas (up to 8 times), then the sweeps, of every cell are raised
-/// to fill it. The cells are extrapolated to the infinite crystal when at least three ran
+/// which up to [`SAMPLE_MAX_CELLS`] cells spread evenly in ln N between the two fit twice
+/// over in the time left, and every cell gets a share of it in proportion to its size,
+/// filled by twice the replicas, then more sweeps, then up to 8 times the replicas. The cells are extrapolated to the infinite crystal when at least three ran
 /// ([`size::extrapolate`] never presents a fit without a degree of freedom).
 ///
 /// First of all, the largest exact cell with an arrangement is sampled with the configured
@@ -583,15 +586,24 @@ fn monte_carlo(
     let base_cost = |chosen: &[usize]| -> f64 {
         chosen.iter().map(|&i| sizes[i]).sum::<f64>() * rate * rounds(base.0) * cost_per_sweep
     };
-    // The largest cell whose spread of cells fits at the configured settings (the first
-    // cell is already done, so it counts only when it must run again).
-    let mut chosen = vec![0];
-    for last in 1..candidates.len() {
-        let set = spread(&sizes, last, SAMPLE_MAX_CELLS);
-        if base_cost(&set[1..]) > left {
-            break;
+    // The largest cell whose spread of cells fits twice over at the configured settings,
+    // so that every cell can have about twice the replicas (a steadier σ, and sweeps to
+    // spare for the equilibration of the largest); once over when that gives more cells
+    // and twice over gives too few for an extrapolation.
+    let largest = |times: f64| {
+        let mut chosen = vec![0];
+        for last in 1..candidates.len() {
+            let set = spread(&sizes, last, SAMPLE_MAX_CELLS);
+            if times * base_cost(&set[1..]) > left {
+                break;
+            }
+            chosen = set;
         }
-        chosen = set;
+        chosen
+    };
+    let mut chosen = largest(PLAN_REPEAT);
+    if chosen.len() < size::MIN_CELLS {
+        chosen = largest(1.0);
     }
     results.push(first);
     sample.deadline = Some(end);
@@ -625,13 +637,15 @@ fn monte_carlo(
         let share = PLAN_SHARE * remaining * sizes[i] / rest;
         // Rounds of replicas this share affords at the configured sweeps.
         let afford = (share / (rate * sizes[i] * cost_per_sweep)).max(rounds(base.0));
-        let most_rounds = rounds(base.0 * 8);
-        let cell_rounds = afford.min(most_rounds).floor();
+        // Twice the replicas first (a steadier σ), then longer runs (the lag of the
+        // largest cells falls with the sweeps), then up to 8 times the replicas.
+        let (double, most) = (rounds(base.0 * 2), rounds(base.0 * 8));
+        let longer = (afford / double).clamp(1.0, 20_000.0 / base.1 as f64);
+        let cell_rounds = (afford / longer).min(most).floor().max(1.0);
         let mut this = sample.clone();
         this.replicas = (cell_rounds as usize * threads).max(base.0);
-        let longer = (afford / cell_rounds).max(1.0);
         if longer >= 1.25 {
-            this.sweeps = ((base.1 as f64 * longer) as usize).min(20_000);
+            this.sweeps = (base.1 as f64 * longer) as usize;
             this.equilibration = (sample.equilibration as f64 * longer) as usize;
         }
         match build(cells).and_then(|m| run(cells, &m, &this)) {
@@ -781,6 +795,90 @@ fn extrapolate_cells(
     }
 }
 
+/// Most variables of the cell on which the Wang–Landau walk checks the sampler when no exact
+/// count is at hand (its descent costs of order E_w² visits per level).
+const WANG_LANDAU_MAX_VARIABLES: usize = 600;
+
+/// With no exact count in the run: the one-cell crystal sampled both ways, thermodynamic
+/// integration against a Wang–Landau walk (which shares only the moves), recorded as a
+/// [`CrossCheck`] with the tolerance from both error bars.
+fn wang_landau_check(
+    c: &Crystal,
+    sample: &SampleConfig,
+    build: &dyn Fn(&Cells) -> Result<Model>,
+    run: &dyn Fn(&Cells, &Model, &SampleConfig) -> Result<SampledCell>,
+    notes: &mut Vec<String>,
+    checks: &mut Vec<CrossCheck>,
+) {
+    let cells = Cells::cube(1, c.dimensions);
+    let name = cells.to_string();
+    let model = match build(&cells) {
+        Ok(m) if m.variables.len() <= WANG_LANDAU_MAX_VARIABLES => m,
+        Ok(m) => {
+            notes.push(format!(
+                "Monte Carlo: no cross-check (no exact count in this run, and {name} has {} variables, too many for the Wang–Landau check)",
+                m.variables.len()
+            ));
+            return;
+        }
+        Err(e) => {
+            notes.push(format!("Monte Carlo: no cross-check ({e})"));
+            return;
+        }
+    };
+    let walk_config = sampling::wang_landau::WangLandauConfig {
+        seed: sample.seed,
+        replicas: sample.replicas,
+        sweeps: 20_000,
+        uniform: 20_000,
+        interrupt: sample.interrupt.clone(),
+    };
+    let walk = match sampling::wang_landau::wang_landau(&model, &walk_config) {
+        Ok(w) => w,
+        Err(Error::Interrupted { .. }) => return,
+        Err(e) => {
+            notes.push(format!(
+                "Monte Carlo: no cross-check (no exact count in this run, and the Wang–Landau walk on {name} failed: {e})"
+            ));
+            return;
+        }
+    };
+    let integrated = match run(&cells, &model, sample) {
+        Ok(s) => s,
+        Err(Error::Interrupted { .. }) => return,
+        Err(e) => {
+            notes.push(format!("Monte Carlo: no cross-check on {name} ({e})"));
+            return;
+        }
+    };
+    let (a, b) = (&integrated.sampled.estimate, &walk.estimate);
+    let (sa, sb) = (a.sigma_ln_w.unwrap_or(0.0), b.sigma_ln_w.unwrap_or(0.0));
+    let check = CrossCheck {
+        method: Method::MonteCarlo,
+        route: Route::WangLandau {
+            cells: name.clone(),
+        },
+        value: a.ln_w_per_unit,
+        reference: b.ln_w_per_unit,
+        tolerance: CROSS_CHECK_SIGMAS * sa.hypot(sb),
+    };
+    notes.push(format!(
+        "Monte Carlo cross-check on {name} (no exact count in this run): thermodynamic integration ln W = {} ± {} per formula unit against a Wang–Landau walk {} ± {}; {}. It tests the sampler on a small cell, not the extrapolation to larger cells",
+        crate::report::sig(a.ln_w_per_unit, 6),
+        crate::report::sig(sa, 2),
+        crate::report::sig(b.ln_w_per_unit, 6),
+        crate::report::sig(sb, 2),
+        if check.agrees() {
+            format!("agreement within {CROSS_CHECK_SIGMAS} combined σ")
+        } else {
+            format!(
+                "DISAGREEMENT beyond {CROSS_CHECK_SIGMAS} combined σ: the Monte Carlo values of this run are not to be trusted"
+            )
+        }
+    ));
+    checks.push(check);
+}
+
 /// Tolerance of the Monte Carlo cross-check, in σ of the sampled value: a correct run
 /// misses by more about once in several hundred (σ is widened so that the pull has unit
 /// variance; Student t with 7 degrees of freedom for 8 replicas).
@@ -802,9 +900,7 @@ fn cross_check(
         .rev()
         .find(|e| e.ln_w_per_unit.is_finite() && e.formula_units >= 2.0)
     else {
-        notes.push(
-            "Monte Carlo: no cross-check (no exact count with an arrangement in this run)".into(),
-        );
+        wang_landau_check(c, sample, build, run, notes, checks);
         return;
     };
     let name = exact.cells.clone().unwrap_or_default();
@@ -844,5 +940,57 @@ fn cross_check(
         }
         Err(Error::Interrupted { .. }) => {}
         Err(e) => notes.push(format!("Monte Carlo: no cross-check on {name} ({e})")),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Issue 11, item 3: the Monte Carlo cells were chosen by unit cells (cubes n − 3 … n),
+    /// so a 16-water cell got cubes of 128 … 1024 waters and a 46-water cell two cubes. The
+    /// candidates now start at about a hundred formula units, with at least two unit cells
+    /// along every axis, and grow in small steps (near-cubic shapes).
+    #[test]
+    fn issue11_sample_cells_are_chosen_by_formula_units() {
+        for (per_cell, first) in [(4.0, [3, 3, 3]), (16.0, [2, 2, 2]), (46.0, [2, 2, 2])] {
+            let c = sample_candidates(per_cell);
+            assert_eq!(c[0].counts, first, "{per_cell} per cell");
+            let units: Vec<f64> = c.iter().map(|x| x.total() as f64 * per_cell).collect();
+            assert!(units[0] >= SAMPLE_MIN_UNITS && units[0] < 4.0 * SAMPLE_MIN_UNITS);
+            assert!(c.iter().all(|x| x.counts.iter().all(|&n| n >= 2)));
+            // every step grows the cell by at most a half, and never shrinks it
+            assert!(
+                units.windows(2).all(|w| w[1] > w[0] && w[1] <= 1.51 * w[0]),
+                "{units:?}"
+            );
+        }
+        // ice Ih: 3x3x3, 4x3x3, 4x4x3, 4x4x4, ... (108, 144, 192, 256 waters)
+        let ice: Vec<usize> = sample_candidates(4.0)[..4]
+            .iter()
+            .map(|c| 4 * c.total())
+            .collect();
+        assert_eq!(ice, [108, 144, 192, 256]);
+    }
+
+    /// The cells of an extrapolation are spread evenly in ln N between the smallest and the
+    /// chosen largest: first and last kept, increasing, at most `most`.
+    #[test]
+    fn spread_keeps_both_ends_and_spaces_the_rest_in_ln_n() {
+        let sizes: Vec<f64> = sample_candidates(4.0)
+            .iter()
+            .map(|c| 4.0 * c.total() as f64)
+            .collect();
+        for last in 1..20 {
+            let s = spread(&sizes, last, SAMPLE_MAX_CELLS);
+            assert_eq!(s[0], 0);
+            assert_eq!(*s.last().unwrap(), last);
+            assert!(s.len() == (last + 1).min(SAMPLE_MAX_CELLS));
+            assert!(s.windows(2).all(|w| w[1] > w[0]));
+        }
+        // 108 … 864 waters: 108, 192, 320, 500, 864 (ratios 1.6–1.8)
+        let s = spread(&sizes, 9, 5);
+        let picked: Vec<f64> = s.iter().map(|&i| sizes[i]).collect();
+        assert_eq!(picked, [108.0, 192.0, 320.0, 500.0, 864.0]);
     }
 }

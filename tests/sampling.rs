@@ -726,3 +726,61 @@ fn interrupt_stops_starting_replicas_and_keeps_the_finished_ones() {
     let e = sampling::sample(&m, &config).unwrap_err();
     assert!(matches!(e, groundcount::Error::Interrupted { .. }), "{e}");
 }
+
+/// Issue 11, items 2 and 3, through the survey that `estimate` and `report` run: ice VII
+/// as two ice-Ic nets (tests/data/counts-ice-vii.yaml). Every sampled cell holds about a
+/// hundred formula units or more; the largest exact cell (1x1x1, 8100 = 90² arrangements,
+/// the square of the ice Ic count in REFERENCES.md) is sampled too and agrees with its
+/// count (a `CrossCheck`); an extrapolation, when the budget allowed three cells, keeps a
+/// degree of freedom and agrees within 4σ with the value ice VII must share with ice Ic and
+/// ice Ih, W = 1.5071 per H2O (Berg, Muguruma & Okamoto 2007, Phys. Rev. B 75, 092202,
+/// 1.50738 ± 0.00016, and Nagle 1966, J. Math. Phys. 7, 1484, 1.50685 ± 0.00015, both
+/// from memory; their spread, 0.0003, is added to σ; Ih = Ic within 1e-5: Xu, Lin & Zhang,
+/// arXiv:2511.22477).
+#[test]
+fn issue11_survey_samples_by_formula_units_and_cross_checks() {
+    use groundcount::crosscheck::Route;
+    use groundcount::survey::{SurveyConfig, survey};
+    let l = Lattice::from_file(&crate::util::fixture("counts-ice-vii.yaml")).unwrap();
+    let config = SurveyConfig {
+        budget: 8.0,
+        max_exact_units: Some(16.0),
+        ..SurveyConfig::default()
+    };
+    let s = in_pool(2, || survey(&l.crystal, &config)).unwrap();
+    assert_eq!(
+        s.exact.last().unwrap().count.as_ref().unwrap().to_string(),
+        "8100"
+    );
+    let check = s
+        .checks
+        .iter()
+        .find(|c| matches!(&c.route, Route::ExactCount { cells } if cells == "1x1x1 periodic"))
+        .expect("the exact cell is sampled and checked");
+    assert!(check.agrees(), "{check:?}");
+    assert!(!s.sampled_sizes.is_empty(), "{:?}", s.notes);
+    for cell in &s.sampled_sizes {
+        assert!(
+            cell.sampled.estimate.formula_units >= 96.0,
+            "{}: {} formula units",
+            cell.cells,
+            cell.sampled.estimate.formula_units
+        );
+    }
+    match &s.extrapolated {
+        Some(x) => {
+            assert!(x.fit.dof >= 1);
+            let (w, sigma) = (x.estimate.ln_w_per_unit, x.estimate.sigma_ln_w.unwrap());
+            let published = 1.5071f64.ln();
+            assert!(
+                (w - published).abs() < 4.0 * sigma.hypot(0.0003 / 1.5071),
+                "ln W = {w} ± {sigma} against ln 1.5071 = {published}"
+            );
+        }
+        None => assert!(
+            s.sampled_sizes.len() < 3 && s.notes.iter().any(|n| n.contains("not extrapolated")),
+            "{:?}",
+            s.notes
+        ),
+    }
+}

@@ -230,6 +230,7 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
             v["window_fraction"] = w.fraction.into();
             v["levels_visited"] = w.levels.into();
             v["per_replica_ln_w_per_unit"] = w.per_replica.clone().into();
+            v["interrupted"] = w.interrupted.into();
             v["variables"] = model.variables.len().into();
             v["constraints"] = model.constraints.len().into();
             v["content_hash"] = lattice.content_hash.clone().into();
@@ -266,6 +267,13 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
                 w.levels,
                 sig(e.seconds, 3)
             )?;
+            if w.interrupted {
+                writeln!(
+                    out,
+                    "INTERRUPTED: only {} walks finished; the estimate and its σ rest on those",
+                    w.replicas
+                )?;
+            }
             Ok(out)
         }
     }

@@ -28,14 +28,25 @@
 //! handful of violations remain there. The discretisation error is
 //! Richardson's |S_n − S_(n+1)/2|/15 on the replica-mean integrand.
 //!
-//! Every replica starts from a uniformly random assignment (the exact β = 0 ensemble) and
-//! is annealed through the nodes from β = 0 up to β_max, with `equilibration` heat-bath
-//! sweeps and then `sweeps` measured sweeps at each node ([`moves`]); from β = 1 on, every
-//! sweep is followed by loop moves that keep every constraint's count where the model
-//! allows them ([`loops`]). Each replica gives its own estimate of ln Ω₀; the statistical
-//! error is the standard error of their mean. The reported σ of ln W is the sum
-//! statistical + quadrature + tail. With a `target_error`, batches of replicas are added
-//! until that σ is reached.
+//! Every replica starts from a uniformly random assignment (the exact β = 0 ensemble), is
+//! annealed through the nodes from β = 0 up to β_max and then back down, with
+//! `equilibration` heat-bath sweeps and then half the `sweeps` measured at each node on
+//! each pass ([`moves`]); from β = 1 on, every sweep is followed by loop moves that keep
+//! every constraint's count where the model allows them ([`loops`]). A chain that lags
+//! behind the annealing carries too many violations on the way up and too few on the way
+//! down, so the mean of the two passes cancels the lag to first order, and their
+//! difference is the equilibration check: when it is significant (and would matter), the
+//! run is repeated with twice the sweeps, up to `max_extensions` times, and then a quarter
+//! of it ([`RESIDUAL_LAG`]) joins the error budget. Each replica gives its own estimate of
+//! ln Ω₀; the statistical error is the standard error of their mean, widened for their
+//! number ([`student_factor`]). The reported σ of ln W is the root sum of squares of the
+//! statistical, quadrature, tail and equilibration parts. With a `target_error`, batches of
+//! replicas are added until that σ is reached.
+//!
+//! Settings that cannot give an honest number are refused up front: nodes further apart
+//! than [`MAX_NODE_SPACING`] in β, and runs that would hold more than [`MAX_MEMORY`].
+//! Once the configuration's interrupt is raised no replica starts; the finished ones give
+//! the estimate ([`Sampled::interrupted`]).
 //!
 //! Thermodynamic integration for the residual entropy of ice: Kolafa 2014, J. Chem. Phys.
 //! 140, 204507; Herrero & Ramírez 2014, J. Chem. Phys. 140, 234502.
@@ -58,7 +69,7 @@
 //!
 //! # Complexity
 //!
-//! Time O(replicas · nodes · (sweeps + equilibration) · Σ_v q_v d_v) for variables with
+//! Time O(replicas · nodes · (sweeps + 2·equilibration) · Σ_v q_v d_v) for variables with
 //! q_v states in d_v constraints; memory O(threads · (variables + constraints)) plus the
 //! shared tables.
 

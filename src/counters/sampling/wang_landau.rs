@@ -217,7 +217,7 @@ pub fn wang_landau_with(
             peak_states: None,
         },
         seed: config.seed,
-        replicas: config.replicas,
+        replicas: runs.len(),
         sweeps: config.sweeps,
         window,
         fraction: runs.iter().map(|w| w.ln_fraction.exp()).sum::<f64>() / r,
