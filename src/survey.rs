@@ -453,11 +453,15 @@ pub const SAMPLE_MIN_UNITS: f64 = 96.0;
 /// Most cells the Monte Carlo extrapolation samples.
 pub const SAMPLE_MAX_CELLS: usize = 5;
 
+/// Share of the time left that each cell's settings are raised to fill (its part in
+/// proportion to its size); the pace is measured again after every cell.
+const FILL_SHARE: f64 = 0.95;
+
 /// The cells are chosen so that they fit this many times over at the configured settings.
 const PLAN_REPEAT: f64 = 2.0;
 
-/// Share of the time left that the Monte Carlo plans to use (the rest absorbs the error of
-/// the time prediction).
+/// Share of the time left that the choice of cells plans to use (the rest absorbs the error
+/// of the time prediction).
 const PLAN_SHARE: f64 = 0.9;
 
 /// The cells the Monte Carlo may sample, smallest first: the near-cubic shapes of
@@ -634,7 +638,7 @@ fn monte_carlo(
         let i = todo.remove(0);
         let cells = &candidates[i];
         let rest: f64 = sizes[i] + todo.iter().map(|&j| sizes[j]).sum::<f64>();
-        let share = PLAN_SHARE * remaining * sizes[i] / rest;
+        let share = FILL_SHARE * remaining * sizes[i] / rest;
         // Rounds of replicas this share affords at the configured sweeps.
         let afford = (share / (rate * sizes[i] * cost_per_sweep)).max(rounds(base.0));
         // Twice the replicas first (a steadier σ), then longer runs (the lag of the
@@ -656,7 +660,8 @@ fn monte_carlo(
                         * rounds(e.replicas)
                         * (e.sweeps as f64 + 2.0 * e.equilibration as f64))
                         .max(1e-9);
-                rate = rate.max(pace);
+                // The latest cell is the largest so far: the best guide to the next.
+                rate = pace;
                 let stop = e.interrupted;
                 results.push(s);
                 if stop {

@@ -147,6 +147,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         };
         results.push((model, s));
     }
+    if results.is_empty() {
+        return Err(groundcount::Error::Interrupted {
+            what: "sampling, before any cell finished".into(),
+        }
+        .into());
+    }
     let mut text = if sizes.len() == 1 {
         let (model, s) = &results[0];
         render(args.common.format, &lattice, &shown, model, s, None)?
