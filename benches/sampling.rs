@@ -39,6 +39,7 @@ fn sweeps(c: &mut Criterion) {
         replicas: 2,
         sweeps: 5_000,
         uniform: 2_000,
+        ..Default::default()
     };
     // 2 replicas × 2 stages × 5000 sweeps × 64 variables
     group.throughput(Throughput::Elements(

@@ -445,10 +445,12 @@ fn issue11_a_zero_degree_of_freedom_fit_is_not_cited() {
     let fit = size::SizeFit {
         value: 0.4333,
         sigma: 0.01,
+        sigma_fit: 0.01,
+        systematic: 0.0,
         coefficients: vec![1.07],
         chi2: 0.0,
         dof: 0,
-        two_term: None,
+        alternative: None,
     };
     let estimate = fit.estimate(1.0);
     s.extrapolated = Some(SizeExtrapolation { fit, estimate });

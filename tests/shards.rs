@@ -18,6 +18,7 @@ fn config(replicas: usize) -> SampleConfig {
         sweeps: 40,
         equilibration: 10,
         nodes: 21,
+        max_extensions: 0,
         ..SampleConfig::default()
     }
 }
@@ -80,14 +81,15 @@ fn write_shard_of(dir: &Path, name: &str, file: &str, cells: &str, extra: &[&str
         cells,
         "--replicas",
         "2",
-        "--sweeps",
-        "20",
         "--nodes",
         "9",
         "-q",
         "--out",
         out.to_str().unwrap(),
     ];
+    if !extra.contains(&"--sweeps") {
+        args.extend(["--sweeps", "20"]);
+    }
     args.extend_from_slice(extra);
     let o = run(&args);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
@@ -102,7 +104,9 @@ fn merge_err(parts: &[&Path]) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
 
-/// The command line: shards merge into the JSON of one run, and every kind of mismatch,
+/// The command line: shards merge into the JSON of one run (shards never repeat themselves
+/// after a failed equilibration check, so the run compared has `--max-extensions 0`), and
+/// every kind of mismatch,
 /// duplicate or damage is refused with the file named and the reason given.
 #[test]
 fn merge_command_combines_and_refuses() {
@@ -131,6 +135,8 @@ fn merge_command_combines_and_refuses() {
         "20",
         "--nodes",
         "9",
+        "--max-extensions",
+        "0",
         "--format",
         "json",
     ]);
@@ -153,7 +159,7 @@ fn merge_command_combines_and_refuses() {
     // an edited number
     let text = std::fs::read_to_string(&p2).unwrap();
     let edited = dir.join("edited.json");
-    let from = text.find("\"energy\": [").unwrap() + 40;
+    let from = text.find("\"up\": [").unwrap() + 40;
     let at = from + text[from..].find(|c: char| c.is_ascii_digit()).unwrap();
     let mut bytes = text.into_bytes();
     bytes[at] = if bytes[at] == b'1' { b'2' } else { b'1' };
@@ -168,6 +174,18 @@ fn merge_command_combines_and_refuses() {
     // not a shard at all
     let e = merge_err(&[&file]);
     assert!(e.contains("not a readable shard file"), "{e}");
+    // a shard of the earlier format (one pass per replica)
+    let old = dir.join("old.json");
+    let text = std::fs::read_to_string(&p2).unwrap().replace(
+        "Monte Carlo shard, version 2",
+        "Monte Carlo shard, version 1",
+    );
+    std::fs::write(&old, text).unwrap();
+    let e = merge_err(&[&p1, &old]);
+    assert!(
+        e.contains("old.json") && e.contains("earlier groundcount"),
+        "{e}"
+    );
     // --shard without --out, and a bad K/N
     let o = run(&[
         "sample",
@@ -190,5 +208,60 @@ fn merge_command_combines_and_refuses() {
     ]);
     assert_eq!(o.status.code(), Some(1));
     assert!(String::from_utf8_lossy(&o.stderr).contains("K/N"));
+    std::fs::remove_dir_all(&dir).ok();
+}
+
+/// Issue 11, item 9: shard files written with `--sweeps` 41, 300 or 1200 were refused by
+/// `merge` as damaged (their mean energies did not read back bit for bit, so the checksum
+/// failed). Untouched shards of many settings must merge, to the numbers of one run.
+#[test]
+fn issue11_untouched_shards_merge_for_any_sweeps() {
+    let dir = std::env::temp_dir().join(format!("groundcount-sweeps-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let file = lattice("ice-ih.yaml");
+    for (sweeps, seed) in [
+        ("41", "1"),
+        ("300", "2"),
+        ("1200", "3"),
+        ("77", "4"),
+        ("13", "5"),
+    ] {
+        let with = |shard: &'static str| ["--sweeps", sweeps, "--seed", seed, "--shard", shard];
+        let p1 = write_shard(&dir, &format!("s{sweeps}-1.json"), &with("1/2"));
+        let p2 = write_shard(&dir, &format!("s{sweeps}-2.json"), &with("2/2"));
+        let merged = run_json(&[
+            "merge",
+            p1.to_str().unwrap(),
+            p2.to_str().unwrap(),
+            "--format",
+            "json",
+        ]);
+        let whole = run_json(&[
+            "sample",
+            file.to_str().unwrap(),
+            "--cells",
+            "2x1x1",
+            "--replicas",
+            "4",
+            "--nodes",
+            "9",
+            "--sweeps",
+            sweeps,
+            "--seed",
+            seed,
+            "--max-extensions",
+            "0",
+            "--format",
+            "json",
+        ]);
+        assert_eq!(
+            merged["w_per_unit"], whole["w_per_unit"],
+            "--sweeps {sweeps}"
+        );
+        assert_eq!(
+            merged["uncertainty"], whole["uncertainty"],
+            "--sweeps {sweeps}"
+        );
+    }
     std::fs::remove_dir_all(&dir).ok();
 }

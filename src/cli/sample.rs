@@ -62,6 +62,10 @@ pub struct Args {
     /// Most replicas a --target-error run may use.
     #[arg(long, default_value_t = 1024)]
     max_replicas: usize,
+    /// How many times the run may be repeated with twice the sweeps and equilibration when
+    /// the passes up and down disagree (the equilibration check); 0 only reports the check.
+    #[arg(long, default_value_t = 3)]
+    max_extensions: usize,
     /// Run only part K of N of the run (K = 1..N; each part runs --replicas replicas) and
     /// write its raw results to --out for `groundcount merge`.
     #[arg(long, value_name = "K/N", requires = "out")]
@@ -103,6 +107,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         loops: !args.no_loops,
         target_error: args.target_error,
         max_replicas: args.max_replicas,
+        max_extensions: args.max_extensions,
+        deadline: None,
         interrupt: super::interrupt(),
     };
     let shown = Shown {
@@ -123,16 +129,48 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     }
     let mut results = Vec::new();
     for cells in &sizes {
+        if config.interrupt.raised() {
+            break;
+        }
         let cluster = Cluster::new(c, cells.clone())?;
         let model = Model::new(&cluster)?;
-        let s = sample_one(&args.common, &model, &config)?;
+        let s = match sample_one(&args.common, &model, &config) {
+            Ok(s) => s,
+            // Ctrl-C during a later cell: report the cells already done.
+            Err(e)
+                if !results.is_empty()
+                    && matches!(
+                        e.downcast_ref::<groundcount::Error>(),
+                        Some(groundcount::Error::Interrupted { .. })
+                    ) =>
+            {
+                break;
+            }
+            Err(e) => return Err(e),
+        };
         results.push((model, s));
     }
-    if results.len() == 1 {
-        let (model, s) = &results[0];
-        return render(args.common.format, &lattice, &shown, model, s, None);
+    if results.is_empty() {
+        return Err(groundcount::Error::Interrupted {
+            what: "sampling, before any cell finished".into(),
+        }
+        .into());
     }
-    render_sizes(args.common.format, &lattice, &shown, &results)
+    let mut text = if sizes.len() == 1 {
+        let (model, s) = &results[0];
+        render(args.common.format, &lattice, &shown, model, s, None)?
+    } else {
+        render_sizes(args.common.format, &lattice, &shown, &results)?
+    };
+    if results.len() < sizes.len() && args.common.format == Format::Table {
+        writeln!(
+            text,
+            "INTERRUPTED: {} of the {} cells sampled",
+            results.len(),
+            sizes.len()
+        )?;
+    }
+    Ok(text)
 }
 
 /// The Monte Carlo method of `sample`.
@@ -172,6 +210,7 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
         replicas: args.replicas,
         sweeps: args.sweeps.unwrap_or(100_000) as u64,
         uniform: args.uniform,
+        interrupt: super::interrupt(),
     };
     let bar = replica_bar(args.common.progress(), &model, config.replicas);
     let on_replica = || {
@@ -200,6 +239,7 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
             v["window_fraction"] = w.fraction.into();
             v["levels_visited"] = w.levels.into();
             v["per_replica_ln_w_per_unit"] = w.per_replica.clone().into();
+            v["interrupted"] = w.interrupted.into();
             v["variables"] = model.variables.len().into();
             v["constraints"] = model.constraints.len().into();
             v["content_hash"] = lattice.content_hash.clone().into();
@@ -236,6 +276,13 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
                 w.levels,
                 sig(e.seconds, 3)
             )?;
+            if w.interrupted {
+                writeln!(
+                    out,
+                    "INTERRUPTED: only {} walks finished; the estimate and its σ rest on those",
+                    w.replicas
+                )?;
+            }
             Ok(out)
         }
     }
@@ -431,22 +478,39 @@ fn diagnostics(s: &Sampled, shown: &Shown) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "σ of ln W per formula unit: statistical {}, quadrature {}, tail {} (sum reported)",
+        "σ of ln W per formula unit: statistical {} (standard error of {} replicas × {} for their number), quadrature {}, tail {}{} (root sum of squares reported)",
         unit_free(s.sigma_statistical),
+        s.replicas,
+        sig(sampling::student_factor(s.replicas), 3),
         unit_free(s.sigma_quadrature),
-        unit_free(s.sigma_tail)
+        unit_free(s.sigma_tail),
+        if s.sigma_equilibration > 0.0 {
+            format!(", equilibration {}", unit_free(s.sigma_equilibration))
+        } else {
+            String::new()
+        }
     );
     let _ = writeln!(
         out,
-        "thermodynamic integration, seed {}, {} replicas × {} nodes up to β = {}, {} measured sweeps, {} updates, {} s",
+        "thermodynamic integration, seed {}, {} replicas × {} nodes up to β = {} and back, {} + {} sweeps per node and pass ({} measured sweeps in all), {} updates, {} s",
         s.seed,
         s.replicas,
         shown.nodes,
         sig(s.beta_max, 3),
+        s.equilibration,
+        s.sweeps.div_ceil(2),
         s.samples,
         s.updates,
         sig(s.estimate.seconds, 3)
     );
+    out += &equilibration_line(s);
+    if s.interrupted {
+        let _ = writeln!(
+            out,
+            "INTERRUPTED: only {} replicas finished; the estimate and its σ rest on those",
+            s.replicas
+        );
+    }
     let _ = writeln!(
         out,
         "violated constraints left at β_max: {} on average; loop moves: {}",
@@ -479,6 +543,35 @@ fn diagnostics(s: &Sampled, shown: &Shown) -> String {
     out
 }
 
+/// The equilibration check in words: the passes up and down against each other, and
+/// what was done about a difference.
+pub(super) fn equilibration_line(s: &Sampled) -> String {
+    let versus = format!(
+        "ln W per formula unit up minus down {} ± {} ({}σ)",
+        sig(s.hysteresis, 2),
+        sig(s.sigma_hysteresis, 2),
+        sig(s.hysteresis / s.sigma_hysteresis.max(f64::MIN_POSITIVE), 2)
+    );
+    let extended = if s.extensions > 0 {
+        format!(
+            "; the run was repeated {} time{} with twice the sweeps, up to {} per node",
+            s.extensions,
+            if s.extensions == 1 { "" } else { "s" },
+            s.sweeps
+        )
+    } else {
+        String::new()
+    };
+    if s.equilibrated {
+        format!("equilibration check passed: {versus}{extended}\n")
+    } else {
+        format!(
+            "equilibration check FAILED: {versus}{extended}; the lag left in their mean, {}, is added to σ; run longer (more sweeps)\n",
+            sig(s.sigma_equilibration, 2)
+        )
+    }
+}
+
 /// The JSON document of one sampled cell.
 fn sampled_json(lattice: &Lattice, model: &Model, s: &Sampled, shown: &Shown) -> serde_json::Value {
     let c = &lattice.crystal;
@@ -492,6 +585,14 @@ fn sampled_json(lattice: &Lattice, model: &Model, s: &Sampled, shown: &Shown) ->
     v["sigma_ln_w_statistical"] = s.sigma_statistical.into();
     v["sigma_ln_w_quadrature"] = s.sigma_quadrature.into();
     v["sigma_ln_w_tail"] = s.sigma_tail.into();
+    v["sigma_ln_w_equilibration"] = s.sigma_equilibration.into();
+    v["hysteresis_ln_w_per_unit"] = s.hysteresis.into();
+    v["sigma_hysteresis"] = s.sigma_hysteresis.into();
+    v["equilibrated"] = s.equilibrated.into();
+    v["extensions"] = s.extensions.into();
+    v["sweeps"] = s.sweeps.into();
+    v["equilibration"] = s.equilibration.into();
+    v["interrupted"] = s.interrupted.into();
     v["beta_max"] = s.beta_max.into();
     v["loop_attempts_per_sweep"] = s.loop_attempts_per_sweep.into();
     v["loop_acceptance"] = s.loop_acceptance.into();
@@ -504,7 +605,8 @@ fn sampled_json(lattice: &Lattice, model: &Model, s: &Sampled, shown: &Shown) ->
     v
 }
 
-/// The output of several cells and their extrapolation to the infinite crystal.
+/// The output of several cells and their extrapolation to the infinite crystal (when
+/// there are enough cells for a fit with a degree of freedom left).
 fn render_sizes(
     format: Format,
     lattice: &Lattice,
@@ -521,81 +623,126 @@ fn render_sizes(
             sigma: s.estimate.sigma_ln_w.unwrap_or(0.0),
         })
         .collect();
-    let fit = size::extrapolate(&points)?;
-    let infinite = fit.estimate(results.iter().map(|(_, s)| s.estimate.seconds).sum());
-    let form = fit.form();
+    let fit = size::extrapolate(&points);
+    let seconds: f64 = results.iter().map(|(_, s)| s.estimate.seconds).sum();
+    let infinite = fit.as_ref().ok().map(|f| f.estimate(seconds));
     let p = pauling::estimate(c)?;
+    let mut rows = vec![p.clone()];
+    rows.extend(results.iter().map(|(_, s)| s.estimate.clone()));
+    rows.extend(infinite.iter().cloned());
     match format {
         Format::Json => {
             let cells: Vec<serde_json::Value> = results
                 .iter()
                 .map(|(m, s)| sampled_json(lattice, m, s, shown))
                 .collect();
-            let mut v = report::estimate_json(c, &infinite, Some(&p));
-            v["method"] = "monte-carlo-extrapolated".into();
-            v["fit"] = serde_json::json!({
-                "form": form,
-                "ln_w_per_unit_infinite": fit.value,
-                "sigma_ln_w": fit.sigma,
-                "coefficients": fit.coefficients,
-                "chi2": fit.chi2,
-                "dof": fit.dof,
-                "two_term_ln_w_per_unit": fit.two_term.map(|t| t.0),
-                "two_term_sigma_ln_w": fit.two_term.map(|t| t.1),
-            });
+            let mut v = match (&fit, &infinite) {
+                (Ok(fit), Some(infinite)) => {
+                    let mut v = report::estimate_json(c, infinite, Some(&p));
+                    v["method"] = "monte-carlo-extrapolated".into();
+                    v["fit"] = serde_json::json!({
+                        "form": fit.form(),
+                        "ln_w_per_unit_infinite": fit.value,
+                        "sigma_ln_w": fit.sigma,
+                        "sigma_fit": fit.sigma_fit,
+                        "systematic": fit.systematic,
+                        "coefficients": fit.coefficients,
+                        "chi2": fit.chi2,
+                        "dof": fit.dof,
+                        "alternative_form": fit.alternative_form(),
+                        "alternative_ln_w_per_unit": fit.alternative.map(|t| t.0),
+                        "alternative_sigma_ln_w": fit.alternative.map(|t| t.1),
+                    });
+                    v
+                }
+                _ => {
+                    let why = fit.as_ref().err().map_or(String::new(), |e| e.to_string());
+                    serde_json::json!({
+                        "lattice": c.name,
+                        "file": shown.file,
+                        "formula_unit": unit,
+                        "method": "monte-carlo-cells",
+                        "fit": null,
+                        "not_extrapolated": why,
+                    })
+                }
+            };
             v["cells_sampled"] = cells.into();
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
-        Format::Csv | Format::Markdown => {
-            let mut rows = vec![p];
-            rows.extend(results.iter().map(|(_, s)| s.estimate.clone()));
-            rows.push(infinite);
-            let t = report::comparison_table(&rows, unit);
-            Ok(if format == Format::Csv {
-                t.render_csv()
-            } else {
-                t.render_markdown()
-            })
-        }
+        Format::Csv => Ok(report::comparison_table(&rows, unit).render_csv()),
+        Format::Markdown => Ok(report::comparison_table(&rows, unit).render_markdown()),
         Format::Table => {
-            let mut rows = vec![p];
-            rows.extend(results.iter().map(|(_, s)| s.estimate.clone()));
-            rows.push(infinite.clone());
             let mut out = format!("{} ({})\n\n", c.name, shown.file);
             out += &report::comparison_table(&rows, unit).render();
             writeln!(out)?;
-            writeln!(
-                out,
-                "infinite crystal: W = {} per {unit}, S0 = {} J/(mol K) per mole of {unit}, from the weighted fit {form} over {} cells (χ² = {} for {} degrees of freedom{})",
-                pm(infinite.w_per_unit(), infinite.sigma_w()),
-                pm(infinite.s_j_per_mol_k(), infinite.sigma_s_j_per_mol_k()),
-                results.len(),
-                sig(fit.chi2, 3),
-                fit.dof,
-                if fit.dof > 0 {
-                    "; σ scaled by √(χ²/dof) when above 1"
-                } else {
-                    ""
+            match (&fit, &infinite) {
+                (Ok(fit), Some(infinite)) => {
+                    writeln!(
+                        out,
+                        "infinite crystal: W = {} per {unit}, S0 = {} J/(mol K) per mole of {unit}, from the weighted fit {} over {} cells (χ² = {} for {} degrees of freedom; σ scaled by √(χ²/dof) when above 1{})",
+                        pm(infinite.w_per_unit(), infinite.sigma_w()),
+                        pm(infinite.s_j_per_mol_k(), infinite.sigma_s_j_per_mol_k()),
+                        fit.form(),
+                        results.len(),
+                        sig(fit.chi2, 3),
+                        fit.dof,
+                        if fit.systematic > 0.0 {
+                            format!(
+                                "; with three cells the ln N/N term is left out and its effect, {} in ln W, is added to σ as a systematic allowance",
+                                sig(fit.systematic, 2)
+                            )
+                        } else {
+                            String::new()
+                        }
+                    )?;
+                    if let Some((v2, s2)) = fit.alternative {
+                        writeln!(
+                            out,
+                            "the other form {}: W = {} per {unit} (a check of the form's influence)",
+                            fit.alternative_form(),
+                            pm(v2.exp(), Some(v2.exp() * s2))
+                        )?;
+                    }
                 }
-            )?;
-            if let Some((v2, s2)) = fit.two_term {
-                writeln!(
-                    out,
-                    "without the ln N/N term: W = {} per {unit} (a check of the form's influence)",
-                    pm(v2.exp(), Some(v2.exp() * s2))
-                )?;
+                _ => {
+                    let why = fit.as_ref().err().map_or(String::new(), |e| e.to_string());
+                    writeln!(
+                        out,
+                        "not extrapolated to the infinite crystal: {why}; every row is a finite periodic cell, whose W is larger than the infinite crystal's"
+                    )?;
+                }
             }
             for (_, s) in results {
                 writeln!(
                     out,
-                    "{}: seed {}, {} replicas, σ of ln W statistical {}, quadrature {}, tail {}",
+                    "{}: seed {}, {} replicas, σ of ln W statistical {}, quadrature {}, tail {}, equilibration {}{}{}",
                     s.estimate.cells.as_deref().unwrap_or(""),
                     s.seed,
                     s.replicas,
                     sig(s.sigma_statistical, 2),
                     sig(s.sigma_quadrature, 2),
-                    sig(s.sigma_tail, 2)
+                    sig(s.sigma_tail, 2),
+                    sig(s.sigma_equilibration, 2),
+                    if s.equilibrated {
+                        String::new()
+                    } else {
+                        " (equilibration check FAILED: run longer)".to_string()
+                    },
+                    if s.extensions > 0 {
+                        format!(", extended to {} sweeps", s.sweeps)
+                    } else {
+                        String::new()
+                    }
                 )?;
+                if s.interrupted {
+                    writeln!(
+                        out,
+                        "INTERRUPTED: {} rests on the {} replicas that finished",
+                        s.estimate.cells.as_deref().unwrap_or(""),
+                        s.replicas
+                    )?;
+                }
             }
             Ok(out)
         }

@@ -40,7 +40,10 @@ use crate::error::{Error, Result};
 use crate::model::Model;
 
 /// The `format` field of every shard file.
-pub const FORMAT: &str = "groundcount Monte Carlo shard, version 1";
+pub const FORMAT: &str = "groundcount Monte Carlo shard, version 2";
+
+/// The `format` of the files earlier versions wrote (one pass per replica instead of two).
+const OLDER_FORMATS: [&str; 1] = ["groundcount Monte Carlo shard, version 1"];
 
 /// The one method shards exist for.
 pub const METHOD: &str = "thermodynamic-integration";
@@ -116,10 +119,18 @@ impl Shard {
                 "not a readable shard file (damaged or truncated JSON: {e})"
             ))
         })?;
-        if value.get("format").and_then(|f| f.as_str()) != Some(FORMAT) {
-            return Err(bad(format!(
-                "not a groundcount shard file: expected \"format\": \"{FORMAT}\""
-            )));
+        match value.get("format").and_then(|f| f.as_str()) {
+            Some(FORMAT) => {}
+            Some(old) if OLDER_FORMATS.contains(&old) => {
+                return Err(bad(format!(
+                    "a shard file of an earlier groundcount (\"{old}\"), whose replicas were sampled differently: run its shards again with this version"
+                )));
+            }
+            _ => {
+                return Err(bad(format!(
+                    "not a groundcount shard file: expected \"format\": \"{FORMAT}\""
+                )));
+            }
         }
         let shard: Shard =
             serde_json::from_value(value).map_err(|e| bad(format!("damaged shard file: {e}")))?;
@@ -164,6 +175,13 @@ fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String,
     pairs.into_iter().find(|(_, x, y)| x != y)
 }
 
+/// The replica indices of shard `shard` (1-based) of `r` replicas each, or `None` when they
+/// would not fit in a `usize`.
+fn replica_range(shard: usize, r: usize) -> Option<std::ops::Range<usize>> {
+    let from = shard.checked_sub(1)?.checked_mul(r)?;
+    Some(from..from.checked_add(r)?)
+}
+
 /// The text the checksum is taken of.
 fn canonical(s: &Shard) -> String {
     serde_json::to_string(s).expect("a shard serialises")
@@ -181,6 +199,8 @@ fn config_of(settings: &Settings) -> SampleConfig {
         loops: settings.loops,
         target_error: None,
         max_replicas: settings.replicas_per_shard,
+        max_extensions: 0,
+        deadline: None,
         interrupt: Default::default(),
     }
 }
@@ -209,10 +229,29 @@ pub fn run_shard(
     if cells.periodic[..cells.dimensions].iter().any(|p| !p) {
         return Err(Error::Setting("shards are for periodic cells only".into()));
     }
-    let start = Instant::now();
-    let plan = Plan::new(model, config)?;
     let r = config.replicas;
-    let runs = plan.run((shard - 1) * r..shard * r, on_replica);
+    let Some(range) = replica_range(shard, r) else {
+        return Err(Error::Setting(format!(
+            "shard {shard}/{shards} of {r} replicas each would run replicas beyond {}: use fewer shards or fewer replicas per shard",
+            usize::MAX
+        )));
+    };
+    let start = Instant::now();
+    // A shard never extends itself: every shard of a run must hold the same settings.
+    let config = SampleConfig {
+        max_extensions: 0,
+        ..config.clone()
+    };
+    let plan = Plan::new(model, &config)?;
+    let runs = plan.run(range.clone(), on_replica);
+    if runs.len() < range.len() {
+        return Err(Error::Interrupted {
+            what: format!(
+                "running shard {shard}/{shards} ({} of its {r} replicas finished; a shard is written only when complete)",
+                runs.len()
+            ),
+        });
+    }
     let seconds = start.elapsed().as_secs_f64();
     let sampled = plan.finish(&runs, seconds);
     let settings = Settings {
@@ -338,7 +377,17 @@ pub fn merge(parts: &[(PathBuf, Shard)]) -> Result<Merged> {
         }
         seen.push((s.shard, path));
         let r = s.settings.replicas_per_shard;
-        let expected: Vec<usize> = ((s.shard - 1) * r..s.shard * r).collect();
+        let Some(range) = replica_range(s.shard, r) else {
+            return Err(bad(
+                path,
+                format!(
+                    "damaged shard file: shard {} of {r} replicas each names replicas beyond {}",
+                    s.shard,
+                    usize::MAX
+                ),
+            ));
+        };
+        let expected: Vec<usize> = range.collect();
         let got: Vec<usize> = s.runs.iter().map(|run| run.replica).collect();
         if got != expected {
             return Err(bad(
@@ -352,7 +401,8 @@ pub fn merge(parts: &[(PathBuf, Shard)]) -> Result<Merged> {
             ));
         }
         for run in &s.runs {
-            if run.energy.len() != s.settings.nodes || run.energy.iter().any(|e| !e.is_finite()) {
+            let fine = |e: &[f64]| e.len() == s.settings.nodes && e.iter().all(|x| x.is_finite());
+            if !fine(&run.up) || !fine(&run.down) {
                 return Err(bad(
                     path,
                     format!(
@@ -400,4 +450,107 @@ pub fn merge(parts: &[(PathBuf, Shard)]) -> Result<Merged> {
         sampled,
         present,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A shard whose runs hold the given energies, every other field filled in.
+    fn shard_with(energies: Vec<Vec<f64>>, seconds: f64, beta_max: f64) -> Shard {
+        let nodes = energies.first().map_or(0, Vec::len);
+        Shard {
+            format: FORMAT.into(),
+            version: "test".into(),
+            method: METHOD.into(),
+            lattice_file: "x.yaml".into(),
+            content_hash: "0".into(),
+            lattice_text: "name: x\n".into(),
+            cells: "2x2x2".into(),
+            settings: Settings {
+                seed: 1,
+                replicas_per_shard: energies.len(),
+                sweeps: 41,
+                equilibration: 10,
+                nodes,
+                beta_max,
+                loops: true,
+            },
+            shard: 1,
+            shards: 1,
+            seconds,
+            runs: energies
+                .into_iter()
+                .enumerate()
+                .map(|(replica, energy)| Run {
+                    replica,
+                    up: energy.iter().map(|e| e * 1.5).collect(),
+                    down: energy,
+                    flipped: 3,
+                    attempted: 7,
+                })
+                .collect(),
+            checksum: String::new(),
+        }
+    }
+
+    /// Issue 11, item 9: untouched shard files were refused as damaged for most `--sweeps`
+    /// values, because a mean energy such as 123/41 did not read back bit for bit and the
+    /// checksum failed. Every ratio k/s for s up to 2000 and a spread of k, and floats of
+    /// every magnitude, must read back exactly and pass the checksum.
+    #[test]
+    fn issue11_shard_floats_read_back_bit_for_bit() {
+        let mut energies = Vec::new();
+        for sweeps in 1..=2000u64 {
+            let run: Vec<f64> = [1u64, 7, 41, 123, 999, 4097, 65_537, 1_234_567]
+                .iter()
+                .map(|&k| (k * 37 + sweeps) as f64 / sweeps as f64)
+                .collect();
+            energies.push(run);
+        }
+        // Floats from a simple generator over many magnitudes, and awkward values.
+        let mut x = 0x9E37_79B9_7F4A_7C15u64;
+        let mut odd = Vec::new();
+        for _ in 0..4000 {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            let mantissa = (x >> 11) as f64 / (1u64 << 53) as f64;
+            let exponent = ((x & 0xff) as i32) - 128;
+            odd.push(mantissa * 2f64.powi(exponent));
+        }
+        odd.extend([
+            0.0,
+            5e-324,
+            f64::MIN_POSITIVE,
+            f64::MAX,
+            0.1 + 0.2,
+            1.0 / 3.0,
+            2f64.sqrt(),
+        ]);
+        for chunk in odd.chunks(8) {
+            if chunk.len() == 8 {
+                energies.push(chunk.to_vec());
+            }
+        }
+        let shard = shard_with(energies, 12.345678901234567, 9.926_022_153_419_93);
+        let text = shard.to_json();
+        let back = Shard::from_json(&text, Path::new("part.json")).expect("reads back");
+        for (a, b) in shard.runs.iter().zip(&back.runs) {
+            let bits = |r: &Run| {
+                r.up.iter()
+                    .chain(&r.down)
+                    .map(|e| e.to_bits())
+                    .collect::<Vec<_>>()
+            };
+            assert_eq!(bits(a), bits(b), "replica {}", a.replica);
+        }
+        assert_eq!(shard.seconds.to_bits(), back.seconds.to_bits());
+        assert_eq!(
+            shard.settings.beta_max.to_bits(),
+            back.settings.beta_max.to_bits()
+        );
+        // The file written again from what was read is the same text.
+        assert_eq!(back.to_json(), text);
+    }
 }

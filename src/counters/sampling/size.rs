@@ -3,21 +3,31 @@
 //! # What it computes
 //!
 //! Given ln W per formula unit s(N) ± σ(N) on periodic cells of N formula units, the
-//! infinite-crystal value s∞ of the weighted least-squares fit
+//! infinite-crystal value s∞ of a weighted least-squares fit
 //!
 //! s(N) = s∞ + a/N + b ln N / N
 //!
-//! (three or more cells; with two cells only s∞ + a/N). On a periodic cell the count of an
-//! ice-rule model is Ω∞^N times a sum over the conserved fluxes through the cell's faces,
-//! which brings the ln N / N and 1/N terms; this is the form used for ice by Kolafa 2014
-//! (J. Chem. Phys. 140, 204507).
+//! On a periodic cell the count of an ice-rule model is Ω∞^N times a sum over the conserved
+//! fluxes through the cell's faces, which brings the ln N / N and 1/N terms; this is the
+//! form used for ice by Kolafa 2014 (J. Chem. Phys. 140, 204507).
+//!
+//! # Which form, and never a fit without a degree of freedom
+//!
+//! A fit with as many parameters as points passes through every point whatever the form,
+//! so it says nothing about whether the form holds; it is never the value.
+//!
+//! * Four or more cells: the three-term form, with at least one degree of freedom.
+//! * Three cells: the two-term form s∞ + a/N (one degree of freedom), with a systematic
+//!   allowance for the dropped ln N/N term: the distance between its s∞ and that of the
+//!   three-term form through the same three points, added in quadrature.
+//! * Fewer cells: refused.
 //!
 //! # Uncertainty
 //!
-//! The covariance (XᵀWX)⁻¹ of the fit, W = diag(1/σ²), gives σ(s∞); with more cells than
-//! parameters it is scaled by √(χ²/dof) when that exceeds 1 (the form does not fit within
-//! the error bars). The two-term fit s∞ + a/N on the same cells is reported beside it as a
-//! diagnostic of the model dependence ([`SizeFit::two_term`]).
+//! The covariance (XᵀWX)⁻¹ of the fit, W = diag(1/σ²), gives σ(s∞); it is scaled by
+//! √(χ²/dof) when that exceeds 1 (the form does not fit within the error bars). The other
+//! form on the same cells is reported beside it ([`SizeFit::alternative`]) to show how much
+//! the form matters.
 //!
 //! # Complexity
 //!
@@ -42,17 +52,22 @@ pub struct SizePoint {
 pub struct SizeFit {
     /// s∞, ln W per formula unit of the infinite crystal.
     pub value: f64,
-    /// Its 1σ (scaled by √(χ²/dof) when above 1).
+    /// Its 1σ: the fit's σ and the systematic allowance in quadrature.
     pub sigma: f64,
-    /// The fitted coefficients after s∞: a (of 1/N) and, with three or more cells, b (of
+    /// The fit's own σ (scaled by √(χ²/dof) when above 1).
+    pub sigma_fit: f64,
+    /// Allowance for a term the fit leaves out (three cells only; 0 otherwise).
+    pub systematic: f64,
+    /// The fitted coefficients after s∞: a (of 1/N) and, in the three-term form, b (of
     /// ln N / N).
     pub coefficients: Vec<f64>,
-    /// χ² of the fit and its degrees of freedom (0 when the fit is exact).
+    /// χ² of the fit.
     pub chi2: f64,
-    /// Degrees of freedom.
+    /// Degrees of freedom (at least 1).
     pub dof: usize,
-    /// s∞ and σ from the fit s∞ + a/N alone (when the main fit has three terms).
-    pub two_term: Option<(f64, f64)>,
+    /// s∞ and its σ from the other form on the same cells (the two-term form beside a
+    /// three-term fit, the three-term form through three points beside a two-term fit).
+    pub alternative: Option<(f64, f64)>,
 }
 
 impl SizeFit {
@@ -62,6 +77,15 @@ impl SizeFit {
             "s(N) = s∞ + a/N + b ln N/N"
         } else {
             "s(N) = s∞ + a/N"
+        }
+    }
+
+    /// The other form, in words.
+    pub fn alternative_form(&self) -> &'static str {
+        if self.coefficients.len() == 2 {
+            "s(N) = s∞ + a/N"
+        } else {
+            "s(N) = s∞ + a/N + b ln N/N"
         }
     }
 
@@ -160,12 +184,20 @@ fn log_over(n: f64) -> f64 {
     n.ln() / n
 }
 
-/// Fit and extrapolate. Needs at least two cells of different sizes, every σ positive.
+/// A basis function of the fit, of the formula units N.
+type Basis = fn(f64) -> f64;
+
+/// The fewest cells an extrapolation takes.
+pub const MIN_CELLS: usize = 3;
+
+/// Fit and extrapolate. Needs at least [`MIN_CELLS`] cells of different sizes, every σ
+/// positive.
 pub fn extrapolate(points: &[SizePoint]) -> Result<SizeFit> {
-    if points.len() < 2 {
-        return Err(Error::Setting(
-            "a finite-size extrapolation needs at least two cell sizes".into(),
-        ));
+    if points.len() < MIN_CELLS {
+        return Err(Error::Setting(format!(
+            "a finite-size extrapolation needs at least {MIN_CELLS} cell sizes ({} given): a fit with as many parameters as cells passes through every cell and cannot test its form",
+            points.len()
+        )));
     }
     if let Some(p) = points
         .iter()
@@ -176,35 +208,39 @@ pub fn extrapolate(points: &[SizePoint]) -> Result<SizeFit> {
             p.value, p.sigma, p.units
         )));
     }
-    let three: [fn(f64) -> f64; 3] = [one, inverse, log_over];
-    let two: [fn(f64) -> f64; 2] = [one, inverse];
-    let basis: &[fn(f64) -> f64] = if points.len() >= 3 { &three } else { &two };
-    let (coef, var, chi2) = wls(points, basis)?;
-    let dof = points.len() - basis.len();
-    let scale = if dof > 0 {
-        (chi2 / dof as f64).sqrt().max(1.0)
-    } else {
-        1.0
-    };
-    let two_term = if basis.len() == 3 {
-        let (c2, v2, chi2_2) = wls(points, &two)?;
-        let dof2 = points.len() - 2;
-        let s2 = if dof2 > 0 {
-            (chi2_2 / dof2 as f64).sqrt().max(1.0)
+    let three: [Basis; 3] = [one, inverse, log_over];
+    let two: [Basis; 2] = [one, inverse];
+    let fit = |basis: &[Basis]| -> Result<(Vec<f64>, f64, f64, usize)> {
+        let (coef, var, chi2) = wls(points, basis)?;
+        let dof = points.len() - basis.len();
+        let scale = if dof > 0 {
+            (chi2 / dof as f64).sqrt().max(1.0)
         } else {
             1.0
         };
-        Some((c2[0], v2[0].sqrt() * s2))
+        Ok((coef, var[0].sqrt() * scale, chi2, dof))
+    };
+    let (main, other): (&[Basis], &[Basis]) = if points.len() > 3 {
+        (&three, &two)
     } else {
-        None
+        (&two, &three)
+    };
+    let (coef, sigma_fit, chi2, dof) = fit(main)?;
+    let (alt, alt_sigma, _, _) = fit(other)?;
+    let systematic = if main.len() == 2 {
+        (coef[0] - alt[0]).abs()
+    } else {
+        0.0
     };
     Ok(SizeFit {
         value: coef[0],
-        sigma: var[0].sqrt() * scale,
+        sigma: sigma_fit.hypot(systematic),
+        sigma_fit,
+        systematic,
         coefficients: coef[1..].to_vec(),
         chi2,
         dof,
-        two_term,
+        alternative: Some((alt[0], alt_sigma)),
     })
 }
 
@@ -212,29 +248,33 @@ pub fn extrapolate(points: &[SizePoint]) -> Result<SizeFit> {
 mod tests {
     use super::*;
 
-    /// Points on an exact curve s∞ + a/N + b ln N/N are fitted back exactly, and the σ
-    /// of an exactly determined fit is the linear propagation of the points' σ (checked
+    fn points(ns: &[f64], f: impl Fn(f64) -> f64, sigma: f64) -> Vec<SizePoint> {
+        ns.iter()
+            .map(|&n| SizePoint {
+                units: n,
+                value: f(n),
+                sigma,
+            })
+            .collect()
+    }
+
+    /// Points on an exact curve s∞ + a/N + b ln N/N are fitted back exactly by the
+    /// three-term form, and its σ is the linear propagation of the points' σ (checked
     /// against finite differences of the solution).
     #[test]
     fn recovers_the_curve_and_propagates_errors() {
         let (s, a, b) = (0.4105, -0.8, 0.5);
         let f = |n: f64| s + a / n + b * n.ln() / n;
-        let ns = [128.0, 432.0, 1024.0];
-        let pts: Vec<SizePoint> = ns
-            .iter()
-            .map(|&n| SizePoint {
-                units: n,
-                value: f(n),
-                sigma: 1e-4,
-            })
-            .collect();
+        let pts = points(&[128.0, 256.0, 432.0, 1024.0], f, 1e-4);
         let fit = extrapolate(&pts).unwrap();
+        assert_eq!(fit.dof, 1);
+        assert_eq!(fit.systematic, 0.0);
         assert!((fit.value - s).abs() < 1e-12, "{}", fit.value);
         assert!((fit.coefficients[0] - a).abs() < 1e-9);
         assert!((fit.coefficients[1] - b).abs() < 1e-9);
         // σ(s∞)² = Σ (∂s∞/∂y_i)² σ²; the derivatives by perturbing one point at a time.
         let mut var = 0.0;
-        for i in 0..3 {
+        for i in 0..pts.len() {
             let mut q = pts.clone();
             q[i].value += 1e-6;
             let d = (extrapolate(&q).unwrap().value - fit.value) / 1e-6;
@@ -248,23 +288,38 @@ mod tests {
         );
     }
 
+    /// Three cells: the two-term form with one degree of freedom, and an allowance for the
+    /// dropped ln N/N term large enough to cover the true s∞ of a curve that has one.
     #[test]
-    fn two_cells_use_the_two_term_form_and_one_cell_is_refused() {
-        let pts = [
-            SizePoint {
-                units: 100.0,
-                value: 1.0 + 2.0 / 100.0,
-                sigma: 1e-3,
-            },
-            SizePoint {
-                units: 400.0,
-                value: 1.0 + 2.0 / 400.0,
-                sigma: 1e-3,
-            },
-        ];
-        let fit = extrapolate(&pts).unwrap();
-        assert!((fit.value - 1.0).abs() < 1e-12);
-        assert!(fit.two_term.is_none());
-        assert!(extrapolate(&pts[..1]).is_err());
+    fn three_cells_fit_two_terms_with_an_allowance_for_the_third() {
+        let (s, a, b) = (0.4105, -0.8, 0.5);
+        let f = |n: f64| s + a / n + b * n.ln() / n;
+        let fit = extrapolate(&points(&[128.0, 432.0, 1024.0], f, 1e-5)).unwrap();
+        assert_eq!(fit.form(), "s(N) = s∞ + a/N");
+        assert_eq!(fit.dof, 1);
+        let (three, _) = fit.alternative.unwrap();
+        assert!(
+            (three - s).abs() < 1e-12,
+            "the three-term form through three points"
+        );
+        assert!((fit.systematic - (fit.value - s).abs()).abs() < 1e-12);
+        assert!((fit.value - s).abs() <= fit.sigma);
+    }
+
+    /// Issue 11, item 3: a fit with as many parameters as cells ("χ² = 0.000 for 0 degrees
+    /// of freedom") was presented as the value. Two cells are refused; from three on, every
+    /// fit keeps at least one degree of freedom.
+    #[test]
+    fn issue11_no_fit_without_a_degree_of_freedom() {
+        let f = |n: f64| 1.0 + 2.0 / n;
+        let ns = [100.0, 150.0, 230.0, 400.0, 640.0, 1000.0];
+        for k in 3..=ns.len() {
+            let fit = extrapolate(&points(&ns[..k], f, 1e-3)).unwrap();
+            assert!(fit.dof >= 1, "{k} cells: {} degrees of freedom", fit.dof);
+            assert!((fit.value - 1.0).abs() < 1e-9);
+        }
+        let two = extrapolate(&points(&ns[..2], f, 1e-3)).unwrap_err();
+        assert!(two.to_string().contains("at least 3"), "{two}");
+        assert!(extrapolate(&points(&ns[..1], f, 1e-3)).is_err());
     }
 }

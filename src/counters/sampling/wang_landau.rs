@@ -75,6 +75,8 @@ pub struct WangLandauConfig {
     pub sweeps: u64,
     /// Uniform random assignments per replica that estimate the window fraction F.
     pub uniform: usize,
+    /// Start no further walk once raised.
+    pub interrupt: crate::context::Interrupt,
 }
 
 impl Default for WangLandauConfig {
@@ -84,6 +86,7 @@ impl Default for WangLandauConfig {
             replicas: 8,
             sweeps: 100_000,
             uniform: 20_000,
+            interrupt: Default::default(),
         }
     }
 }
@@ -91,7 +94,8 @@ impl Default for WangLandauConfig {
 /// A Wang–Landau estimate with diagnostics.
 #[derive(Clone, Debug)]
 pub struct WangLandau {
-    /// The estimate; `sigma_ln_w` is the standard error of the replica mean.
+    /// The estimate; `sigma_ln_w` is the standard error of the replica mean, widened for the
+    /// number of walks ([`super::student_factor`]).
     pub estimate: Estimate,
     /// The seed used.
     pub seed: u64,
@@ -107,6 +111,9 @@ pub struct WangLandau {
     pub per_replica: Vec<f64>,
     /// Energies visited (by every replica), out of E_w + 1.
     pub levels: usize,
+    /// Whether an interrupt stopped the run before every walk was started: the estimate
+    /// then rests on the walks that finished.
+    pub interrupted: bool,
 }
 
 /// Salt that separates these streams from the thermodynamic integration's.
@@ -149,16 +156,45 @@ pub fn wang_landau_with(
         })
         .sum();
     let window = mean_e.floor().max(0.0) as u64;
+    let bytes = (config.replicas as u64)
+        .saturating_mul(std::mem::size_of::<Option<Result<Walk>>>() as u64 + 8)
+        .saturating_add(
+            (rayon::current_num_threads() as u64)
+                .saturating_mul(25 * (window + 1) + 5 * model.variables.len() as u64),
+        );
+    if bytes > super::MAX_MEMORY {
+        return Err(Error::Setting(format!(
+            "{} Wang–Landau walks on {} would hold about {} in memory, more than the {} the sampler allows itself; use fewer replicas",
+            config.replicas,
+            model.cells,
+            super::bytes_in_words(bytes),
+            super::bytes_in_words(super::MAX_MEMORY)
+        )));
+    }
     let ln_q = model.ln_unconstrained();
-    let runs: Vec<Walk> = (0..config.replicas)
+    let runs: Vec<Option<Result<Walk>>> = (0..config.replicas)
         .into_par_iter()
         .with_max_len(1)
         .map(|r| {
-            let w = walk(&kernel, config, window, r);
+            if config.interrupt.raised() {
+                return None;
+            }
+            let w = walk(&kernel, config, window, r, &model.cells);
             on_replica();
-            w
+            Some(w)
         })
-        .collect::<Result<Vec<_>>>()?;
+        .collect();
+    let runs: Vec<Walk> = runs.into_iter().flatten().collect::<Result<Vec<_>>>()?;
+    let interrupted = runs.len() < config.replicas;
+    if runs.len() < 2 {
+        return Err(Error::Interrupted {
+            what: format!(
+                "running Wang–Landau walks on {} ({} finished; an error bar needs 2)",
+                model.cells,
+                runs.len()
+            ),
+        });
+    }
     let units = model.formula_units;
     let per_replica: Vec<f64> = runs
         .iter()
@@ -176,17 +212,18 @@ pub fn wang_landau_with(
             ln_count: mean * units,
             formula_units: units,
             ln_w_per_unit: mean,
-            sigma_ln_w: Some((var / r).sqrt()),
+            sigma_ln_w: Some((var / r).sqrt() * super::student_factor(runs.len())),
             seconds: start.elapsed().as_secs_f64(),
             peak_states: None,
         },
         seed: config.seed,
-        replicas: config.replicas,
+        replicas: runs.len(),
         sweeps: config.sweeps,
         window,
         fraction: runs.iter().map(|w| w.ln_fraction.exp()).sum::<f64>() / r,
         per_replica,
         levels,
+        interrupted,
     })
 }
 
@@ -201,7 +238,13 @@ struct Walk {
 }
 
 /// One replica: estimate F, then walk.
-fn walk(kernel: &Kernel, config: &WangLandauConfig, window: u64, r: usize) -> Result<Walk> {
+fn walk(
+    kernel: &Kernel,
+    config: &WangLandauConfig,
+    window: u64,
+    r: usize,
+    kernel_cells: &str,
+) -> Result<Walk> {
     let mut chain = kernel.chain(stream(config.seed ^ SALT, r));
     let n = kernel.variables();
     // The window fraction F from independent uniform assignments.
@@ -211,9 +254,13 @@ fn walk(kernel: &Kernel, config: &WangLandauConfig, window: u64, r: usize) -> Re
         inside += (chain.energy() <= window) as usize;
     }
     if inside == 0 {
-        return Err(Error::Model(
-            "Wang–Landau: no uniform sample fell in the energy window".into(),
-        ));
+        return Err(Error::NotConverged {
+            what: format!("the Wang–Landau normalisation on {}", kernel_cells),
+            iterations: config.uniform,
+            detail: format!(
+                "no uniform random assignment had at most {window} violated constraints; more uniform samples are needed"
+            ),
+        });
     }
     let ln_fraction = (inside as f64 / config.uniform as f64).ln();
     // Descend into the window.
@@ -222,9 +269,13 @@ fn walk(kernel: &Kernel, config: &WangLandauConfig, window: u64, r: usize) -> Re
         chain.sweep(kernel, 4.0);
         guard += 1;
         if guard > 10_000 {
-            return Err(Error::Model(
-                "Wang–Landau: could not reach the energy window".into(),
-            ));
+            return Err(Error::NotConverged {
+                what: format!("the Wang–Landau walk on {kernel_cells}"),
+                iterations: guard,
+                detail: format!(
+                    "{guard} sweeps at β = 4 did not bring it down to {window} violated constraints"
+                ),
+            });
         }
     }
     let bins = window as usize + 1;
@@ -272,10 +323,14 @@ fn walk(kernel: &Kernel, config: &WangLandauConfig, window: u64, r: usize) -> Re
         }
     }
     if !seen[0] {
-        return Err(Error::Model(format!(
-            "Wang–Landau: the walk never reached an arrangement without violations in {} sweeps (none may exist, or the walk is too short for this cell: give more --sweeps, or use the default thermodynamic integration, which suits large cells)",
-            config.sweeps
-        )));
+        return Err(Error::NotConverged {
+            what: format!("the Wang–Landau walk on {kernel_cells}"),
+            iterations: config.sweeps as usize,
+            detail: format!(
+                "in {} sweeps it never reached an arrangement without violations: none may exist, or the walk is too short for this cell; give it more sweeps, or use thermodynamic integration, which suits large cells",
+                config.sweeps
+            ),
+        });
     }
     // Multicanonical production with the weights fixed at 1/g̃: the histogram H then
     // corrects g̃ without bias, g ∝ g̃·H.
@@ -285,10 +340,14 @@ fn walk(kernel: &Kernel, config: &WangLandauConfig, window: u64, r: usize) -> Re
         production[e] += 1;
     }
     if production[0] == 0 {
-        return Err(Error::Model(format!(
-            "Wang–Landau: the multicanonical production never visited E = 0 in {} sweeps; give more --sweeps",
-            config.sweeps
-        )));
+        return Err(Error::NotConverged {
+            what: format!("the Wang–Landau walk on {kernel_cells}"),
+            iterations: config.sweeps as usize,
+            detail: format!(
+                "its multicanonical production of {} sweeps never visited an arrangement without violations; give it more sweeps",
+                config.sweeps
+            ),
+        });
     }
     let corrected: Vec<f64> = ln_g
         .iter()
