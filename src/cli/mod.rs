@@ -1,8 +1,10 @@
 //! Command-line layer: flag definitions, output format, exit codes. One file per command.
 //!
 //! Exit codes: 0 success; 1 usage or input error; 2 a budget (states or time) was exceeded
-//! or an iteration did not converge; 130 interrupted (Ctrl-C) before anything could be
-//! reported.
+//! or an iteration did not converge; 3 a cross-check failed (the results disagree with a
+//! second route of the same run); 130 interrupted (Ctrl-C). A command that finished part
+//! of its work before one of these (`strip`) prints that part on standard output
+//! ([`Partial`]).
 
 mod calorimetry;
 mod estimate;
@@ -210,6 +212,11 @@ pub fn run() -> i32 {
             0
         }
         Err(e) => {
+            if let Some(p) = e.downcast_ref::<Partial>() {
+                print!("{}", p.output);
+                eprintln!("error: {}", p.message);
+                return p.code;
+            }
             eprintln!("error: {e:#}");
             match e.downcast_ref::<Error>() {
                 Some(
@@ -221,6 +228,27 @@ pub fn run() -> i32 {
         }
     }
 }
+
+/// What a command finished before something cut it short: `output` goes to standard
+/// output, `message` to standard error, and the process exits with `code` (see the exit
+/// codes in the module documentation).
+#[derive(Debug)]
+pub struct Partial {
+    /// The results finished, rendered.
+    pub output: String,
+    /// What stopped the command, in words.
+    pub message: String,
+    /// The exit code.
+    pub code: i32,
+}
+
+impl std::fmt::Display for Partial {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.message)
+    }
+}
+
+impl std::error::Error for Partial {}
 
 /// The interrupt raised by Ctrl-C: the first call installs the handler; every call
 /// returns the same flag. A second Ctrl-C ends the process at once.

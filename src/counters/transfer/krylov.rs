@@ -82,6 +82,7 @@ pub fn restarted(
     basis: usize,
     restarts: usize,
     residual: f64,
+    stop: &dyn Fn() -> bool,
 ) -> (Vec<f64>, usize) {
     let n = start.len();
     let mut x = start.to_vec();
@@ -96,6 +97,9 @@ pub fn restarted(
         let mut h = vec![vec![0.0; basis]; basis + 1];
         let mut size = basis;
         for j in 0..basis {
+            if stop() {
+                return (x, applied);
+            }
             apply(&v[j], &mut w);
             applied += 1;
             for _ in 0..2 {
@@ -162,7 +166,7 @@ mod tests {
             y.clear();
             y.extend((0..3).map(|i| (0..3).map(|j| m[i][j] * x[j]).sum::<f64>()));
         };
-        let (x, _) = restarted(&mut apply, &[1.0 / 3.0; 3], 2, 50, 1e-14);
+        let (x, _) = restarted(&mut apply, &[1.0 / 3.0; 3], 2, 50, 1e-14, &|| false);
         let mut y = Vec::new();
         apply(&x, &mut y);
         let ratios: Vec<f64> = y.iter().zip(&x).map(|(a, b)| a / b).collect();
