@@ -20,16 +20,17 @@
 //!   equal the full space's ([`Route::FullSpace`]). If it does not, no sector is trusted
 //!   again in the run: later widths keep the full space or are refused.
 //! * **Neighbours** (otherwise): the charge predicted from the checked widths (the
-//!   reversal-symmetric charge if that is what every checked width had, else a straight
-//!   line through the charges found against the width), then the nearest non-empty charges
-//!   on both sides, climbing to a larger eigenvalue while one is found. When both
+//!   reversal-symmetric charge if that is what every checked width had, else both integers
+//!   around a straight line through the charges found against the width, the larger
+//!   eigenvalue kept), then the nearest non-empty charges on both sides, climbing to a
+//!   larger eigenvalue while one is found. When both
 //!   neighbours fit within [`NEIGHBOUR_STATES`] states the width is a checked local
 //!   maximum ([`Route::NeighbourSectors`]); otherwise the predicted sector is used and
 //!   reported as [`SectorBasis::Predicted`]. Mirror images under reversal (charge q ↦ Σc −
 //!   q) have equal eigenvalues and are not computed twice.
 //! * A prediction needs at least [`MIN_CHECKED`] checked widths; when the widths asked for
-//!   start above the full-space limit, smaller widths are checked first (they are cheap by
-//!   construction and are not part of the results). With fewer checked widths the search
+//!   start above the full-space limit, the smaller widths whose full space fits are checked
+//!   first (they are cheap by construction and are not part of the results). With fewer checked widths the search
 //!   starts from the first guess of [`Column::guess`] and must end at a checked local
 //!   maximum; if the neighbours cannot be computed either, the width is refused
 //!   ([`Error::Model`]) rather than guessed.
@@ -41,6 +42,8 @@
 //! sector; the checks therefore stop growing with the width, and the largest widths cost
 //! what they did without them.
 
+use std::collections::HashMap;
+
 use super::{Column, Kept, SectorBasis, StripConfig, StripResult};
 use crate::crosscheck::{CrossCheck, Route};
 use crate::crystal::Crystal;
@@ -50,11 +53,16 @@ use crate::estimate::Method;
 /// Largest full space (boundary states) computed to check the sector at a width.
 pub const FULL_CHECK_STATES: usize = 1 << 14;
 
-/// Largest neighbouring sector (states at any step) computed to check the sector.
-pub const NEIGHBOUR_STATES: usize = 1 << 17;
+/// Largest neighbouring sector (boundary states) computed to check the sector.
+pub const NEIGHBOUR_STATES: usize = 1 << 15;
 
 /// Checked widths needed before a sector is predicted.
 pub const MIN_CHECKED: usize = 2;
+
+/// A predicted charge this close to an integer is that integer; further away, both
+/// integers around it are computed (common practice, no source: a line through rounded
+/// values is trusted to a quarter).
+const AMBIGUOUS: f64 = 0.25;
 
 /// Charges looked at on each side of a sector for a non-empty neighbour.
 const NEIGHBOUR_GAP: i64 = 4;
@@ -73,8 +81,8 @@ struct Checked {
 enum Eval {
     /// No state of that charge continues for ever.
     Empty,
-    /// Beyond the states allowed.
-    TooBig,
+    /// Beyond the states allowed (this many).
+    TooBig(usize),
     /// Computed.
     Value(Box<StripResult>),
 }
@@ -137,15 +145,15 @@ impl<'a> Finder<'a> {
         }
         // Too little history for a prediction: the first guess, which must then be
         // checked against its neighbours.
-        let (guess, must_check) = if self.checked.len() < MIN_CHECKED {
+        let (starts, must_check) = if self.checked.len() < MIN_CHECKED {
             match layout.guess() {
-                Kept::Charge(q) => (q, true),
-                _ => (0, true),
+                Kept::Charge(q) => (vec![q], true),
+                _ => (vec![0], true),
             }
         } else {
             (self.predict(layout), false)
         };
-        let r = self.search(layout, width, guess)?;
+        let r = self.search(layout, width, &starts)?;
         if must_check && matches!(r.basis, SectorBasis::Predicted { .. }) {
             return Err(Error::Model(format!(
                 "the charge sector of the largest eigenvalue of a strip {width} cells wide \
@@ -158,14 +166,11 @@ impl<'a> Finder<'a> {
         Ok(r)
     }
 
-    /// Check the widths below `width` by their full space (smallest first) until
-    /// [`MIN_CHECKED`] are checked or the full space no longer fits.
+    /// Check the widths below `width` by their full space (smallest first) until the full
+    /// space no longer fits.
     fn calibrate(&mut self, width: usize) -> Result<()> {
         let first = if self.crystal.dimensions == 3 { 1 } else { 2 };
         for w in first..width {
-            if self.checked.len() >= MIN_CHECKED {
-                break;
-            }
             if self.checked.iter().any(|c| c.width == w) {
                 continue;
             }
@@ -197,9 +202,9 @@ impl<'a> Finder<'a> {
         };
         let weights = full.weight_by_charge(&x);
         let charge = weights.first().map_or(0, |w| w.0);
-        let kept = match self.evaluate(layout, charge, self.config.max_states)? {
+        let kept = match self.evaluate(layout, charge, usize::MAX)? {
             Eval::Value(r) => *r,
-            Eval::Empty | Eval::TooBig => {
+            Eval::Empty | Eval::TooBig(_) => {
                 self.broken = Some(format!(
                     "at width {width} the full space's largest eigenvector lies in charge \
                      {charge}, which could not be computed on its own"
@@ -226,63 +231,69 @@ impl<'a> Finder<'a> {
         Ok(Some(kept))
     }
 
-    /// Climb from the predicted charge to a local maximum of λ over the charges.
-    fn search(&mut self, layout: &Column, width: usize, guess: i64) -> Result<StripResult> {
+    /// Climb from the predicted charges (the larger of them first) to a local maximum of λ
+    /// over the charges.
+    fn search(&mut self, layout: &Column, width: usize, starts: &[i64]) -> Result<StripResult> {
         let (low, high) = layout.charge_range();
-        let mut q = guess.clamp(low, high);
-        // The predicted charge itself, or the nearest non-empty one.
-        let mut best = None;
-        let candidates = std::iter::once(q)
-            .chain((1..=NEIGHBOUR_GAP).flat_map(|d| [q - d, q + d]))
-            .filter(|&c| c >= low && c <= high);
-        for c in candidates.collect::<Vec<_>>() {
-            if let Eval::Value(r) = self.evaluate(layout, c, self.config.max_states)? {
-                q = c;
-                best = Some(r);
-                break;
+        let mut cache: HashMap<i64, Eval> = HashMap::new();
+        let full = usize::MAX;
+        // The predicted charges, or the nearest non-empty one to the first.
+        let mut best: Option<(i64, StripResult)> = None;
+        for &c in starts {
+            let c = c.clamp(low, high);
+            if let Eval::Value(r) = self.cached(&mut cache, layout, c, full)?
+                && best.as_ref().is_none_or(|b| r.ln_lambda > b.1.ln_lambda)
+            {
+                best = Some((c, (**r).clone()));
             }
         }
-        let Some(mut best) = best else {
+        if best.is_none() {
+            let q = starts.first().copied().unwrap_or(0).clamp(low, high);
+            for c in (1..=NEIGHBOUR_GAP).flat_map(|d| [q - d, q + d]) {
+                if c < low || c > high {
+                    continue;
+                }
+                if let Eval::Value(r) = self.cached(&mut cache, layout, c, full)? {
+                    best = Some((c, (**r).clone()));
+                    break;
+                }
+            }
+        }
+        let Some((mut q, mut best)) = best else {
             return Err(Error::Model(format!(
-                "no charge sector near the predicted charge {guess} of a strip {width} cells \
-                 wide has an arrangement of unbounded length; use every state (--sectors full)"
+                "no charge sector near the predicted charge {} of a strip {width} cells \
+                 wide has an arrangement of unbounded length; use every state (--sectors full)",
+                starts.first().copied().unwrap_or(0)
             )));
         };
-        // Neighbours: climb while one is larger; stop when one side cannot be computed.
-        let mut checked_both = true;
-        let largest_neighbour: Option<StripResult>;
+        // Neighbours: climb while one is larger; a side that cannot be computed leaves the
+        // width unchecked.
+        let mut checked_both;
+        let mut largest_neighbour: Option<StripResult>;
         let mut moves = 0;
         loop {
-            let mut moved = false;
+            checked_both = true;
             let mut neighbours: Vec<StripResult> = Vec::new();
             for dir in [-1i64, 1] {
-                match self.neighbour(layout, q, dir, low, high)? {
+                match self.neighbour(&mut cache, layout, q, dir, low, high)? {
                     Side::Value(r) => neighbours.push(*r),
                     Side::Nothing => {}
                     Side::TooBig => checked_both = false,
                 }
             }
+            largest_neighbour = neighbours
+                .into_iter()
+                .max_by(|a, b| a.ln_lambda.total_cmp(&b.ln_lambda));
             let tolerance = self.tolerance(&best);
-            if let Some(up) = neighbours
-                .iter()
-                .filter(|r| r.ln_lambda > best.ln_lambda + tolerance)
-                .max_by(|a, b| a.ln_lambda.total_cmp(&b.ln_lambda))
-                && moves < 64
-            {
-                q = up.sector.unwrap_or(q);
-                best = Box::new(up.clone());
-                moved = true;
-                moves += 1;
-                checked_both = true;
-            }
-            if !moved {
-                largest_neighbour = neighbours
-                    .into_iter()
-                    .max_by(|a, b| a.ln_lambda.total_cmp(&b.ln_lambda));
-                break;
+            match &largest_neighbour {
+                Some(up) if up.ln_lambda > best.ln_lambda + tolerance && moves < 64 => {
+                    q = up.sector.unwrap_or(q);
+                    best = up.clone();
+                    moves += 1;
+                }
+                _ => break,
             }
         }
-        let mut best = *best;
         if checked_both {
             if let Some(n) = &largest_neighbour {
                 let check = self.check(Route::NeighbourSectors { width }, &best, n);
@@ -298,10 +309,32 @@ impl<'a> Finder<'a> {
         Ok(best)
     }
 
+    /// One charge from the cache, computing it (with at most `max_boundary` boundary
+    /// states) when it is missing or was too big for a smaller cap.
+    fn cached<'c>(
+        &self,
+        cache: &'c mut HashMap<i64, Eval>,
+        layout: &Column,
+        charge: i64,
+        max_boundary: usize,
+    ) -> Result<&'c Eval> {
+        let stale = match cache.get(&charge) {
+            None => true,
+            Some(Eval::TooBig(cap)) => *cap < max_boundary,
+            Some(_) => false,
+        };
+        if stale {
+            let e = self.evaluate(layout, charge, max_boundary)?;
+            cache.insert(charge, e);
+        }
+        Ok(&cache[&charge])
+    }
+
     /// The nearest non-empty charge on one side of q (mirror images of q under reversal
     /// count as checked: their λ equals q's).
     fn neighbour(
         &mut self,
+        cache: &mut HashMap<i64, Eval>,
         layout: &Column,
         q: i64,
         dir: i64,
@@ -309,6 +342,7 @@ impl<'a> Finder<'a> {
         high: i64,
     ) -> Result<Side> {
         let total = layout.total_charge();
+        let cap = NEIGHBOUR_STATES;
         for d in 1..=NEIGHBOUR_GAP {
             let c = q + dir * d;
             if c < low || c > high || (layout.charge_sign == -1 && c < 0) {
@@ -325,24 +359,24 @@ impl<'a> Finder<'a> {
                     return Ok(Side::Nothing);
                 }
             }
-            match self.evaluate(layout, c, NEIGHBOUR_STATES.min(self.config.max_states))? {
+            match self.cached(cache, layout, c, cap)? {
                 Eval::Empty => continue,
-                Eval::TooBig => return Ok(Side::TooBig),
-                Eval::Value(r) => return Ok(Side::Value(r)),
+                Eval::TooBig(_) => return Ok(Side::TooBig),
+                Eval::Value(r) => return Ok(Side::Value(r.clone())),
             }
         }
         Ok(Side::Nothing)
     }
 
-    /// The largest eigenvalue of one charge with at most `max_states` states.
-    fn evaluate(&self, layout: &Column, charge: i64, max_states: usize) -> Result<Eval> {
-        let mut config = self.config.clone();
-        config.max_states = max_states;
+    /// The largest eigenvalue of one charge with at most `max_boundary` boundary states.
+    fn evaluate(&self, layout: &Column, charge: i64, max_boundary: usize) -> Result<Eval> {
         let mut column = layout.uncompiled(Kept::Charge(charge))?;
-        match column.compile_states(&config) {
+        match column.compile_states(self.config, max_boundary) {
             Ok(true) => {}
             Ok(false) => return Ok(Eval::Empty),
-            Err(Error::Budget { .. }) => return Ok(Eval::TooBig),
+            Err(Error::Budget { .. }) if max_boundary < usize::MAX => {
+                return Ok(Eval::TooBig(max_boundary));
+            }
             Err(e) => return Err(e),
         }
         column.build_seconds += layout.build_seconds;
@@ -352,21 +386,29 @@ impl<'a> Finder<'a> {
         })
     }
 
-    /// The charge predicted for a width from the checked ones.
-    fn predict(&self, layout: &Column) -> i64 {
+    /// The charges predicted for a width from the checked ones: the reversal-symmetric
+    /// charge when every checked width had it; else the value of a least-squares line
+    /// q = a W + b through the checked widths from 4 on (all of them when fewer than three
+    /// are that wide), rounded when it lies within [`AMBIGUOUS`] of an integer, else the
+    /// two integers around it.
+    fn predict(&self, layout: &Column) -> Vec<i64> {
         let total = layout.total_charge();
         if layout.charge_sign == 1 && layout.reversible && self.checked.iter().all(|c| c.centre) {
-            return total.div_euclid(2);
+            return vec![total.div_euclid(2)];
         }
-        // A straight line q = a W + b through the last checked widths.
-        let recent = &self.checked[self.checked.len().saturating_sub(8)..];
-        let n = recent.len() as f64;
-        let (sw, sq): (f64, f64) = recent.iter().fold((0.0, 0.0), |(a, b), c| {
+        let wide: Vec<&Checked> = self.checked.iter().filter(|c| c.width >= 4).collect();
+        let points: Vec<&Checked> = if wide.len() >= 3 {
+            wide
+        } else {
+            self.checked.iter().collect()
+        };
+        let n = points.len() as f64;
+        let (sw, sq): (f64, f64) = points.iter().fold((0.0, 0.0), |(a, b), c| {
             (a + c.width as f64, b + c.charge as f64)
         });
         let (mw, mq) = (sw / n, sq / n);
         let (mut sxy, mut sxx) = (0.0, 0.0);
-        for c in recent {
+        for c in &points {
             let dx = c.width as f64 - mw;
             sxy += dx * (c.charge as f64 - mq);
             sxx += dx * dx;
@@ -377,7 +419,13 @@ impl<'a> Finder<'a> {
         } else {
             mq * w / mw.max(1.0)
         };
-        predicted.round() as i64
+        // Near an integer, that one; otherwise both neighbours (the larger λ is kept).
+        let nearest = predicted.round();
+        if (predicted - nearest).abs() <= AMBIGUOUS {
+            vec![nearest as i64]
+        } else {
+            vec![predicted.floor() as i64, predicted.ceil() as i64]
+        }
     }
 
     fn push_checked(&mut self, layout: &Column, width: usize, charge: i64) {

@@ -335,13 +335,17 @@ impl Filter {
 /// Largest table (assignments) projected onto its boundary fields for a [`Filter`].
 const FILTER_TABLE_MAX: u64 = 1 << 16;
 
-/// The filters of a column layout: for every template constraint and every column
-/// boundary it straddles (it started e ≥ 1 columns before it completes), the projection
-/// of its table onto the boundary fields it has read (those of age D − d − e + 1 for an
-/// entry at column offset d of a constraint of depth D). Projections that allow every
-/// pattern are dropped, so rules whose partial reads never rule anything out (ice rules,
-/// hard-core exclusion) have none. Example: one dimer at a honeycomb vertex whose two bonds
-/// in the finished column are both boundary fields forbids both being occupied.
+/// The filters of a column layout: for every template constraint and every instance of it
+/// that has read some boundary fields — one that completes e ≥ 1 columns after the
+/// boundary and waits for later variables, or one that has completed but whose variables
+/// are partly still on the boundary — the projection of its table onto those fields (of
+/// age D − d − e + 1 for an entry at column offset d of a constraint of depth D). A key
+/// outside an open constraint's projection has no completion (no successor); one outside
+/// a completed constraint's projection has no past (no predecessor); neither lies on a
+/// cycle. Projections that allow every pattern are dropped, so rules whose partial reads
+/// never rule anything out (ice rules, hard-core exclusion) have none. Example: one dimer
+/// at a honeycomb vertex whose two bonds in the finished column are both boundary fields
+/// forbids both being occupied.
 fn local_filters(
     templates: &[Template],
     tables: &[Table],
@@ -350,32 +354,37 @@ fn local_filters(
 ) -> Vec<Filter> {
     let mut out: Vec<Filter> = Vec::new();
     let mut seen: std::collections::HashSet<(Vec<(u32, u64, u64)>, Vec<u64>)> = Default::default();
+    let max_age = canonical.keys().map(|k| k.1).max().unwrap_or(0);
     for t in templates {
         let table = &tables[t.table];
         if table.size > FILTER_TABLE_MAX {
             continue;
         }
-        for e in 1..=t.depth {
-            // Entries already on the boundary: column offset d ≤ D − e.
-            let known: Vec<usize> = (0..t.entries.len())
-                .filter(|&i| t.entries[i].1 + e <= t.depth)
-                .collect();
-            if known.is_empty() {
-                continue;
-            }
+        // The instance that completes e columns after the boundary (e ≤ 0: before it); an
+        // entry at column offset d sits at age D − d − e + 1 when that is at least 1.
+        let depth = t.depth as i64;
+        for e in (1 - max_age as i64)..=depth {
+            let mut known = Vec::new();
             let mut fields = Vec::new();
             let mut size = 1u64;
             let mut ok = true;
-            for &i in &known {
-                let (k, d) = t.entries[i];
-                let Some(&off) = canonical.get(&(k, t.depth - d - e + 1)) else {
-                    ok = false;
-                    break;
-                };
-                fields.push((off, (1u64 << field_width(states[k])) - 1, size));
-                size *= states[k] as u64;
+            for (i, &(k, d)) in t.entries.iter().enumerate() {
+                let age = depth - d as i64 - e + 1;
+                if age < 1 {
+                    continue;
+                }
+                match canonical.get(&(k, age as usize)) {
+                    Some(&off) => {
+                        known.push(i);
+                        fields.push((off, (1u64 << field_width(states[k])) - 1, size));
+                        size *= states[k] as u64;
+                    }
+                    // Forgotten already (the instance has completed): projected out.
+                    None if e <= 0 => {}
+                    None => ok = false,
+                }
             }
-            if !ok {
+            if !ok || known.len() < if e <= 0 { 2 } else { 1 } {
                 continue;
             }
             let mut allowed = vec![0u64; size.div_ceil(64) as usize];
@@ -1082,9 +1091,9 @@ impl Column {
         }
     }
 
-    /// Whether a boundary key can still be completed: every constraint that has read some
-    /// of its fields and not all of its variables allows their values (see
-    /// [`local_filters`]). A key that fails has no successor and lies on no cycle.
+    /// Whether a boundary key can lie on a cycle: every constraint that has read some of its
+    /// fields allows their values (see [`local_filters`]); a key that fails has no
+    /// successor or no predecessor.
     #[inline]
     fn feasible(&self, key: u64) -> bool {
         self.filters.iter().all(|f| f.allows(key))
@@ -1190,7 +1199,7 @@ impl Column {
     /// Every boundary key of charge q that the filters allow, sorted, when every boundary
     /// field is a charge field (the set is then closed under T because T keeps the charge,
     /// up to states that no completion allows).
-    fn sector_keys(&self, q: i64, config: &StripConfig) -> Result<Vec<u64>> {
+    fn sector_keys(&self, q: i64, config: &StripConfig, max_boundary: usize) -> Result<Vec<u64>> {
         let fields = &self.charge;
         // Smallest and largest charge the fields from i on can still add.
         let mut low = vec![0i64; fields.len() + 1];
@@ -1213,8 +1222,14 @@ impl Column {
         while let Some((i, key, charge)) = stack.pop() {
             if i == fields.len() {
                 keys.push(key);
-                if keys.len() % 4096 == 0 {
+                if keys.len() % 4096 == 0 || keys.len() > max_boundary {
                     self.within_budget(keys.len(), config)?;
+                    if keys.len() > max_boundary {
+                        return Err(Error::Budget {
+                            cells: format!("a strip {} cells wide", self.width),
+                            detail: format!("more than {max_boundary} boundary states"),
+                        });
+                    }
                 }
                 continue;
             }
@@ -1235,7 +1250,7 @@ impl Column {
     /// Find the states reachable from an open left end (in the chosen sector), closed
     /// under the column, and compile the index lists of every step.
     fn compile(&mut self, config: &StripConfig) -> Result<()> {
-        if !self.compile_states(config)? {
+        if !self.compile_states(config, usize::MAX)? {
             return Err(Error::Model(format!(
                 "no state of a strip {} cells wide has charge {}",
                 self.width,
@@ -1246,7 +1261,17 @@ impl Column {
     }
 
     /// [`Column::compile`]; `false` when the kept sector has no state that can be completed.
-    fn compile_states(&mut self, config: &StripConfig) -> Result<bool> {
+    /// More than `max_boundary` boundary states is [`Error::Budget`] too.
+    fn compile_states(&mut self, config: &StripConfig, max_boundary: usize) -> Result<bool> {
+        let boundary = |n: usize| -> Result<()> {
+            if n > max_boundary {
+                return Err(Error::Budget {
+                    cells: format!("a strip {} cells wide", self.width),
+                    detail: format!("{n} boundary states (at most {max_boundary} here)"),
+                });
+            }
+            Ok(())
+        };
         let every_field_charged = self.charge.len() as u32 == self.boundary_bits.count_ones();
         let enumerated = self.sector.is_some() && every_field_charged;
         let mut keys = if enumerated {
@@ -1255,7 +1280,8 @@ impl Column {
             // before iterating).
             let mut keys = Vec::new();
             for q in self.kept_charges() {
-                keys.extend(self.sector_keys(q, config)?);
+                keys.extend(self.sector_keys(q, config, max_boundary)?);
+                boundary(keys.len())?;
             }
             keys.sort_unstable();
             keys.dedup();
@@ -1285,6 +1311,7 @@ impl Column {
             if union.len() == keys.len() {
                 break;
             }
+            boundary(union.len())?;
             keys = union;
         }
         if keys.is_empty() {
