@@ -2,7 +2,7 @@
 //! default) of growing width, and their extrapolation to the infinite crystal.
 
 use std::fmt::Write;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use clap::ValueEnum;
 use groundcount::Error;
@@ -234,7 +234,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     }
     let outcome = outcome??;
     let section = Section::of(c.dimensions, config.along, args.depth);
-    let output = render(&args, &lattice, &config, &section, &outcome)?;
+    let output = render(
+        args.common.format,
+        &args.file,
+        &lattice,
+        &config,
+        &section,
+        &outcome,
+    )?;
     let failed: Vec<&CrossCheck> = outcome.checks.iter().filter(|x| !x.agrees()).collect();
     if let Some(stop) = &outcome.stopped {
         let code = match stop.error {
@@ -247,7 +254,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             } else {
                 output
             },
-            message: stop_message(stop, &args, &outcome),
+            message: stop_message(stop, &outcome),
             code,
         }
         .into());
@@ -277,8 +284,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
 }
 
 /// Why a run stopped, what the width would have needed, and what to do.
-fn stop_message(stop: &transfer::Stopped, args: &Args, run: &transfer::StripRun) -> String {
-    let w = stop.width;
+fn stop_message(stop: &transfer::Stopped, run: &transfer::StripRun) -> String {
     let kept = if run.widths.is_empty() {
         "no width finished".to_string()
     } else {
@@ -293,6 +299,13 @@ fn stop_message(stop: &transfer::Stopped, args: &Args, run: &transfer::StripRun)
             }
         )
     };
+    format!("{}; {kept}", stop_reason(stop))
+}
+
+/// Why a run stopped and what the width would have needed, without the advice on what
+/// was kept.
+fn stop_reason(stop: &transfer::Stopped) -> String {
+    let w = stop.width;
     let need = stop
         .need
         .as_ref()
@@ -311,7 +324,7 @@ fn stop_message(stop: &transfer::Stopped, args: &Args, run: &transfer::StripRun)
             )
         })
         .unwrap_or_default();
-    let why = match &stop.error {
+    match &stop.error {
         Error::Budget { detail, .. } => format!(
             "width {w} needs more than the state budget ({detail}; set by --max-states){need}; \
              rerun with a larger --max-states if the memory allows, or cite the widths finished"
@@ -320,9 +333,7 @@ fn stop_message(stop: &transfer::Stopped, args: &Args, run: &transfer::StripRun)
         Error::Interrupted { .. } => format!("interrupted during width {w}"),
         Error::NotConverged { .. } => format!("width {w}: {}; raise --max-iterations", stop.error),
         other => format!("width {w}: {other}"),
-    };
-    let _ = args;
-    format!("{why}; {kept}")
+    }
 }
 
 /// Bytes in words.
@@ -498,7 +509,8 @@ fn check_summary(checks: &[CrossCheck]) -> Vec<String> {
 
 /// The output of a run in the format asked.
 fn render(
-    args: &Args,
+    format: Format,
+    file: &Path,
     lattice: &groundcount::Lattice,
     config: &StripConfig,
     section: &Section,
@@ -512,12 +524,13 @@ fn render(
         Scaling::Gapped => "gapped",
         _ => "critical",
     };
-    match args.common.format {
+    let shown_file = shown(&Some(file.to_path_buf()));
+    match format {
         Format::Json => {
             let e = series.map(|s| &s.estimate);
             let v = json!({
                 "lattice": c.name,
-                "file": shown(&Some(args.file.clone())),
+                "file": shown_file,
                 "content_hash": lattice.content_hash,
                 "formula_unit": unit,
                 "method": groundcount::estimate::Method::TransferMatrix.name(),
@@ -552,7 +565,7 @@ fn render(
                 "checks_agree": !failed,
                 "stopped": run.stopped.as_ref().map(|s| json!({
                     "width": s.width,
-                    "reason": s.error.to_string(),
+                    "reason": stop_reason(s),
                     "need": s.need.as_ref().map(|n| json!({
                         "peak_states": n.peak_states,
                         "bytes": n.bytes,
@@ -615,7 +628,7 @@ fn render(
                 out,
                 "{} ({}), {} along {} with {} boundaries across{}",
                 c.name,
-                shown(&Some(args.file.clone())),
+                shown_file,
                 if c.dimensions == 3 {
                     "prisms"
                 } else {
@@ -697,15 +710,7 @@ fn render(
                 )?;
             }
             if let Some(stop) = &run.stopped {
-                writeln!(
-                    out,
-                    "stopped              at width {}: {}",
-                    stop.width,
-                    match &stop.error {
-                        Error::Interrupted { .. } => "interrupted".to_string(),
-                        e => e.to_string(),
-                    }
-                )?;
+                writeln!(out, "stopped              {}", stop_reason(stop))?;
             }
             Ok(out)
         }
@@ -788,5 +793,46 @@ mod tests {
             assert!(parse_widths(bad, 1).is_err(), "{bad}");
         }
         assert!(parse_widths("2..6", 0).is_err());
+    }
+
+    #[test]
+    fn a_failed_cross_check_withholds_the_value() {
+        let path = format!("{}/lattices/hard-squares.yaml", env!("CARGO_MANIFEST_DIR"));
+        let lattice = groundcount::Lattice::from_file(Path::new(&path)).unwrap();
+        let config = StripConfig::default();
+        let mut run = transfer::run(
+            &lattice.crystal,
+            &[2, 3, 4, 5, 6, 7],
+            None,
+            Scaling::Auto,
+            &config,
+            &|_| {},
+        )
+        .unwrap();
+        let section = Section::of(2, 0, None);
+        let file = Path::new(&path);
+        let fine = render(Format::Table, file, &lattice, &config, &section, &run).unwrap();
+        assert!(fine.contains("W → ∞") && !fine.contains("FAILED"), "{fine}");
+        // A disagreement, as a broken operator would produce it.
+        run.checks.push(CrossCheck {
+            method: groundcount::estimate::Method::TransferMatrix,
+            route: Route::FullSpace { width: 7 },
+            value: 0.40,
+            reference: 0.41,
+            tolerance: 1e-12,
+        });
+        let text = render(Format::Table, file, &lattice, &config, &section, &run).unwrap();
+        assert!(text.contains("FAILED: width 7"), "{text}");
+        assert!(
+            text.contains("NO VALUE") && !text.contains("W → ∞"),
+            "{text}"
+        );
+        let json = render(Format::Json, file, &lattice, &config, &section, &run).unwrap();
+        let v: serde_json::Value = serde_json::from_str(&json).unwrap();
+        assert_eq!(v["checks_agree"], false);
+        assert_eq!(
+            v["checks"].as_array().unwrap().last().unwrap()["agrees"],
+            false
+        );
     }
 }

@@ -627,6 +627,42 @@ mod tests {
     }
 
     #[test]
+    fn a_family_is_judged_without_its_narrowest_width() {
+        // Three classes W mod 3 with their own 1/W² terms; the narrowest width of one
+        // class is far off its law (as width 2 of the triangular 4-colourings is). Its
+        // family is judged on the widths after it, and period 3 is found.
+        let mut points: Vec<(usize, f64)> = (2..=11)
+            .map(|w| {
+                let u = 1.0 / (w * w) as f64;
+                (w, 0.38 + [0.8, -1.2, -0.4][w % 3] * u)
+            })
+            .collect();
+        points[0].1 += 0.05;
+        let e = extrapolate(&points, 1, Scaling::Critical).unwrap();
+        assert_eq!(e.period, 3);
+        assert!(e.smooth);
+        assert!(
+            (e.value - 0.38).abs() <= e.uncertainty,
+            "{} ± {}",
+            e.value,
+            e.uncertainty
+        );
+    }
+
+    #[test]
+    fn widths_without_smooth_families_are_refused() {
+        // Values that move up and down at every period tried: no extrapolation, an error.
+        let points: Vec<(usize, f64)> = (2..=13)
+            .map(|w| (w, 0.3 + 0.01 * ((w * w * 7919) % 13) as f64))
+            .collect();
+        let e = extrapolate(&points, 1, Scaling::Auto).unwrap_err();
+        assert!(e.to_string().contains("smoothly"), "{e}");
+        // Too few widths to tell (two): the fallback families, flagged as not smooth.
+        let two = extrapolate(&[(1, 0.5), (2, 0.45)], 1, Scaling::Critical).unwrap();
+        assert!(!two.smooth);
+    }
+
+    #[test]
     fn exponential_convergence_is_recognised() {
         let points: Vec<(usize, f64)> = (2..=12).map(|w| (w, 1.0 + (-(w as f64)).exp())).collect();
         let e = extrapolate(&points, 1, Scaling::Auto).unwrap();

@@ -1314,7 +1314,7 @@ impl Column {
             boundary(union.len())?;
             keys = union;
         }
-        if keys.is_empty() {
+        if keys.is_empty() && self.sector.is_some() {
             return Ok(false);
         }
         if let Some(m) = self.flip {
@@ -1767,6 +1767,9 @@ mod tests {
             "hard-squares.yaml",
             "square-dimers.yaml",
             "triangular-afm.yaml",
+            "honeycomb-dimers.yaml",
+            "kagome-ice.yaml",
+            "triangular-4-colourings.yaml",
         ] {
             let l = lattice(name);
             for along in 0..2 {
