@@ -23,7 +23,8 @@
 //! # Arguments and returns
 //!
 //! [`restarted`] takes the operator as a closure, the start, the basis size k, the number
-//! of restarts allowed and the residual to reach; it returns the vector (made nonnegative,
+//! of restarts allowed, the residual to reach and a stop test (asked before every
+//! application: a deadline or an interrupt); it returns the vector (made nonnegative,
 //! L1-normalised) and the number of operator applications used.
 //!
 //! # Complexity
