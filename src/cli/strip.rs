@@ -453,7 +453,9 @@ fn check_summary(checks: &[CrossCheck]) -> Vec<String> {
     for x in checks.iter().filter(|x| !x.agrees()) {
         lines.push(format!("FAILED: {}", check_words(x)));
     }
-    let groups: [(&str, fn(&Route) -> Option<usize>); 4] = [
+    // (words, the width of a check of that route).
+    type Group<'a> = (&'a str, fn(&Route) -> Option<usize>);
+    let groups: [Group; 4] = [
         ("kept sector = full space at", |r| match r {
             Route::FullSpace { width } => Some(*width),
             _ => None,

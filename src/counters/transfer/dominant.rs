@@ -188,13 +188,12 @@ impl<'a> Finder<'a> {
 
     /// The full-space check of one width, when the full space fits: `None` when it does not.
     fn full_check(&mut self, layout: &Column, width: usize) -> Result<Option<StripResult>> {
-        let mut small = self.config.clone();
-        small.max_states = self.config.max_states.min(FULL_CHECK_STATES);
-        let full = match layout.compiled(Kept::Full, &small) {
-            Ok(c) => c,
+        let mut full = layout.uncompiled(Kept::Full)?;
+        match full.compile_states(self.config, FULL_CHECK_STATES) {
+            Ok(_) => {}
             Err(Error::Budget { .. }) => return Ok(None),
             Err(e) => return Err(e),
-        };
+        }
         let Some((whole, x)) = full.iterate(self.config)? else {
             return Err(Error::Model(format!(
                 "a strip {width} cells wide has no arrangement of unbounded length"

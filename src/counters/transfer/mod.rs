@@ -353,7 +353,9 @@ fn local_filters(
     canonical: &HashMap<(usize, usize), u32>,
 ) -> Vec<Filter> {
     let mut out: Vec<Filter> = Vec::new();
-    let mut seen: std::collections::HashSet<(Vec<(u32, u64, u64)>, Vec<u64>)> = Default::default();
+    // (fields, allowed patterns) of the filters kept, to drop repeats.
+    type Seen = (Vec<(u32, u64, u64)>, Vec<u64>);
+    let mut seen: std::collections::HashSet<Seen> = Default::default();
     let max_age = canonical.keys().map(|k| k.1).max().unwrap_or(0);
     for t in templates {
         let table = &tables[t.table];
@@ -1292,6 +1294,7 @@ impl Column {
                 keys = self.column_keys(&keys, Some(t), config)?;
             }
             keys.retain(|&k| self.feasible(k) && self.in_sector(k));
+            boundary(keys.len())?;
             keys
         };
         for _ in 0..1000 {
