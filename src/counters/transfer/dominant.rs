@@ -378,7 +378,6 @@ impl<'a> Finder<'a> {
             }
             Err(e) => return Err(e),
         }
-        column.build_seconds += layout.build_seconds;
         Ok(match column.iterate(self.config)? {
             Some((r, _)) => Eval::Value(Box::new(r)),
             None => Eval::Empty,

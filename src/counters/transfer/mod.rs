@@ -997,10 +997,8 @@ impl Column {
 
     /// A copy of this layout (an uncompiled column) with the states `kept` compiled.
     pub(crate) fn compiled(&self, kept: Kept, config: &StripConfig) -> Result<Column> {
-        let start = Instant::now();
         let mut column = self.uncompiled(kept)?;
         column.compile(config)?;
-        column.build_seconds = self.build_seconds + start.elapsed().as_secs_f64();
         Ok(column)
     }
 
@@ -1030,7 +1028,7 @@ impl Column {
             keys: Vec::new(),
             rows: Vec::new(),
             sizes: Vec::new(),
-            build_seconds: 0.0,
+            build_seconds: self.build_seconds,
             charge: self.charge.clone(),
             sector: None,
             charge_sign: self.charge_sign,
@@ -1263,8 +1261,29 @@ impl Column {
     }
 
     /// [`Column::compile`]; `false` when the kept sector has no state that can be completed.
-    /// More than `max_boundary` boundary states is [`Error::Budget`] too.
+    /// More than `max_boundary` boundary states is [`Error::Budget`] too, and so is a step
+    /// with more than [`PEAK_PER_BOUNDARY`] times that many states (the pass from the open
+    /// end would otherwise build a large space before its size could be refused).
     fn compile_states(&mut self, config: &StripConfig, max_boundary: usize) -> Result<bool> {
+        let start = Instant::now();
+        let capped;
+        let config = if max_boundary < usize::MAX {
+            let mut c = config.clone();
+            c.max_states = c
+                .max_states
+                .min(max_boundary.saturating_mul(PEAK_PER_BOUNDARY));
+            capped = c;
+            &capped
+        } else {
+            config
+        };
+        let done = self.compile_keys(config, max_boundary)?;
+        self.build_seconds += start.elapsed().as_secs_f64();
+        Ok(done)
+    }
+
+    /// The body of [`Column::compile_states`].
+    fn compile_keys(&mut self, config: &StripConfig, max_boundary: usize) -> Result<bool> {
         let boundary = |n: usize| -> Result<()> {
             if n > max_boundary {
                 return Err(Error::Budget {
@@ -1716,6 +1735,10 @@ impl Column {
 pub fn memory_estimate(peak_states: f64, transitions: f64) -> f64 {
     4.0 * transitions + (8.0 * (BASIS + 6) as f64 + 16.0) * peak_states
 }
+
+/// States at any step allowed per boundary state when the boundary states are capped (a
+/// column step holds up to about four times the boundary states on the shipped lattices).
+const PEAK_PER_BOUNDARY: usize = 16;
 
 /// States holding less than this fraction of the largest component leave the convergence
 /// test (subdominant sectors decay below it).
