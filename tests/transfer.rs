@@ -911,6 +911,24 @@ fn issue11_four_colourings_find_their_period_or_refuse() {
     );
     assert!((value - w).abs() <= sigma, "{value} ± {sigma} against {w}");
     assert!(sigma < 0.02, "{sigma}");
+    // The multiples of 3 alone (one family) pin it down further: 3, 6, 9, 12.
+    let l = load("triangular-4-colourings.yaml");
+    let s = transfer::series(
+        &l.crystal,
+        &[3, 6, 9, 12],
+        Some(3),
+        Scaling::Auto,
+        &StripConfig::default(),
+    )
+    .unwrap();
+    let x = &s.extrapolation;
+    assert!(
+        (x.value.exp() - w).abs() <= x.uncertainty * x.value.exp(),
+        "{} ± {} against ln {w}",
+        x.value,
+        x.uncertainty
+    );
+    assert!(x.uncertainty < 1e-3, "{}", x.uncertainty);
     // The boundary states are the proper colourings of a ring of W sites, 3^W + 3(−1)^W
     // (chromatic polynomial of a cycle, common practice), not all 4^W assignments.
     for r in v["widths"].as_array().unwrap() {
