@@ -29,6 +29,21 @@ pub enum Route {
         /// Columns along the strip.
         length: usize,
     },
+    /// The largest eigenvalue of the nearest charge sectors on both sides of the kept one
+    /// at this strip width; a bound: the kept value must not lie below it.
+    NeighbourSectors {
+        /// Strip width in cells.
+        width: usize,
+    },
+    /// A lower bound on the largest eigenvalue at this width from the exact count Z of
+    /// the periodic `width × length` cell: Z = Tr Tᴸ ≤ N λᴸ with N the assignments of the
+    /// boundary fields, so ln λ ≥ (ln Z − ln N)/L; the kept value must not lie below it.
+    TorusBound {
+        /// Strip width in cells.
+        width: usize,
+        /// Columns along the strip.
+        length: usize,
+    },
     /// The exact count of the same finite cell.
     ExactCount {
         /// The cell, as written ("3x2x2 periodic").
@@ -42,7 +57,8 @@ pub enum Route {
 }
 
 /// One comparison of a value with a second route, both as ln W per formula unit (ln λ per
-/// formula unit for transfer matrices).
+/// formula unit for transfer matrices). For the bound routes the reference is a rigorous
+/// lower bound of the value, not a second estimate of it.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct CrossCheck {
     /// The method whose value is checked.
@@ -58,9 +74,24 @@ pub struct CrossCheck {
 }
 
 impl CrossCheck {
-    /// Whether the two routes agree within the tolerance.
+    /// Whether the two routes agree within the tolerance; for the bound routes
+    /// ([`Route::NeighbourSectors`], [`Route::TorusBound`]) whether the value is not below
+    /// the reference by more than the tolerance.
     pub fn agrees(&self) -> bool {
-        (self.value - self.reference).abs() <= self.tolerance
+        match self.route {
+            Route::NeighbourSectors { .. } | Route::TorusBound { .. } => {
+                self.value >= self.reference - self.tolerance
+            }
+            _ => (self.value - self.reference).abs() <= self.tolerance,
+        }
+    }
+
+    /// Whether the reference is a lower bound rather than a second value.
+    pub fn is_bound(&self) -> bool {
+        matches!(
+            self.route,
+            Route::NeighbourSectors { .. } | Route::TorusBound { .. }
+        )
     }
 }
 
@@ -84,5 +115,21 @@ mod tests {
         c.value = f64::NAN;
         c.tolerance = 1.0;
         assert!(!c.agrees());
+        // A bound holds above the reference, however far, and fails below it.
+        let mut b = CrossCheck {
+            method: Method::TransferMatrix,
+            route: Route::TorusBound {
+                width: 4,
+                length: 4,
+            },
+            value: 0.9,
+            reference: 0.1,
+            tolerance: 1e-12,
+        };
+        assert!(b.agrees() && b.is_bound());
+        b.value = 0.05;
+        assert!(!b.agrees());
+        b.value = f64::NAN;
+        assert!(!b.agrees());
     }
 }

@@ -433,8 +433,12 @@ pub fn route_words(route: &Route) -> String {
         }
         Route::ExactCount { cells } => format!("exact count, {cells}"),
         Route::WangLandau { cells } => format!("Wang–Landau, {cells}"),
-        #[allow(unreachable_patterns)]
-        other => format!("{other:?}"),
+        Route::NeighbourSectors { width } => {
+            format!("≥ neighbouring sectors, width {width}")
+        }
+        Route::TorusBound { width, length } => {
+            format!("≥ bound from the {width}x{length} torus count")
+        }
     }
 }
 

@@ -488,9 +488,9 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
         }
     }
     let mut strips = None;
+    let mut checks = Vec::new();
     let mut sampled_sizes = Vec::new();
     let mut extrapolated = None;
-    let mut checks = Vec::new();
     // Stage boundary: an interrupt skips what has not begun; a stage that stops on it
     // keeps what it finished.
     let stage = match c.dimensions {
@@ -505,7 +505,16 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
         }
     } else {
         let outcome = match c.dimensions {
-            2 => strip_series(c, end, config, &tell, &mut notes).map(|s| strips = s),
+            2 => strip_series(
+                c,
+                end,
+                config,
+                &exact_counts,
+                &tell,
+                &mut notes,
+                &mut checks,
+            )
+            .map(|s| strips = s),
             3 => monte_carlo(
                 c,
                 config,
@@ -550,13 +559,18 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
     })
 }
 
-/// Strips of growing (or given) width until the budget ends, extrapolated to infinite width.
+/// Strips of growing (or given) width until the budget ends, extrapolated to infinite width;
+/// the cross-checks made on the way, and the bounds the exact torus counts put on the
+/// widths, go to `checks` (condensed: every failure, and the largest width of each route
+/// that agreed).
 fn strip_series(
     c: &Crystal,
     end: Instant,
     config: &SurveyConfig,
+    exact_counts: &[Estimate],
     tell: &dyn Fn(Stage),
     notes: &mut Vec<String>,
+    checks: &mut Vec<CrossCheck>,
 ) -> Result<Option<StripSeries>> {
     let strip_config = StripConfig {
         deadline: Some(end),
@@ -567,11 +581,11 @@ fn strip_series(
         Some(w) => Box::new(w.clone().into_iter()),
         None => Box::new(2..),
     };
-    let mut results = Vec::new();
+    let mut runner = transfer::Runner::new(c, &strip_config);
     for width in widths {
         tell(Stage::Strip(width));
-        match transfer::strip(c, width, &strip_config) {
-            Ok(r) => results.push(r),
+        match runner.width(width) {
+            Ok(_) => {}
             Err(Error::Deadline { .. }) => {
                 if config.widths.is_some() {
                     notes.push(format!(
@@ -581,74 +595,179 @@ fn strip_series(
                 }
                 break;
             }
+            Err(Error::Interrupted { .. }) => {
+                notes.push(format!(
+                    "transfer matrix: interrupted at width {width}; the widths before it are kept"
+                ));
+                break;
+            }
             Err(e) => {
                 notes.push(format!("transfer matrix: stopped at width {width}: {e}"));
                 break;
             }
         }
-        if Instant::now() > end {
+        if Instant::now() > end || config.interrupt.raised() {
             break;
         }
     }
-    if results.len() < 4 {
+    let done = runner.results().len();
+    let run = runner.finish(None, Scaling::Auto, None);
+    let mut all = run.checks.clone();
+    all.extend(torus_bounds(&run.widths, exact_counts));
+    checks.extend(condensed(&all));
+    if let Some(failed) = all.iter().find(|x| !x.agrees()) {
         notes.push(format!(
-            "transfer matrix: only {} widths within the budget; raise the budget or run `groundcount strip`",
-            results.len()
+            "transfer matrix: a cross-check FAILED ({}: ln W per unit {} against {}); its value must not be cited",
+            crate::report::route_words(&failed.route),
+            failed.value,
+            failed.reference
+        ));
+    }
+    if done < 4 {
+        notes.push(format!(
+            "transfer matrix: only {done} widths within the budget; raise the budget or run `groundcount strip`"
         ));
         return Ok(None);
     }
-    // A sublattice structure makes s(W) oscillate with its period (3 for the triangular
-    // antiferromagnet): extrapolate the widths that are multiples of each candidate period
-    // (1, 2, 3) and keep the extrapolation with the smallest uncertainty.
-    let mut best: Option<(usize, StripSeries)> = None;
-    let mut last_error = None;
-    for step in 1..=3usize {
-        let chosen: Vec<_> = results
-            .iter()
-            .filter(|r| r.width % step == 0)
-            .cloned()
-            .collect();
-        if chosen.len() < 4 {
-            continue;
-        }
-        match transfer::from_widths(c, chosen, step, Scaling::Auto, &strip_config) {
-            Ok(series) => {
-                let better = best.as_ref().is_none_or(|(_, b)| {
-                    series.extrapolation.uncertainty < b.extrapolation.uncertainty
-                });
-                if better {
-                    best = Some((step, series));
-                }
-            }
-            Err(e) => last_error = Some(e),
-        }
-    }
-    match best {
-        Some((step, series)) => {
+    match run.series {
+        Some(series) => {
             let first = series.widths.first().map_or(0, |r| r.width);
             let largest = series.widths.last().map_or(0, |r| r.width);
+            let step = series.step;
             notes.push(format!(
                 "transfer matrix: cylinders of width {first}..{largest}{} along a, extrapolated to infinite width \
-                 ({}); `groundcount strip` shows every width",
+                 ({}){}; `groundcount strip` shows every width",
                 if step > 1 { format!(" in steps of {step} (the period with the smallest spread)") } else { String::new() },
                 match series.extrapolation.scaling {
                     Scaling::Gapped => {
-                        "gapped: the largest width, error from the last differences".to_string()
+                        "gapped: Aitken's Δ² on the last widths of each family, error from the window before".to_string()
                     }
                     _ => format!(
                         "critical: fits in 1/W², error from their spread over {} fits",
                         series.extrapolation.fits.len()
                     ),
-                }
+                },
+                sector_words(&series.widths)
             ));
             Ok(Some(series))
         }
         None => {
-            let why = last_error.map_or_else(|| "too few widths".to_string(), |e| e.to_string());
+            let why = run
+                .no_series
+                .unwrap_or_else(|| "too few widths".to_string());
             notes.push(format!("transfer matrix: no extrapolation ({why})"));
             Ok(None)
         }
     }
+}
+
+/// How the kept charge sectors were established, in words ("" when no sector was kept).
+fn sector_words(widths: &[transfer::StripResult]) -> String {
+    use transfer::SectorBasis;
+    let of = |f: &dyn Fn(&SectorBasis) -> bool| -> Vec<usize> {
+        widths
+            .iter()
+            .filter(|r| f(&r.basis))
+            .map(|r| r.width)
+            .collect()
+    };
+    let full = of(&|b| *b == SectorBasis::FullSpace);
+    let local = of(&|b| *b == SectorBasis::LocalMaximum);
+    let predicted = of(&|b| matches!(b, SectorBasis::Predicted { .. }));
+    if full.is_empty() && local.is_empty() && predicted.is_empty() {
+        return String::new();
+    }
+    let list = |v: &[usize]| match v {
+        [] => String::new(),
+        [a] => a.to_string(),
+        [a, .., b] => format!("{a}..{b}"),
+    };
+    let mut parts = Vec::new();
+    if !full.is_empty() {
+        parts.push(format!(
+            "checked against the full space at widths {}",
+            list(&full)
+        ));
+    }
+    if !local.is_empty() {
+        parts.push(format!(
+            "against the neighbouring charges at {}",
+            list(&local)
+        ));
+    }
+    if !predicted.is_empty() {
+        parts.push(format!("predicted from those at {}", list(&predicted)));
+    }
+    format!("; the charge sector of each width {}", parts.join(", "))
+}
+
+/// The lower bounds the exact counts of periodic L×L cells put on the largest eigenvalue
+/// of the width-L cylinder along a: Z = Tr T^L ≤ N λ^L, N the assignments of the boundary
+/// fields (a cell longer than the deepest constraint along the strip, so that Z is the
+/// trace).
+fn torus_bounds(widths: &[transfer::StripResult], exact_counts: &[Estimate]) -> Vec<CrossCheck> {
+    let mut out = Vec::new();
+    for e in exact_counts {
+        let Some(size) = e.cells.as_deref().and_then(square_side) else {
+            continue;
+        };
+        let Some(r) = widths.iter().find(|r| r.width == size) else {
+            continue;
+        };
+        if size <= r.depth || !e.ln_count.is_finite() {
+            continue;
+        }
+        let bound = (e.ln_count - r.ln_boundary_space) / size as f64;
+        out.push(CrossCheck {
+            method: Method::TransferMatrix,
+            route: Route::TorusBound {
+                width: size,
+                length: size,
+            },
+            value: r.ln_w_per_unit,
+            reference: bound / r.units_per_column,
+            tolerance: 1e-9 * r.ln_w_per_unit.abs().max(1.0),
+        });
+    }
+    out
+}
+
+/// L for a cell written "LxL periodic" (two dimensions).
+fn square_side(cells: &str) -> Option<usize> {
+    let dims = cells.strip_suffix(" periodic")?;
+    let (a, b) = dims.split_once('x')?;
+    let (a, b): (usize, usize) = (a.parse().ok()?, b.parse().ok()?);
+    (a == b).then_some(a)
+}
+
+/// Every failed check, and of each route the agreeing check of the largest width.
+fn condensed(all: &[CrossCheck]) -> Vec<CrossCheck> {
+    let kind = |r: &Route| std::mem::discriminant(r);
+    let width = |r: &Route| match r {
+        Route::FullSpace { width }
+        | Route::NeighbourSectors { width }
+        | Route::TorusTrace { width, .. }
+        | Route::TorusBound { width, .. } => *width,
+        _ => 0,
+    };
+    let mut out: Vec<CrossCheck> = all.iter().filter(|c| !c.agrees()).cloned().collect();
+    let mut kinds: Vec<_> = all.iter().map(|c| kind(&c.route)).collect();
+    kinds.dedup();
+    let mut seen = Vec::new();
+    for k in kinds {
+        if seen.contains(&k) {
+            continue;
+        }
+        seen.push(k);
+        if let Some(c) = all
+            .iter()
+            .filter(|c| kind(&c.route) == k && c.agrees())
+            .max_by_key(|c| width(&c.route))
+        {
+            out.push(c.clone());
+        }
+    }
+    out
 }
 
 /// Formula units of the smallest cell the Monte Carlo samples (about a hundred).

@@ -49,7 +49,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         let output = render(&args, &lattice, &s)?;
         return Err(super::Partial {
             output,
-            note: "the table holds what was finished before Ctrl-C".into(),
+            message: "interrupted: the table holds what was finished before Ctrl-C".into(),
+            code: 130,
         }
         .into());
     }

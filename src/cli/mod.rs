@@ -1,8 +1,10 @@
 //! Command-line layer: flag definitions, output format, exit codes. One file per command.
 //!
 //! Exit codes: 0 success; 1 usage or input error; 2 a budget (states or time) was exceeded
-//! or an iteration did not converge; 130 interrupted (Ctrl-C): `estimate` and `report` print
-//! or write what they finished first, the other commands stop with a message.
+//! or an iteration did not converge; 3 a cross-check failed (the results disagree with a
+//! second route of the same run); 130 interrupted (Ctrl-C). A command that finished part
+//! of its work before one of these (`strip`) prints that part on standard output
+//! ([`Partial`]); so do `estimate` and `report` when interrupted.
 
 mod calorimetry;
 mod estimate;
@@ -212,8 +214,8 @@ pub fn run() -> i32 {
         Err(e) => {
             if let Some(p) = e.downcast_ref::<Partial>() {
                 print!("{}", p.output);
-                eprintln!("interrupted: {}", p.note);
-                return 130;
+                eprintln!("error: {}", p.message);
+                return p.code;
             }
             eprintln!("error: {e:#}");
             match e.downcast_ref::<Error>() {
@@ -227,19 +229,22 @@ pub fn run() -> i32 {
     }
 }
 
-/// What a command finished before Ctrl-C stopped it: `run` prints the output, then the note
-/// on standard error, and exits with 130.
+/// What a command finished before something cut it short: `output` goes to standard
+/// output, `message` to standard error, and the process exits with `code` (see the exit
+/// codes in the module documentation).
 #[derive(Debug)]
 pub struct Partial {
-    /// The command's output for what was finished.
+    /// The results finished, rendered.
     pub output: String,
-    /// What the output holds and what was left undone.
-    pub note: String,
+    /// What stopped the command, in words.
+    pub message: String,
+    /// The exit code.
+    pub code: i32,
 }
 
 impl std::fmt::Display for Partial {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "interrupted: {}", self.note)
+        f.write_str(&self.message)
     }
 }
 

@@ -212,10 +212,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     if s.interrupted {
         return Err(super::Partial {
             output,
-            note: format!(
-                "the report in {} holds what was finished before Ctrl-C",
+            message: format!(
+                "interrupted: the report in {} holds what was finished before Ctrl-C",
                 args.out.display()
             ),
+            code: 130,
         }
         .into());
     }

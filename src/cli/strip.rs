@@ -2,15 +2,17 @@
 //! default) of growing width, and their extrapolation to the infinite crystal.
 
 use std::fmt::Write;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use clap::ValueEnum;
+use groundcount::Error;
 use groundcount::counters::extrapolate::Scaling;
-use groundcount::counters::transfer::{self, Sectors, StripConfig};
+use groundcount::counters::transfer::{self, SectorBasis, Sectors, StripConfig};
+use groundcount::crosscheck::{CrossCheck, Route};
 use groundcount::report::{self, Table, sig};
 use serde_json::json;
 
-use super::{Common, Format, load, shown, with_threads};
+use super::{Common, Format, Partial, load, shown, with_threads};
 
 /// Widest strip accepted.
 const MAX_WIDTH: usize = 64;
@@ -52,9 +54,9 @@ pub enum ScalingArg {
 /// Which states the operator keeps.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
 pub enum SectorsArg {
-    /// The charge sector with the most boundary states (when the rule conserves a charge,
-    /// such as the arrow flux of ice rules), states paired with their reversals when the
-    /// rule allows it.
+    /// The charge sector that holds the largest eigenvalue (when the rule conserves a
+    /// charge, such as the arrow flux of ice rules), found and checked width by width;
+    /// states paired with their reversals when the rule allows it.
     Largest,
     /// Every state.
     Full,
@@ -69,7 +71,8 @@ pub struct Args {
     /// Widths in cells across the strip: a range `2..12` (inclusive) or a list `4,6,8`.
     #[arg(long, default_value = "2..12")]
     widths: String,
-    /// Spacing of the widths in a range (e.g. 3 for a three-sublattice structure).
+    /// Spacing of the widths in a range (e.g. 3 for a three-sublattice structure); with 1
+    /// the spacing used for the extrapolation is chosen from the values.
     #[arg(long, default_value_t = 1)]
     step: usize,
     /// Cell axis along the strip.
@@ -89,7 +92,7 @@ pub struct Args {
     /// Largest number of frontier states at any step of a column.
     #[arg(long, default_value_t = 1 << 24)]
     max_states: usize,
-    /// State space: the largest conserved-charge sector, or every state.
+    /// State space: the conserved-charge sector of the largest eigenvalue, or every state.
     #[arg(long, value_enum, default_value_t = SectorsArg::Largest)]
     sectors: SectorsArg,
     /// Power iterations allowed per width before giving up.
@@ -188,6 +191,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             SectorsArg::Largest => Sectors::Largest,
             SectorsArg::Full => Sectors::Full,
         },
+        interrupt: super::interrupt(),
         ..Default::default()
     };
     let scaling = match args.scaling {
@@ -219,33 +223,331 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         }
         *d += cost(w);
     };
-    let s = with_threads(args.common.threads, || {
-        transfer::series_with(c, &widths, args.step, scaling, &config, &on_width)
+    // A step above 1 is the user's spacing (and the families' period); with 1 the spacing
+    // is chosen from the values, as `estimate` does.
+    let step = (args.step > 1).then_some(args.step);
+    let outcome = with_threads(args.common.threads, || {
+        transfer::run(c, &widths, step, scaling, &config, &on_width)
     });
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
-    let s = s??;
+    let outcome = outcome??;
     let section = Section::of(c.dimensions, config.along, args.depth);
-    let e = &s.estimate;
-    let x = &s.extrapolation;
+    let output = render(
+        args.common.format,
+        &args.file,
+        &lattice,
+        &config,
+        &section,
+        &outcome,
+    )?;
+    let failed: Vec<&CrossCheck> = outcome.checks.iter().filter(|x| !x.agrees()).collect();
+    if let Some(stop) = &outcome.stopped {
+        let code = match stop.error {
+            Error::Interrupted { .. } => 130,
+            _ => 2,
+        };
+        return Err(Partial {
+            output: if outcome.widths.is_empty() {
+                String::new()
+            } else {
+                output
+            },
+            message: stop_message(stop, &outcome),
+            code,
+        }
+        .into());
+    }
+    if let (None, Some(why)) = (&outcome.series, &outcome.no_series) {
+        return Err(Partial {
+            output,
+            message: format!("no extrapolation to infinite width: {why}"),
+            code: 2,
+        }
+        .into());
+    }
+    if !failed.is_empty() {
+        return Err(Partial {
+            output,
+            message: format!(
+                "{} cross-check{} failed ({}); the extrapolated value is not to be cited",
+                failed.len(),
+                if failed.len() == 1 { "" } else { "s" },
+                check_words(failed[0])
+            ),
+            code: 3,
+        }
+        .into());
+    }
+    Ok(output)
+}
+
+/// Why a run stopped, what the width would have needed, and what to do.
+fn stop_message(stop: &transfer::Stopped, run: &transfer::StripRun) -> String {
+    let kept = if run.widths.is_empty() {
+        "no width finished".to_string()
+    } else {
+        let list: Vec<String> = run.widths.iter().map(|r| r.width.to_string()).collect();
+        format!(
+            "the widths finished ({}) are printed{}",
+            list.join(", "),
+            if run.series.is_some() {
+                " with their extrapolation"
+            } else {
+                ", without an extrapolation (too few widths)"
+            }
+        )
+    };
+    format!("{}; {kept}", stop_reason(stop))
+}
+
+/// Why a run stopped and what the width would have needed, without the advice on what
+/// was kept.
+fn stop_reason(stop: &transfer::Stopped) -> String {
+    let w = stop.width;
+    let need = stop
+        .need
+        .as_ref()
+        .map(|n| {
+            format!(
+                "; from the growth between widths {} and {} it would need roughly {} states at the largest step of a column and {} of memory{}",
+                n.from[0],
+                n.from[1],
+                sig(n.peak_states, 2),
+                bytes(n.bytes),
+                if n.seconds > 1.0 {
+                    format!(", about {} s", sig(n.seconds, 2))
+                } else {
+                    String::new()
+                }
+            )
+        })
+        .unwrap_or_default();
+    match &stop.error {
+        Error::Budget { detail, .. } => format!(
+            "width {w} needs more than the state budget ({detail}; set by --max-states){need}; \
+             rerun with a larger --max-states if the memory allows, or cite the widths finished"
+        ),
+        Error::Deadline { .. } => format!("width {w} ran out of time{need}"),
+        Error::Interrupted { .. } => format!("interrupted during width {w}"),
+        Error::NotConverged { .. } => format!("width {w}: {}; raise --max-iterations", stop.error),
+        other => format!("width {w}: {other}"),
+    }
+}
+
+/// Bytes in words.
+fn bytes(b: f64) -> String {
+    if b >= 1e9 {
+        format!("{} GB", sig(b / 1e9, 2))
+    } else {
+        format!("{} MB", sig(b / 1e6, 2))
+    }
+}
+
+/// A range or list of widths in words.
+fn width_list(v: &[usize]) -> String {
+    let contiguous = v.windows(2).all(|p| p[1] == p[0] + 1);
+    match v {
+        [] => String::new(),
+        [a] => a.to_string(),
+        [a, .., b] if contiguous => format!("{a}..{b}"),
+        _ => v
+            .iter()
+            .map(|w| w.to_string())
+            .collect::<Vec<_>>()
+            .join(", "),
+    }
+}
+
+/// "width 4" or "widths 2..8".
+fn widths_words(v: &[usize]) -> String {
+    if v.len() == 1 {
+        format!("width {}", v[0])
+    } else {
+        format!("widths {}", width_list(v))
+    }
+}
+
+/// One check in words.
+fn check_words(x: &CrossCheck) -> String {
+    let what = match &x.route {
+        Route::FullSpace { width } => {
+            format!("width {width}: the kept sector against the full space")
+        }
+        Route::NeighbourSectors { width } => {
+            format!("width {width}: the kept sector against its neighbouring charges")
+        }
+        Route::TorusTrace { width, length } => format!(
+            "the trace of T^{length} at width {width} against the frontier count of the same cell"
+        ),
+        Route::TorusBound { width, length } => {
+            format!("width {width}: against the bound from the {width}×{length} torus count")
+        }
+        other => format!("{other:?}"),
+    };
+    format!(
+        "{what}: ln W per unit {} against {}{}",
+        sig(x.value, 15),
+        sig(x.reference, 15),
+        if x.is_bound() { " (a lower bound)" } else { "" }
+    )
+}
+
+/// The sector column of a width: the charge kept and how it was established.
+fn sector_cell(r: &transfer::StripResult) -> String {
+    if r.basis == SectorBasis::Whole {
+        return "all".to_string();
+    }
+    let how = sector_basis_word(r);
+    format!(
+        "{} ({how})",
+        r.sector.map_or("—".to_string(), |q| q.to_string())
+    )
+}
+
+/// How a width's sector was established, in one or two words.
+fn sector_basis_word(r: &transfer::StripResult) -> &'static str {
+    match r.basis {
+        SectorBasis::Whole => "all",
+        SectorBasis::Given => "given",
+        SectorBasis::FullSpace => "full space",
+        SectorBasis::LocalMaximum => "neighbours",
+        SectorBasis::Predicted { .. } => "predicted",
+    }
+}
+
+/// How each width's sector was established, in one line (empty when none was kept).
+fn sector_summary(widths: &[transfer::StripResult]) -> String {
+    let of = |f: &dyn Fn(&SectorBasis) -> bool| -> Vec<usize> {
+        widths
+            .iter()
+            .filter(|r| f(&r.basis))
+            .map(|r| r.width)
+            .collect()
+    };
+    let full = of(&|b| *b == SectorBasis::FullSpace);
+    let local = of(&|b| *b == SectorBasis::LocalMaximum);
+    let predicted = of(&|b| matches!(b, SectorBasis::Predicted { .. }));
+    let given = of(&|b| *b == SectorBasis::Given);
+    let mut parts = Vec::new();
+    if !full.is_empty() {
+        parts.push(format!(
+            "{}: the full space's largest eigenvector lies in it and the eigenvalues agree",
+            widths_words(&full)
+        ));
+    }
+    if !local.is_empty() {
+        parts.push(format!(
+            "{}: larger than the neighbouring charges on both sides",
+            widths_words(&local)
+        ));
+    }
+    if !predicted.is_empty() {
+        parts.push(format!(
+            "{}: predicted from the checked widths, not checked (beyond the cost allowed for checks)",
+            widths_words(&predicted)
+        ));
+    }
+    if !given.is_empty() {
+        parts.push(format!("{}: given, not checked", widths_words(&given)));
+    }
+    parts.join("; ")
+}
+
+/// The cross-checks in one line each per route (failures in full).
+fn check_summary(checks: &[CrossCheck]) -> Vec<String> {
+    let mut lines = Vec::new();
+    for x in checks.iter().filter(|x| !x.agrees()) {
+        lines.push(format!("FAILED: {}", check_words(x)));
+    }
+    // (words, the width of a check of that route).
+    type Group<'a> = (&'a str, fn(&Route) -> Option<usize>);
+    let groups: [Group; 4] = [
+        ("kept sector = full space at", |r| match r {
+            Route::FullSpace { width } => Some(*width),
+            _ => None,
+        }),
+        (
+            "kept sector above its neighbouring charges at",
+            |r| match r {
+                Route::NeighbourSectors { width } => Some(*width),
+                _ => None,
+            },
+        ),
+        (
+            "trace of T^L = frontier count of the periodic cell at",
+            |r| match r {
+                Route::TorusTrace { width, .. } => Some(*width),
+                _ => None,
+            },
+        ),
+        (
+            "eigenvalue above the bound of the exact torus count at",
+            |r| match r {
+                Route::TorusBound { width, .. } => Some(*width),
+                _ => None,
+            },
+        ),
+    ];
+    for (words, pick) in groups {
+        let agreeing: Vec<&CrossCheck> = checks
+            .iter()
+            .filter(|x| x.agrees() && pick(&x.route).is_some())
+            .collect();
+        if agreeing.is_empty() {
+            continue;
+        }
+        let w: Vec<usize> = agreeing.iter().filter_map(|x| pick(&x.route)).collect();
+        let largest = agreeing
+            .iter()
+            .filter(|x| !x.is_bound())
+            .map(|x| (x.value - x.reference).abs())
+            .fold(0.0, f64::max);
+        lines.push(format!(
+            "agree: {words} {}{}",
+            widths_words(&w),
+            if agreeing.iter().all(|x| x.is_bound()) {
+                String::new()
+            } else {
+                format!(" (largest difference {} in ln W per unit)", sig(largest, 2))
+            }
+        ));
+    }
+    lines
+}
+
+/// The output of a run in the format asked.
+fn render(
+    format: Format,
+    file: &Path,
+    lattice: &groundcount::Lattice,
+    config: &StripConfig,
+    section: &Section,
+    run: &transfer::StripRun,
+) -> anyhow::Result<String> {
+    let c = &lattice.crystal;
     let unit = &c.formula_unit.name;
-    let scaling_name = match x.scaling {
+    let series = run.series.as_ref();
+    let failed = run.checks.iter().any(|x| !x.agrees());
+    let scaling_name = |x: &groundcount::counters::extrapolate::Extrapolation| match x.scaling {
         Scaling::Gapped => "gapped",
         _ => "critical",
     };
-    match args.common.format {
+    let shown_file = shown(&Some(file.to_path_buf()));
+    match format {
         Format::Json => {
+            let e = series.map(|s| &s.estimate);
             let v = json!({
                 "lattice": c.name,
-                "file": shown(&Some(args.file.clone())),
+                "file": shown_file,
                 "content_hash": lattice.content_hash,
                 "formula_unit": unit,
-                "method": e.method.name(),
+                "method": groundcount::estimate::Method::TransferMatrix.name(),
                 "along": AXES[config.along],
                 "around": if config.periodic { "periodic" } else { "open" },
                 "depth": section.depth,
-                "widths": s.widths.iter().map(|r| json!({
+                "widths": run.widths.iter().map(|r| json!({
                     "width": r.width,
                     "ln_lambda": r.ln_lambda,
                     "ln_lambda_bracket": [r.ln_bracket.0, r.ln_bracket.1],
@@ -254,34 +556,52 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     "recurrent_states": r.recurrent_states,
                     "bracket_certified": r.certified,
                     "peak_states": r.peak_states,
+                    "transitions": r.transitions,
                     "iterations": r.iterations,
                     "sector": r.sector,
+                    "sector_basis": basis_word(&r.basis),
                     "reversal_pairs": r.reversal,
                     "seconds": r.seconds,
                 })).collect::<Vec<_>>(),
-                "scaling": scaling_name,
-                "central_charge": s.central_charge,
-                "w_per_unit": e.w_per_unit(),
-                "uncertainty": e.sigma_w(),
-                "s_over_r": e.s_over_r(),
-                "s_j_per_mol_k": e.s_j_per_mol_k(),
-                "s_uncertainty": e.sigma_s_j_per_mol_k(),
-                "seconds": e.seconds,
+                "calibration_widths": run.calibration,
+                "checks": run.checks.iter().map(|x| json!({
+                    "route": x.route,
+                    "value": x.value,
+                    "reference": x.reference,
+                    "tolerance": x.tolerance,
+                    "bound": x.is_bound(),
+                    "agrees": x.agrees(),
+                })).collect::<Vec<_>>(),
+                "checks_agree": !failed,
+                "stopped": run.stopped.as_ref().map(|s| json!({
+                    "width": s.width,
+                    "reason": stop_reason(s),
+                    "need": s.need.as_ref().map(|n| json!({
+                        "peak_states": n.peak_states,
+                        "bytes": n.bytes,
+                        "seconds": n.seconds,
+                        "from_widths": n.from,
+                    })),
+                })),
+                "no_extrapolation": run.no_series,
+                "step": series.map(|s| s.step),
+                "period": series.map(|s| s.extrapolation.period),
+                "scaling": series.map(|s| scaling_name(&s.extrapolation)),
+                "central_charge": series.and_then(|s| s.central_charge),
+                "w_per_unit": e.map(|e| e.w_per_unit()),
+                "uncertainty": e.and_then(|e| e.sigma_w()),
+                "s_over_r": e.map(|e| e.s_over_r()),
+                "s_j_per_mol_k": e.map(|e| e.s_j_per_mol_k()),
+                "s_uncertainty": e.and_then(|e| e.sigma_s_j_per_mol_k()),
+                "seconds": e.map(|e| e.seconds),
             });
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
         format => {
             let w_head = format!("W per {unit}");
-            let mut t = Table::new(&[
-                "width",
-                "states",
-                "iterations",
-                "ln λ",
-                &w_head,
-                "ln λ bracket width",
-                "time s",
-            ])
-            .with_csv(&[
+            let any_sector = run.widths.iter().any(|r| r.basis != SectorBasis::Whole);
+            let mut head = vec!["width", "states", "iter", "ln λ", &w_head, "bracket Δ ln λ"];
+            let mut csv_head = vec![
                 "width",
                 "states",
                 "iterations",
@@ -289,19 +609,25 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 &w_head,
                 "ln λ bracket lower",
                 "ln λ bracket upper",
-                "time s",
-            ]);
-            for r in &s.widths {
-                t.row(vec![
+            ];
+            if any_sector {
+                head.push("sector");
+                csv_head.push("sector");
+                csv_head.push("sector basis");
+            }
+            head.push("time s");
+            csv_head.push("time s");
+            let mut t = Table::new(&head).with_csv(&csv_head);
+            for r in &run.widths {
+                let mut row = vec![
                     r.width.to_string(),
                     r.states.to_string(),
                     r.iterations.to_string(),
                     sig(r.ln_lambda, 15),
                     sig(r.ln_w_per_unit.exp(), 13),
                     sig(r.ln_bracket.1 - r.ln_bracket.0, 2),
-                    format!("{:.3}", r.seconds),
-                ]);
-                t.csv_row(vec![
+                ];
+                let mut csv = vec![
                     r.width.to_string(),
                     r.states.to_string(),
                     r.iterations.to_string(),
@@ -309,8 +635,16 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     report::number(r.ln_w_per_unit.exp()),
                     report::number(r.ln_bracket.0),
                     report::number(r.ln_bracket.1),
-                    report::number(r.seconds),
-                ]);
+                ];
+                if any_sector {
+                    row.push(sector_cell(r));
+                    csv.push(r.sector.map_or(String::new(), |q| q.to_string()));
+                    csv.push(sector_basis_word(r).to_string());
+                }
+                row.push(format!("{:.3}", r.seconds));
+                csv.push(report::number(r.seconds));
+                t.row(row);
+                t.csv_row(csv);
             }
             match format {
                 Format::Csv => return Ok(t.render_csv()),
@@ -322,7 +656,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 out,
                 "{} ({}), {} along {} with {} boundaries across{}",
                 c.name,
-                shown(&Some(args.file.clone())),
+                shown_file,
                 if c.dimensions == 3 {
                     "prisms"
                 } else {
@@ -335,59 +669,142 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             writeln!(out)?;
             out += &t.render();
             writeln!(out)?;
-            let sw = e.sigma_w().unwrap_or(0.0);
-            writeln!(
-                out,
-                "W per {unit} (W → ∞)   {} ± {}",
-                sig(e.w_per_unit(), 13),
-                sig(sw, 2)
-            )?;
-            writeln!(
-                out,
-                "S0/R                 {} ± {}",
-                sig(e.s_over_r(), 13),
-                sig(x.uncertainty, 2)
-            )?;
-            writeln!(
-                out,
-                "S0                   {} ± {} J/(mol K) per mole of {unit}",
-                sig(e.s_j_per_mol_k(), 10),
-                sig(e.sigma_s_j_per_mol_k().unwrap_or(0.0), 2)
-            )?;
-            let detail = match (x.scaling, s.central_charge) {
-                (Scaling::Gapped, _) => format!(
-                    "gapped (exponential convergence): Aitken's Δ² on the last three widths of \
-                     each family W mod {}; value of the family W ≡ {}, uncertainty from its \
-                     window before, widened where another family disagrees",
-                    x.period, x.fits[0].family
-                ),
-                (_, c) => format!(
-                    "critical: {} polynomial {} in {} (orders, windows, families W mod {}); \
-                     value and spread of the family W ≡ {} (mod {}), widened where another \
-                     family disagrees beyond its own spread{}",
-                    x.fits.len(),
-                    if x.fits.len() == 1 { "fit" } else { "fits" },
-                    match x.exponent {
-                        1 => "1/W (open edges)".to_string(),
-                        2 => "1/W²".to_string(),
-                        e => format!("1/W^{e} (the leading term only on prisms)"),
-                    },
-                    x.period,
-                    x.fits[0].family,
-                    x.period,
-                    c.map(|c| format!("; central charge of the 1/W² term {}", sig(c, 4)))
-                        .unwrap_or_default()
-                ),
-            };
-            writeln!(out, "extrapolation        {detail}")?;
-            writeln!(
-                out,
-                "method               {}, {} s in all",
-                report::method_label(e),
-                sig(e.seconds, 3)
-            )?;
+            match series {
+                Some(s) if !failed => {
+                    let e = &s.estimate;
+                    let x = &s.extrapolation;
+                    let sw = e.sigma_w().unwrap_or(0.0);
+                    writeln!(
+                        out,
+                        "W per {unit} (W → ∞)   {} ± {}",
+                        sig(e.w_per_unit(), 13),
+                        sig(sw, 2)
+                    )?;
+                    writeln!(
+                        out,
+                        "S0/R                 {} ± {}",
+                        sig(e.s_over_r(), 13),
+                        sig(x.uncertainty, 2)
+                    )?;
+                    writeln!(
+                        out,
+                        "S0                   {} ± {} J/(mol K) per mole of {unit}",
+                        sig(e.s_j_per_mol_k(), 10),
+                        sig(e.sigma_s_j_per_mol_k().unwrap_or(0.0), 2)
+                    )?;
+                    writeln!(out, "extrapolation        {}", extrapolation_words(s, run))?;
+                    writeln!(
+                        out,
+                        "method               {}, {} s in all",
+                        report::method_label(e),
+                        sig(e.seconds, 3)
+                    )?;
+                }
+                Some(_) => {
+                    writeln!(
+                        out,
+                        "NO VALUE: a cross-check below FAILED, so the extrapolation of these widths is not to be cited"
+                    )?;
+                }
+                None => {
+                    writeln!(
+                        out,
+                        "no extrapolation: {}",
+                        run.no_series.as_deref().unwrap_or("too few widths")
+                    )?;
+                }
+            }
+            let sectors = sector_summary(&run.widths);
+            if !sectors.is_empty() {
+                writeln!(out, "charge sector        {sectors}")?;
+            }
+            if !run.calibration.is_empty() {
+                writeln!(
+                    out,
+                    "                     (widths {} were computed only to check the sector)",
+                    width_list(&run.calibration)
+                )?;
+            }
+            let lines = check_summary(&run.checks);
+            for (i, line) in lines.iter().enumerate() {
+                writeln!(
+                    out,
+                    "{}{line}",
+                    if i == 0 {
+                        "cross-checks         "
+                    } else {
+                        "                     "
+                    }
+                )?;
+            }
+            if let Some(stop) = &run.stopped {
+                writeln!(out, "stopped              {}", stop_reason(stop))?;
+            }
             Ok(out)
         }
+    }
+}
+
+/// The sector basis as one word, for JSON.
+fn basis_word(b: &SectorBasis) -> &'static str {
+    match b {
+        SectorBasis::Whole => "all-states",
+        SectorBasis::Given => "given",
+        SectorBasis::FullSpace => "full-space",
+        SectorBasis::LocalMaximum => "neighbours",
+        SectorBasis::Predicted { .. } => "predicted",
+    }
+}
+
+/// How the limit was taken, in words.
+fn extrapolation_words(s: &transfer::StripSeries, run: &transfer::StripRun) -> String {
+    let x = &s.extrapolation;
+    let used: Vec<usize> = s.widths.iter().map(|r| r.width).collect();
+    let subset = if used.len() < run.widths.len() {
+        format!(
+            "the widths that are multiples of {} ({}), the spacing with the smallest spread; ",
+            s.step,
+            width_list(&used)
+        )
+    } else {
+        String::new()
+    };
+    let families = if x.smooth {
+        format!("families W mod {}", x.period)
+    } else {
+        format!(
+            "families W mod {} (too few widths to find the families' period: the bar is rough)",
+            x.period
+        )
+    };
+    let widened = if x.widened {
+        "; widened to cover the other spacings' extrapolations"
+    } else {
+        ""
+    };
+    match (x.scaling, s.central_charge) {
+        (Scaling::Gapped, _) => format!(
+            "{subset}gapped (exponential convergence): Aitken's Δ² on the last three widths of \
+             each family ({families}); value of the family W ≡ {}, uncertainty from its \
+             window before, widened where another family disagrees{widened}",
+            x.fits[0].family
+        ),
+        (_, c) => format!(
+            "{subset}critical: {} polynomial {} in {} (orders, windows, {families}); \
+             value and spread of the family W ≡ {} (mod {}), widened where another \
+             family disagrees beyond its own spread{widened}{}",
+            x.fits.len(),
+            if x.fits.len() == 1 { "fit" } else { "fits" },
+            match x.exponent {
+                1 => "1/W (open edges)".to_string(),
+                2 => "1/W²".to_string(),
+                e => format!("1/W^{e} (the leading term only on prisms)"),
+            },
+            x.fits[0].family,
+            x.period,
+            c.map(|c| format!("; central charge of the 1/W² term {}", sig(c, 4)))
+                .unwrap_or_default()
+        ),
     }
 }
 
@@ -404,5 +821,46 @@ mod tests {
             assert!(parse_widths(bad, 1).is_err(), "{bad}");
         }
         assert!(parse_widths("2..6", 0).is_err());
+    }
+
+    #[test]
+    fn a_failed_cross_check_withholds_the_value() {
+        let path = format!("{}/lattices/hard-squares.yaml", env!("CARGO_MANIFEST_DIR"));
+        let lattice = groundcount::Lattice::from_file(Path::new(&path)).unwrap();
+        let config = StripConfig::default();
+        let mut run = transfer::run(
+            &lattice.crystal,
+            &[2, 3, 4, 5, 6, 7],
+            None,
+            Scaling::Auto,
+            &config,
+            &|_| {},
+        )
+        .unwrap();
+        let section = Section::of(2, 0, None);
+        let file = Path::new(&path);
+        let fine = render(Format::Table, file, &lattice, &config, &section, &run).unwrap();
+        assert!(fine.contains("W → ∞") && !fine.contains("FAILED"), "{fine}");
+        // A disagreement, as a broken operator would produce it.
+        run.checks.push(CrossCheck {
+            method: groundcount::estimate::Method::TransferMatrix,
+            route: Route::FullSpace { width: 7 },
+            value: 0.40,
+            reference: 0.41,
+            tolerance: 1e-12,
+        });
+        let text = render(Format::Table, file, &lattice, &config, &section, &run).unwrap();
+        assert!(text.contains("FAILED: width 7"), "{text}");
+        assert!(
+            text.contains("NO VALUE") && !text.contains("W → ∞"),
+            "{text}"
+        );
+        let json = render(Format::Json, file, &lattice, &config, &section, &run).unwrap();
+        let v: serde_json::Value = serde_json::from_str(&json).unwrap();
+        assert_eq!(v["checks_agree"], false);
+        assert_eq!(
+            v["checks"].as_array().unwrap().last().unwrap()["agrees"],
+            false
+        );
     }
 }

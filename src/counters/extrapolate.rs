@@ -104,6 +104,13 @@ pub struct Extrapolation {
     pub period: usize,
     /// The corrections are powers of 1/W^exponent.
     pub exponent: i32,
+    /// Whether every family's last values move monotonically with shrinking steps at this
+    /// period (the signature of smooth sequences); false when no period tried gave that and
+    /// the families are a fallback.
+    pub smooth: bool,
+    /// Whether the uncertainty was widened by another extrapolation of the same widths
+    /// that disagreed with this one (see `transfer::from_widths`).
+    pub widened: bool,
 }
 
 /// Highest order of the polynomial in 1/W² (five correction terms: with square-ice widths
@@ -195,7 +202,7 @@ pub fn extrapolate_in(
             "an extrapolation needs at least two widths".into(),
         ));
     }
-    let period = family_period(&points, step.max(1));
+    let (period, smooth) = family_period(&points, step.max(1))?;
     let largest = points.last().expect("two points").0;
     let mut families: Vec<(usize, Vec<(usize, f64)>)> = Vec::new();
     for &p in &points {
@@ -283,6 +290,8 @@ pub fn extrapolate_in(
             fits,
             period,
             exponent,
+            smooth,
+            widened: false,
         });
     }
     // The highest order leaves at least one width of the family unused (so that the
@@ -346,6 +355,8 @@ pub fn extrapolate_in(
         fits,
         period,
         exponent,
+        smooth,
+        widened: false,
     })
 }
 
@@ -408,12 +419,16 @@ fn aitken(p: &[(usize, f64)]) -> Option<f64> {
     (d1 != 0.0 && r > 0.0 && r < 0.95).then(|| p[2].1 - d2 * d2 / (d2 - d1))
 }
 
-/// The period of the families: the smallest of step, 2·step, 3·step and 6·step at which the
-/// last values of every family change monotonically (one sign, shrinking steps), the
-/// signature of one smooth sequence; 2·step when none is (or there are too few widths to
-/// tell), unless that leaves every family a single width.
-fn family_period(points: &[(usize, f64)], step: usize) -> usize {
-    let smooth = |period: usize| -> bool {
+/// The period of the families and whether it is smooth: the smallest of step, 2·step,
+/// 3·step and 6·step at which the last values of every family with at least three widths
+/// change monotonically (one sign, shrinking steps), the signature of one smooth sequence.
+/// When no family has three widths at any of them (too few widths to tell), 2·step (not
+/// smooth), unless that leaves every family a single width. When some period was judged
+/// and none is smooth, an error: the widths do not fall into families that can be
+/// extrapolated.
+fn family_period(points: &[(usize, f64)], step: usize) -> Result<(usize, bool)> {
+    // Some(true): every judged family smooth; Some(false): one is not; None: none judged.
+    let smooth = |period: usize| -> Option<bool> {
         let mut classes: Vec<usize> = points.iter().map(|p| p.0 % period).collect();
         classes.sort_unstable();
         classes.dedup();
@@ -424,31 +439,64 @@ fn family_period(points: &[(usize, f64)], step: usize) -> usize {
                 .filter(|p| p.0 % period == r)
                 .map(|p| p.1)
                 .collect();
-            let tail = &values[values.len().saturating_sub(SMOOTH_POINTS)..];
-            if tail.len() < 4 {
+            // The smallest width of a family is left out when the family has more than
+            // MIN_JUDGED widths: the narrowest strips are furthest from the asymptotic law.
+            let keep = if values.len() > MIN_JUDGED {
+                (values.len() - 1).min(SMOOTH_POINTS)
+            } else {
+                values.len()
+            };
+            let tail = &values[values.len() - keep..];
+            if tail.len() < MIN_JUDGED {
                 continue;
             }
             judged = true;
             let d: Vec<f64> = tail.windows(2).map(|w| w[1] - w[0]).collect();
+            // A family that no longer changes (free variables, a gapped model converged to
+            // rounding) is as smooth as a family can be.
+            let scale = tail.iter().fold(1.0f64, |m, v| m.max(v.abs()));
+            if d.iter().all(|x| x.abs() <= FLAT * scale) {
+                continue;
+            }
             let one_sign = d.iter().all(|&x| x > 0.0) || d.iter().all(|&x| x < 0.0);
             let shrinking = d.windows(2).all(|w| w[1].abs() < w[0].abs());
             if !(one_sign && shrinking) {
-                return false;
+                return Some(false);
             }
         }
-        judged
+        judged.then_some(true)
     };
     let split_pays = {
         let mut classes: Vec<usize> = points.iter().map(|p| p.0 % (2 * step)).collect();
         classes.sort_unstable();
         classes.windows(2).any(|w| w[0] == w[1])
     };
-    [1, 2, 3, 6]
-        .into_iter()
-        .map(|k| k * step)
-        .find(|&p| smooth(p))
-        .unwrap_or(if split_pays { 2 * step } else { step })
+    let periods = PERIODS.map(|k| k * step);
+    let verdicts: Vec<Option<bool>> = periods.iter().map(|&p| smooth(p)).collect();
+    if let Some(i) = verdicts.iter().position(|v| *v == Some(true)) {
+        return Ok((periods[i], true));
+    }
+    if verdicts.contains(&Some(false)) {
+        let widths: Vec<String> = points.iter().map(|p| p.0.to_string()).collect();
+        return Err(Error::Cells(format!(
+            "the widths {} do not fall into families that converge smoothly (widths W mod {} \
+             tried): their extrapolation cannot be trusted; compute more widths (for a lattice \
+             with a sublattice period, widths that are multiples of it)",
+            widths.join(", "),
+            periods.map(|p| p.to_string()).join(", ")
+        )));
+    }
+    Ok((if split_pays { 2 * step } else { step }, false))
 }
+
+/// Relative change below which successive values of a family count as equal.
+const FLAT: f64 = 1e-13;
+
+/// The periods tried for the families, in units of the width step.
+const PERIODS: [usize; 4] = [1, 2, 3, 6];
+
+/// Fewest values of a family for its smoothness to be judged (two differences).
+const MIN_JUDGED: usize = 3;
 
 /// Values at the end of a family that must change monotonically for it to count as one
 /// smooth sequence.
@@ -585,6 +633,42 @@ mod tests {
                 "gapped {gapped}, exponent {exponent}: slope {slope}, weight {want}"
             );
         }
+    }
+
+    #[test]
+    fn a_family_is_judged_without_its_narrowest_width() {
+        // Three classes W mod 3 with their own 1/W² terms; the narrowest width of one
+        // class is far off its law (as width 2 of the triangular 4-colourings is). Its
+        // family is judged on the widths after it, and period 3 is found.
+        let mut points: Vec<(usize, f64)> = (2..=11)
+            .map(|w| {
+                let u = 1.0 / (w * w) as f64;
+                (w, 0.38 + [0.8, -1.2, -0.4][w % 3] * u)
+            })
+            .collect();
+        points[0].1 += 0.05;
+        let e = extrapolate(&points, 1, Scaling::Critical).unwrap();
+        assert_eq!(e.period, 3);
+        assert!(e.smooth);
+        assert!(
+            (e.value - 0.38).abs() <= e.uncertainty,
+            "{} ± {}",
+            e.value,
+            e.uncertainty
+        );
+    }
+
+    #[test]
+    fn widths_without_smooth_families_are_refused() {
+        // Values that move up and down at every period tried: no extrapolation, an error.
+        let points: Vec<(usize, f64)> = (2..=13)
+            .map(|w| (w, 0.3 + 0.01 * ((w * w * 7919) % 13) as f64))
+            .collect();
+        let e = extrapolate(&points, 1, Scaling::Auto).unwrap_err();
+        assert!(e.to_string().contains("smoothly"), "{e}");
+        // Too few widths to tell (two): the fallback families, flagged as not smooth.
+        let two = extrapolate(&[(1, 0.5), (2, 0.45)], 1, Scaling::Critical).unwrap();
+        assert!(!two.smooth);
     }
 
     #[test]

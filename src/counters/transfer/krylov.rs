@@ -23,7 +23,8 @@
 //! # Arguments and returns
 //!
 //! [`restarted`] takes the operator as a closure, the start, the basis size k, the number
-//! of restarts allowed and the residual to reach; it returns the vector (made nonnegative,
+//! of restarts allowed, the residual to reach and a stop test (asked before every
+//! application: a deadline or an interrupt); it returns the vector (made nonnegative,
 //! L1-normalised) and the number of operator applications used.
 //!
 //! # Complexity
@@ -82,6 +83,7 @@ pub fn restarted(
     basis: usize,
     restarts: usize,
     residual: f64,
+    stop: &dyn Fn() -> bool,
 ) -> (Vec<f64>, usize) {
     let n = start.len();
     let mut x = start.to_vec();
@@ -96,6 +98,9 @@ pub fn restarted(
         let mut h = vec![vec![0.0; basis]; basis + 1];
         let mut size = basis;
         for j in 0..basis {
+            if stop() {
+                return (x, applied);
+            }
             apply(&v[j], &mut w);
             applied += 1;
             for _ in 0..2 {
@@ -162,7 +167,7 @@ mod tests {
             y.clear();
             y.extend((0..3).map(|i| (0..3).map(|j| m[i][j] * x[j]).sum::<f64>()));
         };
-        let (x, _) = restarted(&mut apply, &[1.0 / 3.0; 3], 2, 50, 1e-14);
+        let (x, _) = restarted(&mut apply, &[1.0 / 3.0; 3], 2, 50, 1e-14, &|| false);
         let mut y = Vec::new();
         apply(&x, &mut y);
         let ratios: Vec<f64> = y.iter().zip(&x).map(|(a, b)| a / b).collect();

@@ -89,19 +89,23 @@ use std::time::Instant;
 use num_bigint::BigUint;
 use rayon::prelude::*;
 
-use super::extrapolate::{Extrapolation, Scaling, extrapolate_in};
 use super::order::width as field_width;
 use crate::cluster::{Cells, Cluster};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
-use crate::estimate::{Estimate, Method};
 use crate::model::{Model, Table};
 use rows::{CHUNK, Rows};
 
+mod dominant;
 mod krylov;
 mod rows;
 pub mod sector;
+mod series;
 pub mod torus;
+
+pub use series::{
+    Need, Runner, Stopped, StripRun, StripSeries, from_widths, run, series, series_with, strip,
+};
 
 /// Options of a strip computation.
 #[derive(Clone, Debug)]
@@ -189,6 +193,40 @@ pub struct StripResult {
     /// Whether states were paired with their images under reversing every variable (the
     /// largest eigenvector is symmetric under it, so λ is that of the symmetric part).
     pub reversal: bool,
+    /// Why the states kept hold the largest eigenvalue.
+    pub basis: SectorBasis,
+    /// Transitions (index-list entries) per application of T: with `peak_states`, what
+    /// the memory grows with.
+    pub transitions: usize,
+    /// ln of the number of assignments of the boundary fields, an upper bound on the
+    /// states of the full space (for bounds from torus counts).
+    pub ln_boundary_space: f64,
+    /// Columns the deepest constraint spans beyond its first: a periodic cell longer than
+    /// this along the strip is counted exactly by the trace of Tᴸ.
+    pub depth: usize,
+}
+
+/// Why the states a width kept carry its largest eigenvalue.
+#[derive(Clone, Debug, PartialEq)]
+pub enum SectorBasis {
+    /// No charge sector was kept: the rule conserves none, or every state was asked for.
+    Whole,
+    /// The charge was given by the caller ([`Sectors::Charge`]); nothing was checked.
+    Given,
+    /// The full space was computed at this width: its largest eigenvector lies in this
+    /// sector and the two eigenvalues agree (a [`crate::crosscheck::Route::FullSpace`]
+    /// check).
+    FullSpace,
+    /// Computed at this width against the nearest charges on both sides, which gave
+    /// smaller eigenvalues (a [`crate::crosscheck::Route::NeighbourSectors`] check).
+    LocalMaximum,
+    /// Not checked at this width (the full space and the neighbouring sectors are beyond
+    /// the cost allowed for checks): the charge follows the rule found at the checked
+    /// widths, the largest of which is given.
+    Predicted {
+        /// The largest width at which the sector was checked.
+        checked_to: usize,
+    },
 }
 
 /// A constraint of the template, compiled against the bit layout of its step.
@@ -251,111 +289,133 @@ pub struct Column {
     /// When every state is identified with its image under reversing every binary
     /// variable, the bits of the boundary fields (XOR with them is the reversal).
     flip: Option<u64>,
+    /// Whether reversing every variable maps allowed columns to allowed columns (every
+    /// frontier variable binary, every table closed under complements).
+    reversible: bool,
+    /// Necessary conditions on a boundary key: the constraints it has partly read.
+    filters: Vec<Filter>,
+    /// ln of the number of assignments of the boundary fields (an upper bound on the
+    /// states of the full space).
+    ln_boundary_space: f64,
 }
 
-/// Strips of several widths and their extrapolation to the infinite crystal.
+/// Which boundary states a compiled column keeps.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum Kept {
+    /// Every state.
+    Full,
+    /// Every state, paired with its reversal when the rule allows (no charge conserved).
+    Reduced,
+    /// One charge sector (with −q when T maps q to −q), paired with reversals when the
+    /// sector maps onto itself.
+    Charge(i64),
+}
+
+/// A necessary condition on a boundary key: a constraint that has read some boundary
+/// fields and still waits for variables of later columns must allow the values read.
 #[derive(Clone, Debug)]
-pub struct StripSeries {
-    /// One result per width, in the order asked.
-    pub widths: Vec<StripResult>,
-    /// The extrapolation W → ∞.
-    pub extrapolation: Extrapolation,
-    /// Central charge from the 1/W² term (critical models, periodic cylinders only); a
-    /// diagnostic that assumes the lattice is isotropic in its cell coordinates.
-    pub central_charge: Option<f64>,
-    /// The extrapolated value as an estimate for the infinite crystal.
-    pub estimate: Estimate,
+struct Filter {
+    /// (offset, mask, stride) of each boundary field read, in a mixed radix.
+    fields: Vec<(u32, u64, u64)>,
+    /// Allowed patterns of those fields, as bits.
+    allowed: Vec<u64>,
 }
 
-/// Compute every width and extrapolate.
-///
-/// `step` is the spacing of the widths (families are W mod 2·step); `scaling` says how the
-/// values approach their limit ([`Scaling::Auto`] decides from the last differences).
-pub fn series(
-    crystal: &Crystal,
-    widths: &[usize],
-    step: usize,
-    scaling: Scaling,
-    config: &StripConfig,
-) -> Result<StripSeries> {
-    series_with(crystal, widths, step, scaling, config, &|_| {})
+impl Filter {
+    #[inline]
+    fn allows(&self, key: u64) -> bool {
+        let mut index = 0u64;
+        for &(off, mask, stride) in &self.fields {
+            index += ((key >> off) & mask) * stride;
+        }
+        (self.allowed[(index >> 6) as usize] >> (index & 63)) & 1 == 1
+    }
 }
 
-/// [`series`], calling `on_width(w)` before each width `w` is computed (for progress).
-pub fn series_with(
-    crystal: &Crystal,
-    widths: &[usize],
-    step: usize,
-    scaling: Scaling,
-    config: &StripConfig,
-    on_width: &dyn Fn(usize),
-) -> Result<StripSeries> {
-    let start = Instant::now();
-    let results = widths
-        .iter()
-        .map(|&w| {
-            on_width(w);
-            strip(crystal, w, config)
-        })
-        .collect::<Result<Vec<_>>>()?;
-    let mut out = from_widths(crystal, results, step, scaling, config)?;
-    out.estimate.seconds = start.elapsed().as_secs_f64();
-    Ok(out)
-}
+/// Largest table (assignments) projected onto its boundary fields for a [`Filter`].
+const FILTER_TABLE_MAX: u64 = 1 << 16;
 
-/// Extrapolate widths already computed (in increasing order) to the infinite crystal.
-pub fn from_widths(
-    crystal: &Crystal,
-    results: Vec<StripResult>,
-    step: usize,
-    scaling: Scaling,
-    config: &StripConfig,
-) -> Result<StripSeries> {
-    let points: Vec<(usize, f64)> = results.iter().map(|r| (r.width, r.ln_w_per_unit)).collect();
-    // Open edges add a 1/W term; a cylinder, or a slab of fixed depth, has 1/W²
-    // corrections; square sections of a 3D prism approach the bulk as 1/W³ at leading order.
-    let exponent = match (config.periodic, crystal.dimensions, config.depth) {
-        (false, _, _) => 1,
-        (true, 3, None) => 3,
-        _ => 2,
-    };
-    // Each width's ln λ is converged to the iteration tolerance (relative in λ).
-    let errors: Vec<f64> = results
-        .iter()
-        .map(|r| config.tolerance / r.units_per_column)
-        .collect();
-    let extrapolation = extrapolate_in(&points, &errors, step, scaling, exponent)?;
-    let central_charge = extrapolation.a1.filter(|_| exponent == 2).map(|a1| {
-        let v = crystal.vectors;
-        let area = (v[0][0] * v[1][1] - v[0][1] * v[1][0]).abs();
-        let t = v[1 - config.along];
-        let t2 = t[0] * t[0] + t[1] * t[1];
-        let r = &results[results.len() - 1];
-        let units_per_cell = r.units_per_column / r.width as f64;
-        6.0 * units_per_cell * t2 * a1 / (std::f64::consts::PI * area)
-    });
-    let estimate = Estimate {
-        method: Method::TransferMatrix,
-        cells: None,
-        count: None,
-        ln_count: extrapolation.value,
-        formula_units: 1.0,
-        ln_w_per_unit: extrapolation.value,
-        sigma_ln_w: Some(extrapolation.uncertainty),
-        seconds: results.iter().map(|r| r.seconds).sum(),
-        peak_states: results.iter().map(|r| r.peak_states).max(),
-    };
-    Ok(StripSeries {
-        widths: results,
-        extrapolation,
-        central_charge,
-        estimate,
-    })
-}
-
-/// The largest eigenvalue of one width: build the operator and iterate.
-pub fn strip(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<StripResult> {
-    Column::new(crystal, width, config)?.largest_eigenvalue(config)
+/// The filters of a column layout: for every template constraint and every instance of it
+/// that has read some boundary fields — one that completes e ≥ 1 columns after the
+/// boundary and waits for later variables, or one that has completed but whose variables
+/// are partly still on the boundary — the projection of its table onto those fields (of
+/// age D − d − e + 1 for an entry at column offset d of a constraint of depth D). A key
+/// outside an open constraint's projection has no completion (no successor); one outside
+/// a completed constraint's projection has no past (no predecessor); neither lies on a
+/// cycle. Projections that allow every pattern are dropped, so rules whose partial reads
+/// never rule anything out (ice rules, hard-core exclusion) have none. Example: one dimer
+/// at a honeycomb vertex whose two bonds in the finished column are both boundary fields
+/// forbids both being occupied.
+fn local_filters(
+    templates: &[Template],
+    tables: &[Table],
+    states: &[u32],
+    canonical: &HashMap<(usize, usize), u32>,
+) -> Vec<Filter> {
+    let mut out: Vec<Filter> = Vec::new();
+    // (fields, allowed patterns) of the filters kept, to drop repeats.
+    type Seen = (Vec<(u32, u64, u64)>, Vec<u64>);
+    let mut seen: std::collections::HashSet<Seen> = Default::default();
+    let max_age = canonical.keys().map(|k| k.1).max().unwrap_or(0);
+    for t in templates {
+        let table = &tables[t.table];
+        if table.size > FILTER_TABLE_MAX {
+            continue;
+        }
+        // The instance that completes e columns after the boundary (e ≤ 0: before it); an
+        // entry at column offset d sits at age D − d − e + 1 when that is at least 1.
+        let depth = t.depth as i64;
+        for e in (1 - max_age as i64)..=depth {
+            let mut known = Vec::new();
+            let mut fields = Vec::new();
+            let mut size = 1u64;
+            let mut ok = true;
+            for (i, &(k, d)) in t.entries.iter().enumerate() {
+                let age = depth - d as i64 - e + 1;
+                if age < 1 {
+                    continue;
+                }
+                match canonical.get(&(k, age as usize)) {
+                    Some(&off) => {
+                        known.push(i);
+                        fields.push((off, (1u64 << field_width(states[k])) - 1, size));
+                        size *= states[k] as u64;
+                    }
+                    // Forgotten already (the instance has completed): projected out.
+                    None if e <= 0 => {}
+                    None => ok = false,
+                }
+            }
+            if !ok || known.len() < if e <= 0 { 2 } else { 1 } {
+                continue;
+            }
+            let mut allowed = vec![0u64; size.div_ceil(64) as usize];
+            for index in 0..table.size {
+                if !table.allows(index) {
+                    continue;
+                }
+                // Table index: mixed radix over the scope, first variable fastest.
+                let mut rest = index;
+                let mut projected = 0u64;
+                let mut j = 0;
+                for (i, &q) in table.radices.iter().enumerate() {
+                    let value = rest % q as u64;
+                    rest /= q as u64;
+                    if j < known.len() && known[j] == i {
+                        projected += value * fields[j].2;
+                        j += 1;
+                    }
+                }
+                allowed[(projected >> 6) as usize] |= 1 << (projected & 63);
+            }
+            let every = (0..size).all(|p| (allowed[(p >> 6) as usize] >> (p & 63)) & 1 == 1);
+            if every || !seen.insert((fields.clone(), allowed.clone())) {
+                continue;
+            }
+            out.push(Filter { fields, allowed });
+        }
+    }
+    out
 }
 
 /// The cell axes across a strip along `along`, in increasing order.
@@ -620,8 +680,10 @@ fn sweep_order(
 }
 
 impl Column {
-    /// Build the transfer operator of a strip `width` cells wide.
-    pub fn new(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<Column> {
+    /// The layout of the column of a strip `width` cells wide — steps, fields, the
+    /// conserved charge, the local filters — without any state compiled (see
+    /// [`Column::compiled`]).
+    pub(crate) fn layout(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<Column> {
         let start = Instant::now();
         let dimensions = crystal.dimensions;
         if dimensions != 2 && dimensions != 3 {
@@ -813,88 +875,66 @@ impl Column {
         }
         // The conserved charge, if the rule has one (see `sector`): the coefficient of a
         // boundary field (k, a) adds the relations of the constraints reading it that have
-        // completed, those with depth − offset < a.
+        // completed, those with depth − offset < a. It is found whatever is kept, so that
+        // the full space can say which sector its largest eigenvector lies in.
         let mut charge = Vec::new();
         let mut charge_sign = 1i64;
-        if config.sectors != Sectors::Full {
-            let relations: Vec<Option<sector::Relation>> =
-                model.tables.iter().map(sector::relation).collect();
-            // Signs ε per constraint (all +1 for ice rules, a checkerboard for dimers) make
-            // every variable's coefficients cancel; see `sector::signs`.
-            if let Some(eps) = sector::signs(&model, &relations) {
-                // One column adds Σ ε b of its constraints to the charge; unless that is 0
-                // no arrangement continues for ever (and the recurrence test will say so).
-                let added: i64 = templates
-                    .iter()
-                    .filter_map(|t| {
-                        relations[t.table]
-                            .as_ref()
-                            .map(|r| eps[t.constraint] * r.constant)
-                    })
-                    .sum();
-                // The charge of the next column's boundary is read with the next column's
-                // signs: ε of every translate is ε times one common factor s = ±1, and T
-                // maps charge q to s·q.
-                let factors: Vec<Option<i64>> = templates
-                    .iter()
-                    .filter(|t| relations[t.table].is_some())
-                    .map(|t| t.next.map(|j| eps[j] * eps[t.constraint]))
-                    .collect();
-                let common = factors
-                    .first()
-                    .copied()
-                    .flatten()
-                    .filter(|&f| factors.iter().all(|&g| g == Some(f)));
-                if let (0, Some(f)) = (added, common) {
-                    charge_sign = f;
-                    for k in 0..m {
-                        let Some((age, _)) = last_use[k] else {
-                            continue;
-                        };
-                        for a in 1..=age {
-                            let c = boundary_coefficient(&templates, &relations, &eps, k, a);
-                            if c != 0 {
-                                charge.push((canonical[&(k, a)], c));
-                            }
+        let relations: Vec<Option<sector::Relation>> =
+            model.tables.iter().map(sector::relation).collect();
+        // Signs ε per constraint (all +1 for ice rules, a checkerboard for dimers) make
+        // every variable's coefficients cancel; see `sector::signs`.
+        if let Some(eps) = sector::signs(&model, &relations) {
+            // One column adds Σ ε b of its constraints to the charge; unless that is 0
+            // no arrangement continues for ever (and the recurrence test will say so).
+            let added: i64 = templates
+                .iter()
+                .filter_map(|t| {
+                    relations[t.table]
+                        .as_ref()
+                        .map(|r| eps[t.constraint] * r.constant)
+                })
+                .sum();
+            // The charge of the next column's boundary is read with the next column's
+            // signs: ε of every translate is ε times one common factor s = ±1, and T
+            // maps charge q to s·q.
+            let factors: Vec<Option<i64>> = templates
+                .iter()
+                .filter(|t| relations[t.table].is_some())
+                .map(|t| t.next.map(|j| eps[j] * eps[t.constraint]))
+                .collect();
+            let common = factors
+                .first()
+                .copied()
+                .flatten()
+                .filter(|&f| factors.iter().all(|&g| g == Some(f)));
+            if let (0, Some(f)) = (added, common) {
+                charge_sign = f;
+                for k in 0..m {
+                    let Some((age, _)) = last_use[k] else {
+                        continue;
+                    };
+                    for a in 1..=age {
+                        let c = boundary_coefficient(&templates, &relations, &eps, k, a);
+                        if c != 0 {
+                            charge.push((canonical[&(k, a)], c));
                         }
                     }
                 }
             }
         }
-        let sector = match config.sectors {
-            _ if charge.is_empty() => None,
-            Sectors::Full => None,
-            Sectors::Charge(q) => Some(q),
-            Sectors::Largest => Some(sector::most_populous(
-                &charge.iter().map(|c| c.1).collect::<Vec<_>>(),
-            ))
-            .filter(|&q| charge_sign == 1 || q == 0),
-        };
-        if let Some(q) = sector
-            && charge_sign == -1
-            && q != 0
-        {
-            return Err(Error::Model(format!(
-                "the column operator maps charge {q} to {}: only charge 0 is a sector of its own",
-                -q
-            )));
-        }
         // Reversing every variable (arrows, spins) maps allowed columns to allowed columns
-        // when every variable is binary and every table is closed under complements; the
-        // sector must map to itself (charge q ↦ Σc − q).
+        // when every variable is binary and every table is closed under complements.
         let boundary_bits = (1u64 << next_bit) - 1;
         let binary = (0..m).all(|k| last_use[k].is_none() || states[k] == 2);
         let closed = steps.iter().flat_map(|s| &s.checks).all(|c| {
             let t = &model.tables[c.table];
             (0..t.size).all(|i| t.allows(i) == t.allows(t.size - 1 - i))
         });
-        let total_charge: i64 = charge.iter().map(|c| c.1).sum();
-        let flip = (config.sectors != Sectors::Full
-            && binary
-            && closed
-            && next_bit > 0
-            && sector.is_none_or(|q| 2 * q == total_charge))
-        .then_some(boundary_bits);
+        let reversible = binary && closed && next_bit > 0;
+        let ln_boundary_space: f64 = (0..m)
+            .filter_map(|k| last_use[k].map(|(age, _)| age as f64 * (states[k] as f64).ln()))
+            .sum();
+        let filters = local_filters(&templates, &model.tables, &states, &canonical);
         let depth = templates.iter().map(|t| t.depth).max().unwrap_or(0);
         let mut column = Column {
             width,
@@ -910,14 +950,153 @@ impl Column {
             sizes: Vec::new(),
             build_seconds: 0.0,
             charge,
-            sector,
+            sector: None,
             charge_sign,
-            flip,
+            flip: None,
             boundary_bits,
+            reversible,
+            filters,
+            ln_boundary_space,
         };
-        column.compile(config)?;
         column.build_seconds = start.elapsed().as_secs_f64();
         Ok(column)
+    }
+
+    /// Build the transfer operator of a strip `width` cells wide, keeping the states that
+    /// `config.sectors` asks for: every state ([`Sectors::Full`]), one charge
+    /// ([`Sectors::Charge`]), or for [`Sectors::Largest`] the first guess of
+    /// [`Column::guess`] — a guess only: [`strip`] and [`series`] find the sector that
+    /// holds the largest eigenvalue and check it.
+    pub fn new(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<Column> {
+        let layout = Column::layout(crystal, width, config)?;
+        let kept = match config.sectors {
+            Sectors::Full => Kept::Full,
+            Sectors::Charge(q) => Kept::Charge(q),
+            Sectors::Largest => layout.guess(),
+        };
+        layout.compiled(kept, config)
+    }
+
+    /// The first guess at the sector of the largest eigenvalue, with no history: the
+    /// reversal-symmetric charge when reversing every variable maps the charge q to Σc − q
+    /// (zero flux for square ice), else the charge held by the most assignments of the
+    /// boundary fields; every state when no charge is conserved.
+    pub(crate) fn guess(&self) -> Kept {
+        if self.charge.is_empty() {
+            return Kept::Reduced;
+        }
+        let coefficients: Vec<i64> = self.charge.iter().map(|c| c.1).collect();
+        if self.charge_sign == -1 {
+            return Kept::Charge(0);
+        }
+        if self.reversible {
+            return Kept::Charge(self.total_charge().div_euclid(2));
+        }
+        Kept::Charge(sector::most_populous(&coefficients))
+    }
+
+    /// A copy of this layout (an uncompiled column) with the states `kept` compiled.
+    pub(crate) fn compiled(&self, kept: Kept, config: &StripConfig) -> Result<Column> {
+        let mut column = self.uncompiled(kept)?;
+        column.compile(config)?;
+        Ok(column)
+    }
+
+    /// The smallest and largest charge a boundary key can have (for an operator that maps
+    /// q to −q, the range of |q|).
+    fn charge_range(&self) -> (i64, i64) {
+        let low: i64 = self.charge.iter().map(|c| c.1.min(0)).sum();
+        let high: i64 = self.charge.iter().map(|c| c.1.max(0)).sum();
+        if self.charge_sign == -1 {
+            (0, high.max(-low))
+        } else {
+            (low, high)
+        }
+    }
+
+    /// A copy of this layout set up to keep the states `kept`, not yet compiled.
+    fn uncompiled(&self, kept: Kept) -> Result<Column> {
+        let mut column = Column {
+            width: self.width,
+            steps: self.steps.clone(),
+            tables: self.tables.clone(),
+            relabel: self.relabel.clone(),
+            depth: self.depth,
+            ln_free: self.ln_free,
+            free_states: self.free_states,
+            units_per_column: self.units_per_column,
+            keys: Vec::new(),
+            rows: Vec::new(),
+            sizes: Vec::new(),
+            build_seconds: self.build_seconds,
+            charge: self.charge.clone(),
+            sector: None,
+            charge_sign: self.charge_sign,
+            flip: None,
+            boundary_bits: self.boundary_bits,
+            reversible: self.reversible,
+            filters: self.filters.clone(),
+            ln_boundary_space: self.ln_boundary_space,
+        };
+        let total = self.total_charge();
+        match kept {
+            Kept::Full => {}
+            Kept::Reduced => {
+                if column.charge.is_empty() && column.reversible {
+                    column.flip = Some(column.boundary_bits);
+                }
+            }
+            Kept::Charge(q) => {
+                if column.charge.is_empty() {
+                    return Err(Error::Model(
+                        "the rule conserves no charge across the column, so there is no sector to keep".into(),
+                    ));
+                }
+                let q = if column.charge_sign == -1 { q.abs() } else { q };
+                column.sector = Some(q);
+                // Reversal maps charge q to Σc − q: pairs need the kept charges to map
+                // onto themselves.
+                let kept = column.kept_charges();
+                let symmetric = kept.iter().all(|&c| kept.contains(&(total - c)));
+                if column.reversible && symmetric {
+                    column.flip = Some(column.boundary_bits);
+                }
+            }
+        }
+        Ok(column)
+    }
+
+    /// Σ of the charge coefficients (the charge of the state with every field 1).
+    fn total_charge(&self) -> i64 {
+        self.charge.iter().map(|c| c.1).sum()
+    }
+
+    /// The charge values kept: q, and −q too when T maps q to −q.
+    fn kept_charges(&self) -> Vec<i64> {
+        match self.sector {
+            None => Vec::new(),
+            Some(q) if self.charge_sign == -1 && q != 0 => vec![q, -q],
+            Some(q) => vec![q],
+        }
+    }
+
+    /// Whether a boundary key may be kept: of a kept charge (when a sector is kept).
+    fn in_sector(&self, key: u64) -> bool {
+        match self.sector {
+            None => true,
+            Some(q) => {
+                let c = self.charge_of(key);
+                c == q || (self.charge_sign == -1 && c == -q)
+            }
+        }
+    }
+
+    /// Whether a boundary key can lie on a cycle: every constraint that has read some of its
+    /// fields allows their values (see [`local_filters`]); a key that fails has no
+    /// successor or no predecessor.
+    #[inline]
+    fn feasible(&self, key: u64) -> bool {
+        self.filters.iter().all(|f| f.allows(key))
     }
 
     /// Whether a check passes on a key.
@@ -972,6 +1151,9 @@ impl Column {
             self.within_budget(cur.len(), config)?;
         }
         let mut out: Vec<u64> = cur.iter().map(|&k| self.relabelled(k)).collect();
+        if column.is_none() {
+            out.retain(|&k| self.feasible(k));
+        }
         out.sort_unstable();
         out.dedup();
         Ok(out)
@@ -985,6 +1167,17 @@ impl Column {
                     "a column step holds {states} states (budget {})",
                     config.max_states
                 ),
+            });
+        }
+        self.should_stop(config)
+    }
+
+    /// [`Error::Interrupted`] once the interrupt is raised, [`Error::Deadline`] after the
+    /// deadline.
+    fn should_stop(&self, config: &StripConfig) -> Result<()> {
+        if config.interrupt.raised() {
+            return Err(Error::Interrupted {
+                what: format!("computing a strip {} cells wide", self.width),
             });
         }
         if config.deadline.is_some_and(|d| Instant::now() > d) {
@@ -1003,9 +1196,10 @@ impl Column {
             .sum()
     }
 
-    /// Every boundary key of charge q, sorted, when every boundary field is a charge field
-    /// (the set is then closed under T because T keeps the charge).
-    fn sector_keys(&self, q: i64, config: &StripConfig) -> Result<Vec<u64>> {
+    /// Every boundary key of charge q that the filters allow, sorted, when every boundary
+    /// field is a charge field (the set is then closed under T because T keeps the charge,
+    /// up to states that no completion allows).
+    fn sector_keys(&self, q: i64, config: &StripConfig, max_boundary: usize) -> Result<Vec<u64>> {
         let fields = &self.charge;
         // Smallest and largest charge the fields from i on can still add.
         let mut low = vec![0i64; fields.len() + 1];
@@ -1014,21 +1208,41 @@ impl Column {
             low[i] = low[i + 1] + fields[i].1.min(0);
             high[i] = high[i + 1] + fields[i].1.max(0);
         }
+        // The filters checked once their last field (in this order) is set.
+        let position: HashMap<u32, usize> =
+            fields.iter().enumerate().map(|(i, f)| (f.0, i)).collect();
+        let mut due: Vec<Vec<&Filter>> = vec![Vec::new(); fields.len()];
+        for f in &self.filters {
+            if let Some(last) = f.fields.iter().map(|x| position.get(&x.0)).max().flatten() {
+                due[*last].push(f);
+            }
+        }
         let mut keys = Vec::new();
         let mut stack = vec![(0usize, 0u64, 0i64)];
         while let Some((i, key, charge)) = stack.pop() {
             if i == fields.len() {
                 keys.push(key);
-                self.within_budget(keys.len(), config)?;
+                if keys.len() % 4096 == 0 || keys.len() > max_boundary {
+                    self.within_budget(keys.len(), config)?;
+                    if keys.len() > max_boundary {
+                        return Err(Error::Budget {
+                            cells: format!("a strip {} cells wide", self.width),
+                            detail: format!("more than {max_boundary} boundary states"),
+                        });
+                    }
+                }
                 continue;
             }
             let (off, c) = fields[i];
             for (k, ch) in [(key, charge), (key | (1 << off), charge + c)] {
-                if (low[i + 1]..=high[i + 1]).contains(&(q - ch)) {
+                if (low[i + 1]..=high[i + 1]).contains(&(q - ch))
+                    && due[i].iter().all(|f| f.allows(k))
+                {
                     stack.push((i + 1, k, ch));
                 }
             }
         }
+        self.within_budget(keys.len(), config)?;
         keys.sort_unstable();
         Ok(keys)
     }
@@ -1036,50 +1250,79 @@ impl Column {
     /// Find the states reachable from an open left end (in the chosen sector), closed
     /// under the column, and compile the index lists of every step.
     fn compile(&mut self, config: &StripConfig) -> Result<()> {
-        let mut keys = vec![0u64];
-        let every_field_charged = self.charge.len() as u32 == self.boundary_bits.count_ones();
-        if let Some(q) = self.sector
-            && every_field_charged
-        {
-            // No pass from the open end: the sector is every key of charge q (states
-            // without a past among them are pruned as transient before iterating).
-            keys = self.sector_keys(q, config)?;
+        if !self.compile_states(config, usize::MAX)? {
+            return Err(Error::Model(format!(
+                "no state of a strip {} cells wide has charge {}",
+                self.width,
+                self.sector.unwrap_or(0)
+            )));
+        }
+        Ok(())
+    }
+
+    /// [`Column::compile`]; `false` when the kept sector has no state that can be completed.
+    /// More than `max_boundary` boundary states is [`Error::Budget`] too, and so is a step
+    /// with more than [`PEAK_PER_BOUNDARY`] times that many states (the pass from the open
+    /// end would otherwise build a large space before its size could be refused).
+    fn compile_states(&mut self, config: &StripConfig, max_boundary: usize) -> Result<bool> {
+        let start = Instant::now();
+        let capped;
+        let config = if max_boundary < usize::MAX {
+            let mut c = config.clone();
+            c.max_states = c
+                .max_states
+                .min(max_boundary.saturating_mul(PEAK_PER_BOUNDARY));
+            capped = c;
+            &capped
         } else {
+            config
+        };
+        let done = self.compile_keys(config, max_boundary)?;
+        self.build_seconds += start.elapsed().as_secs_f64();
+        Ok(done)
+    }
+
+    /// The body of [`Column::compile_states`].
+    fn compile_keys(&mut self, config: &StripConfig, max_boundary: usize) -> Result<bool> {
+        let boundary = |n: usize| -> Result<()> {
+            if n > max_boundary {
+                return Err(Error::Budget {
+                    cells: format!("a strip {} cells wide", self.width),
+                    detail: format!("{n} boundary states (at most {max_boundary} here)"),
+                });
+            }
+            Ok(())
+        };
+        let every_field_charged = self.charge.len() as u32 == self.boundary_bits.count_ones();
+        let enumerated = self.sector.is_some() && every_field_charged;
+        let mut keys = if enumerated {
+            // No pass from the open end: the sector is every key of a kept charge that the
+            // filters allow (states without a past among them are pruned as transient
+            // before iterating).
+            let mut keys = Vec::new();
+            for q in self.kept_charges() {
+                keys.extend(self.sector_keys(q, config, max_boundary)?);
+                boundary(keys.len())?;
+            }
+            keys.sort_unstable();
+            keys.dedup();
+            keys
+        } else {
+            let mut keys = vec![0u64];
             for t in 0..self.depth {
                 keys = self.column_keys(&keys, Some(t), config)?;
             }
-        }
-        if let Some(q) = self.sector
-            && !every_field_charged
-        {
-            let kept: Vec<u64> = keys
-                .iter()
-                .copied()
-                .filter(|&k| self.charge_of(k) == q)
-                .collect();
-            if !kept.is_empty() {
-                keys = kept;
-            } else if config.sectors == Sectors::Largest {
-                // Nothing of that charge follows an open end: keep every sector.
-                self.sector = None;
-            } else {
-                return Err(Error::Model(format!(
-                    "no state of a strip {} cells wide has charge {q}",
-                    self.width
-                )));
-            }
-        }
+            keys.retain(|&k| self.feasible(k) && self.in_sector(k));
+            boundary(keys.len())?;
+            keys
+        };
         for _ in 0..1000 {
-            if self.sector.is_some() && every_field_charged {
+            if enumerated || keys.is_empty() {
                 // Closed by construction; the last step's look-up checks every image.
                 break;
             }
             let image = self.column_keys(&keys, None, config)?;
-            if let Some(q) = self.sector
-                && image
-                    .iter()
-                    .any(|&k| self.charge_of(k) != self.charge_sign * q)
-            {
+            if image.iter().any(|&k| !self.in_sector(k)) {
                 return Err(Error::Model(
                     "internal: the charge found from the rule tables is not conserved".into(),
                 ));
@@ -1090,11 +1333,11 @@ impl Column {
             if union.len() == keys.len() {
                 break;
             }
+            boundary(union.len())?;
             keys = union;
         }
-        if self.sector.is_none() && config.sectors == Sectors::Largest && !self.charge.is_empty() {
-            // The fallback to every sector: reversal maps sectors onto each other only.
-            self.flip = None;
+        if keys.is_empty() && self.sector.is_some() {
+            return Ok(false);
         }
         if let Some(m) = self.flip {
             // One representative (the smaller key) of every pair {k, k XOR m}.
@@ -1120,10 +1363,16 @@ impl Column {
                         if step.checks.iter().all(|c| self.allows(c, k)) {
                             let out = self.relabelled(k & step.keep);
                             let out = self.flip.map_or(out, |m| out.min(out ^ m));
-                            let j = keys.binary_search(&out).map_err(|_| {
-                                Error::Model("internal: the strip's state set is not closed".into())
-                            })?;
-                            targets.push((j as u32, i as u32));
+                            match keys.binary_search(&out) {
+                                Ok(j) => targets.push((j as u32, i as u32)),
+                                // A state no completion allows has no successor: dropped.
+                                Err(_) if !self.feasible(out) => {}
+                                Err(_) => {
+                                    return Err(Error::Model(
+                                        "internal: the strip's state set is not closed".into(),
+                                    ));
+                                }
+                            }
                         }
                     }
                 }
@@ -1214,7 +1463,7 @@ impl Column {
         self.keys = keys;
         self.rows = all_rows;
         self.sizes = sizes;
-        Ok(())
+        Ok(true)
     }
 
     /// Frontier states at a column boundary (the dimension of T).
@@ -1309,16 +1558,25 @@ impl Column {
 
     /// Power iteration for the largest eigenvalue, certified by the Collatz–Wielandt bracket.
     pub fn largest_eigenvalue(&self, config: &StripConfig) -> Result<StripResult> {
+        match self.iterate(config)? {
+            Some((r, _)) => Ok(r),
+            None => Err(Error::Model(format!(
+                "a strip {} cells wide has no arrangement of unbounded length",
+                self.width
+            ))),
+        }
+    }
+
+    /// [`Column::largest_eigenvalue`] with the last iterate (the eigenvector, L1-normalised,
+    /// over the boundary states); `None` when no state has an arbitrarily long past.
+    fn iterate(&self, config: &StripConfig) -> Result<Option<(StripResult, Vec<f64>)>> {
         let start = Instant::now();
         let n = self.keys.len();
         let (mut y, mut scratch) = (Vec::new(), Vec::new());
-        let recurrent = self.recurrent(&mut y, &mut scratch);
+        let recurrent = self.recurrent(&mut y, &mut scratch, config)?;
         let size = recurrent.iter().filter(|&&r| r).count();
         if size == 0 {
-            return Err(Error::Model(format!(
-                "a strip {} cells wide has no arrangement of unbounded length",
-                self.width
-            )));
+            return Ok(None);
         }
         let mut x: Vec<f64> = recurrent
             .iter()
@@ -1329,7 +1587,9 @@ impl Column {
         let mut applied = 0;
         if size >= KRYLOV_MIN && restarts > 0 {
             let mut op = |a: &[f64], b: &mut Vec<f64>| self.apply(a, b, &mut scratch);
-            let (v, used) = krylov::restarted(&mut op, &x, BASIS, restarts, 1e-13);
+            let stop = || self.should_stop(config).is_err();
+            let (v, used) = krylov::restarted(&mut op, &x, BASIS, restarts, 1e-13, &stop);
+            self.should_stop(config)?;
             x = v;
             applied = used;
         }
@@ -1354,11 +1614,12 @@ impl Column {
                 // decaying components of subdominant sectors), within the certified one.
                 let mid = (0.5 * (low + high)).clamp(lower, upper);
                 let ln_lambda = mid.ln() + self.ln_free;
-                return Ok(StripResult {
+                let result = StripResult {
                     width: self.width,
                     states: n,
                     recurrent_states: size,
                     peak_states: self.peak_states(),
+                    transitions: self.transitions(),
                     iterations: iteration,
                     ln_lambda,
                     ln_bracket: (lower.ln() + self.ln_free, upper.ln() + self.ln_free),
@@ -1368,12 +1629,18 @@ impl Column {
                     seconds: self.build_seconds + start.elapsed().as_secs_f64(),
                     sector: self.sector,
                     reversal: self.flip.is_some(),
-                });
+                    basis: if self.sector.is_some() {
+                        SectorBasis::Given
+                    } else {
+                        SectorBasis::Whole
+                    },
+                    ln_boundary_space: self.ln_boundary_space,
+                    depth: self.depth,
+                };
+                return Ok(Some((result, x)));
             }
-            if iteration % 16 == 0 && config.deadline.is_some_and(|d| Instant::now() > d) {
-                return Err(Error::Deadline {
-                    cells: format!("a strip {} cells wide", self.width),
-                });
+            if iteration % 16 == 0 {
+                self.should_stop(config)?;
             }
             // x ← (T + σλ̃) x, normalised: removes eigenvalues of modulus λ other than λ.
             let shift = SHIFT * estimate;
@@ -1390,12 +1657,32 @@ impl Column {
         })
     }
 
+    /// The weight of an eigenvector (over the boundary states) per charge, largest first;
+    /// for an operator that maps q to −q, per |q|.
+    fn weight_by_charge(&self, x: &[f64]) -> Vec<(i64, f64)> {
+        let mut by: HashMap<i64, f64> = HashMap::new();
+        for (&k, &v) in self.keys.iter().zip(x) {
+            let c = self.charge_of(k);
+            let c = if self.charge_sign == -1 { c.abs() } else { c };
+            *by.entry(c).or_default() += v;
+        }
+        let mut out: Vec<(i64, f64)> = by.into_iter().collect();
+        out.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+        out
+    }
+
     /// The states with an arbitrarily long past (every one has a predecessor in the set):
     /// T maps this set into itself, and every other state is transient, so λ is the
     /// spectral radius of T on it. Empty when no arrangement continues for ever.
-    fn recurrent(&self, y: &mut Vec<f64>, scratch: &mut Vec<f64>) -> Vec<bool> {
+    fn recurrent(
+        &self,
+        y: &mut Vec<f64>,
+        scratch: &mut Vec<f64>,
+        config: &StripConfig,
+    ) -> Result<Vec<bool>> {
         let mut alive = vec![true; self.keys.len()];
         loop {
+            self.should_stop(config)?;
             let f: Vec<f64> = alive.iter().map(|&a| f64::from(u8::from(a))).collect();
             self.apply(&f, y, scratch);
             let mut changed = false;
@@ -1406,7 +1693,7 @@ impl Column {
                 }
             }
             if !changed {
-                return alive;
+                return Ok(alive);
             }
         }
     }
@@ -1441,6 +1728,17 @@ impl Column {
         (lower, upper, certified)
     }
 }
+
+/// Bytes a column of these dimensions holds while it is built and iterated: four per
+/// index-list entry, and about BASIS + 6 vectors of f64 (Arnoldi basis, iterates,
+/// scratch) plus the compile-time key buffers (16 bytes) per state at the largest step.
+pub fn memory_estimate(peak_states: f64, transitions: f64) -> f64 {
+    4.0 * transitions + (8.0 * (BASIS + 6) as f64 + 16.0) * peak_states
+}
+
+/// States at any step allowed per boundary state when the boundary states are capped (a
+/// column step holds up to about four times the boundary states on the shipped lattices).
+const PEAK_PER_BOUNDARY: usize = 16;
 
 /// States holding less than this fraction of the largest component leave the convergence
 /// test (subdominant sectors decay below it).
@@ -1495,6 +1793,9 @@ mod tests {
             "hard-squares.yaml",
             "square-dimers.yaml",
             "triangular-afm.yaml",
+            "honeycomb-dimers.yaml",
+            "kagome-ice.yaml",
+            "triangular-4-colourings.yaml",
         ] {
             let l = lattice(name);
             for along in 0..2 {
