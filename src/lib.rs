@@ -45,9 +45,8 @@ pub mod estimate;
 pub mod model;
 pub mod report;
 pub mod spec;
-pub mod survey;
+pub mod text;
 pub mod thermo;
-pub mod writeup;
 
 use std::path::Path;
 

@@ -4,9 +4,11 @@ use groundcount::Lattice;
 use groundcount::counters::sampling::size;
 use groundcount::crosscheck::{CrossCheck, Route};
 use groundcount::estimate::Method;
-use groundcount::report;
-use groundcount::survey::{CitedReason, Refusal, SizeExtrapolation, Survey, SurveyConfig, survey};
-use groundcount::writeup::{Meta, Sentence, Writeup};
+use groundcount::estimate::{
+    CitedReason, Refusal, SizeExtrapolation, Survey, SurveyConfig, survey,
+};
+use groundcount::report::{Meta, Report, Sentence};
+use groundcount::text;
 
 use crate::util::{fixture, lattice, run};
 
@@ -364,8 +366,8 @@ fn issue11_a_failed_cross_check_is_never_cited() {
     let v = c.value.as_ref().unwrap();
     assert_eq!(v.reason, CitedReason::TransferMatrix);
     assert_eq!(v.checks.len(), 1);
-    assert!(report::cited_line(&s, unit).contains("its cross-check agrees"));
-    let w = Writeup::new(&l, &s, meta(), None);
+    assert!(text::cited_line(&s, unit).contains("its cross-check agrees"));
+    let w = Report::new(&l, &s, meta(), None);
     assert!(matches!(w.sentence(), Sentence::Cite(_)));
 
     // A failing check: the sector's value against a full space that holds a larger λ.
@@ -381,7 +383,7 @@ fn issue11_a_failed_cross_check_is_never_cited() {
     assert_eq!(v.estimate.cells.as_deref(), Some("4x4 periodic"));
     assert_ne!(v.estimate.ln_w_per_unit, tm);
     assert!(matches!(&c.passed_over[0].why, Refusal::CheckFailed(k) if k.len() == 1));
-    let line = report::cited_line(&s, unit);
+    let line = text::cited_line(&s, unit);
     assert!(
         line.contains("exact count, 4x4 periodic") && line.contains("WARNING"),
         "{line}"
@@ -390,14 +392,14 @@ fn issue11_a_failed_cross_check_is_never_cited() {
         line.contains("transfer matrix (infinite crystal) not cited"),
         "{line}"
     );
-    let table = report::checks_table(&s.checks, unit).render();
+    let table = text::checks_table(&s.checks, unit).render();
     assert!(
         table.contains("DISAGREES") && table.contains("agrees"),
         "{table}"
     );
-    let loud = report::check_failure(s.failed_checks()[0], unit);
+    let loud = text::check_failure(s.failed_checks()[0], unit);
     assert!(loud.starts_with("CROSS-CHECK FAILED") && loud.contains("full state space, width 8"));
-    let rows = report::survey_table(&s, unit, report::Columns::default()).render_csv();
+    let rows = text::survey_table(&s, unit, text::Columns::default()).render_csv();
     assert!(
         rows.lines()
             .any(|r| r.starts_with("transfer matrix,") && r.ends_with(",no,disagrees,yes")),
@@ -409,7 +411,7 @@ fn issue11_a_failed_cross_check_is_never_cited() {
         "{rows}"
     );
 
-    let w = Writeup::new(&l, &s, meta(), None);
+    let w = Report::new(&l, &s, meta(), None);
     match w.sentence() {
         Sentence::Refused(why) => assert!(why.contains("cross-check"), "{why}"),
         Sentence::Cite(t) => panic!("a failed check must not be pasted: {t}"),
@@ -461,7 +463,7 @@ fn issue11_a_zero_degree_of_freedom_fit_is_not_cited() {
     let c = s.cited();
     assert!(matches!(c.passed_over[0].why, Refusal::NoDegreesOfFreedom));
     assert_eq!(c.value.unwrap().reason, CitedReason::ExactCell);
-    assert!(report::cited_line(&s, "H2O").contains("zero degrees of freedom"));
+    assert!(text::cited_line(&s, "H2O").contains("zero degrees of freedom"));
 }
 
 /// Hard hexagons: Pauling's product 2 · (3/4)³ = 27/32 per site is below 1 and flagged as
@@ -531,9 +533,9 @@ fn issue11_nothing_meaningful_is_nothing_cited() {
     let c = s.cited();
     assert!(c.value.is_none());
     assert!(matches!(c.passed_over[0].why, Refusal::NotMeaningful(_)));
-    assert!(report::cited_line(&s, "site").starts_with("cite: NOTHING"));
-    assert!(report::cited_json(&l.crystal, &s).is_null());
-    let w = Writeup::new(&l, &s, meta(), None);
+    assert!(text::cited_line(&s, "site").starts_with("cite: NOTHING"));
+    assert!(text::cited_json(&l.crystal, &s).is_null());
+    let w = Report::new(&l, &s, meta(), None);
     assert!(matches!(w.sentence(), Sentence::Refused(_)));
 }
 

@@ -740,7 +740,7 @@ fn interrupt_stops_starting_replicas_and_keeps_the_finished_ones() {
 #[test]
 fn issue11_survey_samples_by_formula_units_and_cross_checks() {
     use groundcount::crosscheck::Route;
-    use groundcount::survey::{SurveyConfig, survey};
+    use groundcount::estimate::{SurveyConfig, survey};
     let l = Lattice::from_file(&crate::util::fixture("counts-ice-vii.yaml")).unwrap();
     let config = SurveyConfig {
         budget: 8.0,

@@ -1008,7 +1008,7 @@ fn issue11_an_interrupt_keeps_the_finished_widths() {
 #[test]
 fn issue11_the_survey_records_its_strip_cross_checks() {
     use groundcount::crosscheck::Route;
-    use groundcount::survey::{SurveyConfig, survey};
+    use groundcount::estimate::{SurveyConfig, survey};
     let l = load("kagome-ice.yaml");
     let config = SurveyConfig {
         budget: 120.0,

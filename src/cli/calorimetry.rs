@@ -5,7 +5,7 @@ use std::fmt::Write;
 use std::path::PathBuf;
 
 use groundcount::calorimetry::{self, CalorimetryConfig, HeatCapacityData, ThirdLaw, Transition};
-use groundcount::report::{self, Table, sig};
+use groundcount::text::{self, Table, sig};
 use serde_json::json;
 
 use super::Format;
@@ -183,7 +183,7 @@ impl Quantity {
 fn quantities(r: &ThirdLaw, sigma_given: bool) -> Vec<Quantity> {
     let f = &r.low_t;
     let u = &r.uncertainty;
-    let t = |x: f64| report::trimmed(x, 6);
+    let t = |x: f64| text::trimmed(x, 6);
     let mut out = vec![
         Quantity::new(
             format!(
@@ -312,8 +312,8 @@ fn summary_table(r: &ThirdLaw, sigma_given: bool) -> Table {
         ]);
         t.csv_row(vec![
             q.label,
-            q.value.map_or_else(|_| String::new(), report::number),
-            report::optional(q.sigma),
+            q.value.map_or_else(|_| String::new(), text::number),
+            text::optional(q.sigma),
             q.unit.into(),
         ]);
     }
@@ -331,7 +331,7 @@ fn notes(r: &ThirdLaw, sigma_given: bool) -> Vec<String> {
     let temps: Vec<String> = f
         .temperatures_k
         .iter()
-        .map(|t| report::trimmed(*t, 6))
+        .map(|t| text::trimmed(*t, 6))
         .collect();
     n.push(format!(
         "the T³ fit uses the lowest {} points ({} K), {}; θ_D = (12π⁴R/(5a))^(1/3) counts one \
@@ -435,12 +435,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "Third-law entropy from {} ({} points, {}..{} K)\n",
                 r.path.display(),
                 r.points.len(),
-                report::trimmed(r.points[0].t_k, 6),
-                report::trimmed(r.points[r.points.len() - 1].t_k, 6)
+                text::trimmed(r.points[0].t_k, 6),
+                text::trimmed(r.points[r.points.len() - 1].t_k, 6)
             )?;
             let mut p = Table::new(&["T (K)", "Cp (J/(mol K))", "S_cal (J/(mol K))"]);
             for (x, s) in r.points.iter().zip(&r.at_points) {
-                p.row(vec![report::trimmed(x.t_k, 6), sig(x.cp, 6), sig(*s, 6)]);
+                p.row(vec![text::trimmed(x.t_k, 6), sig(x.cp, 6), sig(*s, 6)]);
             }
             if fmt == Format::Markdown {
                 out += &t.render_markdown();

@@ -7,8 +7,8 @@ use std::path::PathBuf;
 
 use groundcount::counters::{exact, pauling};
 use groundcount::estimate::Method;
-use groundcount::report::{self, Columns};
-use groundcount::survey::{Survey, SurveyConfig, survey};
+use groundcount::estimate::{Survey, SurveyConfig, survey};
+use groundcount::text::{self, Columns};
 use serde_json::json;
 
 use super::{Common, Format, load, shown, with_threads};
@@ -61,14 +61,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
 fn render(
     args: &Args,
     lattice: &groundcount::Lattice,
-    s: &groundcount::survey::Survey,
+    s: &groundcount::estimate::Survey,
 ) -> anyhow::Result<String> {
     let c = &lattice.crystal;
     let unit = c.formula_unit.name.clone();
     let p = &s.pauling;
     let transfer = s.strips.as_ref().map(|t| &t.estimate);
     let monte_carlo = s.sampled.as_ref().map(|m| &m.sampled.estimate);
-    let table = report::survey_table(s, &unit, Columns::default());
+    let table = text::survey_table(s, &unit, Columns::default());
     match args.common.format {
         Format::Json => {
             let v = json!({
@@ -76,14 +76,14 @@ fn render(
                 "file": shown(&args.file),
                 "content_hash": lattice.content_hash,
                 "formula_unit": unit,
-                "pauling": report::estimate_json(c, p, None),
-                "bethe": s.bethe.as_ref().map(|e| report::estimate_json(c, e, Some(p))),
-                "exact": s.exact.iter().map(|e| report::estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
-                "transfer_matrix": transfer.map(|e| report::estimate_json(c, e, Some(p))),
-                "monte_carlo": monte_carlo.map(|e| report::estimate_json(c, e, Some(p))),
-                "monte_carlo_cells": s.sampled_sizes.iter().map(|m| report::estimate_json(c, &m.sampled.estimate, Some(p))).collect::<Vec<_>>(),
+                "pauling": text::estimate_json(c, p, None),
+                "bethe": s.bethe.as_ref().map(|e| text::estimate_json(c, e, Some(p))),
+                "exact": s.exact.iter().map(|e| text::estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
+                "transfer_matrix": transfer.map(|e| text::estimate_json(c, e, Some(p))),
+                "monte_carlo": monte_carlo.map(|e| text::estimate_json(c, e, Some(p))),
+                "monte_carlo_cells": s.sampled_sizes.iter().map(|m| text::estimate_json(c, &m.sampled.estimate, Some(p))).collect::<Vec<_>>(),
                 "monte_carlo_infinite": s.extrapolated.as_ref().map(|x| {
-                    let mut v = report::estimate_json(c, &x.estimate, Some(p));
+                    let mut v = text::estimate_json(c, &x.estimate, Some(p));
                     v["fit"] = json!({
                         "form": x.fit.form(),
                         "chi2": x.fit.chi2,
@@ -91,9 +91,9 @@ fn render(
                     });
                     v
                 }),
-                "checks": report::checks_json(&s.checks),
-                "cited": report::cited_json(c, s),
-                "passed_over": report::passed_over_json(&s.cited(), &unit),
+                "checks": text::checks_json(&s.checks),
+                "cited": text::cited_json(c, s),
+                "passed_over": text::passed_over_json(&s.cited(), &unit),
                 "stopped": s.stopped,
                 "notes": s.notes,
             });
@@ -107,7 +107,7 @@ fn render(
                 writeln!(out, "cross-checks: none computed in this run\n")?;
             } else {
                 writeln!(out, "cross-checks (a second route computed in this run):\n")?;
-                out += &report::checks_table(&s.checks, &unit).render_markdown();
+                out += &text::checks_table(&s.checks, &unit).render_markdown();
                 writeln!(out)?;
             }
             for line in below_table(s, &unit) {
@@ -135,7 +135,7 @@ fn render(
                 writeln!(out, "cross-checks: none computed in this run")?;
             } else {
                 writeln!(out, "cross-checks (a second route computed in this run):")?;
-                out += &report::checks_table(&s.checks, &unit).render();
+                out += &text::checks_table(&s.checks, &unit).render();
             }
             writeln!(out)?;
             for line in below_table(s, &unit) {
@@ -152,13 +152,13 @@ fn below_table(s: &Survey, unit: &str) -> Vec<String> {
     let mut lines: Vec<String> = s
         .failed_checks()
         .into_iter()
-        .map(|c| report::check_failure(c, unit))
+        .map(|c| text::check_failure(c, unit))
         .collect();
     for e in [Some(&s.pauling), s.bethe.as_ref()].into_iter().flatten() {
         if let Some(caveat) = pauling::caveat(e) {
             lines.push(format!(
                 "* {}: {}{}",
-                report::method_label(e),
+                text::method_label(e),
                 caveat.explain(unit),
                 if e.method == Method::Pauling && s.bethe.is_some() {
                     "; the Bethe row carries the mean-field estimate"
@@ -179,6 +179,6 @@ fn below_table(s: &Survey, unit: &str) -> Vec<String> {
         lines.push(format!("exact counts stopped: {}", s.stopped));
     }
     lines.extend(s.notes.iter().cloned());
-    lines.push(report::cited_line(s, unit));
+    lines.push(text::cited_line(s, unit));
     lines
 }

@@ -7,7 +7,7 @@ use groundcount::cluster::{Cells, Cluster};
 use groundcount::counters::transfer::torus;
 use groundcount::counters::{exact, pauling};
 use groundcount::model::Model;
-use groundcount::report::{self, sig};
+use groundcount::text::{self, sig};
 
 use super::{Common, Format, cell_header, load, pauling_line, with_threads};
 
@@ -100,15 +100,15 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let unit = &c.formula_unit.name;
     match args.common.format {
         Format::Json => {
-            let mut v = report::estimate_json(c, &e, Some(&p));
+            let mut v = text::estimate_json(c, &e, Some(&p));
             v["variables"] = model.variables.len().into();
             v["constraints"] = model.constraints.len().into();
             v["content_hash"] = lattice.content_hash.clone().into();
             v["route"] = if trace.is_some() { "trace" } else { "frontier" }.into();
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
-        Format::Csv => Ok(report::comparison_table(&[p, e], unit).render_csv()),
-        Format::Markdown => Ok(report::comparison_table(&[p, e], unit).render_markdown()),
+        Format::Csv => Ok(text::comparison_table(&[p, e], unit).render_csv()),
+        Format::Markdown => Ok(text::comparison_table(&[p, e], unit).render_markdown()),
         Format::Table => {
             let mut out = String::new();
             out += &cell_header(c, &args.file, &e, &model);

@@ -6,7 +6,7 @@ use std::path::PathBuf;
 use groundcount::cluster::{Cells, Cluster};
 use groundcount::counters::pauling;
 use groundcount::crystal::Target;
-use groundcount::report::{self, sig};
+use groundcount::text::{self, sig};
 use serde_json::json;
 
 use super::{Format, load, shown};
@@ -66,7 +66,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     }
     if args.format == Format::Csv {
         // One quantity per row: the facts a spreadsheet wants, each with its unit.
-        let mut t = report::Table::new(&["quantity", "value"]);
+        let mut t = text::Table::new(&["quantity", "value"]);
         let rows: Vec<(String, String)> = vec![
             ("lattice".into(), c.name.clone()),
             ("file".into(), shown(&args.file)),
@@ -83,18 +83,18 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     .join("; "),
             ),
             ("formula unit".into(), unit.clone()),
-            (format!("{unit} per cell"), report::number(units_per_cell)),
+            (format!("{unit} per cell"), text::number(units_per_cell)),
             (
                 format!("Pauling W per {unit}"),
-                report::number(p.w_per_unit()),
+                text::number(p.w_per_unit()),
             ),
             (
                 format!("Pauling S0/R per {unit}"),
-                report::number(p.s_over_r()),
+                text::number(p.s_over_r()),
             ),
             (
                 format!("Pauling S0 J/(mol K) per mole of {unit}"),
-                report::number(p.s_j_per_mol_k()),
+                text::number(p.s_j_per_mol_k()),
             ),
             (
                 "Pauling meaningful".into(),
@@ -112,7 +112,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         return Ok(t.render_csv());
     }
     let markdown = args.format == Format::Markdown;
-    let render = |t: &report::Table| {
+    let render = |t: &text::Table| {
         if markdown {
             t.render_markdown()
         } else {
@@ -141,7 +141,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         let v: Vec<String> = vector[..c.dimensions].iter().map(|x| sig(*x, 6)).collect();
         writeln!(out, "  {name} = [{}]", v.join(", "))?;
     }
-    let mut t = report::Table::new(&["site", "species", "fractional position", "coordination"]);
+    let mut t = text::Table::new(&["site", "species", "fractional position", "coordination"]);
     for (s, k) in c.sites.iter().zip(&coordination) {
         let f: Vec<String> = s.frac[..c.dimensions].iter().map(|x| sig(*x, 6)).collect();
         t.row(vec![
@@ -158,7 +158,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         render(&t)
     )?;
     if !c.bonds.is_empty() {
-        let mut t = report::Table::new(&["bond", "from", "to", "shift", "length"]);
+        let mut t = text::Table::new(&["bond", "from", "to", "shift", "length"]);
         for b in &c.bonds {
             let sh: Vec<String> = b.shift[..c.dimensions]
                 .iter()
@@ -216,7 +216,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         out,
         "formula unit: {unit}, {} ({} per cell)",
         c.formula_unit.describe(),
-        report::amount(units_per_cell)
+        text::amount(units_per_cell)
     )?;
     writeln!(out)?;
     writeln!(

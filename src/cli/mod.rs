@@ -127,10 +127,10 @@ impl SurveyBars {
 }
 
 impl Common {
-    /// An observer for [`groundcount::survey::survey`] that shows its stages, when progress
+    /// An observer for [`groundcount::estimate::survey`] that shows its stages, when progress
     /// is wanted.
-    fn survey_progress(&self) -> (Option<groundcount::survey::Observer>, SurveyBars) {
-        use groundcount::survey::{Observer, Stage};
+    fn survey_progress(&self) -> (Option<groundcount::estimate::Observer>, SurveyBars) {
+        use groundcount::estimate::{Observer, Stage};
         if !self.progress() {
             return (None, SurveyBars(None));
         }
@@ -362,14 +362,14 @@ fn cell_header(
         e.cells.as_deref().unwrap_or(""),
         model.variables.len(),
         model.constraints.len(),
-        groundcount::report::amount(e.formula_units),
+        groundcount::text::amount(e.formula_units),
         c.formula_unit.name
     )
 }
 
 /// The Pauling comparison line under a one-cell result.
 fn pauling_line(p: &groundcount::Estimate, unit: &str) -> String {
-    use groundcount::report::sig;
+    use groundcount::text::sig;
     let mut line = format!(
         "Pauling (infinite)    W = {} per {unit}, S0 = {} J/(mol K)\n",
         sig(p.w_per_unit(), 10),

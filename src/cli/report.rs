@@ -7,9 +7,9 @@ use std::path::PathBuf;
 use groundcount::calorimetry::ThirdLaw;
 use groundcount::cluster::Cells;
 use groundcount::counters::exact;
-use groundcount::report::Table;
-use groundcount::survey::{SurveyConfig, survey};
-use groundcount::writeup::{Comparison, Meta, Sentence, Writeup};
+use groundcount::estimate::{SurveyConfig, survey};
+use groundcount::report::{Comparison, Meta, Report, Sentence};
+use groundcount::text::Table;
 use serde_json::json;
 
 use super::{Common, Format, load, shown, with_threads};
@@ -156,7 +156,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         date: today(),
         file: shown(&args.file),
     };
-    let w = Writeup::new(&lattice, &s, meta, comparison);
+    let w = Report::new(&lattice, &s, meta, comparison);
     let mut files: Vec<(String, String)> = vec![
         ("report.md".into(), w.markdown()),
         (
@@ -173,8 +173,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             Format::Json => Ok(serde_json::to_string_pretty(&json!({
                 "directory": args.out.display().to_string(),
                 "files": written,
-                "cited": groundcount::report::cited_json(c, &s),
-                "checks": groundcount::report::checks_json(&s.checks),
+                "cited": groundcount::text::cited_json(c, &s),
+                "checks": groundcount::text::checks_json(&s.checks),
                 "sentence_refused": match w.sentence() {
                     Sentence::Cite(_) => None,
                     Sentence::Refused(why) => Some(why),
@@ -196,9 +196,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 writeln!(out)?;
                 let unit = &c.formula_unit.name;
                 for f in s.failed_checks() {
-                    writeln!(out, "{}", groundcount::report::check_failure(f, unit))?;
+                    writeln!(out, "{}", groundcount::text::check_failure(f, unit))?;
                 }
-                writeln!(out, "{}", groundcount::report::cited_line(&s, unit))?;
+                writeln!(out, "{}", groundcount::text::cited_line(&s, unit))?;
                 writeln!(out)?;
                 match w.sentence() {
                     Sentence::Cite(t) => writeln!(out, "{t}")?,

@@ -11,7 +11,7 @@ use groundcount::cluster::{Cells, Cluster};
 use groundcount::counters::pauling;
 use groundcount::counters::sampling::{self, Sampled, shard, size, wang_landau};
 use groundcount::model::Model;
-use groundcount::report::{self, sig};
+use groundcount::text::{self, sig};
 
 use super::{Common, Format, cell_header, load, pauling_line, with_threads};
 
@@ -230,7 +230,7 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
     let unit = &c.formula_unit.name;
     match args.common.format {
         Format::Json => {
-            let mut v = report::estimate_json(c, e, Some(&p));
+            let mut v = text::estimate_json(c, e, Some(&p));
             v["algorithm"] = "wang-landau".into();
             v["seed"] = w.seed.into();
             v["replicas"] = w.replicas.into();
@@ -245,8 +245,8 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
             v["content_hash"] = lattice.content_hash.clone().into();
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
-        Format::Csv => Ok(report::comparison_table(&[p, e.clone()], unit).render_csv()),
-        Format::Markdown => Ok(report::comparison_table(&[p, e.clone()], unit).render_markdown()),
+        Format::Csv => Ok(text::comparison_table(&[p, e.clone()], unit).render_csv()),
+        Format::Markdown => Ok(text::comparison_table(&[p, e.clone()], unit).render_markdown()),
         Format::Table => {
             let mut out = cell_header(c, &args.file, e, &model);
             writeln!(out)?;
@@ -420,8 +420,8 @@ pub(super) fn render(
             }
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
-        Format::Csv => Ok(report::comparison_table(&[p, e.clone()], unit).render_csv()),
-        Format::Markdown => Ok(report::comparison_table(&[p, e.clone()], unit).render_markdown()),
+        Format::Csv => Ok(text::comparison_table(&[p, e.clone()], unit).render_csv()),
+        Format::Markdown => Ok(text::comparison_table(&[p, e.clone()], unit).render_markdown()),
         Format::Table => {
             let mut out = String::new();
             out += &cell_header(c, std::path::Path::new(&shown.file), e, model);
@@ -576,7 +576,7 @@ pub(super) fn equilibration_line(s: &Sampled) -> String {
 fn sampled_json(lattice: &Lattice, model: &Model, s: &Sampled, shown: &Shown) -> serde_json::Value {
     let c = &lattice.crystal;
     let p = pauling::estimate(c).ok();
-    let mut v = report::estimate_json(c, &s.estimate, p.as_ref());
+    let mut v = text::estimate_json(c, &s.estimate, p.as_ref());
     v["algorithm"] = "thermodynamic-integration".into();
     v["seed"] = s.seed.into();
     v["samples"] = s.samples.into();
@@ -638,7 +638,7 @@ fn render_sizes(
                 .collect();
             let mut v = match (&fit, &infinite) {
                 (Ok(fit), Some(infinite)) => {
-                    let mut v = report::estimate_json(c, infinite, Some(&p));
+                    let mut v = text::estimate_json(c, infinite, Some(&p));
                     v["method"] = "monte-carlo-extrapolated".into();
                     v["fit"] = serde_json::json!({
                         "form": fit.form(),
@@ -670,11 +670,11 @@ fn render_sizes(
             v["cells_sampled"] = cells.into();
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
-        Format::Csv => Ok(report::comparison_table(&rows, unit).render_csv()),
-        Format::Markdown => Ok(report::comparison_table(&rows, unit).render_markdown()),
+        Format::Csv => Ok(text::comparison_table(&rows, unit).render_csv()),
+        Format::Markdown => Ok(text::comparison_table(&rows, unit).render_markdown()),
         Format::Table => {
             let mut out = format!("{} ({})\n\n", c.name, shown.file);
-            out += &report::comparison_table(&rows, unit).render();
+            out += &text::comparison_table(&rows, unit).render();
             writeln!(out)?;
             match (&fit, &infinite) {
                 (Ok(fit), Some(infinite)) => {

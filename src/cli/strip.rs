@@ -9,7 +9,7 @@ use groundcount::Error;
 use groundcount::counters::extrapolate::Scaling;
 use groundcount::counters::transfer::{self, SectorBasis, Sectors, StripConfig};
 use groundcount::crosscheck::{CrossCheck, Route};
-use groundcount::report::{self, Table, sig};
+use groundcount::text::{self, Table, sig};
 use serde_json::json;
 
 use super::{Common, Format, Partial, load, shown, with_threads};
@@ -631,10 +631,10 @@ fn render(
                     r.width.to_string(),
                     r.states.to_string(),
                     r.iterations.to_string(),
-                    report::number(r.ln_lambda),
-                    report::number(r.ln_w_per_unit.exp()),
-                    report::number(r.ln_bracket.0),
-                    report::number(r.ln_bracket.1),
+                    text::number(r.ln_lambda),
+                    text::number(r.ln_w_per_unit.exp()),
+                    text::number(r.ln_bracket.0),
+                    text::number(r.ln_bracket.1),
                 ];
                 if any_sector {
                     row.push(sector_cell(r));
@@ -642,7 +642,7 @@ fn render(
                     csv.push(sector_basis_word(r).to_string());
                 }
                 row.push(format!("{:.3}", r.seconds));
-                csv.push(report::number(r.seconds));
+                csv.push(text::number(r.seconds));
                 t.row(row);
                 t.csv_row(csv);
             }
@@ -696,7 +696,7 @@ fn render(
                     writeln!(
                         out,
                         "method               {}, {} s in all",
-                        report::method_label(e),
+                        text::method_label(e),
                         sig(e.seconds, 3)
                     )?;
                 }

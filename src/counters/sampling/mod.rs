@@ -456,8 +456,8 @@ impl<'m> Plan<'m> {
             return Err(Error::Setting(format!(
                 "{} quadrature nodes up to β = {} would lie {} apart, but the mean number of violated constraints changes on a scale of 1 in β (each costs 1 in βE), and nodes further apart than {MAX_NODE_SPACING} can step over that change entirely and return Pauling's value with no error bar; with {} nodes the largest β can be at most {}{}",
                 config.nodes,
-                crate::report::sig(beta_max, 4),
-                crate::report::sig(spacing, 3),
+                crate::text::sig(beta_max, 4),
+                crate::text::sig(spacing, 3),
                 config.nodes,
                 MAX_NODE_SPACING * (config.nodes - 1) as f64,
                 smallest_nodes(beta_max)
@@ -719,7 +719,7 @@ fn smallest_nodes(beta_max: f64) -> String {
     if intervals <= 1000.0 {
         format!(
             ", and β = {} needs at least {} nodes",
-            crate::report::sig(beta_max, 4),
+            crate::text::sig(beta_max, 4),
             intervals as u64 + 1
         )
     } else {

@@ -15,7 +15,7 @@ use crate::counters::pauling;
 use crate::crosscheck::{CrossCheck, Route};
 use crate::crystal::Crystal;
 use crate::estimate::Estimate;
-use crate::survey::{Cited, CitedReason, CitedValue, PassedOver, Refusal, Survey};
+use crate::estimate::{Cited, CitedReason, CitedValue, PassedOver, Refusal, Survey};
 
 /// A plain-text table with a header row; columns are left-aligned and padded.
 ///

@@ -4,9 +4,9 @@
 //!
 //! A user who must state a residual entropy in a paper needs every method's number side by
 //! side, the diagnostics behind each, the calorimetric comparison when there is one, and a
-//! sentence saying how the number was made. [`Writeup::new`] gathers these from a
-//! [`Survey`] (and optionally a calorimetric result); [`Writeup::json`],
-//! [`Writeup::markdown`] and [`Writeup::figures`] render them. Nothing here computes a
+//! sentence saying how the number was made. [`Report::new`] gathers these from a
+//! [`Survey`] (and optionally a calorimetric result); [`Report::json`],
+//! [`Report::markdown`] and [`Report::figures`] render them. Nothing here computes a
 //! count: it only reads estimates.
 //!
 //! # Arguments and returns
@@ -23,8 +23,8 @@ use serde_json::{Value, json};
 use crate::Lattice;
 use crate::counters::pauling;
 use crate::estimate::Method;
-use crate::report::{amount, estimate_json, method_label, plus_minus, sig};
-use crate::survey::{Cited, CitedReason, CitedValue, Survey};
+use crate::estimate::{Cited, CitedReason, CitedValue, Survey};
+use crate::text::{amount, estimate_json, method_label, plus_minus, sig};
 use crate::thermo;
 
 pub use plots::Figure;
@@ -88,22 +88,22 @@ impl Comparison {
 
 /// Everything a report shows.
 #[derive(Clone, Debug)]
-pub struct Writeup<'a> {
+pub struct Report<'a> {
     lattice: &'a Lattice,
     survey: &'a Survey,
     meta: Meta,
     comparison: Option<Comparison>,
 }
 
-impl<'a> Writeup<'a> {
+impl<'a> Report<'a> {
     /// Gather a report.
     pub fn new(
         lattice: &'a Lattice,
         survey: &'a Survey,
         meta: Meta,
         comparison: Option<Comparison>,
-    ) -> Writeup<'a> {
-        Writeup {
+    ) -> Report<'a> {
+        Report {
             lattice,
             survey,
             meta,
@@ -141,7 +141,7 @@ impl<'a> Writeup<'a> {
                 };
                 format!(
                     "Monte Carlo thermodynamic integration on the cells {} (up to {} {unit}; {} replicas per cell, seed {}), extrapolated to the infinite crystal by the weighted fit {}",
-                    crate::survey::cell_list(&s.sampled_sizes),
+                    crate::estimate::cell_list(&s.sampled_sizes),
                     amount(m.sampled.estimate.formula_units),
                     m.sampled.replicas,
                     m.sampled.seed,
@@ -189,7 +189,7 @@ impl<'a> Writeup<'a> {
                     format!(
                         "{} against the {} (W = {} against {} per {unit})",
                         method_label_of(k.method),
-                        crate::report::route_words(&k.route),
+                        crate::text::route_words(&k.route),
                         sig(k.value.exp(), 8),
                         sig(k.reference.exp(), 8)
                     )
@@ -206,7 +206,7 @@ impl<'a> Writeup<'a> {
             let why: Vec<String> = cited
                 .passed_over
                 .iter()
-                .map(|p| crate::report::refusal_words(p, unit))
+                .map(|p| crate::text::refusal_words(p, unit))
                 .collect();
             return Sentence::Refused(format!(
                 "no sentence to paste: no value of this run can be cited ({})",
@@ -341,12 +341,12 @@ impl<'a> Writeup<'a> {
                 "method": v.estimate.method.name(),
                 "label": method_label(v.estimate),
                 "reason": v.reason,
-                "why": crate::report::reason_words(s, v),
+                "why": crate::text::reason_words(s, v),
                 "infinite_crystal": v.reason.is_infinite_crystal(),
                 "estimate": estimate_json(c, v.estimate, Some(p)),
             })),
-            "passed_over": crate::report::passed_over_json(&cited, unit),
-            "checks": crate::report::checks_json(&s.checks),
+            "passed_over": crate::text::passed_over_json(&cited, unit),
+            "checks": crate::text::checks_json(&s.checks),
             "pauling": estimate_json(c, p, None),
             "bethe": s.bethe.as_ref().map(|e| estimate_json(c, e, Some(p))),
             "exact": s.exact.iter().map(|e| estimate_json(c, e, Some(p))).collect::<Vec<_>>(),

@@ -618,7 +618,7 @@ fn strip_series(
     if let Some(failed) = all.iter().find(|x| !x.agrees()) {
         notes.push(format!(
             "transfer matrix: a cross-check FAILED ({}: ln W per unit {} against {}); its value must not be cited",
-            crate::report::route_words(&failed.route),
+            crate::text::route_words(&failed.route),
             failed.value,
             failed.reference
         ));
@@ -1101,7 +1101,7 @@ fn extrapolate_cells(
                 if fit.systematic > 0.0 {
                     format!(
                         "; the ln N/N term left out, its effect {} in ln W added to σ",
-                        crate::report::sig(fit.systematic, 2)
+                        crate::text::sig(fit.systematic, 2)
                     )
                 } else {
                     String::new()
@@ -1109,8 +1109,8 @@ fn extrapolate_cells(
                 fit.alternative_form(),
                 fit.alternative.map_or("—".to_string(), |(v, s)| format!(
                     "{} ± {}",
-                    crate::report::sig(v, 6),
-                    crate::report::sig(s, 2)
+                    crate::text::sig(v, 6),
+                    crate::text::sig(s, 2)
                 ))
             ));
             let estimate = fit.estimate(results.iter().map(|r| r.sampled.estimate.seconds).sum());
@@ -1192,10 +1192,10 @@ fn wang_landau_check(
     };
     notes.push(format!(
         "Monte Carlo cross-check on {name} (no exact count in this run): thermodynamic integration ln W = {} ± {} per formula unit against a Wang–Landau walk {} ± {}; {}. It tests the sampler on a small cell, not the extrapolation to larger cells",
-        crate::report::sig(a.ln_w_per_unit, 6),
-        crate::report::sig(sa, 2),
-        crate::report::sig(b.ln_w_per_unit, 6),
-        crate::report::sig(sb, 2),
+        crate::text::sig(a.ln_w_per_unit, 6),
+        crate::text::sig(sa, 2),
+        crate::text::sig(b.ln_w_per_unit, 6),
+        crate::text::sig(sb, 2),
         if check.agrees() {
             format!("agreement within {CROSS_CHECK_SIGMAS} combined σ")
         } else {
@@ -1251,10 +1251,10 @@ fn cross_check(
             };
             notes.push(format!(
                 "Monte Carlo cross-check on {name} (sampled with the default settings, {} s): ln W = {} ± {} per formula unit against the exact {}; {}. It tests the sampler (integration, tail, equilibration) on a cell the exact counter reaches, not the extrapolation to larger cells",
-                crate::report::sig(e.seconds, 2),
-                crate::report::sig(e.ln_w_per_unit, 6),
-                crate::report::sig(sigma, 2),
-                crate::report::sig(exact.ln_w_per_unit, 6),
+                crate::text::sig(e.seconds, 2),
+                crate::text::sig(e.ln_w_per_unit, 6),
+                crate::text::sig(sigma, 2),
+                crate::text::sig(exact.ln_w_per_unit, 6),
                 if check.agrees() {
                     format!("agreement within {CROSS_CHECK_SIGMAS}σ")
                 } else {
