@@ -2,11 +2,17 @@
 //! survey that runs every counter suiting a lattice and chooses the value to cite.
 //!
 //! - `value.rs`: [`Estimate`] and [`Method`], what every counter returns.
-//! - `survey.rs`: [`survey`], every counter that suits a lattice within one time budget, and
-//!   [`Survey::cited`], the value to cite.
+//! - `survey.rs`: [`Survey`] and [`SurveyConfig`], what a survey is given and what it holds.
+//! - `schedule.rs`: [`survey`], every counter that suits a lattice, run within one time
+//!   budget.
+//! - `cite.rs`: [`Survey::cited`], the one priority order of the value to cite.
 
+mod cite;
+mod schedule;
 mod survey;
 mod value;
 
+pub use cite::*;
+pub use schedule::*;
 pub use survey::*;
 pub use value::*;

@@ -1,0 +1,1005 @@
+//! Every counter that suits a lattice, run within one time budget.
+//!
+//! # What it does
+//!
+//! [`survey`] is the main job as a library call: Pauling's estimate; exact counts on periodic
+//! cells of growing size (L×L in 2D; n×n×n, (n+1)×n×n, (n+1)×(n+1)×n in 3D) within the first
+//! 40 % of the budget; then, for a two-dimensional crystal, transfer matrices on cylinders of
+//! growing width extrapolated to infinite width, and for a three-dimensional one a Monte
+//! Carlo count of a periodic cell of about a thousand formula units. The result, a
+//! [`Survey`], holds every estimate and the diagnostics a report needs (strip widths, the
+//! thermodynamic-integration integrand), so that `estimate` and `report` read the same data.
+//!
+//! # Arguments and returns
+//!
+//! A crystal and a [`SurveyConfig`]: the budget in seconds, the exact counter's state
+//! budget, optional limits that make a run independent of the machine's speed (largest
+//! exact cell, fixed strip widths, a fixed Monte Carlo cell and settings), and an optional
+//! observer told what is being computed (the library never prints; the caller decides how
+//! to show progress). Runs on the caller's rayon pool.
+//!
+//! # Errors
+//!
+//! A budget out of range ([`Error::Setting`]), a cell too large to build, or a counter failing for
+//! a reason other than its budget. Budgets running out are not errors: the survey stops
+//! that method and says why in [`Survey::stopped`] and [`Survey::notes`]. Nor is an
+//! interrupt ([`SurveyConfig::interrupt`]): the exact counts stop between steps, stages not
+//! yet begun are skipped, and the survey returns what it finished with
+//! [`Survey::interrupted`] set.
+//!
+//! This file is the schedule: what runs, in which order, within the time budget.
+
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+use super::{SampledCell, SizeExtrapolation, Stage, Survey, SurveyConfig, cell_list};
+use crate::cluster::{Cells, Cluster};
+use crate::counters::extrapolate::Scaling;
+use crate::counters::sampling::size;
+use crate::counters::sampling::{self, SampleConfig};
+use crate::counters::transfer::{self, StripConfig, StripSeries};
+use crate::counters::{bethe, exact, pauling};
+use crate::crosscheck::{CrossCheck, Route};
+use crate::crystal::Crystal;
+use crate::error::{Error, Result};
+use crate::estimate::{Estimate, Method};
+use crate::model::Model;
+
+/// Periodic cells of growing size: L×L in 2D; in 3D n×n×n, then (n+1)×n×n, (n+1)×(n+1)×n.
+pub fn cell_sequence(dimensions: usize) -> impl Iterator<Item = Cells> {
+    (1usize..).flat_map(move |n| {
+        let shapes: Vec<[usize; 3]> = match dimensions {
+            1 => vec![[n, 1, 1]],
+            2 => vec![[n, n, 1]],
+            _ => vec![[n, n, n], [n + 1, n, n], [n + 1, n + 1, n]],
+        };
+        shapes.into_iter().map(move |counts| Cells {
+            counts,
+            periodic: [true; 3],
+            dimensions,
+        })
+    })
+}
+
+/// Run every counter that suits the crystal; see the module documentation.
+pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
+    if !(config.budget.is_finite() && config.budget > 0.0 && config.budget <= 1e7) {
+        return Err(Error::Setting(format!(
+            "the budget must be a positive number of seconds (at most 1e7), found {}",
+            config.budget
+        )));
+    }
+    let tell = |s: Stage| {
+        if let Some(o) = &config.observer {
+            (o.0)(s)
+        }
+    };
+    let pauling = pauling::estimate(c)?;
+    let mut notes = Vec::new();
+    let bethe = match bethe::estimate(c) {
+        Ok(b) => Some(b),
+        Err(e) => {
+            notes.push(format!("Bethe approximation left out: {e}"));
+            None
+        }
+    };
+    let start = Instant::now();
+    // Exact counts get the first 40 % of the budget; the rest goes to strips (2D) or
+    // sampling (3D).
+    let deadline = start + Duration::from_secs_f64(0.4 * config.budget);
+    let end = start + Duration::from_secs_f64(config.budget);
+    let mut exact_counts = Vec::new();
+    let mut stopped = String::new();
+    let largest = 1usize << 20; // never build absurdly large clusters
+    let per_cell = c.formula_unit.per_cell(c);
+    let mut interrupted = false;
+    for cells in cell_sequence(c.dimensions) {
+        if config.interrupt.raised() {
+            interrupted = true;
+            stopped = "interrupted".into();
+            break;
+        }
+        if config
+            .max_exact_units
+            .is_some_and(|m| cells.total() as f64 * per_cell > m)
+        {
+            break;
+        }
+        if cells.total() * c.sites.len().max(c.bonds.len()) > largest {
+            stopped = "cell size limit reached".into();
+            break;
+        }
+        let cluster = Cluster::new(c, cells.clone())?;
+        let model = Model::new(&cluster)?;
+        tell(Stage::Exact(cells.to_string()));
+        let progress = config.observer.as_ref().map(|o| {
+            let o = o.clone();
+            exact::ProgressHook(Arc::new(move |done, all, states| {
+                (o.0)(Stage::ExactStep(done, all, states))
+            }))
+        });
+        let exact_config = exact::ExactConfig {
+            max_states: config.max_states,
+            deadline: Some(deadline),
+            progress,
+            interrupt: config.interrupt.clone(),
+        };
+        let outcome = exact::count(&model, &exact_config);
+        tell(Stage::ExactDone);
+        match outcome {
+            Ok(e) => {
+                exact_counts.push(e);
+                // No constraint left on a cell too large for repeats: every variable is free
+                // (no rule, or rules that allow everything), and every larger cell gives the
+                // same W per formula unit.
+                if !model.has_repeats && model.constraints.is_empty() {
+                    stopped = "no rule restricts any variable (every variable is free), so \
+                               larger cells give the same W per formula unit"
+                        .into();
+                    break;
+                }
+            }
+            Err(Error::Deadline { cells }) => {
+                stopped = format!(
+                    "the exact counts' share (40 %) of the {} s budget ran out while counting {cells}",
+                    config.budget
+                );
+                break;
+            }
+            Err(Error::Budget { cells, .. }) => {
+                stopped = format!(
+                    "{cells} needs more than {} frontier states",
+                    config.max_states
+                );
+                break;
+            }
+            Err(Error::Interrupted { .. }) => {
+                interrupted = true;
+                stopped = format!("interrupted while counting {cells}");
+                break;
+            }
+            Err(e) => return Err(e),
+        }
+        if Instant::now() > deadline {
+            stopped = format!(
+                "the exact counts' share of the {} s budget is spent",
+                config.budget
+            );
+            break;
+        }
+    }
+    let mut strips = None;
+    let mut checks = Vec::new();
+    let mut sampled_sizes = Vec::new();
+    let mut extrapolated = None;
+    // Stage boundary: an interrupt skips what has not begun; a stage that stops on it
+    // keeps what it finished.
+    let stage = match c.dimensions {
+        2 => "transfer matrix",
+        3 => "Monte Carlo",
+        _ => "",
+    };
+    if interrupted || config.interrupt.raised() {
+        interrupted = true;
+        if !stage.is_empty() {
+            notes.push(format!("{stage}: not run (interrupted)"));
+        }
+    } else {
+        let outcome = match c.dimensions {
+            2 => strip_series(
+                c,
+                end,
+                config,
+                &exact_counts,
+                &tell,
+                &mut notes,
+                &mut checks,
+            )
+            .map(|s| strips = s),
+            3 => monte_carlo(
+                c,
+                config,
+                end,
+                &exact_counts,
+                &tell,
+                &mut notes,
+                &mut checks,
+            )
+            .map(|(sizes, x)| (sampled_sizes, extrapolated) = (sizes, x)),
+            _ => Ok(()),
+        };
+        match outcome {
+            Ok(()) => {}
+            Err(Error::Interrupted { .. }) => {
+                notes.push(format!("{stage}: stopped (interrupted)"));
+                interrupted = true;
+            }
+            Err(e) => return Err(e),
+        }
+        interrupted |= config.interrupt.raised();
+    }
+    if interrupted {
+        notes.push(
+            "interrupted (Ctrl-C): the values given are those finished before the interrupt".into(),
+        );
+    }
+    let sampled = sampled_sizes.last().cloned();
+    Ok(Survey {
+        pauling,
+        bethe,
+        exact: exact_counts,
+        stopped,
+        strips,
+        sampled,
+        sampled_sizes,
+        extrapolated,
+        checks,
+        notes,
+        budget: config.budget,
+        interrupted,
+    })
+}
+
+/// Strips of growing (or given) width until the budget ends, extrapolated to infinite width;
+/// the cross-checks made on the way, and the bounds the exact torus counts put on the
+/// widths, go to `checks` (condensed: every failure, and the largest width of each route
+/// that agreed).
+fn strip_series(
+    c: &Crystal,
+    end: Instant,
+    config: &SurveyConfig,
+    exact_counts: &[Estimate],
+    tell: &dyn Fn(Stage),
+    notes: &mut Vec<String>,
+    checks: &mut Vec<CrossCheck>,
+) -> Result<Option<StripSeries>> {
+    let strip_config = StripConfig {
+        deadline: Some(end),
+        interrupt: config.interrupt.clone(),
+        ..StripConfig::default()
+    };
+    let widths: Box<dyn Iterator<Item = usize>> = match &config.widths {
+        Some(w) => Box::new(w.clone().into_iter()),
+        None => Box::new(2..),
+    };
+    let mut runner = transfer::Runner::new(c, &strip_config);
+    for width in widths {
+        tell(Stage::Strip(width));
+        match runner.width(width) {
+            Ok(_) => {}
+            Err(Error::Deadline { .. }) => {
+                if config.widths.is_some() {
+                    notes.push(format!(
+                        "transfer matrix: the {} s budget ran out at width {width}",
+                        config.budget
+                    ));
+                }
+                break;
+            }
+            Err(Error::Interrupted { .. }) => {
+                notes.push(format!(
+                    "transfer matrix: interrupted at width {width}; the widths before it are kept"
+                ));
+                break;
+            }
+            Err(e) => {
+                notes.push(format!("transfer matrix: stopped at width {width}: {e}"));
+                break;
+            }
+        }
+        if Instant::now() > end || config.interrupt.raised() {
+            break;
+        }
+    }
+    let done = runner.results().len();
+    let run = runner.finish(None, Scaling::Auto, None);
+    let mut all = run.checks.clone();
+    all.extend(torus_bounds(&run.widths, exact_counts));
+    checks.extend(condensed(&all));
+    if let Some(failed) = all.iter().find(|x| !x.agrees()) {
+        notes.push(format!(
+            "transfer matrix: a cross-check FAILED ({}: ln W per unit {} against {}); its value must not be cited",
+            crate::text::route_words(&failed.route),
+            failed.value,
+            failed.reference
+        ));
+    }
+    if done < 4 {
+        notes.push(format!(
+            "transfer matrix: only {done} widths within the budget; raise the budget or run `groundcount strip`"
+        ));
+        return Ok(None);
+    }
+    match run.series {
+        Some(series) => {
+            let first = series.widths.first().map_or(0, |r| r.width);
+            let largest = series.widths.last().map_or(0, |r| r.width);
+            let step = series.step;
+            notes.push(format!(
+                "transfer matrix: cylinders of width {first}..{largest}{} along a, extrapolated to infinite width \
+                 ({}){}; `groundcount strip` shows every width",
+                if step > 1 { format!(" in steps of {step} (the period with the smallest spread)") } else { String::new() },
+                match series.extrapolation.scaling {
+                    Scaling::Gapped => {
+                        "gapped: Aitken's Δ² on the last widths of each family, error from the window before".to_string()
+                    }
+                    _ => format!(
+                        "critical: fits in 1/W², error from their spread over {} fits",
+                        series.extrapolation.fits.len()
+                    ),
+                },
+                sector_words(&series.widths)
+            ));
+            Ok(Some(series))
+        }
+        None => {
+            let why = run
+                .no_series
+                .unwrap_or_else(|| "too few widths".to_string());
+            notes.push(format!("transfer matrix: no extrapolation ({why})"));
+            Ok(None)
+        }
+    }
+}
+
+/// How the kept charge sectors were established, in words ("" when no sector was kept).
+fn sector_words(widths: &[transfer::StripResult]) -> String {
+    use transfer::SectorBasis;
+    let of = |f: &dyn Fn(&SectorBasis) -> bool| -> Vec<usize> {
+        widths
+            .iter()
+            .filter(|r| f(&r.basis))
+            .map(|r| r.width)
+            .collect()
+    };
+    let full = of(&|b| *b == SectorBasis::FullSpace);
+    let local = of(&|b| *b == SectorBasis::LocalMaximum);
+    let predicted = of(&|b| matches!(b, SectorBasis::Predicted { .. }));
+    if full.is_empty() && local.is_empty() && predicted.is_empty() {
+        return String::new();
+    }
+    let list = |v: &[usize]| match v {
+        [] => String::new(),
+        [a] => a.to_string(),
+        [a, .., b] => format!("{a}..{b}"),
+    };
+    let mut parts = Vec::new();
+    if !full.is_empty() {
+        parts.push(format!(
+            "checked against the full space at widths {}",
+            list(&full)
+        ));
+    }
+    if !local.is_empty() {
+        parts.push(format!(
+            "against the neighbouring charges at {}",
+            list(&local)
+        ));
+    }
+    if !predicted.is_empty() {
+        parts.push(format!("predicted from those at {}", list(&predicted)));
+    }
+    format!("; the charge sector of each width {}", parts.join(", "))
+}
+
+/// The lower bounds the exact counts of periodic L×L cells put on the largest eigenvalue
+/// of the width-L cylinder along a: Z = Tr T^L ≤ N λ^L, N the assignments of the boundary
+/// fields (a cell longer than the deepest constraint along the strip, so that Z is the
+/// trace).
+fn torus_bounds(widths: &[transfer::StripResult], exact_counts: &[Estimate]) -> Vec<CrossCheck> {
+    let mut out = Vec::new();
+    for e in exact_counts {
+        let Some(size) = e.cells.as_deref().and_then(square_side) else {
+            continue;
+        };
+        let Some(r) = widths.iter().find(|r| r.width == size) else {
+            continue;
+        };
+        if size <= r.depth || !e.ln_count.is_finite() {
+            continue;
+        }
+        let bound = (e.ln_count - r.ln_boundary_space) / size as f64;
+        out.push(CrossCheck {
+            method: Method::TransferMatrix,
+            route: Route::TorusBound {
+                width: size,
+                length: size,
+            },
+            value: r.ln_w_per_unit,
+            reference: bound / r.units_per_column,
+            tolerance: 1e-9 * r.ln_w_per_unit.abs().max(1.0),
+        });
+    }
+    out
+}
+
+/// L for a cell written "LxL periodic" (two dimensions).
+fn square_side(cells: &str) -> Option<usize> {
+    let dims = cells.strip_suffix(" periodic")?;
+    let (a, b) = dims.split_once('x')?;
+    let (a, b): (usize, usize) = (a.parse().ok()?, b.parse().ok()?);
+    (a == b).then_some(a)
+}
+
+/// Every failed check, and of each route the agreeing check of the largest width.
+fn condensed(all: &[CrossCheck]) -> Vec<CrossCheck> {
+    let kind = |r: &Route| std::mem::discriminant(r);
+    let width = |r: &Route| match r {
+        Route::FullSpace { width }
+        | Route::NeighbourSectors { width }
+        | Route::TorusTrace { width, .. }
+        | Route::TorusBound { width, .. } => *width,
+        _ => 0,
+    };
+    let mut out: Vec<CrossCheck> = all.iter().filter(|c| !c.agrees()).cloned().collect();
+    let mut kinds: Vec<_> = all.iter().map(|c| kind(&c.route)).collect();
+    kinds.dedup();
+    let mut seen = Vec::new();
+    for k in kinds {
+        if seen.contains(&k) {
+            continue;
+        }
+        seen.push(k);
+        if let Some(c) = all
+            .iter()
+            .filter(|c| kind(&c.route) == k && c.agrees())
+            .max_by_key(|c| width(&c.route))
+        {
+            out.push(c.clone());
+        }
+    }
+    out
+}
+
+/// Formula units of the smallest cell the Monte Carlo samples (about a hundred).
+pub const SAMPLE_MIN_UNITS: f64 = 96.0;
+
+/// Most cells the Monte Carlo extrapolation samples.
+pub const SAMPLE_MAX_CELLS: usize = 5;
+
+/// Share of the time left that each cell's settings are raised to fill (its part in
+/// proportion to its size); the pace is measured again after every cell.
+const FILL_SHARE: f64 = 0.95;
+
+/// The cells are chosen so that they fit this many times over at the configured settings.
+const PLAN_REPEAT: f64 = 2.0;
+
+/// Share of the time left that the choice of cells plans to use (the rest absorbs the error
+/// of the time prediction).
+const PLAN_SHARE: f64 = 0.9;
+
+/// The cells the Monte Carlo may sample, smallest first: the near-cubic shapes of
+/// [`cell_sequence`] with at least two unit cells along every axis and at least
+/// [`SAMPLE_MIN_UNITS`] formula units, for a crystal of `per_cell` formula units per cell.
+/// Stops at about 10⁸ formula units.
+pub fn sample_candidates(per_cell: f64) -> Vec<Cells> {
+    cell_sequence(3)
+        .filter(|c| c.counts.iter().all(|&n| n >= 2))
+        .take_while(|c| c.total() as f64 * per_cell <= 1e8)
+        .filter(|c| c.total() as f64 * per_cell >= SAMPLE_MIN_UNITS)
+        .collect()
+}
+
+/// Up to `most` cells spread evenly in ln N from `candidates[0]` to `candidates[last]`
+/// (indices into `candidates`, increasing, the first and the last always included).
+fn spread(candidates: &[f64], last: usize, most: usize) -> Vec<usize> {
+    if last < most {
+        return (0..=last).collect();
+    }
+    let (lo, hi) = (candidates[0].ln(), candidates[last].ln());
+    let mut chosen = vec![0];
+    for k in 1..most {
+        let target = lo + (hi - lo) * k as f64 / (most - 1) as f64;
+        // the candidate nearest in ln N, after the one chosen before
+        let from = chosen[chosen.len() - 1] + 1;
+        let left = most - 1 - k; // cells still to place after this one
+        let to = last - left;
+        let best = (from..=to)
+            .min_by(|&a, &b| {
+                (candidates[a].ln() - target)
+                    .abs()
+                    .total_cmp(&(candidates[b].ln() - target).abs())
+            })
+            .unwrap_or(from);
+        chosen.push(best);
+    }
+    chosen
+}
+
+/// Monte Carlo estimates of a three-dimensional crystal.
+///
+/// With a fixed cell (`sample_cells`), that cell alone. Otherwise cells chosen by formula
+/// units ([`sample_candidates`]): the smallest (about a hundred formula units) runs first
+/// with the configured settings and times the sampler; then the largest cell is chosen for
+/// which up to [`SAMPLE_MAX_CELLS`] cells spread evenly in ln N between the two fit twice
+/// over in the time left, and every cell gets a share of it in proportion to its size,
+/// filled by twice the replicas, then more sweeps, then up to 8 times the replicas. The cells are extrapolated to the infinite crystal when at least three ran
+/// ([`size::extrapolate`] never presents a fit without a degree of freedom).
+///
+/// First of all, the largest exact cell with an arrangement is sampled with the configured
+/// settings and compared with its exact count: a [`CrossCheck`] of the sampler in `checks`.
+fn monte_carlo(
+    c: &Crystal,
+    config: &SurveyConfig,
+    end: Instant,
+    exact_counts: &[Estimate],
+    tell: &dyn Fn(Stage),
+    notes: &mut Vec<String>,
+    checks: &mut Vec<CrossCheck>,
+) -> Result<(Vec<SampledCell>, Option<SizeExtrapolation>)> {
+    let interrupt = &config.interrupt;
+    let mut sample = config.sample.clone();
+    sample.interrupt = interrupt.clone();
+    let build = |cells: &Cells| -> Result<Model> { Model::new(&Cluster::new(c, cells.clone())?) };
+    let run = |cells: &Cells, model: &Model, sample: &SampleConfig| -> Result<SampledCell> {
+        tell(Stage::Sampling(cells.to_string(), model.variables.len()));
+        Ok(SampledCell {
+            cells: cells.to_string(),
+            sampled: sampling::sample(model, sample)?,
+        })
+    };
+    let interrupted_note = |notes: &mut Vec<String>, done: usize| {
+        notes.push(format!(
+            "Monte Carlo: INTERRUPTED; {done} cell{} finished",
+            if done == 1 { "" } else { "s" }
+        ))
+    };
+    if interrupt.raised() {
+        interrupted_note(notes, 0);
+        return Ok((Vec::new(), None));
+    }
+    cross_check(c, &sample, exact_counts, &build, &run, notes, checks);
+
+    let per_cell = c.formula_unit.per_cell(c);
+    let units = |cells: &Cells| cells.total() as f64 * per_cell;
+    let candidates: Vec<Cells> = match &config.sample_cells {
+        Some(cells) => vec![cells.clone()],
+        None => sample_candidates(per_cell),
+    };
+    let Some(first_cells) = candidates.first() else {
+        notes.push("Monte Carlo: not run (no periodic cell of a sensible size)".into());
+        return Ok((Vec::new(), None));
+    };
+    let mut results = Vec::new();
+    let first = match build(first_cells).and_then(|m| run(first_cells, &m, &sample)) {
+        Ok(s) => s,
+        Err(Error::Interrupted { .. }) => {
+            interrupted_note(notes, 0);
+            return Ok((Vec::new(), None));
+        }
+        Err(e) => {
+            notes.push(format!("Monte Carlo: not run ({e})"));
+            return Ok((Vec::new(), None));
+        }
+    };
+    if config.sample_cells.is_some() || first.sampled.interrupted || interrupt.raised() {
+        let stopped = first.sampled.interrupted || interrupt.raised();
+        results.push(first);
+        describe(&results, (sample.replicas, sample.sweeps), notes);
+        if stopped {
+            interrupted_note(notes, 1);
+        }
+        return Ok((results, None));
+    }
+
+    // Time per formula unit of one round of replicas (as many as run at once).
+    let threads = rayon::current_num_threads().max(1);
+    let rounds = |replicas: usize| replicas.div_ceil(threads) as f64;
+    let base = (sample.replicas, sample.sweeps);
+    let cost_per_sweep = sample.sweeps as f64 + 2.0 * sample.equilibration as f64;
+    let rate = first.sampled.estimate.seconds.max(1e-6)
+        / (units(first_cells) * rounds(sample.replicas) * cost_per_sweep);
+    let left = PLAN_SHARE * end.saturating_duration_since(Instant::now()).as_secs_f64();
+    let sizes: Vec<f64> = candidates.iter().map(units).collect();
+    let base_cost = |chosen: &[usize]| -> f64 {
+        chosen.iter().map(|&i| sizes[i]).sum::<f64>() * rate * rounds(base.0) * cost_per_sweep
+    };
+    // The largest cell whose spread of cells fits twice over at the configured settings,
+    // so that every cell can have about twice the replicas (a steadier σ, and sweeps to
+    // spare for the equilibration of the largest); once over when that gives more cells
+    // and twice over gives too few for an extrapolation.
+    let largest = |times: f64| {
+        let mut chosen = vec![0];
+        for last in 1..candidates.len() {
+            let set = spread(&sizes, last, SAMPLE_MAX_CELLS);
+            if times * base_cost(&set[1..]) > left {
+                break;
+            }
+            chosen = set;
+        }
+        chosen
+    };
+    let mut chosen = largest(PLAN_REPEAT);
+    if chosen.len() < size::MIN_CELLS {
+        chosen = largest(1.0);
+    }
+    results.push(first);
+    sample.deadline = Some(end);
+    // Each cell still to run gets a share of the time left in proportion to its size; its
+    // replicas (up to 8 times the configured number), then its sweeps, are raised to fill
+    // that share. The pace is measured again after every cell.
+    let mut rate = rate;
+    let mut skipped = Vec::new();
+    let mut todo: Vec<usize> = chosen[1..].to_vec();
+    while !todo.is_empty() && !interrupt.raised() {
+        let remaining = end.saturating_duration_since(Instant::now()).as_secs_f64();
+        // When the pace has slowed so much that the rest no longer fits at the configured
+        // settings, leave out cells, the middle ones first (the largest gives the range).
+        while !todo.is_empty()
+            && rate * todo.iter().map(|&j| sizes[j]).sum::<f64>() * rounds(base.0) * cost_per_sweep
+                > remaining
+        {
+            let drop = if todo.len() >= 3 {
+                todo.len() - 2
+            } else {
+                todo.len() - 1
+            };
+            skipped.push(candidates[todo.remove(drop)].to_string());
+        }
+        if todo.is_empty() {
+            break;
+        }
+        let i = todo.remove(0);
+        let cells = &candidates[i];
+        let rest: f64 = sizes[i] + todo.iter().map(|&j| sizes[j]).sum::<f64>();
+        let share = FILL_SHARE * remaining * sizes[i] / rest;
+        // Rounds of replicas this share affords at the configured sweeps.
+        let afford = (share / (rate * sizes[i] * cost_per_sweep)).max(rounds(base.0));
+        // Twice the replicas first (a steadier σ), then longer runs (the lag of the
+        // largest cells falls with the sweeps), then up to 8 times the replicas.
+        let (double, most) = (rounds(base.0 * 2), rounds(base.0 * 8));
+        let longer = (afford / double).clamp(1.0, 20_000.0 / base.1 as f64);
+        let cell_rounds = (afford / longer).min(most).floor().max(1.0);
+        let mut this = sample.clone();
+        this.replicas = (cell_rounds as usize * threads).max(base.0);
+        if longer >= 1.25 {
+            this.sweeps = (base.1 as f64 * longer) as usize;
+            this.equilibration = (sample.equilibration as f64 * longer) as usize;
+        }
+        match build(cells).and_then(|m| run(cells, &m, &this)) {
+            Ok(s) => {
+                let e = &s.sampled;
+                let pace = e.estimate.seconds
+                    / (sizes[i]
+                        * rounds(e.replicas)
+                        * (e.sweeps as f64 + 2.0 * e.equilibration as f64))
+                        .max(1e-9);
+                // The latest cell is the largest so far: the best guide to the next.
+                rate = pace;
+                let stop = e.interrupted;
+                results.push(s);
+                if stop {
+                    break;
+                }
+            }
+            Err(Error::Interrupted { .. }) => break,
+            Err(e) => return Err(e),
+        }
+    }
+    describe(&results, base, notes);
+    if !skipped.is_empty() {
+        notes.push(format!(
+            "Monte Carlo: {} left out: the budget ran out",
+            skipped.join(", ")
+        ));
+    }
+    if interrupt.raised() {
+        interrupted_note(notes, results.len());
+    }
+    let extrapolated = extrapolate_cells(&results, notes);
+    Ok((results, extrapolated))
+}
+
+/// The note on what the Monte Carlo ran.
+fn describe(results: &[SampledCell], base: (usize, usize), notes: &mut Vec<String>) {
+    let Some(s0) = results.first().map(|r| &r.sampled) else {
+        return;
+    };
+    let extended: Vec<&str> = results
+        .iter()
+        .filter(|r| r.sampled.extensions > 0)
+        .map(|r| r.cells.as_str())
+        .collect();
+    let failed: Vec<&str> = results
+        .iter()
+        .filter(|r| !r.sampled.equilibrated)
+        .map(|r| r.cells.as_str())
+        .collect();
+    let settings: Vec<String> = results
+        .iter()
+        .map(|r| format!("{} × {}", r.sampled.replicas, r.sampled.sweeps))
+        .collect();
+    let raised = results
+        .iter()
+        .any(|r| (r.sampled.replicas, r.sampled.sweeps) != base);
+    notes.push(format!(
+        "Monte Carlo: thermodynamic integration on {} ({} formula units), seed {}, replicas × sweeps per node {}{}; equilibration check (passes up and down) {}{}; `groundcount sample` runs larger cells and longer",
+        cell_list(results),
+        results
+            .iter()
+            .map(|r| format!("{}", r.sampled.estimate.formula_units))
+            .collect::<Vec<_>>()
+            .join(", "),
+        s0.seed,
+        settings.join(", "),
+        if raised {
+            format!(
+                " (raised from the default {} × {} to fill the budget)",
+                base.0, base.1
+            )
+        } else {
+            String::new()
+        },
+        if failed.is_empty() {
+            "passed".to_string()
+        } else {
+            format!(
+                "FAILED on {} (an allowance for the lag is in their σ)",
+                failed.join(", ")
+            )
+        },
+        if extended.is_empty() {
+            String::new()
+        } else {
+            format!(
+                "; {} repeated with more sweeps after a first failed check",
+                extended.join(", ")
+            )
+        }
+    ));
+}
+
+/// The extrapolation of the sampled cells, with a note.
+fn extrapolate_cells(
+    results: &[SampledCell],
+    notes: &mut Vec<String>,
+) -> Option<SizeExtrapolation> {
+    if results.len() < size::MIN_CELLS {
+        notes.push(format!(
+            "Monte Carlo: {} cell{} only, not extrapolated (a fit needs {} so that one degree of freedom tests its form); every Monte Carlo row is a finite torus, whose W is larger than the infinite crystal's; raise the budget",
+            results.len(),
+            if results.len() == 1 { "" } else { "s" },
+            size::MIN_CELLS
+        ));
+        return None;
+    }
+    let points: Vec<size::SizePoint> = results
+        .iter()
+        .map(|r| size::SizePoint {
+            units: r.sampled.estimate.formula_units,
+            value: r.sampled.estimate.ln_w_per_unit,
+            sigma: r.sampled.estimate.sigma_ln_w.unwrap_or(0.0),
+        })
+        .collect();
+    match size::extrapolate(&points) {
+        Ok(fit) => {
+            notes.push(format!(
+                "Monte Carlo: {} cells extrapolated to the infinite crystal by the weighted fit {} (χ² = {:.3} for {} degrees of freedom{}); the other form {} gives ln W = {} per formula unit",
+                results.len(),
+                fit.form(),
+                fit.chi2,
+                fit.dof,
+                if fit.systematic > 0.0 {
+                    format!(
+                        "; the ln N/N term left out, its effect {} in ln W added to σ",
+                        crate::text::sig(fit.systematic, 2)
+                    )
+                } else {
+                    String::new()
+                },
+                fit.alternative_form(),
+                fit.alternative.map_or("—".to_string(), |(v, s)| format!(
+                    "{} ± {}",
+                    crate::text::sig(v, 6),
+                    crate::text::sig(s, 2)
+                ))
+            ));
+            let estimate = fit.estimate(results.iter().map(|r| r.sampled.estimate.seconds).sum());
+            Some(SizeExtrapolation { fit, estimate })
+        }
+        Err(e) => {
+            notes.push(format!("Monte Carlo: no extrapolation ({e})"));
+            None
+        }
+    }
+}
+
+/// Most variables of the cell on which the Wang–Landau walk checks the sampler when no exact
+/// count is at hand (its descent costs of order E_w² visits per level).
+const WANG_LANDAU_MAX_VARIABLES: usize = 600;
+
+/// With no exact count in the run: the one-cell crystal sampled both ways, thermodynamic
+/// integration against a Wang–Landau walk (which shares only the moves), recorded as a
+/// [`CrossCheck`] with the tolerance from both error bars.
+fn wang_landau_check(
+    c: &Crystal,
+    sample: &SampleConfig,
+    build: &dyn Fn(&Cells) -> Result<Model>,
+    run: &dyn Fn(&Cells, &Model, &SampleConfig) -> Result<SampledCell>,
+    notes: &mut Vec<String>,
+    checks: &mut Vec<CrossCheck>,
+) {
+    let cells = Cells::cube(1, c.dimensions);
+    let name = cells.to_string();
+    let model = match build(&cells) {
+        Ok(m) if m.variables.len() <= WANG_LANDAU_MAX_VARIABLES => m,
+        Ok(m) => {
+            notes.push(format!(
+                "Monte Carlo: no cross-check (no exact count in this run, and {name} has {} variables, too many for the Wang–Landau check)",
+                m.variables.len()
+            ));
+            return;
+        }
+        Err(e) => {
+            notes.push(format!("Monte Carlo: no cross-check ({e})"));
+            return;
+        }
+    };
+    let walk_config = sampling::wang_landau::WangLandauConfig {
+        seed: sample.seed,
+        replicas: sample.replicas,
+        sweeps: 20_000,
+        uniform: 20_000,
+        interrupt: sample.interrupt.clone(),
+    };
+    let walk = match sampling::wang_landau::wang_landau(&model, &walk_config) {
+        Ok(w) => w,
+        Err(Error::Interrupted { .. }) => return,
+        Err(e) => {
+            notes.push(format!(
+                "Monte Carlo: no cross-check (no exact count in this run, and the Wang–Landau walk on {name} failed: {e})"
+            ));
+            return;
+        }
+    };
+    let integrated = match run(&cells, &model, sample) {
+        Ok(s) => s,
+        Err(Error::Interrupted { .. }) => return,
+        Err(e) => {
+            notes.push(format!("Monte Carlo: no cross-check on {name} ({e})"));
+            return;
+        }
+    };
+    let (a, b) = (&integrated.sampled.estimate, &walk.estimate);
+    let (sa, sb) = (a.sigma_ln_w.unwrap_or(0.0), b.sigma_ln_w.unwrap_or(0.0));
+    let check = CrossCheck {
+        method: Method::MonteCarlo,
+        route: Route::WangLandau {
+            cells: name.clone(),
+        },
+        value: a.ln_w_per_unit,
+        reference: b.ln_w_per_unit,
+        tolerance: CROSS_CHECK_SIGMAS * sa.hypot(sb),
+    };
+    notes.push(format!(
+        "Monte Carlo cross-check on {name} (no exact count in this run): thermodynamic integration ln W = {} ± {} per formula unit against a Wang–Landau walk {} ± {}; {}. It tests the sampler on a small cell, not the extrapolation to larger cells",
+        crate::text::sig(a.ln_w_per_unit, 6),
+        crate::text::sig(sa, 2),
+        crate::text::sig(b.ln_w_per_unit, 6),
+        crate::text::sig(sb, 2),
+        if check.agrees() {
+            format!("agreement within {CROSS_CHECK_SIGMAS} combined σ")
+        } else {
+            format!(
+                "DISAGREEMENT beyond {CROSS_CHECK_SIGMAS} combined σ: the Monte Carlo values of this run are not to be trusted"
+            )
+        }
+    ));
+    checks.push(check);
+}
+
+/// Tolerance of the Monte Carlo cross-check, in σ of the sampled value: a correct run
+/// misses by more about once in several hundred (σ is widened so that the pull has unit
+/// variance; Student t with 7 degrees of freedom for 8 replicas).
+pub const CROSS_CHECK_SIGMAS: f64 = 4.0;
+
+/// Sample the largest exact cell that has an arrangement with the configured settings and
+/// record the comparison with its exact count.
+fn cross_check(
+    c: &Crystal,
+    sample: &SampleConfig,
+    exact_counts: &[Estimate],
+    build: &dyn Fn(&Cells) -> Result<Model>,
+    run: &dyn Fn(&Cells, &Model, &SampleConfig) -> Result<SampledCell>,
+    notes: &mut Vec<String>,
+    checks: &mut Vec<CrossCheck>,
+) {
+    let Some(exact) = exact_counts
+        .iter()
+        .rev()
+        .find(|e| e.ln_w_per_unit.is_finite() && e.formula_units >= 2.0)
+    else {
+        wang_landau_check(c, sample, build, run, notes, checks);
+        return;
+    };
+    let name = exact.cells.clone().unwrap_or_default();
+    let spelled = name.strip_suffix(" periodic").unwrap_or(&name);
+    let outcome = Cells::parse(spelled, None, c.dimensions)
+        .and_then(|cells| build(&cells).map(|m| (cells, m)))
+        .and_then(|(cells, m)| run(&cells, &m, sample));
+    match outcome {
+        Ok(s) => {
+            let e = &s.sampled.estimate;
+            let sigma = e.sigma_ln_w.unwrap_or(0.0);
+            let check = CrossCheck {
+                method: Method::MonteCarlo,
+                route: Route::ExactCount {
+                    cells: name.clone(),
+                },
+                value: e.ln_w_per_unit,
+                reference: exact.ln_w_per_unit,
+                tolerance: CROSS_CHECK_SIGMAS * sigma,
+            };
+            notes.push(format!(
+                "Monte Carlo cross-check on {name} (sampled with the default settings, {} s): ln W = {} ± {} per formula unit against the exact {}; {}. It tests the sampler (integration, tail, equilibration) on a cell the exact counter reaches, not the extrapolation to larger cells",
+                crate::text::sig(e.seconds, 2),
+                crate::text::sig(e.ln_w_per_unit, 6),
+                crate::text::sig(sigma, 2),
+                crate::text::sig(exact.ln_w_per_unit, 6),
+                if check.agrees() {
+                    format!("agreement within {CROSS_CHECK_SIGMAS}σ")
+                } else {
+                    format!(
+                        "DISAGREEMENT beyond {CROSS_CHECK_SIGMAS}σ ({:.1}σ): the Monte Carlo values of this run are not to be trusted",
+                        (e.ln_w_per_unit - exact.ln_w_per_unit) / sigma.max(f64::MIN_POSITIVE)
+                    )
+                }
+            ));
+            checks.push(check);
+        }
+        Err(Error::Interrupted { .. }) => {}
+        Err(e) => notes.push(format!("Monte Carlo: no cross-check on {name} ({e})")),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Issue 11, item 3: the Monte Carlo cells were chosen by unit cells (cubes n − 3 … n),
+    /// so a 16-water cell got cubes of 128 … 1024 waters and a 46-water cell two cubes. The
+    /// candidates now start at about a hundred formula units, with at least two unit cells
+    /// along every axis, and grow in small steps (near-cubic shapes).
+    #[test]
+    fn issue11_sample_cells_are_chosen_by_formula_units() {
+        for (per_cell, first) in [(4.0, [3, 3, 3]), (16.0, [2, 2, 2]), (46.0, [2, 2, 2])] {
+            let c = sample_candidates(per_cell);
+            assert_eq!(c[0].counts, first, "{per_cell} per cell");
+            let units: Vec<f64> = c.iter().map(|x| x.total() as f64 * per_cell).collect();
+            assert!(units[0] >= SAMPLE_MIN_UNITS && units[0] < 4.0 * SAMPLE_MIN_UNITS);
+            assert!(c.iter().all(|x| x.counts.iter().all(|&n| n >= 2)));
+            // every step grows the cell by at most a half, and never shrinks it
+            assert!(
+                units.windows(2).all(|w| w[1] > w[0] && w[1] <= 1.51 * w[0]),
+                "{units:?}"
+            );
+        }
+        // ice Ih: 3x3x3, 4x3x3, 4x4x3, 4x4x4, ... (108, 144, 192, 256 waters)
+        let ice: Vec<usize> = sample_candidates(4.0)[..4]
+            .iter()
+            .map(|c| 4 * c.total())
+            .collect();
+        assert_eq!(ice, [108, 144, 192, 256]);
+    }
+
+    /// The cells of an extrapolation are spread evenly in ln N between the smallest and the
+    /// chosen largest: first and last kept, increasing, at most `most`.
+    #[test]
+    fn spread_keeps_both_ends_and_spaces_the_rest_in_ln_n() {
+        let sizes: Vec<f64> = sample_candidates(4.0)
+            .iter()
+            .map(|c| 4.0 * c.total() as f64)
+            .collect();
+        for last in 1..20 {
+            let s = spread(&sizes, last, SAMPLE_MAX_CELLS);
+            assert_eq!(s[0], 0);
+            assert_eq!(*s.last().unwrap(), last);
+            assert!(s.len() == (last + 1).min(SAMPLE_MAX_CELLS));
+            assert!(s.windows(2).all(|w| w[1] > w[0]));
+        }
+        // 108 … 864 waters: 108, 192, 320, 500, 864 (ratios 1.6–1.8)
+        let s = spread(&sizes, 9, 5);
+        let picked: Vec<f64> = s.iter().map(|&i| sizes[i]).collect();
+        assert_eq!(picked, [108.0, 192.0, 320.0, 500.0, 864.0]);
+    }
+}
