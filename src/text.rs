@@ -11,7 +11,7 @@
 
 use serde_json::{Value, json};
 
-use crate::counters::pauling;
+use crate::counters::local;
 use crate::crosscheck::{CrossCheck, Route};
 use crate::crystal::Crystal;
 use crate::estimate::Estimate;
@@ -410,7 +410,7 @@ pub fn survey_table(s: &Survey, unit: &str, columns: Columns) -> Table {
                     .as_ref()
                     .is_some_and(|v| same_estimate(v.estimate, e)),
                 checked: (!checks.is_empty()).then(|| checks.iter().all(|c| c.agrees())),
-                not_meaningful: local && pauling::caveat(e).is_some(),
+                not_meaningful: local && local::caveat(e).is_some(),
             }
         })
         .collect();
@@ -536,9 +536,9 @@ pub fn reason_words(s: &Survey, v: &CitedValue<'_>) -> String {
             format!(
                 "{} Monte Carlo cells extrapolated to the infinite crystal ({}, χ² = {} for {} degrees of freedom)",
                 s.sampled_sizes.len(),
-                x.map_or("", |x| x.fit.form()),
-                x.map_or("".into(), |x| sig(x.fit.chi2, 3)),
-                x.map_or(0, |x| x.fit.dof)
+                x.map_or("", |x| x.details.form()),
+                x.map_or("".into(), |x| sig(x.details.chi2, 3)),
+                x.map_or(0, |x| x.details.dof)
             )
         }
         CitedReason::MonteCarloCell => "the largest Monte Carlo cell, not extrapolated: a finite \
@@ -709,7 +709,7 @@ pub fn estimate_json(crystal: &Crystal, e: &Estimate, pauling: Option<&Estimate>
 
 /// Why a local estimate is not meaningful, in words, or `null`.
 fn caveat_json(crystal: &Crystal, e: &Estimate) -> Value {
-    pauling::caveat(e).map_or(Value::Null, |c| {
+    local::caveat(e).map_or(Value::Null, |c| {
         json!(c.explain(&crystal.formula_unit.name))
     })
 }
@@ -769,16 +769,12 @@ mod tests {
     #[test]
     fn issue11_comparison_tables_fit_and_split_uncertainties() {
         use crate::estimate::Method;
-        let e = |method: Method, cells: Option<&str>, units: f64, sigma: Option<f64>| Estimate {
-            method,
-            cells: cells.map(String::from),
-            count: (method == Method::Exact).then(|| num_bigint::BigUint::from(10u32).pow(40)),
-            ln_count: 0.4 * units,
-            formula_units: units,
-            ln_w_per_unit: 0.41,
-            sigma_ln_w: sigma,
-            seconds: 123.456,
-            peak_states: None,
+        let e = |method: Method, cells: Option<&str>, units: f64, sigma: Option<f64>| match cells {
+            Some(c) if method == Method::Exact => {
+                Estimate::exact(c, num_bigint::BigUint::from(10u32).pow(40), units, 123.456)
+            }
+            Some(c) => Estimate::finite(method, c, units, 0.41, sigma, 123.456),
+            None => Estimate::infinite(method, 0.41, sigma, 123.456),
         };
         let rows = vec![
             e(Method::Pauling, None, 4.0, None),

@@ -762,7 +762,7 @@ fn spin_ice_equals_diamond_bond_arrows() {
 
 /// Pauling's W per formula unit and S0 in J/(mol K).
 fn pauling(file: &str) -> (f64, f64) {
-    let e = counters::pauling::estimate(&load(file).crystal).expect("pauling");
+    let e = load(file).pauling().expect("pauling");
     (e.w_per_unit(), e.s_j_per_mol_k())
 }
 

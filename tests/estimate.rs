@@ -1,8 +1,10 @@
 //! The main job, `estimate`: every method side by side, checked against published values.
 
 use groundcount::Lattice;
+use groundcount::context::Context;
 use groundcount::counters::sampling::size;
 use groundcount::crosscheck::{CrossCheck, Route};
+use groundcount::estimate::Estimate;
 use groundcount::estimate::Method;
 use groundcount::estimate::{
     CitedReason, Refusal, SizeExtrapolation, Survey, SurveyConfig, survey,
@@ -314,7 +316,7 @@ fn square_ice_survey() -> (Lattice, Survey) {
         widths: Some((2..=8).collect()),
         ..SurveyConfig::default()
     };
-    let s = survey(&l.crystal, &config).unwrap();
+    let s = survey(&l.crystal, &config, &Context::new()).unwrap();
     (l, s)
 }
 
@@ -458,8 +460,8 @@ fn issue11_a_zero_degree_of_freedom_fit_is_not_cited() {
         dof: 0,
         alternative: None,
     };
-    let estimate = fit.estimate(1.0);
-    s.extrapolated = Some(SizeExtrapolation { fit, estimate });
+    let estimate = Estimate::infinite(Method::MonteCarlo, fit.value, Some(fit.sigma), 1.0);
+    s.extrapolated = Some(SizeExtrapolation::new(estimate, fit));
     let c = s.cited();
     assert!(matches!(c.passed_over[0].why, Refusal::NoDegreesOfFreedom));
     assert_eq!(c.value.unwrap().reason, CitedReason::ExactCell);
@@ -526,7 +528,7 @@ fn issue11_nothing_meaningful_is_nothing_cited() {
         widths: Some(vec![2, 3]),
         ..SurveyConfig::default()
     };
-    let mut s = survey(&l.crystal, &config).unwrap();
+    let mut s = survey(&l.crystal, &config, &Context::new()).unwrap();
     assert!(s.exact.is_empty() && s.strips.is_none());
     assert_eq!(s.cited().value.unwrap().reason, CitedReason::Bethe);
     s.bethe = None;

@@ -5,6 +5,7 @@ use std::path::{Path, PathBuf};
 
 use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
+use groundcount::context::Context;
 use groundcount::counters::sampling::shard::{self, Shard};
 use groundcount::counters::sampling::{self, SampleConfig};
 use groundcount::model::Model;
@@ -35,7 +36,7 @@ fn ice_ih() -> (Lattice, Cells, Model) {
 #[test]
 fn merged_shards_equal_one_run() {
     let (l, cells, model) = ice_ih();
-    let whole = sampling::sample(&model, &config(9)).unwrap();
+    let whole = sampling::count(&model, &config(9), &Context::new()).unwrap();
     let parts: Vec<(PathBuf, Shard)> = [2, 3, 1]
         .iter()
         .map(|&k| {
@@ -46,7 +47,7 @@ fn merged_shards_equal_one_run() {
                 &model,
                 &config(3),
                 (k, 3),
-                &|| {},
+                &Context::new(),
             )
             .unwrap();
             let path = PathBuf::from(format!("part{k}.json"));

@@ -3,6 +3,7 @@
 
 use groundcount::Lattice;
 use groundcount::cluster::Cells;
+use groundcount::context::{Context, Progress};
 use groundcount::counters::extrapolate::Scaling;
 use groundcount::counters::transfer::{self, Column, Sectors, StripConfig, torus};
 
@@ -12,10 +13,28 @@ fn load(name: &str) -> Lattice {
     Lattice::from_file(&lattice(name)).unwrap()
 }
 
+/// Every width of `widths`, extrapolated with the given spacing and scaling (the
+/// strips' counter with these widths in its settings).
+fn series(
+    c: &groundcount::crystal::Crystal,
+    widths: &[usize],
+    step: Option<usize>,
+    scaling: Scaling,
+    config: &StripConfig,
+) -> groundcount::Result<groundcount::counters::Counted<transfer::StripSeries>> {
+    let config = StripConfig {
+        widths: widths.to_vec(),
+        step,
+        scaling,
+        ..config.clone()
+    };
+    transfer::count(c, &config, &Context::new())
+}
+
 /// Extrapolate widths and check that the error bar covers the published value and is small.
 fn check(name: &str, widths: &[usize], step: usize, published: f64, largest_sigma: f64) {
     let l = load(name);
-    let s = transfer::series(
+    let s = series(
         &l.crystal,
         widths,
         Some(step),
@@ -634,7 +653,7 @@ fn open_strips_extrapolate_with_their_edge_term() {
             ..Default::default()
         };
         let widths: Vec<usize> = widths.collect();
-        let s = transfer::series(&l.crystal, &widths, Some(1), Scaling::Auto, &config).unwrap();
+        let s = series(&l.crystal, &widths, Some(1), Scaling::Auto, &config).unwrap();
         let x = &s.extrapolation;
         assert_eq!(x.exponent, 1, "{name}");
         assert!(x.noise > 0.0);
@@ -764,7 +783,7 @@ fn issue11_honeycomb_dimers_keep_the_sector_of_the_largest_eigenvalue() {
 fn issue11_honeycomb_dimers_approach_kasteleyn() {
     let l = load("honeycomb-dimers.yaml");
     let widths: Vec<usize> = (2..=13).collect();
-    let s = transfer::series(
+    let s = series(
         &l.crystal,
         &widths,
         None,
@@ -789,7 +808,7 @@ fn issue11_honeycomb_dimers_approach_kasteleyn() {
             .any(|c| matches!(c.route, groundcount::crosscheck::Route::FullSpace { .. }))
     );
     // With every state kept (no sector at all) the same families and the same limit.
-    let full = transfer::series(
+    let full = series(
         &l.crystal,
         &(2..=11).collect::<Vec<_>>(),
         None,
@@ -913,7 +932,7 @@ fn issue11_four_colourings_find_their_period_or_refuse() {
     assert!(sigma < 0.02, "{sigma}");
     // The multiples of 3 alone (one family) pin it down further: 3, 6, 9, 12.
     let l = load("triangular-4-colourings.yaml");
-    let s = transfer::series(
+    let s = series(
         &l.crystal,
         &[3, 6, 9, 12],
         Some(3),
@@ -982,21 +1001,20 @@ fn issue11_strip_keeps_its_finished_widths_past_the_state_budget() {
 #[test]
 fn issue11_an_interrupt_keeps_the_finished_widths() {
     let l = load("square-ice.yaml");
-    let config = StripConfig::default();
-    let interrupt = config.interrupt.clone();
-    let run = transfer::run(
-        &l.crystal,
-        &(2..=12).collect::<Vec<_>>(),
-        None,
-        Scaling::Auto,
-        &config,
-        &|w| {
-            if w == 9 {
-                interrupt.raise();
+    let config = StripConfig {
+        widths: (2..=12).collect(),
+        ..Default::default()
+    };
+    let interrupt = groundcount::context::Interrupt::new();
+    let raised = interrupt.clone();
+    let context = Context::new()
+        .with_interrupt(interrupt)
+        .with_observer(move |p| {
+            if *p == (Progress::Width { width: 9 }) {
+                raised.raise();
             }
-        },
-    )
-    .unwrap();
+        });
+    let run = transfer::run(&l.crystal, &config, &context).unwrap();
     let stop = run.stopped.expect("interrupted");
     assert_eq!(stop.width, 9);
     assert!(matches!(stop.error, groundcount::Error::Interrupted { .. }));
@@ -1016,7 +1034,7 @@ fn issue11_the_survey_records_its_strip_cross_checks() {
         max_exact_units: Some(50.0),
         ..Default::default()
     };
-    let s = survey(&l.crystal, &config).unwrap();
+    let s = survey(&l.crystal, &config, &Context::new()).unwrap();
     let kinds = |f: fn(&Route) -> bool| s.checks.iter().filter(|c| f(&c.route)).count();
     assert!(kinds(|r| matches!(r, Route::FullSpace { .. })) >= 1);
     assert!(kinds(|r| matches!(r, Route::TorusTrace { .. })) >= 1);

@@ -5,7 +5,7 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::counters::{exact, pauling};
+use groundcount::counters::{exact, local};
 use groundcount::estimate::Method;
 use groundcount::estimate::{Survey, SurveyConfig, survey};
 use groundcount::text::{self, Columns};
@@ -32,16 +32,13 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     super::check_budget(args.budget)?;
     let lattice = load(args.file.as_deref())?;
     let c = &lattice.crystal;
-    let (observer, bars) = args.common.survey_progress();
-    let mut config = SurveyConfig {
+    let (context, bars) = args.common.survey_progress();
+    let config = SurveyConfig {
         budget: args.budget,
         max_states: args.max_states,
-        observer,
-        interrupt: super::interrupt(),
         ..SurveyConfig::default()
     };
-    config.sample.interrupt = config.interrupt.clone();
-    let result = with_threads(args.common.threads, || survey(c, &config))?;
+    let result = with_threads(args.common.threads, || survey(c, &config, &context))?;
     bars.finish();
     let s = result?;
     if s.interrupted {
@@ -85,9 +82,9 @@ fn render(
                 "monte_carlo_infinite": s.extrapolated.as_ref().map(|x| {
                     let mut v = text::estimate_json(c, &x.estimate, Some(p));
                     v["fit"] = json!({
-                        "form": x.fit.form(),
-                        "chi2": x.fit.chi2,
-                        "dof": x.fit.dof,
+                        "form": x.details.form(),
+                        "chi2": x.details.chi2,
+                        "dof": x.details.dof,
                     });
                     v
                 }),
@@ -155,7 +152,7 @@ fn below_table(s: &Survey, unit: &str) -> Vec<String> {
         .map(|c| text::check_failure(c, unit))
         .collect();
     for e in [Some(&s.pauling), s.bethe.as_ref()].into_iter().flatten() {
-        if let Some(caveat) = pauling::caveat(e) {
+        if let Some(caveat) = local::caveat(e) {
             lines.push(format!(
                 "* {}: {}{}",
                 text::method_label(e),

@@ -3,9 +3,9 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::cluster::{Cells, Cluster};
+use groundcount::cluster::Cluster;
+use groundcount::counters::exact;
 use groundcount::counters::transfer::torus;
-use groundcount::counters::{exact, pauling};
 use groundcount::model::Model;
 use groundcount::text::{self, sig};
 
@@ -48,7 +48,7 @@ pub struct Args {
 pub fn run(args: Args) -> anyhow::Result<String> {
     let lattice = load(Some(&args.file))?;
     let c = &lattice.crystal;
-    let cells = Cells::parse(&args.cells, args.open.as_deref(), c.dimensions)?;
+    let cells = super::words::cells("--cells", &args.cells, args.open.as_deref(), c.dimensions)?;
     // A cell whose every sweep keeps more cells open than the frontier's 63 bits can hold
     // is refused before it is built (building 2000x2000 alone takes minutes and gigabytes).
     if let Some(open) = groundcount::cluster::frontier_cells_lower_bound(c, &cells)
@@ -66,17 +66,15 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         }
         .into());
     }
-    let p = pauling::estimate(c)?;
+    let p = super::pauling(c)?;
     let cluster = Cluster::new(c, cells.clone())?;
     let model = Model::new(&cluster)?;
-    let (progress, bar) = args
+    let (context, bar) = args
         .common
         .exact_progress(&format!("counting {}", model.cells));
     let config = exact::ExactConfig {
         max_states: args.max_states,
-        deadline: None,
-        progress,
-        interrupt: super::interrupt(),
+        ..Default::default()
     };
     // A torus may be cheaper as the trace of T^L: compare the predicted work of both
     // routes (the trace's column is tried with a small state budget only).
@@ -91,7 +89,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     };
     let e = with_threads(args.common.threads, || match &trace {
         Some(r) => r.count(model.formula_units, &model.cells),
-        None => exact::count(&model, &config),
+        None => exact::count(&model, &config, &context).map(|e| e.estimate),
     });
     if let Some(b) = bar {
         b.finish_and_clear();

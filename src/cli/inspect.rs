@@ -4,7 +4,7 @@ use std::fmt::Write;
 use std::path::PathBuf;
 
 use groundcount::cluster::{Cells, Cluster};
-use groundcount::counters::pauling;
+use groundcount::counters::local;
 use groundcount::crystal::Target;
 use groundcount::text::{self, sig};
 use serde_json::json;
@@ -24,7 +24,7 @@ pub struct Args {
 pub fn run(args: Args) -> anyhow::Result<String> {
     let lattice = load(args.file.as_deref())?;
     let c = &lattice.crystal;
-    let p = pauling::estimate(c)?;
+    let p = super::pauling(c)?;
     // Coordination from a cluster large enough to show every bond whole.
     let n = (2 * c.reach() + 1).max(3) as usize;
     let cluster = Cluster::new(c, Cells::cube(n, c.dimensions))?;
@@ -60,7 +60,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             "groups": c.groups.iter().map(|g| json!({"id": g.id, "members": g.members.len()})).collect::<Vec<_>>(),
             "rules": c.rules.iter().map(|r| json!({"rule": r.label, "instances_per_cell": r.instances.len()})).collect::<Vec<_>>(),
             "formula_unit": {"name": unit, "per_cell": units_per_cell},
-            "pauling": {"w_per_unit": p.w_per_unit(), "s_over_r": p.s_over_r(), "s_j_per_mol_k": p.s_j_per_mol_k(), "not_meaningful": pauling::caveat(&p).map(|k| k.explain(unit))},
+            "pauling": {"w_per_unit": p.w_per_unit(), "s_over_r": p.s_over_r(), "s_j_per_mol_k": p.s_j_per_mol_k(), "not_meaningful": local::caveat(&p).map(|k| k.explain(unit))},
         });
         return Ok(serde_json::to_string_pretty(&v)? + "\n");
     }
@@ -98,7 +98,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             ),
             (
                 "Pauling meaningful".into(),
-                if pauling::caveat(&p).is_some() {
+                if local::caveat(&p).is_some() {
                     "no"
                 } else {
                     "yes"
@@ -226,7 +226,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         sig(p.s_over_r(), 8),
         sig(p.s_j_per_mol_k(), 6)
     )?;
-    if let Some(caveat) = pauling::caveat(&p) {
+    if let Some(caveat) = local::caveat(&p) {
         writeln!(
             out,
             "Not meaningful for this rule: {}. `groundcount estimate` shows the Bethe \

@@ -5,7 +5,6 @@ use std::fmt::Write;
 use std::path::PathBuf;
 
 use groundcount::calorimetry::ThirdLaw;
-use groundcount::cluster::Cells;
 use groundcount::counters::exact;
 use groundcount::estimate::{SurveyConfig, survey};
 use groundcount::report::{Comparison, Meta, Report, Sentence};
@@ -93,7 +92,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         None => None,
     };
     let sample_cells = match &args.sample_cells {
-        Some(s) => Some(Cells::parse(s, None, c.dimensions)?),
+        Some(s) => Some(super::words::cells(
+            "--sample-cells",
+            s,
+            None,
+            c.dimensions,
+        )?),
         None => None,
     };
     let mut config = SurveyConfig {
@@ -138,11 +142,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     // The output is checked, and a fresh directory made beside it, before anything is
     // computed: an unwritable place is found at once, not after the run.
     let staging = Staging::new(&args.out)?;
-    let (observer, bars) = args.common.survey_progress();
-    config.observer = observer;
-    config.interrupt = super::interrupt();
-    config.sample.interrupt = config.interrupt.clone();
-    let result = with_threads(args.common.threads, || survey(c, &config));
+    let (context, bars) = args.common.survey_progress();
+    let result = with_threads(args.common.threads, || survey(c, &config, &context));
     bars.finish();
     let s = match result.and_then(|r| r.map_err(anyhow::Error::from)) {
         Ok(s) => s,

@@ -8,7 +8,8 @@ use std::path::PathBuf;
 
 use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
-use groundcount::counters::pauling;
+use groundcount::context::Context;
+use groundcount::counters::Counted;
 use groundcount::counters::sampling::{self, Sampled, shard, size, wang_landau};
 use groundcount::model::Model;
 use groundcount::text::{self, sig};
@@ -86,8 +87,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let sizes: Vec<Cells> = args
         .cells
         .split(',')
-        .map(|t| Cells::parse(t.trim(), None, c.dimensions))
-        .collect::<Result<_, _>>()?;
+        .map(|t| super::words::cells("--cells", t.trim(), None, c.dimensions))
+        .collect::<anyhow::Result<_>>()?;
     if let Some(t) = args.target_error
         && !(t > 0.0 && t.is_finite())
     {
@@ -108,8 +109,6 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         target_error: args.target_error,
         max_replicas: args.max_replicas,
         max_extensions: args.max_extensions,
-        deadline: None,
-        interrupt: super::interrupt(),
     };
     let shown = Shown {
         file: args.file.display().to_string(),
@@ -129,7 +128,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     }
     let mut results = Vec::new();
     for cells in &sizes {
-        if config.interrupt.raised() {
+        if super::interrupt().raised() {
             break;
         }
         let cluster = Cluster::new(c, cells.clone())?;
@@ -210,22 +209,16 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
         replicas: args.replicas,
         sweeps: args.sweeps.unwrap_or(100_000) as u64,
         uniform: args.uniform,
-        interrupt: super::interrupt(),
     };
-    let bar = replica_bar(args.common.progress(), &model, config.replicas);
-    let on_replica = || {
-        if let Some(b) = &bar {
-            b.inc(1);
-        }
-    };
+    let (context, bar) = args.common.replica_progress(&model, config.replicas);
     let w = with_threads(args.common.threads, || {
-        wang_landau::wang_landau_with(&model, &config, &on_replica)
+        wang_landau::count(&model, &config, &context)
     });
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
     let w = w??;
-    let p = pauling::estimate(c)?;
+    let p = super::pauling(c)?;
     let e = &w.estimate;
     let unit = &c.formula_unit.name;
     match args.common.format {
@@ -306,42 +299,13 @@ fn sample_one(
     common: &Common,
     model: &Model,
     config: &sampling::SampleConfig,
-) -> anyhow::Result<Sampled> {
-    let progress = common.progress();
-    let bar = replica_bar(progress, model, config.replicas);
-    let on_replica = || {
-        if let Some(b) = &bar {
-            b.inc(1);
-        }
-    };
-    let s = with_threads(common.threads, || {
-        sampling::sample_with(model, config, &on_replica)
-    })??;
+) -> anyhow::Result<Counted<Sampled>> {
+    let (context, bar) = common.replica_progress(model, config.replicas);
+    let s = with_threads(common.threads, || sampling::count(model, config, &context))??;
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
     Ok(s)
-}
-
-/// A progress bar over replicas on standard error, when progress is wanted.
-fn replica_bar(progress: bool, model: &Model, replicas: usize) -> Option<indicatif::ProgressBar> {
-    if !progress {
-        return None;
-    }
-    let bar = indicatif::ProgressBar::new(replicas as u64);
-    bar.set_style(
-        indicatif::ProgressStyle::with_template(
-            "{prefix} [{bar:30}] {pos}/{len} replicas, ETA {eta}",
-        )
-        .expect("valid template")
-        .progress_chars("=> "),
-    );
-    bar.set_prefix(format!(
-        "sampling {} ({} variables)",
-        model.cells,
-        model.variables.len()
-    ));
-    Some(bar)
 }
 
 /// Run one shard and write its file.
@@ -361,12 +325,7 @@ fn run_shard(
     }
     let cluster = Cluster::new(&lattice.crystal, cells.clone())?;
     let model = Model::new(&cluster)?;
-    let bar = replica_bar(args.common.progress(), &model, config.replicas);
-    let on_replica = || {
-        if let Some(b) = &bar {
-            b.inc(1);
-        }
-    };
+    let (context, bar) = args.common.replica_progress(&model, config.replicas);
     let (part, s) = with_threads(args.common.threads, || {
         shard::run_shard(
             lattice,
@@ -375,7 +334,7 @@ fn run_shard(
             &model,
             config,
             (k, n),
-            &on_replica,
+            &context,
         )
     })??;
     if let Some(b) = &bar {
@@ -404,11 +363,11 @@ pub(super) fn render(
     lattice: &Lattice,
     shown: &Shown,
     model: &Model,
-    s: &Sampled,
+    s: &Counted<Sampled>,
     merged: Option<(&[usize], usize)>,
 ) -> anyhow::Result<String> {
     let c = &lattice.crystal;
-    let p = pauling::estimate(c)?;
+    let p = super::pauling(c)?;
     let e = &s.estimate;
     let unit = &c.formula_unit.name;
     match format {
@@ -473,7 +432,7 @@ fn pm(x: f64, s: Option<f64>) -> String {
 }
 
 /// The error budget and run lines under a sampled result.
-fn diagnostics(s: &Sampled, shown: &Shown) -> String {
+fn diagnostics(s: &Counted<Sampled>, shown: &Shown) -> String {
     let unit_free = |x: f64| sig(x, 2);
     let mut out = String::new();
     let _ = writeln!(
@@ -573,9 +532,14 @@ pub(super) fn equilibration_line(s: &Sampled) -> String {
 }
 
 /// The JSON document of one sampled cell.
-fn sampled_json(lattice: &Lattice, model: &Model, s: &Sampled, shown: &Shown) -> serde_json::Value {
+fn sampled_json(
+    lattice: &Lattice,
+    model: &Model,
+    s: &Counted<Sampled>,
+    shown: &Shown,
+) -> serde_json::Value {
     let c = &lattice.crystal;
-    let p = pauling::estimate(c).ok();
+    let p = super::pauling(c).ok();
     let mut v = text::estimate_json(c, &s.estimate, p.as_ref());
     v["algorithm"] = "thermodynamic-integration".into();
     v["seed"] = s.seed.into();
@@ -611,22 +575,16 @@ fn render_sizes(
     format: Format,
     lattice: &Lattice,
     shown: &Shown,
-    results: &[(Model, Sampled)],
+    results: &[(Model, Counted<Sampled>)],
 ) -> anyhow::Result<String> {
     let c = &lattice.crystal;
     let unit = &c.formula_unit.name;
-    let points: Vec<size::SizePoint> = results
-        .iter()
-        .map(|(_, s)| size::SizePoint {
-            units: s.estimate.formula_units,
-            value: s.estimate.ln_w_per_unit,
-            sigma: s.estimate.sigma_ln_w.unwrap_or(0.0),
-        })
-        .collect();
-    let fit = size::extrapolate(&points);
-    let seconds: f64 = results.iter().map(|(_, s)| s.estimate.seconds).sum();
-    let infinite = fit.as_ref().ok().map(|f| f.estimate(seconds));
-    let p = pauling::estimate(c)?;
+    let estimates: Vec<groundcount::Estimate> =
+        results.iter().map(|(_, s)| s.estimate.clone()).collect();
+    let extrapolated = size::count(&estimates, &(), &Context::new());
+    let fit = extrapolated.as_ref().map(|x| &x.details);
+    let infinite = extrapolated.as_ref().ok().map(|x| x.estimate.clone());
+    let p = super::pauling(c)?;
     let mut rows = vec![p.clone()];
     rows.extend(results.iter().map(|(_, s)| s.estimate.clone()));
     rows.extend(infinite.iter().cloned());

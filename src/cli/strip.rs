@@ -6,6 +6,7 @@ use std::path::{Path, PathBuf};
 
 use clap::ValueEnum;
 use groundcount::Error;
+use groundcount::context::{Context, Progress};
 use groundcount::counters::extrapolate::Scaling;
 use groundcount::counters::transfer::{self, SectorBasis, Sectors, StripConfig};
 use groundcount::crosscheck::{CrossCheck, Route};
@@ -177,6 +178,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             c.dimensions
         );
     }
+    let scaling = match args.scaling {
+        ScalingArg::Auto => Scaling::Auto,
+        ScalingArg::Critical => Scaling::Critical,
+        ScalingArg::Gapped => Scaling::Gapped,
+    };
+    // A step above 1 is the user's spacing (and the families' period); with 1 the spacing
+    // is chosen from the values, as `estimate` does.
+    let step = (args.step > 1).then_some(args.step);
     let config = StripConfig {
         along: match args.along {
             Axis::A => 0,
@@ -191,13 +200,10 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             SectorsArg::Largest => Sectors::Largest,
             SectorsArg::Full => Sectors::Full,
         },
-        interrupt: super::interrupt(),
+        widths: widths.clone(),
+        step,
+        scaling,
         ..Default::default()
-    };
-    let scaling = match args.scaling {
-        ScalingArg::Auto => Scaling::Auto,
-        ScalingArg::Critical => Scaling::Critical,
-        ScalingArg::Gapped => Scaling::Gapped,
     };
     // Progress in units of a rough cost model, 2^W per width (the state counts of the
     // shipped lattices grow like 1.6^W to 2^W), so that the ETA is not far off.
@@ -214,21 +220,19 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         );
         b
     });
-    let done = std::sync::Mutex::new(0.0f64);
-    let on_width = |w: usize| {
-        let mut d = done.lock().expect("progress counter");
-        if let Some(b) = &bar {
-            b.set_position((1000.0 * *d / total) as u64);
-            b.set_message(format!("cylinder of width {w}"));
-        }
-        *d += cost(w);
-    };
-    // A step above 1 is the user's spacing (and the families' period); with 1 the spacing
-    // is chosen from the values, as `estimate` does.
-    let step = (args.step > 1).then_some(args.step);
-    let outcome = with_threads(args.common.threads, || {
-        transfer::run(c, &widths, step, scaling, &config, &on_width)
-    });
+    let mut context = Context::new().with_interrupt(super::interrupt());
+    if let Some(b) = bar.clone() {
+        let done = std::sync::Mutex::new(0.0f64);
+        context = context.with_observer(move |p| {
+            if let Progress::Width { width } = p {
+                let mut d = done.lock().expect("progress counter");
+                b.set_position((1000.0 * *d / total) as u64);
+                b.set_message(format!("cylinder of width {width}"));
+                *d += cost(*width);
+            }
+        });
+    }
+    let outcome = with_threads(args.common.threads, || transfer::run(c, &config, &context));
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
@@ -332,7 +336,7 @@ fn stop_reason(stop: &transfer::Stopped) -> String {
         Error::Deadline { .. } => format!("width {w} ran out of time{need}"),
         Error::Interrupted { .. } => format!("interrupted during width {w}"),
         Error::NotConverged { .. } => format!("width {w}: {}; raise --max-iterations", stop.error),
-        other => format!("width {w}: {other}"),
+        other => format!("width {w}: {}", super::words::error(other)),
     }
 }
 
@@ -827,16 +831,11 @@ mod tests {
     fn a_failed_cross_check_withholds_the_value() {
         let path = format!("{}/lattices/hard-squares.yaml", env!("CARGO_MANIFEST_DIR"));
         let lattice = groundcount::Lattice::from_file(Path::new(&path)).unwrap();
-        let config = StripConfig::default();
-        let mut run = transfer::run(
-            &lattice.crystal,
-            &[2, 3, 4, 5, 6, 7],
-            None,
-            Scaling::Auto,
-            &config,
-            &|_| {},
-        )
-        .unwrap();
+        let config = StripConfig {
+            widths: vec![2, 3, 4, 5, 6, 7],
+            ..Default::default()
+        };
+        let mut run = transfer::run(&lattice.crystal, &config, &Context::new()).unwrap();
         let section = Section::of(2, 0, None);
         let file = Path::new(&path);
         let fine = render(Format::Table, file, &lattice, &config, &section, &run).unwrap();

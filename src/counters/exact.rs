@@ -24,8 +24,9 @@
 //!
 //! # Arguments and returns
 //!
-//! [`count`] takes a model and an [`ExactConfig`] (state budget, deadline) and returns an
-//! [`Estimate`] with `count` set.
+//! [`count`] takes a model, an [`ExactConfig`] (the state budget) and the [`Context`]
+//! (deadline, interrupt, progress observer told every step) and returns an [`Estimate`]
+//! with `count` set.
 //!
 //! # Complexity
 //!
@@ -41,8 +42,10 @@ use num_bigint::BigUint;
 use rayon::prelude::*;
 
 use super::order::{self, Plan, width};
+use super::{Context, Counted};
+use crate::context::Progress;
 use crate::error::{Error, Result};
-use crate::estimate::{Estimate, Method, ln_big};
+use crate::estimate::Estimate;
 use crate::model::Model;
 
 /// Limits of an exact count.
@@ -50,11 +53,17 @@ use crate::model::Model;
 pub struct ExactConfig {
     /// Largest number of frontier states allowed at once.
     pub max_states: usize,
-    /// Stop with [`Error::Deadline`] after this instant.
+    /// Filled from the [`Context`] by [`count`] (whatever is set here is replaced): stop
+    /// with [`Error::Deadline`] after this instant.
+    #[doc(hidden)]
     pub deadline: Option<Instant>,
-    /// Told after every step: (steps done, steps in all, frontier states).
+    /// Filled from the [`Context`] by [`count`]: told after every step (steps done, steps
+    /// in all, frontier states).
+    #[doc(hidden)]
     pub progress: Option<ProgressHook>,
-    /// Stop with [`Error::Interrupted`] once raised.
+    /// Filled from the [`Context`] by [`count`]: stop with [`Error::Interrupted`] once
+    /// raised.
+    #[doc(hidden)]
     pub interrupt: crate::context::Interrupt,
 }
 
@@ -203,19 +212,46 @@ enum Failure {
     Stop(Error),
 }
 
-/// Count the model exactly.
-pub fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
+/// Count the model exactly: the number of assignments that satisfy every constraint.
+///
+/// The context's deadline and interrupt are checked after every step
+/// ([`Error::Deadline`], [`Error::Interrupted`]); its observer is told every step
+/// ([`Progress::Step`]). More frontier states than `config.max_states` is
+/// [`Error::Budget`].
+///
+/// ```
+/// use groundcount::{Lattice, cluster::{Cells, Cluster}, counters::{exact, Context}, model::Model};
+/// let ice = Lattice::from_yaml(groundcount::ICE_IH_YAML, "ice-ih.yaml").unwrap();
+/// let cluster = Cluster::new(&ice.crystal, Cells::periodic(&[2, 1, 1]).unwrap()).unwrap();
+/// let model = Model::new(&cluster).unwrap();
+/// let e = exact::count(&model, &exact::ExactConfig::default(), &Context::new()).unwrap();
+/// assert_eq!(e.estimate.count.unwrap().to_string(), "114");
+/// ```
+pub fn count(model: &Model, config: &ExactConfig, context: &Context) -> Result<Counted<()>> {
+    let config = &ExactConfig {
+        max_states: config.max_states,
+        deadline: context.deadline,
+        progress: context.observer.clone().map(|o| {
+            ProgressHook(std::sync::Arc::new(move |done, all, states| {
+                (o.0)(&Progress::Step { done, all, states })
+            }))
+        }),
+        interrupt: context.interrupt.clone(),
+    };
+    count_with(model, config).map(Counted::plain)
+}
+
+/// [`count`] with the context's parts already in the configuration.
+fn count_with(model: &Model, config: &ExactConfig) -> Result<Estimate> {
     let start = Instant::now();
-    let finish = |count: BigUint, peak: usize| Estimate {
-        method: Method::Exact,
-        cells: Some(model.cells.clone()),
-        ln_count: ln_big(&count),
-        formula_units: model.formula_units,
-        ln_w_per_unit: ln_big(&count) / model.formula_units,
-        count: Some(count),
-        sigma_ln_w: None,
-        seconds: start.elapsed().as_secs_f64(),
-        peak_states: Some(peak),
+    let finish = |count: BigUint, peak: usize| {
+        Estimate::exact(
+            model.cells.clone(),
+            count,
+            model.formula_units,
+            start.elapsed().as_secs_f64(),
+        )
+        .with_peak_states(Some(peak))
     };
     if model.contradiction.is_some() {
         return Ok(finish(BigUint::from(0u32), 0));
@@ -240,7 +276,7 @@ pub fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
     // Start in u128 unless the count will surely not fit: the Pauling sum is a good guide
     // (overflow is detected exactly in any case, and then the count restarts in big integers).
     let guess_bits =
-        super::pauling::for_model(model) * model.formula_units / std::f64::consts::LN_2;
+        super::local::pauling_ln_w(model) * model.formula_units / std::f64::consts::LN_2;
     // Try the narrowest integer width the guess allows, widening on overflow.
     let widths: [(u32, Runner); 6] = [
         (120, run::<u128>),
@@ -633,7 +669,7 @@ fn run<C: Tally>(
             return Err(Failure::Stop(Error::Budget {
                 cells: model.cells.clone(),
                 detail: format!(
-                    "the frontier reached {n} states at step {} of {} (budget {}, set by --max-states); it could grow to 2^{:.0}",
+                    "the frontier reached {n} states at step {} of {} (budget {}); it could grow to 2^{:.0}",
                     t + 1,
                     plan.order.len(),
                     config.max_states,

@@ -2,7 +2,7 @@
 //! report all use ([`Survey::cited`]).
 
 use super::Survey;
-use crate::counters::pauling;
+use crate::counters::local;
 use crate::crosscheck::CrossCheck;
 use crate::estimate::Estimate;
 
@@ -47,7 +47,7 @@ pub enum Refusal<'a> {
     /// degrees of freedom says nothing about the fit, so the value is not presented.
     NoDegreesOfFreedom,
     /// A local estimate that cannot be a value of W for this rule.
-    NotMeaningful(pauling::Caveat),
+    NotMeaningful(local::Caveat),
 }
 
 /// A candidate for citing that was passed over, and why.
@@ -132,11 +132,14 @@ impl Survey {
             let refusal = if !failed.is_empty() {
                 Some(Refusal::CheckFailed(failed))
             } else if reason == CitedReason::MonteCarloExtrapolated
-                && self.extrapolated.as_ref().is_some_and(|x| x.fit.dof == 0)
+                && self
+                    .extrapolated
+                    .as_ref()
+                    .is_some_and(|x| x.details.dof == 0)
             {
                 Some(Refusal::NoDegreesOfFreedom)
             } else if matches!(reason, CitedReason::Bethe | CitedReason::Pauling) {
-                pauling::caveat(estimate).map(Refusal::NotMeaningful)
+                local::caveat(estimate).map(Refusal::NotMeaningful)
             } else {
                 None
             };

@@ -29,16 +29,17 @@
 //!
 //! This file is the schedule: what runs, in which order, within the time budget.
 
-use std::sync::Arc;
 use std::time::{Duration, Instant};
 
-use super::{SampledCell, SizeExtrapolation, Stage, Survey, SurveyConfig, cell_list};
+use super::{SampledCell, SizeExtrapolation, Survey, SurveyConfig, cell_list};
 use crate::cluster::{Cells, Cluster};
+use crate::context::{Context, Progress};
+use crate::counters::bethe::BetheConfig;
 use crate::counters::extrapolate::Scaling;
 use crate::counters::sampling::size;
 use crate::counters::sampling::{self, SampleConfig};
 use crate::counters::transfer::{self, StripConfig, StripSeries};
-use crate::counters::{bethe, exact, pauling};
+use crate::counters::{Counted, bethe, exact, pauling};
 use crate::crosscheck::{CrossCheck, Route};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
@@ -62,22 +63,18 @@ pub fn cell_sequence(dimensions: usize) -> impl Iterator<Item = Cells> {
 }
 
 /// Run every counter that suits the crystal; see the module documentation.
-pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
+pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<Survey> {
     if !(config.budget.is_finite() && config.budget > 0.0 && config.budget <= 1e7) {
         return Err(Error::Setting(format!(
             "the budget must be a positive number of seconds (at most 1e7), found {}",
             config.budget
         )));
     }
-    let tell = |s: Stage| {
-        if let Some(o) = &config.observer {
-            (o.0)(s)
-        }
-    };
-    let pauling = pauling::estimate(c)?;
+    let tell = |p: Progress| context.tell(p);
+    let pauling = pauling::count(c, &(), context)?.estimate;
     let mut notes = Vec::new();
-    let bethe = match bethe::estimate(c) {
-        Ok(b) => Some(b),
+    let bethe = match bethe::count(c, &BetheConfig::default(), context) {
+        Ok(b) => Some(b.estimate),
         Err(e) => {
             notes.push(format!("Bethe approximation left out: {e}"));
             None
@@ -94,7 +91,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
     let per_cell = c.formula_unit.per_cell(c);
     let mut interrupted = false;
     for cells in cell_sequence(c.dimensions) {
-        if config.interrupt.raised() {
+        if context.interrupt.raised() {
             interrupted = true;
             stopped = "interrupted".into();
             break;
@@ -111,24 +108,18 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
         }
         let cluster = Cluster::new(c, cells.clone())?;
         let model = Model::new(&cluster)?;
-        tell(Stage::Exact(cells.to_string()));
-        let progress = config.observer.as_ref().map(|o| {
-            let o = o.clone();
-            exact::ProgressHook(Arc::new(move |done, all, states| {
-                (o.0)(Stage::ExactStep(done, all, states))
-            }))
+        tell(Progress::Counting {
+            cells: cells.to_string(),
         });
         let exact_config = exact::ExactConfig {
             max_states: config.max_states,
-            deadline: Some(deadline),
-            progress,
-            interrupt: config.interrupt.clone(),
+            ..Default::default()
         };
-        let outcome = exact::count(&model, &exact_config);
-        tell(Stage::ExactDone);
+        let outcome = exact::count(&model, &exact_config, &context.until(deadline));
+        tell(Progress::Counted);
         match outcome {
             Ok(e) => {
-                exact_counts.push(e);
+                exact_counts.push(e.estimate);
                 // No constraint left on a cell too large for repeats: every variable is free
                 // (no rule, or rules that allow everything), and every larger cell gives the
                 // same W per formula unit.
@@ -179,7 +170,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
         3 => "Monte Carlo",
         _ => "",
     };
-    if interrupted || config.interrupt.raised() {
+    if interrupted || context.interrupt.raised() {
         interrupted = true;
         if !stage.is_empty() {
             notes.push(format!("{stage}: not run (interrupted)"));
@@ -188,10 +179,9 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
         let outcome = match c.dimensions {
             2 => strip_series(
                 c,
-                end,
                 config,
+                &context.until(end),
                 &exact_counts,
-                &tell,
                 &mut notes,
                 &mut checks,
             )
@@ -199,9 +189,9 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
             3 => monte_carlo(
                 c,
                 config,
+                context,
                 end,
                 &exact_counts,
-                &tell,
                 &mut notes,
                 &mut checks,
             )
@@ -216,7 +206,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
             }
             Err(e) => return Err(e),
         }
-        interrupted |= config.interrupt.raised();
+        interrupted |= context.interrupt.raised();
     }
     if interrupted {
         notes.push(
@@ -246,25 +236,20 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
 /// that agreed).
 fn strip_series(
     c: &Crystal,
-    end: Instant,
     config: &SurveyConfig,
+    context: &Context,
     exact_counts: &[Estimate],
-    tell: &dyn Fn(Stage),
     notes: &mut Vec<String>,
     checks: &mut Vec<CrossCheck>,
-) -> Result<Option<StripSeries>> {
-    let strip_config = StripConfig {
-        deadline: Some(end),
-        interrupt: config.interrupt.clone(),
-        ..StripConfig::default()
-    };
+) -> Result<Option<Counted<StripSeries>>> {
+    let strip_config = StripConfig::default().with_context(context);
     let widths: Box<dyn Iterator<Item = usize>> = match &config.widths {
         Some(w) => Box::new(w.clone().into_iter()),
         None => Box::new(2..),
     };
     let mut runner = transfer::Runner::new(c, &strip_config);
     for width in widths {
-        tell(Stage::Strip(width));
+        context.tell(Progress::Width { width });
         match runner.width(width) {
             Ok(_) => {}
             Err(Error::Deadline { .. }) => {
@@ -287,7 +272,7 @@ fn strip_series(
                 break;
             }
         }
-        if Instant::now() > end || config.interrupt.raised() {
+        if context.should_stop() {
             break;
         }
     }
@@ -521,23 +506,35 @@ fn spread(candidates: &[f64], last: usize, most: usize) -> Vec<usize> {
 fn monte_carlo(
     c: &Crystal,
     config: &SurveyConfig,
+    context: &Context,
     end: Instant,
     exact_counts: &[Estimate],
-    tell: &dyn Fn(Stage),
     notes: &mut Vec<String>,
     checks: &mut Vec<CrossCheck>,
 ) -> Result<(Vec<SampledCell>, Option<SizeExtrapolation>)> {
-    let interrupt = &config.interrupt;
-    let mut sample = config.sample.clone();
-    sample.interrupt = interrupt.clone();
+    let interrupt = &context.interrupt;
+    let sample = config.sample.clone();
     let build = |cells: &Cells| -> Result<Model> { Model::new(&Cluster::new(c, cells.clone())?) };
-    let run = |cells: &Cells, model: &Model, sample: &SampleConfig| -> Result<SampledCell> {
-        tell(Stage::Sampling(cells.to_string(), model.variables.len()));
+    let run_in = |cells: &Cells,
+                  model: &Model,
+                  sample: &SampleConfig,
+                  context: &Context|
+     -> Result<SampledCell> {
+        context.tell(Progress::Sampling {
+            cells: cells.to_string(),
+            variables: model.variables.len(),
+        });
         Ok(SampledCell {
             cells: cells.to_string(),
-            sampled: sampling::sample(model, sample)?,
+            sampled: sampling::count(model, sample, context)?,
         })
     };
+    // The cross-check and the first cell run to the end; the later cells' repetitions
+    // (equilibration extensions) stop at the end of the budget.
+    let run = |cells: &Cells, model: &Model, sample: &SampleConfig| -> Result<SampledCell> {
+        run_in(cells, model, sample, context)
+    };
+    let bounded = context.until(end);
     let interrupted_note = |notes: &mut Vec<String>, done: usize| {
         notes.push(format!(
             "Monte Carlo: INTERRUPTED; {done} cell{} finished",
@@ -548,7 +545,16 @@ fn monte_carlo(
         interrupted_note(notes, 0);
         return Ok((Vec::new(), None));
     }
-    cross_check(c, &sample, exact_counts, &build, &run, notes, checks);
+    cross_check(
+        c,
+        &sample,
+        context,
+        exact_counts,
+        &build,
+        &run,
+        notes,
+        checks,
+    );
 
     let per_cell = c.formula_unit.per_cell(c);
     let units = |cells: &Cells| cells.total() as f64 * per_cell;
@@ -614,7 +620,6 @@ fn monte_carlo(
         chosen = largest(1.0);
     }
     results.push(first);
-    sample.deadline = Some(end);
     // Each cell still to run gets a share of the time left in proportion to its size; its
     // replicas (up to 8 times the configured number), then its sweeps, are raised to fill
     // that share. The pace is measured again after every cell.
@@ -656,7 +661,7 @@ fn monte_carlo(
             this.sweeps = (base.1 as f64 * longer) as usize;
             this.equilibration = (sample.equilibration as f64 * longer) as usize;
         }
-        match build(cells).and_then(|m| run(cells, &m, &this)) {
+        match build(cells).and_then(|m| run_in(cells, &m, &this, &bounded)) {
             Ok(s) => {
                 let e = &s.sampled;
                 let pace = e.estimate.seconds
@@ -763,16 +768,10 @@ fn extrapolate_cells(
         ));
         return None;
     }
-    let points: Vec<size::SizePoint> = results
-        .iter()
-        .map(|r| size::SizePoint {
-            units: r.sampled.estimate.formula_units,
-            value: r.sampled.estimate.ln_w_per_unit,
-            sigma: r.sampled.estimate.sigma_ln_w.unwrap_or(0.0),
-        })
-        .collect();
-    match size::extrapolate(&points) {
-        Ok(fit) => {
+    let cells: Vec<Estimate> = results.iter().map(|r| r.sampled.estimate.clone()).collect();
+    match size::count(&cells, &(), &Context::new()) {
+        Ok(x) => {
+            let fit = &x.details;
             notes.push(format!(
                 "Monte Carlo: {} cells extrapolated to the infinite crystal by the weighted fit {} (χ² = {:.3} for {} degrees of freedom{}); the other form {} gives ln W = {} per formula unit",
                 results.len(),
@@ -794,8 +793,7 @@ fn extrapolate_cells(
                     crate::text::sig(s, 2)
                 ))
             ));
-            let estimate = fit.estimate(results.iter().map(|r| r.sampled.estimate.seconds).sum());
-            Some(SizeExtrapolation { fit, estimate })
+            Some(x)
         }
         Err(e) => {
             notes.push(format!("Monte Carlo: no extrapolation ({e})"));
@@ -814,6 +812,7 @@ const WANG_LANDAU_MAX_VARIABLES: usize = 600;
 fn wang_landau_check(
     c: &Crystal,
     sample: &SampleConfig,
+    context: &Context,
     build: &dyn Fn(&Cells) -> Result<Model>,
     run: &dyn Fn(&Cells, &Model, &SampleConfig) -> Result<SampledCell>,
     notes: &mut Vec<String>,
@@ -840,9 +839,8 @@ fn wang_landau_check(
         replicas: sample.replicas,
         sweeps: 20_000,
         uniform: 20_000,
-        interrupt: sample.interrupt.clone(),
     };
-    let walk = match sampling::wang_landau::wang_landau(&model, &walk_config) {
+    let walk = match sampling::wang_landau::count(&model, &walk_config, context) {
         Ok(w) => w,
         Err(Error::Interrupted { .. }) => return,
         Err(e) => {
@@ -898,6 +896,7 @@ pub const CROSS_CHECK_SIGMAS: f64 = 4.0;
 fn cross_check(
     c: &Crystal,
     sample: &SampleConfig,
+    context: &Context,
     exact_counts: &[Estimate],
     build: &dyn Fn(&Cells) -> Result<Model>,
     run: &dyn Fn(&Cells, &Model, &SampleConfig) -> Result<SampledCell>,
@@ -909,7 +908,7 @@ fn cross_check(
         .rev()
         .find(|e| e.ln_w_per_unit.is_finite() && e.formula_units >= 2.0)
     else {
-        wang_landau_check(c, sample, build, run, notes, checks);
+        wang_landau_check(c, sample, context, build, run, notes, checks);
         return;
     };
     let name = exact.cells.clone().unwrap_or_default();

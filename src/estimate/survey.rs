@@ -1,39 +1,12 @@
 //! What a survey is given ([`SurveyConfig`]) and what it holds ([`Survey`]).
 
-use std::sync::Arc;
-
 use crate::cluster::Cells;
-use crate::counters::exact;
 use crate::counters::sampling::size::SizeFit;
 use crate::counters::sampling::{SampleConfig, Sampled};
 use crate::counters::transfer::StripSeries;
+use crate::counters::{Counted, exact};
 use crate::crosscheck::CrossCheck;
 use crate::estimate::Estimate;
-
-/// What the survey is doing, for progress displays.
-#[derive(Clone, Debug)]
-pub enum Stage {
-    /// An exact count of this cell begins.
-    Exact(String),
-    /// A step of the current exact count: (steps done, steps in all, frontier states).
-    ExactStep(usize, usize, usize),
-    /// The current exact count ended (counted or stopped).
-    ExactDone,
-    /// The transfer operator of this width is being built and iterated.
-    Strip(usize),
-    /// A Monte Carlo count of this cell with this many variables begins.
-    Sampling(String, usize),
-}
-
-/// A callback told every [`Stage`].
-#[derive(Clone)]
-pub struct Observer(pub Arc<dyn Fn(Stage) + Send + Sync>);
-
-impl std::fmt::Debug for Observer {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str("Observer")
-    }
-}
 
 /// Settings of a survey.
 #[derive(Clone, Debug)]
@@ -51,10 +24,6 @@ pub struct SurveyConfig {
     pub sample_cells: Option<Cells>,
     /// Monte Carlo settings.
     pub sample: SampleConfig,
-    /// Told what is being computed.
-    pub observer: Option<Observer>,
-    /// Once raised, the survey stops what it is doing and returns what it has.
-    pub interrupt: crate::context::Interrupt,
 }
 
 impl Default for SurveyConfig {
@@ -66,8 +35,6 @@ impl Default for SurveyConfig {
             widths: None,
             sample_cells: None,
             sample: SampleConfig::default(),
-            observer: None,
-            interrupt: Default::default(),
         }
     }
 }
@@ -78,7 +45,7 @@ pub struct SampledCell {
     /// The cell, as written ("10x10x10 periodic").
     pub cells: String,
     /// The run.
-    pub sampled: Sampled,
+    pub sampled: Counted<Sampled>,
 }
 
 /// The sampled cells in words: "3x3x3, 4x4x4 and 5x5x5 periodic".
@@ -99,14 +66,9 @@ pub fn cell_list(cells: &[SampledCell]) -> String {
     }
 }
 
-/// Monte Carlo values of several cells extrapolated to the infinite crystal.
-#[derive(Clone, Debug)]
-pub struct SizeExtrapolation {
-    /// The fit s(N) = s∞ + a/N (+ b ln N/N).
-    pub fit: SizeFit,
-    /// s∞ as an estimate of the infinite crystal.
-    pub estimate: Estimate,
-}
+/// Monte Carlo values of several cells extrapolated to the infinite crystal: s∞ as an
+/// estimate, with the fit s(N) = s∞ + a/N (+ b ln N/N) beside it.
+pub type SizeExtrapolation = Counted<SizeFit>;
 
 /// Every estimate a survey made, with its diagnostics.
 #[derive(Clone, Debug)]
@@ -120,7 +82,7 @@ pub struct Survey {
     /// Why the exact counts stopped (empty when they ran to the requested limit).
     pub stopped: String,
     /// Transfer matrices on strips, when they ran and extrapolated.
-    pub strips: Option<StripSeries>,
+    pub strips: Option<Counted<StripSeries>>,
     /// The Monte Carlo count of the largest cell sampled, when it ran.
     pub sampled: Option<SampledCell>,
     /// Every cell sampled, smallest first (the largest is also `sampled`).

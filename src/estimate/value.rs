@@ -40,7 +40,20 @@ impl Method {
 }
 
 /// A count or estimate of the ground-state degeneracy.
-#[derive(Clone, Debug)]
+///
+/// Built by its constructors only: [`Estimate::exact`] for an exact count of a finite cell,
+/// [`Estimate::finite`] for a statistical estimate of a finite cell, [`Estimate::infinite`]
+/// for a value of the infinite crystal.
+///
+/// # `formula_units` and `ln_count`
+///
+/// `ln_count` is ln W × `formula_units`: the logarithm of the number of arrangements of
+/// what the estimate refers to. For a finite cell that is the cell, and `formula_units` is
+/// the number of formula units in it. For the infinite crystal (`cells` is `None`) the value
+/// refers to one formula unit: `formula_units` is 1 and `ln_count` equals `ln_w_per_unit`,
+/// whichever method made it.
+#[derive(Clone, Debug, serde::Serialize)]
+#[serde(into = "EstimateRecord")]
 pub struct Estimate {
     /// How it was made.
     pub method: Method,
@@ -48,9 +61,10 @@ pub struct Estimate {
     pub cells: Option<String>,
     /// The exact number of arrangements, when counted exactly.
     pub count: Option<BigUint>,
-    /// ln of the number of arrangements of the whole cell (or of the estimate for it).
+    /// ln of the number of arrangements of the whole cell (or of the estimate for it); for
+    /// the infinite crystal, of one formula unit.
     pub ln_count: f64,
-    /// Formula units the count refers to.
+    /// Formula units the count refers to: those of the cell, or 1 for the infinite crystal.
     pub formula_units: f64,
     /// ln W per formula unit.
     pub ln_w_per_unit: f64,
@@ -58,11 +72,95 @@ pub struct Estimate {
     pub sigma_ln_w: Option<f64>,
     /// Wall time in seconds.
     pub seconds: f64,
-    /// Largest number of partial states held at once (exact counts).
+    /// Largest number of partial states held at once (exact counts and transfer matrices).
     pub peak_states: Option<usize>,
+    /// Only the constructors make an estimate.
+    _built: (),
 }
 
 impl Estimate {
+    /// The exact count `count` of the finite cell `cells` holding `formula_units` formula
+    /// units, in `seconds`.
+    ///
+    /// ```
+    /// use groundcount::estimate::{Estimate, Method};
+    /// let e = Estimate::exact("3x3 periodic", 148u32.into(), 9.0, 0.001);
+    /// assert_eq!(e.method, Method::Exact);
+    /// assert!((e.w_per_unit() - 148f64.powf(1.0 / 9.0)).abs() < 1e-12);
+    /// ```
+    pub fn exact(
+        cells: impl Into<String>,
+        count: BigUint,
+        formula_units: f64,
+        seconds: f64,
+    ) -> Self {
+        let ln_count = ln_big(&count);
+        Estimate {
+            method: Method::Exact,
+            cells: Some(cells.into()),
+            ln_w_per_unit: ln_count / formula_units,
+            ln_count,
+            count: Some(count),
+            formula_units,
+            sigma_ln_w: None,
+            seconds,
+            peak_states: None,
+            _built: (),
+        }
+    }
+
+    /// An estimate of ln W per formula unit (with its 1σ, if any) of the finite cell `cells`
+    /// holding `formula_units` formula units, made by `method` in `seconds`.
+    pub fn finite(
+        method: Method,
+        cells: impl Into<String>,
+        formula_units: f64,
+        ln_w_per_unit: f64,
+        sigma_ln_w: Option<f64>,
+        seconds: f64,
+    ) -> Self {
+        Estimate {
+            method,
+            cells: Some(cells.into()),
+            count: None,
+            ln_count: ln_w_per_unit * formula_units,
+            formula_units,
+            ln_w_per_unit,
+            sigma_ln_w,
+            seconds,
+            peak_states: None,
+            _built: (),
+        }
+    }
+
+    /// A value of ln W per formula unit (with its 1σ, if any) for the infinite crystal, made
+    /// by `method` in `seconds`; it refers to one formula unit (`formula_units` = 1).
+    pub fn infinite(
+        method: Method,
+        ln_w_per_unit: f64,
+        sigma_ln_w: Option<f64>,
+        seconds: f64,
+    ) -> Self {
+        Estimate {
+            method,
+            cells: None,
+            count: None,
+            ln_count: ln_w_per_unit,
+            formula_units: 1.0,
+            ln_w_per_unit,
+            sigma_ln_w,
+            seconds,
+            peak_states: None,
+            _built: (),
+        }
+    }
+
+    /// The same estimate, recording the largest number of partial states held at once.
+    pub fn with_peak_states(mut self, peak_states: Option<usize>) -> Self {
+        self.peak_states = peak_states;
+        self
+    }
+
     /// W per formula unit.
     pub fn w_per_unit(&self) -> f64 {
         self.ln_w_per_unit.exp()
@@ -82,6 +180,53 @@ impl Estimate {
     /// One standard error of S0 in J/(mol K), when there is one.
     pub fn sigma_s_j_per_mol_k(&self) -> Option<f64> {
         self.sigma_ln_w.map(thermo::molar_entropy)
+    }
+    /// Whether this is a value for the infinite crystal (no finite cell).
+    pub fn is_infinite_crystal(&self) -> bool {
+        self.cells.is_none()
+    }
+    /// Whether this is a local estimate (Pauling's or Bethe's), with no count behind it.
+    pub fn is_local(&self) -> bool {
+        matches!(self.method, Method::Pauling | Method::Bethe)
+    }
+}
+
+/// The JSON form of an [`Estimate`] (see docs/json.md): the quantities a reader wants, W
+/// and S0 with their uncertainties, rather than the fields it is computed from. JSON has
+/// no infinities: a zero count has ln = −∞, written as null (serde_json writes every
+/// non-finite number as null).
+#[derive(serde::Serialize)]
+struct EstimateRecord {
+    method: Method,
+    cells: Option<String>,
+    count: Option<String>,
+    ln_count: f64,
+    formula_units: f64,
+    w_per_unit: f64,
+    w_uncertainty: Option<f64>,
+    s_over_r: f64,
+    s_j_per_mol_k: f64,
+    s_uncertainty: Option<f64>,
+    seconds: f64,
+    peak_states: Option<usize>,
+}
+
+impl From<Estimate> for EstimateRecord {
+    fn from(e: Estimate) -> Self {
+        EstimateRecord {
+            method: e.method,
+            count: e.count.as_ref().map(|c| c.to_string()),
+            ln_count: e.ln_count,
+            formula_units: e.formula_units,
+            w_per_unit: e.w_per_unit(),
+            w_uncertainty: e.sigma_w(),
+            s_over_r: e.s_over_r(),
+            s_j_per_mol_k: e.s_j_per_mol_k(),
+            s_uncertainty: e.sigma_s_j_per_mol_k(),
+            seconds: e.seconds,
+            peak_states: e.peak_states,
+            cells: e.cells,
+        }
     }
 }
 
@@ -115,17 +260,8 @@ mod tests {
 
     #[test]
     fn entropy_follows_from_ln_w() {
-        let e = Estimate {
-            method: Method::Pauling,
-            cells: None,
-            count: None,
-            ln_count: 1.5f64.ln(),
-            formula_units: 1.0,
-            ln_w_per_unit: 1.5f64.ln(),
-            sigma_ln_w: Some(0.01),
-            seconds: 0.0,
-            peak_states: None,
-        };
+        let e = Estimate::infinite(Method::Pauling, 1.5f64.ln(), Some(0.01), 0.0);
+        assert_eq!((e.formula_units, e.ln_count), (1.0, e.ln_w_per_unit));
         // R ln(3/2) = 3.3712 J/(mol K) (Pauling 1935, with R exact in the 2019 SI).
         assert!((e.s_j_per_mol_k() - 3.371_224_484).abs() < 1e-8);
         assert!((e.sigma_w().unwrap() - 0.015).abs() < 1e-12);

@@ -4,7 +4,7 @@
 use std::fmt::Write;
 
 use super::{Report, Sentence};
-use crate::counters::pauling;
+use crate::counters::local;
 use crate::text::{self, Columns, Table, amount, method_label, plus_minus as pm, sig};
 
 /// Render the report.
@@ -85,7 +85,7 @@ fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
         "`units` is the number of formula units ({unit}) in the cell.\n"
     )?;
     for e in [Some(p), s.bethe.as_ref()].into_iter().flatten() {
-        if let Some(caveat) = pauling::caveat(e) {
+        if let Some(caveat) = local::caveat(e) {
             writeln!(
                 o,
                 "\\* {}: {}{}.\n",
@@ -126,7 +126,7 @@ fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
             let local = [Some(p), s.bethe.as_ref()]
                 .into_iter()
                 .flatten()
-                .find(|e| pauling::caveat(e).is_none());
+                .find(|e| local::caveat(e).is_none());
             writeln!(
                 o,
                 "**Cited value** ({}, {}): W = {} per {unit}, S0 = {} J/(mol K) = {} R{}. \
@@ -256,9 +256,9 @@ fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
                  crystal by the weighted fit {} in the number N of formula units (χ² = {} for {} degrees \
                  of freedom; σ scaled by √(χ²/dof) when above 1): W = {} per {unit}.\n",
                 crate::estimate::cell_list(&s.sampled_sizes),
-                x.fit.form(),
-                sig(x.fit.chi2, 3),
-                x.fit.dof,
+                x.details.form(),
+                sig(x.details.chi2, 3),
+                x.details.dof,
                 pm(x.estimate.w_per_unit(), x.estimate.sigma_w(), 8)
             )?;
         }
@@ -311,7 +311,7 @@ fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
             ]);
         }
         t.row(vec![
-            if pauling::caveat(p).is_some() {
+            if local::caveat(p).is_some() {
                 "Pauling (not meaningful: W below 1)".into()
             } else {
                 "Pauling".into()

@@ -21,7 +21,7 @@ mod plots;
 use serde_json::{Value, json};
 
 use crate::Lattice;
-use crate::counters::pauling;
+use crate::counters::local;
 use crate::estimate::Method;
 use crate::estimate::{Cited, CitedReason, CitedValue, Survey};
 use crate::text::{amount, estimate_json, method_label, plus_minus, sig};
@@ -136,7 +136,7 @@ impl<'a> Report<'a> {
             }
             CitedReason::MonteCarloExtrapolated => {
                 let (m, form) = match (&s.sampled, &s.extrapolated) {
-                    (Some(m), Some(x)) => (m, x.fit.form()),
+                    (Some(m), Some(x)) => (m, x.details.form()),
                     _ => return "Monte Carlo thermodynamic integration".into(),
                 };
                 format!(
@@ -215,7 +215,7 @@ impl<'a> Report<'a> {
         };
         let b = v.estimate;
         let p = &self.survey.pauling;
-        let local = match (pauling::caveat(p), &self.survey.bethe) {
+        let local = match (local::caveat(p), &self.survey.bethe) {
             (None, _) => format!(
                 "Pauling's estimate: W = {}, S0 = {} J/(mol K)",
                 sig(p.w_per_unit(), 8),
@@ -295,10 +295,10 @@ impl<'a> Report<'a> {
                     "cells": m.cells,
                     "estimate": estimate_json(c, &m.sampled.estimate, Some(p)),
                 })).collect::<Vec<_>>(),
-                "form": x.fit.form(),
-                "coefficients": x.fit.coefficients,
-                "chi2": x.fit.chi2,
-                "dof": x.fit.dof,
+                "form": x.details.form(),
+                "coefficients": x.details.coefficients,
+                "chi2": x.details.chi2,
+                "dof": x.details.dof,
             })
         });
         let comparison = self.comparison.as_ref().map(|k| {

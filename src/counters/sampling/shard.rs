@@ -36,6 +36,7 @@ use serde::{Deserialize, Serialize};
 use super::{Plan, Run, SampleConfig, Sampled};
 use crate::Lattice;
 use crate::cluster::{Cells, Cluster};
+use crate::counters::{Context, Counted};
 use crate::error::{Error, Result};
 use crate::model::Model;
 
@@ -200,8 +201,6 @@ fn config_of(settings: &Settings) -> SampleConfig {
         target_error: None,
         max_replicas: settings.replicas_per_shard,
         max_extensions: 0,
-        deadline: None,
-        interrupt: Default::default(),
     }
 }
 
@@ -214,8 +213,8 @@ pub fn run_shard(
     model: &Model,
     config: &SampleConfig,
     (shard, shards): (usize, usize),
-    on_replica: &(dyn Fn() + Sync),
-) -> Result<(Shard, Sampled)> {
+    context: &Context,
+) -> Result<(Shard, Counted<Sampled>)> {
     if shards == 0 || shard == 0 || shard > shards {
         return Err(Error::Setting(format!(
             "a shard is K/N with 1 ≤ K ≤ N, not {shard}/{shards}"
@@ -223,7 +222,7 @@ pub fn run_shard(
     }
     if config.target_error.is_some() {
         return Err(Error::Setting(
-            "a shard runs a fixed number of replicas: give --replicas, not --target-error".into(),
+            "a shard runs a fixed number of replicas: set `replicas`, not `target_error`".into(),
         ));
     }
     if cells.periodic[..cells.dimensions].iter().any(|p| !p) {
@@ -243,7 +242,7 @@ pub fn run_shard(
         ..config.clone()
     };
     let plan = Plan::new(model, &config)?;
-    let runs = plan.run(range.clone(), on_replica);
+    let runs = plan.run(range.clone(), context);
     if runs.len() < range.len() {
         return Err(Error::Interrupted {
             what: format!(
@@ -294,7 +293,7 @@ pub struct Merged {
     /// The model of the cell.
     pub model: Model,
     /// The combined estimate (replicas of every shard, in replica order).
-    pub sampled: Sampled,
+    pub sampled: Counted<Sampled>,
     /// The settings of the run.
     pub settings: Settings,
     /// The shard indices merged, sorted.

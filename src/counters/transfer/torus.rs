@@ -35,7 +35,7 @@ use super::{Column, Sectors, StripConfig};
 use crate::cluster::Cells;
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
-use crate::estimate::{Estimate, Method, ln_big};
+use crate::estimate::Estimate;
 
 /// A torus count by the trace route, ready to run.
 #[derive(Debug)]
@@ -95,17 +95,12 @@ impl TorusRoute {
         if formula_units <= 0.0 {
             return Err(Error::Model("the cell holds no formula unit".into()));
         }
-        let ln_count = ln_big(&count);
-        Ok(Estimate {
-            method: Method::Exact,
-            cells: Some(cells.to_string()),
-            ln_count,
+        Ok(Estimate::exact(
+            cells,
+            count,
             formula_units,
-            ln_w_per_unit: ln_count / formula_units,
-            count: Some(count),
-            sigma_ln_w: None,
-            seconds: self.build_seconds + start.elapsed().as_secs_f64(),
-            peak_states: Some(self.column.peak_states()),
-        })
+            self.build_seconds + start.elapsed().as_secs_f64(),
+        )
+        .with_peak_states(Some(self.column.peak_states())))
     }
 }

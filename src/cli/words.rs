@@ -1,0 +1,43 @@
+//! The library's typed errors in the command line's words: which flag to change, which
+//! command to run instead.
+
+use groundcount::Error;
+use groundcount::cluster::{Cells, CellsError};
+
+/// An error of the library as the command line says it.
+pub fn error(e: &Error) -> String {
+    match e {
+        Error::CellSize(c) => cells_error("--cells", c),
+        Error::Budget { .. } => format!(
+            "{e}; try a smaller cell or width, a larger --max-states if memory allows, or a \
+             statistical method (`groundcount sample` for Monte Carlo; `groundcount strip` \
+             for the infinite crystal of a 2D lattice)"
+        ),
+        Error::Sector { why, .. } => format!("{why}; use every state (--sectors full)"),
+        other => other.to_string(),
+    }
+}
+
+/// A cell that cannot be used, naming `flag` (e.g. `--cells`) when the problem is in the
+/// notation given to it, and `--open` for an axis.
+pub fn cells_error(flag: &str, c: &CellsError) -> String {
+    match (c, c.text()) {
+        (CellsError::NoSuchAxis { axis, .. }, _) => format!("--open '{axis}': {}", c.problem()),
+        (_, Some(text)) => format!("{flag} '{text}': {}", c.problem()),
+        (_, None) => c.problem(),
+    }
+}
+
+/// The cell notation given to `flag` (and the open axes of `--open`), read for a crystal of
+/// `dimensions` dimensions; an error names the flag.
+pub fn cells(
+    flag: &str,
+    text: &str,
+    open: Option<&str>,
+    dimensions: usize,
+) -> anyhow::Result<Cells> {
+    Cells::parse(text, open, dimensions).map_err(|e| match e {
+        Error::CellSize(c) => anyhow::anyhow!(cells_error(flag, &c)),
+        other => anyhow::Error::from(other),
+    })
+}
