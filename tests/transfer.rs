@@ -554,7 +554,11 @@ fn issue12_count_exact_and_the_command_take_the_same_route() {
             .as_str()
             .map(str::to_string)
             .unwrap_or_else(|| v["count"].to_string());
-        assert_eq!(printed, library.count.clone().unwrap().to_string(), "{shape}");
+        assert_eq!(
+            printed,
+            library.count.clone().unwrap().to_string(),
+            "{shape}"
+        );
         assert_eq!(library.count, frontier(&l, &cells).count, "{shape}");
     }
 }

@@ -104,7 +104,17 @@ impl<P: Payload> Frontier<P> {
         reversal: bool,
         out: &mut Vec<Piece<A>>,
     ) -> Result<(), Overflow> {
-        let ways = ways(self.len());
+        self.step_in(step, reversal, out, ways(self.len()))
+    }
+
+    /// [`Frontier::step`] with the work split `ways` ways.
+    fn step_in<A: Accumulator<P::Item>>(
+        &mut self,
+        step: &Step,
+        reversal: bool,
+        out: &mut Vec<Piece<A>>,
+        ways: usize,
+    ) -> Result<(), Overflow> {
         let slots = step.streams() * if reversal { 2 } else { 1 };
         // 1. Extend every piece into its streams.
         self.scratch.resize_with(self.pieces.len(), Vec::new);
@@ -294,5 +304,175 @@ mod tests {
         }
         assert_eq!(counts.iter().sum::<u128>(), 21, "F(8)");
         let _ = Forget::Mask(0);
+    }
+
+    /// Whether pieces hold strictly increasing keys over increasing ranges.
+    fn sorted<P>(pieces: &[Piece<P>]) -> bool {
+        let keys: Vec<u64> = pieces.iter().flat_map(|p| p.keys.iter().copied()).collect();
+        keys.windows(2).all(|w| w[0] < w[1])
+    }
+
+    /// The keys of pieces, one after the other.
+    fn keys_of<P>(pieces: &[Piece<P>]) -> Vec<u64> {
+        pieces.iter().flat_map(|p| p.keys.iter().copied()).collect()
+    }
+
+    /// Random constraints over a random sequence of variables, swept in order with either
+    /// packing and with the work split one or three ways: after every step the keys are
+    /// sorted and unique, the counts add up to brute force, and pairing keys with their
+    /// complements gives the representatives of the plain step's keys.
+    #[test]
+    fn random_steps_keep_keys_sorted_and_count_like_brute_force() {
+        use rand::Rng;
+        let mut rng = rand_pcg::Pcg64Mcg::new(12);
+        let mut below = |n: u64| rng.next_u64() % n;
+        for case in 0..60 {
+            let n = 5 + below(6) as usize;
+            let states: Vec<u32> = (0..n).map(|_| 2 + below(3) as u32).collect();
+            // (scope, table bits) with scopes inside windows of four variables.
+            let mut constraints: Vec<(Vec<usize>, Vec<u64>)> = Vec::new();
+            for _ in 0..n + below(4) as usize {
+                let start = below(n as u64 - 1) as usize;
+                let mut scope = vec![start];
+                for _ in 0..1 + below(2) {
+                    let v = (start + 1 + below(3) as usize).min(n - 1);
+                    if !scope.contains(&v) {
+                        scope.push(v);
+                    }
+                }
+                let size: u64 = scope.iter().map(|&v| states[v] as u64).product();
+                let mut bits = vec![0u64; size.div_ceil(64) as usize];
+                for i in 0..size {
+                    if below(10) < 6 {
+                        bits[(i >> 6) as usize] |= 1 << (i & 63);
+                    }
+                }
+                constraints.push((scope, bits));
+            }
+            // Brute force.
+            let total: u64 = states.iter().map(|&q| q as u64).product();
+            let mut expected = 0u128;
+            for a in 0..total {
+                let mut rest = a;
+                let values: Vec<u64> = states
+                    .iter()
+                    .map(|&q| {
+                        let x = rest % q as u64;
+                        rest /= q as u64;
+                        x
+                    })
+                    .collect();
+                let ok = constraints.iter().all(|(scope, bits)| {
+                    let (mut index, mut stride) = (0u64, 1u64);
+                    for &v in scope {
+                        index += values[v] * stride;
+                        stride *= states[v] as u64;
+                    }
+                    check::bit(bits, index)
+                });
+                expected += u128::from(ok);
+            }
+            // The plan of the order 0, 1, …: completions and last uses.
+            let last_of = |c: &(Vec<usize>, Vec<u64>)| *c.0.iter().max().expect("a scope");
+            let mut leaving: Vec<Vec<usize>> = vec![Vec::new(); n];
+            for v in 0..n {
+                let last = constraints
+                    .iter()
+                    .filter(|c| c.0.contains(&v))
+                    .map(last_of)
+                    .max()
+                    .unwrap_or(v);
+                leaving[last].push(v);
+            }
+            for newest in [true, false] {
+                let mut layout = if newest {
+                    Layout::newest()
+                } else {
+                    // A constant field in the way, so that fields land above and below it.
+                    Layout::slots(vec![layout::Field {
+                        var: usize::MAX,
+                        offset: below(4) as u32,
+                        width: 1 + below(3) as u32,
+                    }])
+                };
+                let mut steps = Vec::new();
+                for v in 0..n {
+                    let before = layout.occupied();
+                    let shift = layout.shift(width(states[v]));
+                    let at = layout.add(v, width(states[v])).expect("fits");
+                    let completed: Vec<Completed> = constraints
+                        .iter()
+                        .filter(|c| last_of(c) == v)
+                        .map(|(scope, bits)| Completed {
+                            reads: scope
+                                .iter()
+                                .map(|&u| (layout.field(u).expect("on").offset, states[u]))
+                                .collect(),
+                            table: Arc::from(bits.as_slice()),
+                        })
+                        .collect();
+                    let (gone, forget) = layout.forget(&leaving[v]);
+                    steps.push(Step::new(
+                        before,
+                        shift,
+                        &[(at, states[v])],
+                        &completed,
+                        &gone,
+                        forget,
+                        layout.occupied(),
+                    ));
+                }
+                for split in [1, 3] {
+                    let mut f = Frontier::new(vec![Piece {
+                        keys: vec![0],
+                        payload: vec![1u128],
+                    }]);
+                    for s in &steps {
+                        // Keys only, from the frontier cut in three pieces: paired with
+                        // their complements they are the representatives of the plain keys.
+                        let keys = keys_of(&f.pieces);
+                        let third = keys.len().div_ceil(3).max(1);
+                        let cut = || -> Vec<Piece<Keys>> {
+                            keys.chunks(third)
+                                .map(|c| Piece {
+                                    keys: c.to_vec(),
+                                    payload: Keys,
+                                })
+                                .collect()
+                        };
+                        let (mut plain, mut paired): (Vec<Piece<Keys>>, Vec<Piece<Keys>>) =
+                            (Vec::new(), Vec::new());
+                        Frontier::new(cut())
+                            .step_in(s, false, &mut plain, split)
+                            .unwrap();
+                        Frontier::new(cut())
+                            .step_in(s, true, &mut paired, split)
+                            .unwrap();
+                        assert!(sorted(&plain) && sorted(&paired), "case {case}");
+                        let mut reps: Vec<u64> = keys_of(&plain)
+                            .iter()
+                            .map(|&k| k.min(k ^ s.occupied()))
+                            .collect();
+                        reps.sort_unstable();
+                        reps.dedup();
+                        assert_eq!(keys_of(&paired), reps, "case {case}");
+                        // Counts.
+                        let mut out = Vec::new();
+                        f.step_in(s, false, &mut out, split).unwrap();
+                        f.pieces = out;
+                        assert!(
+                            sorted(&f.pieces),
+                            "case {case}, newest {newest}, split {split}"
+                        );
+                        assert_eq!(keys_of(&f.pieces), keys_of(&plain));
+                    }
+                    let count: u128 = f.pieces.iter().flat_map(|p| p.payload.iter()).sum();
+                    assert_eq!(
+                        count, expected,
+                        "case {case}, newest {newest}, split {split}"
+                    );
+                }
+            }
+        }
     }
 }

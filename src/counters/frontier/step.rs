@@ -179,6 +179,11 @@ impl Step {
         self.streams
     }
 
+    /// The bits of every field after the step (complementing them is the reversal).
+    pub fn occupied(&self) -> u64 {
+        self.occupied
+    }
+
     /// The same step without the checks `drop` names (by their order in `completed`).
     pub fn without(&self, drop: impl Fn(usize) -> bool) -> Step {
         let mut s = self.clone();
