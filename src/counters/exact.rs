@@ -173,6 +173,15 @@ pub fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
 /// Largest column state space tried for the trace route of a torus ([`count_cell`]).
 pub const TRACE_MAX_STATES: usize = 1 << 16;
 
+/// How many frontier-plan cost units one predicted big-integer addition of the trace is
+/// worth ([`count_cell`]). The plan's cost counts every pattern of the frontier's
+/// variables, an upper bound that the rules cut down, so one unit is cheap: measured on
+/// the shipped 2D lattices at 8x8 to 12x12 tori (`examples/route_cost.rs`), a trace
+/// addition took 3–8 ns and a plan unit 0.04–3.6 ns. With 4 the faster route is taken on
+/// every one of them but the 4-colourings (whose frontier is far below its bound) and
+/// square dimers at 8x8 (the two routes within 10 %).
+pub const TRACE_WEIGHT: f64 = 4.0;
+
 /// The route [`count_cell`] took.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum CellRoute {
@@ -186,8 +195,8 @@ pub enum CellRoute {
 }
 
 /// The exact count of the cell `cells` of `crystal`, whose model is `model`: by the
-/// frontier counter, or for a periodic cell by the trace of Tᴸ when its predicted work is
-/// smaller than the frontier plan's cost (its column is tried with at most
+/// frontier counter, or for a periodic cell by the trace of Tᴸ when its predicted work,
+/// weighted by [`TRACE_WEIGHT`], is smaller than the frontier plan's cost (its column is tried with at most
 /// [`TRACE_MAX_STATES`] states). Both give the same integer; the trace is much cheaper on
 /// long thin tori. [`crate::Lattice::count_exact`] and `groundcount exact` call this.
 pub fn count_cell(
@@ -200,7 +209,7 @@ pub fn count_cell(
         let frontier_work = plan_for(model).map_or(f64::INFINITY, |p| p.cost);
         let max_states = config.max_states.min(TRACE_MAX_STATES);
         if let Some(trace) = super::transfer::torus::route(crystal, cells, max_states)
-            && trace.work() < frontier_work
+            && TRACE_WEIGHT * trace.work() < frontier_work
         {
             let route = CellRoute::Trace {
                 column_states: trace.states(),

@@ -180,6 +180,7 @@ impl Step {
     }
 
     /// The bits of every field after the step (complementing them is the reversal).
+    #[cfg(test)]
     pub fn occupied(&self) -> u64 {
         self.occupied
     }
