@@ -175,12 +175,15 @@ pub const TRACE_MAX_STATES: usize = 1 << 16;
 
 /// How many frontier-plan cost units one predicted big-integer addition of the trace is
 /// worth ([`count_cell`]). The plan's cost counts every pattern of the frontier's
-/// variables, an upper bound that the rules cut down, so one unit is cheap: measured on
-/// the shipped 2D lattices at 8x8 to 12x12 tori (`examples/route_cost.rs`), a trace
-/// addition took 3–8 ns and a plan unit 0.04–3.6 ns. With 4 the faster route is taken on
-/// every one of them but the 4-colourings (whose frontier is far below its bound) and
-/// square dimers at 8x8 (the two routes within 10 %).
-pub const TRACE_WEIGHT: f64 = 4.0;
+/// variables, an upper bound that the rules cut down on wide tori, so there one unit is
+/// cheap; on long thin tori the bound is tight and big integers dominate both routes.
+/// Measured with `examples/route_cost.rs` (one machine, 2 cores): square ice 10x10 frontier
+/// 1.5 s, trace 4.0 s (work ratio 0.58); square ice 6x1000 frontier 5.6 s, trace 1.4 s
+/// (ratio 0.39); 4x2000 0.42 s against 0.11 s (ratio 0.38); square dimers 10x10 0.68 s
+/// against 1.58 s (ratio 0.30, the one shipped case among these where 2 picks the slower
+/// route). With 2 the faster route is taken on the other shipped 2D tori from 8x8 to 12x12
+/// and on the long thin tori above.
+pub const TRACE_WEIGHT: f64 = 2.0;
 
 /// The route [`count_cell`] took.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
