@@ -221,7 +221,7 @@ mod tests {
         let Forget::Squeeze(runs) = forget else {
             panic!("squeezes")
         };
-        assert_eq!(Forget::squeeze(&runs, 0b1_10_1), 0b11);
+        assert_eq!(Forget::squeeze(&runs, 0b1101), 0b11);
         assert_eq!(l.field(0).unwrap().offset, 1);
     }
 

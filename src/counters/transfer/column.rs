@@ -288,7 +288,7 @@ impl Column {
             }
             raw.push(step);
         }
-        debug_assert!(MERGE_MAX <= MAX_PATTERNS);
+        const { assert!(MERGE_MAX <= MAX_PATTERNS) };
         let steps = raw
             .into_iter()
             .map(|r| ColumnStep {

@@ -133,7 +133,7 @@ pub(super) fn templates(
         let low = *offsets.iter().min().expect("constraints have a scope");
         let high = *offsets.iter().max().expect("constraints have a scope");
         let span = (high - low) as usize;
-        debug_assert!(2 * span + 1 <= n, "the strip cluster is long enough");
+        debug_assert!(2 * span < n, "the strip cluster is long enough");
         let first = (anchor as i64 + low).rem_euclid(n as i64);
         if first != 0 {
             continue;
