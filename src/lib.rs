@@ -131,7 +131,9 @@ impl Lattice {
         counters::pauling::count(&self.crystal, &(), &context::Context::new()).map(|c| c.estimate)
     }
 
-    /// Tile, compile and count one cell exactly ([`counters::exact`]).
+    /// Tile, compile and count one cell exactly, by the route `groundcount exact` takes
+    /// (the frontier counter, or the trace of Tᴸ on a thin torus where that is predicted
+    /// cheaper: [`counters::exact::count_cell`]).
     ///
     /// ```
     /// use groundcount::{Lattice, cluster::Cells};
@@ -146,7 +148,14 @@ impl Lattice {
     ) -> Result<Estimate> {
         let cluster = cluster::Cluster::new(&self.crystal, cells.clone())?;
         let model = model::Model::new(&cluster)?;
-        counters::exact::count(&model, config, &context::Context::new()).map(|c| c.estimate)
+        counters::exact::count_cell(
+            &self.crystal,
+            cells,
+            &model,
+            config,
+            &context::Context::new(),
+        )
+        .map(|c| c.estimate)
     }
 
     /// Transfer matrices on strips of the widths in `config`, extrapolated to infinite

@@ -34,6 +34,7 @@ pub mod bethe;
 pub mod brute;
 pub mod exact;
 pub mod extrapolate;
+pub(crate) mod frontier;
 pub mod local;
 pub mod order;
 pub mod pauling;
