@@ -66,6 +66,7 @@ pub mod crosscheck;
 pub mod crystal;
 pub mod error;
 pub mod estimate;
+pub mod json;
 pub mod model;
 pub mod report;
 pub mod spec;

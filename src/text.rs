@@ -1,4 +1,5 @@
-//! Turning estimates into text: aligned tables, CSV, Markdown and JSON values.
+//! Turning estimates into text: aligned tables, CSV and Markdown (the JSON documents are
+//! in [`crate::json`]).
 //!
 //! Reports read only [`Estimate`]s, a [`Survey`]'s choices and cross-checks (and the
 //! crystal's name and formula unit); they never compute. Nothing here prints: the binary
@@ -9,13 +10,10 @@
 //! without decimals ([`amount`]); CSV cells hold plain numbers ([`number`]: a value and its
 //! uncertainty in separate columns, empty where there is none).
 
-use serde_json::{Value, json};
-
 use crate::counters::local;
 use crate::crosscheck::{CrossCheck, Route};
-use crate::crystal::Crystal;
 use crate::estimate::Estimate;
-use crate::estimate::{Cited, CitedReason, CitedValue, PassedOver, Refusal, Survey};
+use crate::estimate::{CitedReason, CitedValue, PassedOver, Refusal, Survey};
 
 /// A plain-text table with a header row; columns are left-aligned and padded.
 ///
@@ -610,113 +608,6 @@ pub fn cited_line(s: &Survey, unit: &str) -> String {
             passed.join("; ")
         ),
     }
-}
-
-/// The JSON of the cross-checks: each with its method, route, values, difference,
-/// tolerance and verdict.
-pub fn checks_json(checks: &[CrossCheck]) -> Value {
-    Value::Array(
-        checks
-            .iter()
-            .map(|c| {
-                json!({
-                    "method": c.method.name(),
-                    "route": c.route,
-                    "route_words": route_words(&c.route),
-                    "ln_w_per_unit": finite(c.value),
-                    "reference_ln_w_per_unit": finite(c.reference),
-                    "difference": finite(c.value - c.reference),
-                    "tolerance": finite(c.tolerance),
-                    "agrees": c.agrees(),
-                })
-            })
-            .collect(),
-    )
-}
-
-/// The JSON of the cited value: the estimate's keys plus `reason` (its rank, a word),
-/// `why` (in words) and `passed_over`; `null` when nothing can be cited.
-pub fn cited_json(crystal: &Crystal, s: &Survey) -> Value {
-    let unit = &crystal.formula_unit.name;
-    let c = s.cited();
-    c.value.as_ref().map_or(Value::Null, |v| {
-        let mut j = estimate_json(crystal, v.estimate, Some(&s.pauling));
-        j["reason"] = json!(v.reason);
-        j["why"] = json!(reason_words(s, v));
-        j["infinite_crystal"] = json!(v.reason.is_infinite_crystal());
-        j["passed_over"] = passed_over_json(&c, unit);
-        j
-    })
-}
-
-/// Candidates passed over by [`Survey::cited`], as JSON.
-pub fn passed_over_json(c: &Cited<'_>, unit: &str) -> Value {
-    Value::Array(
-        c.passed_over
-            .iter()
-            .map(|p| {
-                json!({
-                    "method": p.estimate.method.name(),
-                    "cells": p.estimate.cells,
-                    "w_per_unit": finite(p.estimate.w_per_unit()),
-                    "why": refusal_words(p, unit),
-                    "refusal": match &p.why {
-                        Refusal::CheckFailed(_) => "check-failed",
-                        Refusal::NoDegreesOfFreedom => "no-degrees-of-freedom",
-                        Refusal::NotMeaningful(_) => "not-meaningful",
-                    },
-                })
-            })
-            .collect(),
-    )
-}
-
-/// The JSON object of one estimate, with the keys documented in README.
-pub fn estimate_json(crystal: &Crystal, e: &Estimate, pauling: Option<&Estimate>) -> Value {
-    let mut v = json!({
-        "lattice": crystal.name,
-        "file": crystal.path.display().to_string(),
-        "formula_unit": crystal.formula_unit.name,
-        "method": e.method.name(),
-        "cells": e.cells,
-        "count": e.count.as_ref().map(|c| c.to_string()),
-        "ln_count": finite(e.ln_count),
-        "formula_units": e.formula_units,
-        "w_per_unit": finite(e.w_per_unit()),
-        "s_over_r": finite(e.s_over_r()),
-        "s_j_per_mol_k": finite(e.s_j_per_mol_k()),
-        "uncertainty": e.sigma_w(),
-        "s_uncertainty": e.sigma_s_j_per_mol_k(),
-        "seconds": e.seconds,
-        "peak_states": e.peak_states,
-    });
-    if matches!(
-        e.method,
-        crate::estimate::Method::Pauling | crate::estimate::Method::Bethe
-    ) {
-        v["not_meaningful"] = caveat_json(crystal, e);
-    }
-    if let Some(p) = pauling {
-        v["pauling"] = json!({
-            "w_per_unit": finite(p.w_per_unit()),
-            "s_over_r": finite(p.s_over_r()),
-            "s_j_per_mol_k": finite(p.s_j_per_mol_k()),
-            "not_meaningful": caveat_json(crystal, p),
-        });
-    }
-    v
-}
-
-/// Why a local estimate is not meaningful, in words, or `null`.
-fn caveat_json(crystal: &Crystal, e: &Estimate) -> Value {
-    local::caveat(e).map_or(Value::Null, |c| {
-        json!(c.explain(&crystal.formula_unit.name))
-    })
-}
-
-/// JSON has no infinities: a zero count has ln = −∞, reported as null.
-fn finite(x: f64) -> Value {
-    if x.is_finite() { json!(x) } else { Value::Null }
 }
 
 #[cfg(test)]

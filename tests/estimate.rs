@@ -40,7 +40,7 @@ fn square_ice_estimate_reaches_lieb() {
     let tm = &v["transfer_matrix"];
     assert_eq!(tm["method"], "transfer-matrix");
     let w = tm["w_per_unit"].as_f64().unwrap();
-    let sigma = tm["uncertainty"].as_f64().unwrap();
+    let sigma = tm["w_uncertainty"].as_f64().unwrap();
     let lieb = (4.0f64 / 3.0).powf(1.5);
     assert!(
         (w - lieb).abs() <= 4.0 * sigma,
@@ -60,7 +60,7 @@ fn ice_ih_estimate_samples_above_pauling() {
     let mc = &v["monte_carlo"];
     assert_eq!(mc["method"], "monte-carlo");
     let w = mc["w_per_unit"].as_f64().unwrap();
-    let sigma = mc["uncertainty"].as_f64().unwrap();
+    let sigma = mc["w_uncertainty"].as_f64().unwrap();
     assert!(w - 4.0 * sigma > 1.5, "W = {w} ± {sigma}");
     let exact_2x2x2 = v["exact"][3]["w_per_unit"].as_f64().unwrap(); // 2756394^(1/32)
     assert!(
@@ -92,12 +92,12 @@ fn spin_ice_estimate_extrapolates_to_the_infinite_crystal() {
     } else {
         assert_eq!(v["cited"]["reason"], "monte-carlo-extrapolated");
         assert_eq!(
-            v["cited"]["w_per_unit"], inf["w_per_unit"],
+            v["cited"]["estimate"]["w_per_unit"], inf["w_per_unit"],
             "the extrapolation is the cited value"
         );
     }
     let w = inf["w_per_unit"].as_f64().unwrap();
-    let sigma = inf["uncertainty"].as_f64().unwrap();
+    let sigma = inf["w_uncertainty"].as_f64().unwrap();
     let nagle = 1.50685f64.sqrt();
     assert!(sigma < 0.005, "σ = {sigma}");
     assert!(
@@ -423,7 +423,7 @@ fn issue11_a_failed_cross_check_is_never_cited() {
         md.contains("CROSS-CHECK FAILED") && md.contains("**Not for citing:**"),
         "{md}"
     );
-    let j = w.json();
+    let j = serde_json::to_value(w.json()).unwrap();
     assert!(j["sentence"].is_null());
     assert_eq!(j["checks"][1]["agrees"], false);
     assert_eq!(j["cited"]["method"], "exact");
@@ -490,11 +490,11 @@ fn issue11_hard_hexagons_flag_pauling_and_cite_the_strips() {
             .contains("below 1")
     );
     assert!(v["bethe"]["not_meaningful"].is_null());
-    let cited = &v["cited"];
+    let cited = &v["cited"]["estimate"];
     assert_eq!(cited["method"], "transfer-matrix");
     let (w, sigma) = (
         cited["w_per_unit"].as_f64().unwrap(),
-        cited["uncertainty"].as_f64().unwrap(),
+        cited["w_uncertainty"].as_f64().unwrap(),
     );
     assert!(
         (w - kappa).abs() <= 4.0 * sigma + 1e-9,
@@ -536,7 +536,7 @@ fn issue11_nothing_meaningful_is_nothing_cited() {
     assert!(c.value.is_none());
     assert!(matches!(c.passed_over[0].why, Refusal::NotMeaningful(_)));
     assert!(text::cited_line(&s, "site").starts_with("cite: NOTHING"));
-    assert!(text::cited_json(&l.crystal, &s).is_null());
+    assert!(groundcount::json::CitedRecord::of(&l.crystal, &s).is_none());
     let w = Report::new(&l, &s, meta(), None);
     assert!(matches!(w.sentence(), Sentence::Refused(_)));
 }
@@ -575,7 +575,7 @@ fn issue11_free_orientations_give_r_ln_2_everywhere() {
         String::from_utf8_lossy(&out.stderr)
     );
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
-    let mut all = vec![&v["pauling"], &v["bethe"], &v["cited"]];
+    let mut all = vec![&v["pauling"], &v["bethe"], &v["cited"]["estimate"]];
     all.extend(v["exact"].as_array().unwrap());
     all.extend(v["monte_carlo_cells"].as_array().unwrap());
     assert!(!v["exact"].as_array().unwrap().is_empty());

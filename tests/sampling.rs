@@ -226,7 +226,7 @@ fn sample_command_writes_the_documented_json() {
     assert_eq!(one["samples"], 16000);
     for key in [
         "w_per_unit",
-        "uncertainty",
+        "w_uncertainty",
         "s_over_r",
         "s_j_per_mol_k",
         "s_uncertainty",
@@ -458,7 +458,7 @@ fn ice_ih_extrapolation_agrees_with_nagle() {
         "json",
     ]);
     let w = v["w_per_unit"].as_f64().unwrap();
-    let sigma = v["uncertainty"].as_f64().unwrap();
+    let sigma = v["w_uncertainty"].as_f64().unwrap();
     assert!(sigma < 0.006, "σ = {sigma}");
     let nagle = 1.50685;
     assert!(

@@ -281,12 +281,12 @@ fn strip_command_prints_json() {
     assert!((w2["ln_lambda"].as_f64().unwrap() - lambda.ln()).abs() < 1e-11);
     assert!((w2["w_per_unit"].as_f64().unwrap() - lambda.sqrt()).abs() < 1e-11);
     assert!(w2["iterations"].as_u64().unwrap() >= 3);
-    for key in ["w_per_unit", "uncertainty", "s_over_r", "s_j_per_mol_k"] {
+    for key in ["w_per_unit", "w_uncertainty", "s_over_r", "s_j_per_mol_k"] {
         assert!(v[key].is_number(), "{key}");
     }
     // κ = 1.5030480824753323 (Baxter, Enting & Tsang 1980) within the stated uncertainty.
     let w = v["w_per_unit"].as_f64().unwrap();
-    assert!((w - 1.5030480824753323).abs() <= v["uncertainty"].as_f64().unwrap());
+    assert!((w - 1.5030480824753323).abs() <= v["w_uncertainty"].as_f64().unwrap());
 }
 
 #[test]
@@ -674,7 +674,7 @@ fn strip_command_builds_prisms_and_refuses_a_depth_in_two_dimensions() {
     assert_eq!(v["along"], "c");
     assert_eq!(v["widths"].as_array().unwrap().len(), 2);
     // The extrapolation from two prisms is rough and must say so by its size.
-    assert!(v["uncertainty"].as_f64().unwrap() > 1e-3);
+    assert!(v["w_uncertainty"].as_f64().unwrap() > 1e-3);
     let out = run(&[
         "strip",
         lattice("square-ice.yaml").to_str().unwrap(),
@@ -911,7 +911,7 @@ fn issue11_kagome_ice_is_honeycomb_dimers_on_the_triangles() {
     ]);
     let (w, sigma) = (
         v["w_per_unit"].as_f64().unwrap(),
-        v["uncertainty"].as_f64().unwrap(),
+        v["w_uncertainty"].as_f64().unwrap(),
     );
     assert!((w - published.exp()).abs() <= sigma, "{w} ± {sigma}");
     assert!(sigma < 1e-5, "{sigma}");
@@ -936,7 +936,7 @@ fn issue11_kagome_ice_is_honeycomb_dimers_on_the_triangles() {
     let t = &e["transfer_matrix"];
     let (w, sigma) = (
         t["w_per_unit"].as_f64().unwrap(),
-        t["uncertainty"].as_f64().unwrap(),
+        t["w_uncertainty"].as_f64().unwrap(),
     );
     assert!(
         (w - published.exp()).abs() <= sigma,
@@ -989,7 +989,7 @@ fn issue11_four_colourings_find_their_period_or_refuse() {
     assert_eq!(v["period"], 3);
     let (value, sigma) = (
         v["w_per_unit"].as_f64().unwrap(),
-        v["uncertainty"].as_f64().unwrap(),
+        v["w_uncertainty"].as_f64().unwrap(),
     );
     assert!((value - w).abs() <= sigma, "{value} ± {sigma} against {w}");
     assert!(sigma < 0.02, "{sigma}");
@@ -1056,7 +1056,7 @@ fn issue11_strip_keeps_its_finished_widths_past_the_state_budget() {
     let lieb = (4.0f64 / 3.0).powf(1.5);
     let (w, sigma) = (
         v["w_per_unit"].as_f64().unwrap(),
-        v["uncertainty"].as_f64().unwrap(),
+        v["w_uncertainty"].as_f64().unwrap(),
     );
     assert!((w - lieb).abs() <= sigma, "{w} ± {sigma}");
 }

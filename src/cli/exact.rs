@@ -6,6 +6,7 @@ use std::path::PathBuf;
 use groundcount::cluster::Cluster;
 use groundcount::counters::exact;
 use groundcount::counters::exact::CellRoute;
+use groundcount::json::EstimateOf;
 use groundcount::model::Model;
 use groundcount::text::{self, sig};
 
@@ -22,6 +23,22 @@ fn memory_words(bytes: f64) -> String {
     } else {
         format!("{:.0} MB", (bytes / 1e6).max(1.0))
     }
+}
+
+/// The JSON document of `exact` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    /// The count, with the lattice and Pauling's estimate beside it.
+    #[serde(flatten)]
+    estimate: EstimateOf,
+    /// Variables of the cell's model.
+    variables: usize,
+    /// Constraints of the cell's model.
+    constraints: usize,
+    /// FNV-1a hash of the lattice file's text.
+    content_hash: String,
+    /// How the count was made: `frontier` or `trace`.
+    route: &'static str,
 }
 
 /// Arguments of `exact`.
@@ -87,18 +104,16 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     } = counted??;
     let unit = &c.formula_unit.name;
     match args.common.format {
-        Format::Json => {
-            let mut v = text::estimate_json(c, &e, Some(&p));
-            v["variables"] = model.variables.len().into();
-            v["constraints"] = model.constraints.len().into();
-            v["content_hash"] = lattice.content_hash.clone().into();
-            v["route"] = match route {
+        Format::Json => Ok(groundcount::json::to_string(&Document {
+            estimate: EstimateOf::new(c, &e, Some(&p)),
+            variables: model.variables.len(),
+            constraints: model.constraints.len(),
+            content_hash: lattice.content_hash.clone(),
+            route: match route {
                 CellRoute::Trace { .. } => "trace",
                 CellRoute::Frontier => "frontier",
-            }
-            .into();
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
-        }
+            },
+        })?),
         Format::Csv => Ok(text::comparison_table(&[p, e], unit).render_csv()),
         Format::Markdown => Ok(text::comparison_table(&[p, e], unit).render_markdown()),
         Format::Table => {
