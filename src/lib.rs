@@ -132,7 +132,7 @@ impl Lattice {
         counters::pauling::count(&self.crystal, &(), &context::Context::new()).map(|c| c.estimate)
     }
 
-    /// Tile, compile and count one cell exactly, by the route `groundcount exact` takes
+    /// Tile, compile and count one cell exactly, by the route the command line takes
     /// (the frontier counter, or the trace of Tᴸ on a thin torus where that is predicted
     /// cheaper: [`counters::exact::count_cell`]).
     ///

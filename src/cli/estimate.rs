@@ -130,8 +130,8 @@ fn render(
                 checks: json::checks(&s.checks),
                 cited: CitedRecord::of(c, s),
                 passed_over: json::passed_over(&s.cited(), &unit),
-                stopped: s.stopped.clone(),
-                notes: s.notes.clone(),
+                stopped: super::words::stopped(s),
+                notes: super::words::notes(s),
             })?)
         }
         Format::Csv => Ok(table.render_csv()),
@@ -210,10 +210,13 @@ fn below_table(s: &Survey, unit: &str) -> Vec<String> {
                 .into(),
         );
     }
-    if !s.stopped.is_empty() {
-        lines.push(format!("exact counts stopped: {}", s.stopped));
+    if s.stopped.is_some() {
+        lines.push(format!(
+            "exact counts stopped: {}",
+            super::words::stopped(s)
+        ));
     }
-    lines.extend(s.notes.iter().cloned());
+    lines.extend(super::words::notes(s));
     lines.push(text::cited_line(s, unit));
     lines
 }

@@ -172,7 +172,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         date: today(),
         file: shown(&args.file),
     };
-    let w = Report::new(&lattice, &s, meta, comparison);
+    let w = Report::new(&lattice, &s, meta, comparison).with_hints(super::words::hint);
     let mut files: Vec<(String, String)> = vec![
         ("report.md".into(), w.markdown()),
         (

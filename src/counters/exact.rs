@@ -241,7 +241,7 @@ pub enum CellRoute {
 /// frontier counter, or for a periodic cell by the trace of Tᴸ when its predicted work,
 /// weighted by [`TRACE_WEIGHT`], is smaller than the frontier plan's cost (its column is tried with at most
 /// [`TRACE_MAX_STATES`] states). Both give the same integer; the trace is much cheaper on
-/// long thin tori. [`crate::Lattice::count_exact`] and `groundcount exact` call this.
+/// long thin tori. [`crate::Lattice::count_exact`] and the command line call this.
 pub fn count_cell(
     crystal: &crate::crystal::Crystal,
     cells: &crate::cluster::Cells,

@@ -13,7 +13,7 @@
 //! flux). The period p is the smallest of step, 2·step, 3·step and 6·step at which the last
 //! five values of every family change monotonically (one sign, shrinking steps); 2·step
 //! when none does. For square ice and dimers that gives W mod 2, for the triangular
-//! antiferromagnet W mod 3 (with `--step 3` a single family).
+//! antiferromagnet W mod 3 (with a given spacing of 3, a single family).
 //!
 //! * **Critical** models (square ice, dimers, the triangular antiferromagnet) approach the
 //!   limit as s(W) = s∞ + a₁/W² + a₂/W⁴ + … on periodic cylinders (conformal invariance:

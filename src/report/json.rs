@@ -197,12 +197,15 @@ pub(super) fn document(r: &Report<'_>) -> ReportDocument {
         pauling: EstimateOf::new(c, p, None),
         bethe: s.bethe.as_ref().map(of),
         exact: s.exact.iter().map(of).collect(),
-        exact_stopped: s.stopped.clone(),
+        exact_stopped: s
+            .stopped
+            .as_ref()
+            .map_or(String::new(), crate::text::stop_words),
         transfer_matrix,
         monte_carlo,
         monte_carlo_infinite,
         calorimetry,
-        notes: s.notes.clone(),
+        notes: r.notes(),
         sentence,
         sentence_refused,
     }

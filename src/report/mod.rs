@@ -23,7 +23,7 @@ use crate::Lattice;
 use crate::calorimetry::ThirdLaw;
 use crate::counters::local;
 use crate::estimate::Method;
-use crate::estimate::{Cited, CitedReason, CitedValue, Survey};
+use crate::estimate::{Cited, CitedReason, CitedValue, Hint, Survey};
 use crate::text::{amount, plus_minus, sig};
 use crate::thermo;
 
@@ -117,6 +117,7 @@ pub struct Report<'a> {
     survey: &'a Survey,
     meta: Meta,
     comparison: Option<Comparison>,
+    hints: fn(Hint) -> String,
 }
 
 impl<'a> Report<'a> {
@@ -132,7 +133,24 @@ impl<'a> Report<'a> {
             survey,
             meta,
             comparison,
+            hints: crate::text::hint_words,
         }
+    }
+
+    /// The same report, with the advice on what to run next worded by `hints` (the
+    /// binary's words name its commands; by default [`crate::text::hint_words`]).
+    pub fn with_hints(mut self, hints: fn(Hint) -> String) -> Self {
+        self.hints = hints;
+        self
+    }
+
+    /// The survey's notes in words.
+    pub fn notes(&self) -> Vec<String> {
+        self.survey
+            .notes
+            .iter()
+            .map(|n| crate::text::note_words(n, &self.hints))
+            .collect()
     }
 
     /// The value to cite and why (see [`Survey::cited`]).

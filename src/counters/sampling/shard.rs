@@ -83,7 +83,7 @@ pub struct Shard {
     pub content_hash: String,
     /// The lattice file's text.
     pub lattice_text: String,
-    /// The periodic cell, e.g. `8x8x8` (as `--cells` takes it).
+    /// The periodic cell, e.g. `8x8x8` (the cell notation of [`crate::cluster::Cells::parse`]).
     pub cells: String,
     /// Settings shared by every shard.
     pub settings: Settings,
@@ -493,7 +493,7 @@ mod tests {
         }
     }
 
-    /// Issue 11, item 9: untouched shard files were refused as damaged for most `--sweeps`
+    /// Issue 11, item 9: untouched shard files were refused as damaged for most sweep counts
     /// values, because a mean energy such as 123/41 did not read back bit for bit and the
     /// checksum failed. Every ratio k/s for s up to 2000 and a spread of k, and floats of
     /// every magnitude, must read back exactly and pass the checksum.
