@@ -608,6 +608,40 @@ pub enum ClusterEntity {
 mod tests {
     use super::*;
 
+    /// Issue 12: `Crystal::coordination` counts each bond's two ends; the second route is
+    /// the graph of a periodic cluster large enough to show every bond whole (what
+    /// `inspect` built before): the edges at each site of the central cell.
+    #[test]
+    fn issue12_coordination_matches_the_cluster_graph() {
+        let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/lattices");
+        for entry in std::fs::read_dir(dir).unwrap() {
+            let path = entry.unwrap().path();
+            if path.extension().is_none_or(|e| e != "yaml") {
+                continue;
+            }
+            let l = crate::Lattice::from_file(&path).unwrap();
+            let c = &l.crystal;
+            let n = (2 * c.reach() + 1).max(3) as usize;
+            let cluster = Cluster::new(c, Cells::cube(n, c.dimensions)).unwrap();
+            let mut centre = [0usize; 3];
+            centre[..c.dimensions].fill(n / 2);
+            let graph: Vec<usize> = (0..c.sites.len())
+                .map(|s| {
+                    let i = cluster
+                        .sites
+                        .iter()
+                        .position(|x| x.site == s && x.cell == centre)
+                        .unwrap();
+                    cluster
+                        .graph
+                        .edges(petgraph::graph::NodeIndex::new(i))
+                        .count()
+                })
+                .collect();
+            assert_eq!(c.coordination(), graph, "{}", path.display());
+        }
+    }
+
     #[test]
     fn parses_sizes_and_open_axes() {
         let c = Cells::parse("4x3x2", Some("a, c"), 3).unwrap();

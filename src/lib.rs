@@ -147,6 +147,7 @@ impl Lattice {
         cells: &cluster::Cells,
         config: &counters::exact::ExactConfig,
     ) -> Result<Estimate> {
+        counters::exact::check_cell(&self.crystal, cells)?;
         let cluster = cluster::Cluster::new(&self.crystal, cells.clone())?;
         let model = model::Model::new(&cluster)?;
         counters::exact::count_cell(

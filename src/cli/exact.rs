@@ -12,19 +12,6 @@ use groundcount::text::{self, sig};
 
 use super::{Common, Format, cell_header, load, pauling_line, with_threads};
 
-/// Memory a cluster and its model take per site and bond, measured on square ice
-/// (2000x2000: 12 million sites and bonds, 3 GB).
-const BYTES_PER_ENTITY: f64 = 250.0;
-
-/// Bytes in words: "3.0 GB".
-fn memory_words(bytes: f64) -> String {
-    if bytes >= 1e9 {
-        format!("{:.1} GB", bytes / 1e9)
-    } else {
-        format!("{:.0} MB", (bytes / 1e6).max(1.0))
-    }
-}
-
 /// The JSON document of `exact` (docs/json.md).
 #[derive(serde::Serialize)]
 struct Document {
@@ -63,23 +50,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let lattice = load(Some(&args.file))?;
     let c = &lattice.crystal;
     let cells = super::words::cells("--cells", &args.cells, args.open.as_deref(), c.dimensions)?;
-    // A cell whose every sweep keeps more cells open than the frontier's 63 bits can hold
-    // is refused before it is built (building 2000x2000 alone takes minutes and gigabytes).
-    if let Some(open) = groundcount::cluster::frontier_cells_lower_bound(c, &cells)
-        && open > 63
-    {
-        let entities = cells.total() as f64 * (c.sites.len() + c.bonds.len()) as f64;
-        return Err(groundcount::Error::Budget {
-            cells: cells.to_string(),
-            detail: format!(
-                "every order of its variables keeps at least {open} cells on the frontier at once, \
-                 and the frontier counter holds at most 63 bits (one per two-state variable); \
-                 building the cell alone would take about {} of memory",
-                memory_words(entities * BYTES_PER_ENTITY)
-            ),
-        }
-        .into());
-    }
+    // A cell too wide for the frontier is refused before it is built.
+    exact::check_cell(c, &cells)?;
     let p = super::pauling(c)?;
     let cluster = Cluster::new(c, cells.clone())?;
     let model = Model::new(&cluster)?;
