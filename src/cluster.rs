@@ -358,7 +358,7 @@ impl fmt::Display for Cells {
 ///
 /// Each cell on the frontier holds at least one variable of at least one bit, so a bound
 /// above the counter's 63 bits means the count cannot run, whatever the order.
-pub fn frontier_cells_lower_bound(crystal: &Crystal, cells: &Cells) -> Option<usize> {
+pub(crate) fn frontier_cells_lower_bound(crystal: &Crystal, cells: &Cells) -> Option<usize> {
     let dims = crystal.dimensions;
     if dims < 2 || cells.dimensions != dims {
         return None;
@@ -539,7 +539,7 @@ impl<'c> Cluster<'c> {
     }
 
     /// The cluster site or bond an entity anchored in cell `cell` refers to, if it lies inside.
-    pub fn locate(&self, entity: Entity, cell: [usize; 3]) -> Option<ClusterEntity> {
+    pub(crate) fn locate(&self, entity: Entity, cell: [usize; 3]) -> Option<ClusterEntity> {
         let base = [cell[0] as i64, cell[1] as i64, cell[2] as i64];
         match entity {
             Entity::Site { site, shift } => {
@@ -554,7 +554,7 @@ impl<'c> Cluster<'c> {
     }
 
     /// Cell coordinates of every cell.
-    pub fn all_cells(&self) -> impl Iterator<Item = [usize; 3]> + '_ {
+    pub(crate) fn all_cells(&self) -> impl Iterator<Item = [usize; 3]> + '_ {
         (0..self.cells.total()).map(|c| self.cell_coords(c))
     }
 
@@ -574,14 +574,14 @@ impl<'c> Cluster<'c> {
     }
 
     /// Position of a site in cell units (for ordering sweeps).
-    pub fn site_position(&self, i: usize) -> [f64; 3] {
+    pub(crate) fn site_position(&self, i: usize) -> [f64; 3] {
         let s = self.sites[i];
         let f = self.crystal.sites[s.site].frac;
         [0, 1, 2].map(|k| s.cell[k] as f64 + f[k])
     }
 
     /// Position of a bond's midpoint in cell units (unwrapped from its `from` end).
-    pub fn bond_position(&self, i: usize) -> [f64; 3] {
+    pub(crate) fn bond_position(&self, i: usize) -> [f64; 3] {
         let b = self.bonds[i];
         let bond = &self.crystal.bonds[b.bond];
         let f = self.crystal.sites[bond.from].frac;

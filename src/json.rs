@@ -288,7 +288,7 @@ impl From<&StripResult> for WidthRecord {
 }
 
 /// How a width's sector was established, as one word.
-pub fn basis_word(b: &SectorBasis) -> &'static str {
+fn basis_word(b: &SectorBasis) -> &'static str {
     match b {
         SectorBasis::Whole => "all-states",
         SectorBasis::Given => "given",

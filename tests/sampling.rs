@@ -365,7 +365,6 @@ fn wl_with(
         replicas,
         sweeps,
         uniform,
-        ..Default::default()
     };
     sampling::wang_landau::count(&m, &config, &Context::new()).unwrap()
 }

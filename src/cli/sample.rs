@@ -619,7 +619,7 @@ struct SizesDocument {
 #[serde(untagged)]
 enum SizesHead {
     /// The extrapolation.
-    Extrapolated(EstimateOf),
+    Extrapolated(Box<EstimateOf>),
     /// No extrapolation.
     Cells {
         lattice: String,
@@ -659,7 +659,7 @@ fn render_sizes(
                     let mut e = EstimateOf::new(c, infinite, Some(&p));
                     e.estimate.method = "monte-carlo-extrapolated";
                     SizesDocument {
-                        head: SizesHead::Extrapolated(e),
+                        head: SizesHead::Extrapolated(Box::new(e)),
                         fit: Some(SizeFitRecord::from(*fit)),
                         not_extrapolated: None,
                         cells_sampled,

@@ -173,7 +173,7 @@ pub fn extrapolate(
 /// `errors` (empty, or one per point) are the numerical uncertainties of the values; they
 /// are propagated through the central fit (polynomial fits amplify them: through widths
 /// 15…20 in powers of 1/W by about 5·10⁵) and added to the uncertainty.
-pub fn extrapolate_in(
+pub(crate) fn extrapolate_in(
     points: &[(usize, f64)],
     errors: &[f64],
     step: usize,

@@ -49,7 +49,7 @@ pub struct SampledCell {
 }
 
 /// The sampled cells in words: "3x3x3, 4x4x4 and 5x5x5 periodic".
-pub fn cell_list(cells: &[SampledCell]) -> String {
+pub(crate) fn cell_list(cells: &[SampledCell]) -> String {
     let names: Vec<&str> = cells
         .iter()
         .map(|c| c.cells.strip_suffix(" periodic").unwrap_or(&c.cells))
