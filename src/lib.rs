@@ -49,6 +49,9 @@ pub mod survey;
 pub mod thermo;
 pub mod writeup;
 
+#[cfg(test)]
+mod validation_tests;
+
 use std::path::Path;
 
 pub use error::{Error, Result};
