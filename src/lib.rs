@@ -73,6 +73,9 @@ pub mod spec;
 pub mod text;
 pub mod thermo;
 
+#[cfg(test)]
+mod validation_tests;
+
 use std::path::Path;
 
 pub use error::{Error, Result};
