@@ -213,7 +213,7 @@ fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
             o,
             "Extrapolated to infinite width: W = {} per {unit} ({}, {} fits{}).\n",
             pm(e.w_per_unit(), e.sigma_w(), 12),
-            format!("{:?}", tm.extrapolation.scaling).to_lowercase(),
+            crate::json::scaling_word(tm.extrapolation.scaling),
             tm.extrapolation.fits.len(),
             tm.central_charge
                 .map(|c| format!("; fitted central charge {}", sig(c, 4)))
