@@ -143,7 +143,7 @@ fn square_ice_report_matches_golden_files() {
     let cited = &v["cited"]["estimate"];
     assert_eq!(cited["method"], "transfer-matrix");
     let w = cited["w_per_unit"].as_f64().unwrap();
-    let sigma = cited["uncertainty"].as_f64().unwrap();
+    let sigma = cited["w_uncertainty"].as_f64().unwrap();
     let lieb = (4.0f64 / 3.0).powf(1.5);
     assert!((w - lieb).abs() <= 3.0 * sigma, "{w} ± {sigma} vs {lieb}");
     assert!(md.contains("2027-01-01"));
