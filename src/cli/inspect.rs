@@ -212,6 +212,13 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             r.instances.len()
         )?;
     }
+    for p in &c.pinned {
+        let name = match p.target {
+            groundcount::crystal::Target::Sites => format!("site {}", c.sites[p.index].id),
+            groundcount::crystal::Target::Bonds => format!("bond {}", c.bonds[p.index].id),
+        };
+        writeln!(out, "held: {name} at state {} (one state)", p.state)?;
+    }
     writeln!(
         out,
         "formula unit: {unit}, {} ({} per cell)",
