@@ -358,7 +358,7 @@ impl fmt::Display for Cells {
 ///
 /// Each cell on the frontier holds at least one variable of at least one bit, so a bound
 /// above the counter's 63 bits means the count cannot run, whatever the order.
-pub fn frontier_cells_lower_bound(crystal: &Crystal, cells: &Cells) -> Option<usize> {
+pub(crate) fn frontier_cells_lower_bound(crystal: &Crystal, cells: &Cells) -> Option<usize> {
     let dims = crystal.dimensions;
     if dims < 2 || cells.dimensions != dims {
         return None;
@@ -539,7 +539,7 @@ impl<'c> Cluster<'c> {
     }
 
     /// The cluster site or bond an entity anchored in cell `cell` refers to, if it lies inside.
-    pub fn locate(&self, entity: Entity, cell: [usize; 3]) -> Option<ClusterEntity> {
+    pub(crate) fn locate(&self, entity: Entity, cell: [usize; 3]) -> Option<ClusterEntity> {
         let base = [cell[0] as i64, cell[1] as i64, cell[2] as i64];
         match entity {
             Entity::Site { site, shift } => {
@@ -554,7 +554,7 @@ impl<'c> Cluster<'c> {
     }
 
     /// Cell coordinates of every cell.
-    pub fn all_cells(&self) -> impl Iterator<Item = [usize; 3]> + '_ {
+    pub(crate) fn all_cells(&self) -> impl Iterator<Item = [usize; 3]> + '_ {
         (0..self.cells.total()).map(|c| self.cell_coords(c))
     }
 
@@ -574,14 +574,14 @@ impl<'c> Cluster<'c> {
     }
 
     /// Position of a site in cell units (for ordering sweeps).
-    pub fn site_position(&self, i: usize) -> [f64; 3] {
+    pub(crate) fn site_position(&self, i: usize) -> [f64; 3] {
         let s = self.sites[i];
         let f = self.crystal.sites[s.site].frac;
         [0, 1, 2].map(|k| s.cell[k] as f64 + f[k])
     }
 
     /// Position of a bond's midpoint in cell units (unwrapped from its `from` end).
-    pub fn bond_position(&self, i: usize) -> [f64; 3] {
+    pub(crate) fn bond_position(&self, i: usize) -> [f64; 3] {
         let b = self.bonds[i];
         let bond = &self.crystal.bonds[b.bond];
         let f = self.crystal.sites[bond.from].frac;
@@ -607,6 +607,40 @@ pub enum ClusterEntity {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue 12: `Crystal::coordination` counts each bond's two ends; the second route is
+    /// the graph of a periodic cluster large enough to show every bond whole (what
+    /// `inspect` built before): the edges at each site of the central cell.
+    #[test]
+    fn issue12_coordination_matches_the_cluster_graph() {
+        let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/lattices");
+        for entry in std::fs::read_dir(dir).unwrap() {
+            let path = entry.unwrap().path();
+            if path.extension().is_none_or(|e| e != "yaml") {
+                continue;
+            }
+            let l = crate::Lattice::from_file(&path).unwrap();
+            let c = &l.crystal;
+            let n = (2 * c.reach() + 1).max(3) as usize;
+            let cluster = Cluster::new(c, Cells::cube(n, c.dimensions)).unwrap();
+            let mut centre = [0usize; 3];
+            centre[..c.dimensions].fill(n / 2);
+            let graph: Vec<usize> = (0..c.sites.len())
+                .map(|s| {
+                    let i = cluster
+                        .sites
+                        .iter()
+                        .position(|x| x.site == s && x.cell == centre)
+                        .unwrap();
+                    cluster
+                        .graph
+                        .edges(petgraph::graph::NodeIndex::new(i))
+                        .count()
+                })
+                .collect();
+            assert_eq!(c.coordination(), graph, "{}", path.display());
+        }
+    }
 
     #[test]
     fn parses_sizes_and_open_axes() {

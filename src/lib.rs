@@ -66,11 +66,15 @@ pub mod crosscheck;
 pub mod crystal;
 pub mod error;
 pub mod estimate;
+pub mod json;
 pub mod model;
 pub mod report;
 pub mod spec;
 pub mod text;
 pub mod thermo;
+
+#[cfg(test)]
+mod validation_tests;
 
 use std::path::Path;
 
@@ -131,7 +135,7 @@ impl Lattice {
         counters::pauling::count(&self.crystal, &(), &context::Context::new()).map(|c| c.estimate)
     }
 
-    /// Tile, compile and count one cell exactly, by the route `groundcount exact` takes
+    /// Tile, compile and count one cell exactly, by the route the command line takes
     /// (the frontier counter, or the trace of Tᴸ on a thin torus where that is predicted
     /// cheaper: [`counters::exact::count_cell`]).
     ///
@@ -146,6 +150,7 @@ impl Lattice {
         cells: &cluster::Cells,
         config: &counters::exact::ExactConfig,
     ) -> Result<Estimate> {
+        counters::exact::check_cell(&self.crystal, cells)?;
         let cluster = cluster::Cluster::new(&self.crystal, cells.clone())?;
         let model = model::Model::new(&cluster)?;
         counters::exact::count_cell(

@@ -285,7 +285,7 @@ impl Model {
     }
 
     /// ln of the number of assignments with no constraint at all.
-    pub fn ln_unconstrained(&self) -> f64 {
+    pub(crate) fn ln_unconstrained(&self) -> f64 {
         self.variables.iter().map(|v| (v.states as f64).ln()).sum()
     }
 }

@@ -226,7 +226,7 @@ fn sample_command_writes_the_documented_json() {
     assert_eq!(one["samples"], 16000);
     for key in [
         "w_per_unit",
-        "uncertainty",
+        "w_uncertainty",
         "s_over_r",
         "s_j_per_mol_k",
         "s_uncertainty",
@@ -365,7 +365,6 @@ fn wl_with(
         replicas,
         sweeps,
         uniform,
-        ..Default::default()
     };
     sampling::wang_landau::count(&m, &config, &Context::new()).unwrap()
 }
@@ -379,7 +378,8 @@ fn exact_ln_w(file: &str, cells: &str) -> f64 {
 }
 
 /// The second Monte Carlo method (Wang–Landau 1/t, then multicanonical production) against the exact frontier counter on
-/// cells it can do, within 4σ, with σ small enough to mean something.
+/// cells it can do, within 4σ, with σ small enough to mean something (20000 sweeps give
+/// σ at most 0.0018, under half of every bound).
 #[test]
 fn wang_landau_agrees_with_the_exact_count() {
     for (file, cells, max_sigma) in [
@@ -389,7 +389,7 @@ fn wang_landau_agrees_with_the_exact_count() {
         ("triangular-afm.yaml", "6x6", 0.003),
         ("spin-ice.yaml", "1x1x1", 0.01),
     ] {
-        let w = wl(file, cells, 3, 8, 40_000);
+        let w = wl(file, cells, 3, 8, 20_000);
         let exact = exact_ln_w(file, cells);
         let (s, sigma) = (w.estimate.ln_w_per_unit, w.estimate.sigma_ln_w.unwrap());
         assert!(
@@ -421,11 +421,12 @@ fn wang_landau_and_thermodynamic_integration_agree() {
 /// The multicanonical production's error falls as 1/√t, and the binomial error of the
 /// window fraction as 1/√(uniform samples): 16 times more of both give a spread of the
 /// replicas about 4 times smaller (accepted between 2 and 8: the spread of 16 walks is
-/// itself uncertain by ~20 %).
+/// itself uncertain by ~20 %). With 5000 against 80000 the ratio was 3.2–4.5 over seeds
+/// 5–9 (4.3 for seed 5; 3.0–4.1 with 20000 against 320000).
 #[test]
 fn wang_landau_error_falls_as_one_over_root_time() {
-    let short = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 20_000, 20_000);
-    let long = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 320_000, 320_000);
+    let short = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 5_000, 5_000);
+    let long = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 80_000, 80_000);
     let ratio = short.estimate.sigma_ln_w.unwrap() / long.estimate.sigma_ln_w.unwrap();
     assert!((2.0..8.0).contains(&ratio), "σ ratio {ratio}");
 }
@@ -440,7 +441,10 @@ fn wang_landau_reproduces_on_any_thread_count() {
 
 /// Ice Ih extrapolated from three periodic cells agrees within 4σ with Nagle's series
 /// value W = 1.50685 ± 0.00015 per H2O (Nagle 1966, J. Math. Phys. 7, 1484; from memory).
+/// Slow tier: smaller cells or fewer sweeps gave bars up to 0.0059 against the 0.006
+/// required, so the run keeps its size.
 #[test]
+#[ignore = "slow tier: `cargo test --release -- --ignored`, run by .ci/run"]
 fn ice_ih_extrapolation_agrees_with_nagle() {
     let file = lattice("ice-ih.yaml");
     let v = crate::util::run_json(&[
@@ -458,7 +462,7 @@ fn ice_ih_extrapolation_agrees_with_nagle() {
         "json",
     ]);
     let w = v["w_per_unit"].as_f64().unwrap();
-    let sigma = v["uncertainty"].as_f64().unwrap();
+    let sigma = v["w_uncertainty"].as_f64().unwrap();
     assert!(sigma < 0.006, "σ = {sigma}");
     let nagle = 1.50685;
     assert!(
@@ -515,9 +519,11 @@ fn assert_calibrated(what: &str, p: &[f64]) {
 
 /// Issue 11, item 4: over 10 seeds the pulls had a spread of 1.3–1.4. Over 50 seeds the
 /// error bars must now be calibrated, on two cheap cells with exact counts: spin ice 2x2x2
-/// (loop moves) and the triangular antiferromagnet 6x6 (single flips only). The heavier run
-/// over more cells, ice Ih among them, is `issue11_calibration_over_many_cells`.
+/// (loop moves) and the triangular antiferromagnet 6x6 (single flips only): 100 runs, in
+/// the slow tier. The heavier run over more cells, ice Ih among them, is
+/// `issue11_calibration_over_many_cells`.
 #[test]
+#[ignore = "slow tier: `cargo test --release -- --ignored`, run by .ci/run"]
 fn issue11_error_bars_are_calibrated() {
     for (file, cells) in [("spin-ice.yaml", "2x2x2"), ("triangular-afm.yaml", "6x6")] {
         let p = in_pool(2, || pulls(&lattice(file), cells, 50));
@@ -821,7 +827,11 @@ fn issue11_survey_samples_by_formula_units_and_cross_checks() {
             );
         }
         None => assert!(
-            s.sampled_sizes.len() < 3 && s.notes.iter().any(|n| n.contains("not extrapolated")),
+            s.sampled_sizes.len() < 3
+                && s.notes.iter().any(|n| matches!(
+                    n,
+                    groundcount::estimate::Note::MonteCarloTooFewCells { .. }
+                )),
             "{:?}",
             s.notes
         ),

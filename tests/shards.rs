@@ -142,7 +142,7 @@ fn merge_command_combines_and_refuses() {
         "json",
     ]);
     assert_eq!(merged["w_per_unit"], whole["w_per_unit"]);
-    assert_eq!(merged["uncertainty"], whole["uncertainty"]);
+    assert_eq!(merged["w_uncertainty"], whole["w_uncertainty"]);
     assert_eq!(merged["replicas"], 4);
     assert_eq!(merged["shards_merged"], serde_json::json!([1, 2]));
 
@@ -260,7 +260,7 @@ fn issue11_untouched_shards_merge_for_any_sweeps() {
             "--sweeps {sweeps}"
         );
         assert_eq!(
-            merged["uncertainty"], whole["uncertainty"],
+            merged["w_uncertainty"], whole["w_uncertainty"],
             "--sweeps {sweeps}"
         );
     }

@@ -7,6 +7,7 @@ mod cli_errors;
 mod counts;
 mod estimate;
 mod fuzz;
+mod json;
 mod pinned;
 mod report;
 mod sampling;

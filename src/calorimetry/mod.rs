@@ -6,9 +6,9 @@
 //! S_cal(T) = a T₀³/3 + ∫_T₀^T Cp d(ln T) + Σ ΔH_tr/T_tr, the third-law entropy at T from
 //! heat capacities measured between T₀ and T_max ([`analyse`]):
 //!
-//! * below the lowest point T₀, Debye's T³ law fitted to the lowest N points ([`lowt`]);
+//! * below the lowest point T₀, Debye's T³ law fitted to the lowest N points (`lowt.rs`);
 //! * from T₀ on, the exact integral of a monotone cubic (Fritsch–Carlson) interpolant of Cp
-//!   against ln T ([`integrate`]);
+//!   against ln T (`integrate.rs`);
 //! * ΔH/T at each first-order transition; the interpolant is not continued across a
 //!   transition: each side is interpolated from its own points and continued to T_tr as
 //!   the straight line in ln T with its end slope.
@@ -50,10 +50,10 @@
 //! The method is the classical one of Giauque & Stout 1936 (J. Am. Chem. Soc. 58, 1144) for
 //! ice; the interpolant is Fritsch & Carlson 1980 (SIAM J. Numer. Anal. 17, 238).
 
-pub mod data;
+mod data;
 pub mod debye;
-pub mod integrate;
-pub mod lowt;
+mod integrate;
+mod lowt;
 
 use crate::error::{Error, Result};
 use crate::thermo::R;

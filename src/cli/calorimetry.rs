@@ -6,7 +6,6 @@ use std::path::PathBuf;
 
 use groundcount::calorimetry::{self, CalorimetryConfig, HeatCapacityData, ThirdLaw, Transition};
 use groundcount::text::{self, Table, sig};
-use serde_json::json;
 
 use super::Format;
 
@@ -366,58 +365,138 @@ fn notes(r: &ThirdLaw, sigma_given: bool) -> Vec<String> {
     n
 }
 
-/// The JSON document.
-pub fn json(r: &ThirdLaw, sigma_given: bool) -> serde_json::Value {
+/// The JSON document of `calorimetry` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    file: String,
+    points: usize,
+    temperature_k: f64,
+    target_note: Option<String>,
+    s_cal_j_per_mol_k: f64,
+    s_cal_uncertainty: f64,
+    uncertainty_parts_j_per_mol_k: UncertaintyParts,
+    low_t_fit: LowTFit,
+    debye_temperature_k: f64,
+    debye_temperature_uncertainty: f64,
+    lowest_k: f64,
+    extrapolated_j_per_mol_k: f64,
+    extrapolated_uncertainty: f64,
+    integral_j_per_mol_k: f64,
+    integral_trapezoid_j_per_mol_k: f64,
+    transitions: Vec<TransitionRecord>,
+    s_cal_at_points: Vec<PointRecord>,
+    notes: Vec<String>,
+    /// With a statistical entropy: the residual entropy it implies.
+    #[serde(flatten)]
+    residual: Option<ResidualRecord>,
+}
+
+/// The three parts of the 1σ of S_cal, J/(mol K).
+#[derive(serde::Serialize)]
+struct UncertaintyParts {
+    data: Option<f64>,
+    extrapolation: f64,
+    quadrature: f64,
+}
+
+/// The T³ fit to the lowest points.
+#[derive(serde::Serialize)]
+struct LowTFit {
+    points: usize,
+    temperatures_k: Vec<f64>,
+    weighted: bool,
+    a_j_per_mol_k4: f64,
+    a_uncertainty: f64,
+}
+
+/// A first-order transition.
+#[derive(serde::Serialize)]
+struct TransitionRecord {
+    temperature_k: f64,
+    enthalpy_j_per_mol: f64,
+    entropy_j_per_mol_k: f64,
+}
+
+/// A measured point and S_cal there.
+#[derive(serde::Serialize)]
+struct PointRecord {
+    temperature_k: f64,
+    cp_j_per_mol_k: f64,
+    s_cal_j_per_mol_k: f64,
+}
+
+/// The residual entropy implied by a statistical entropy.
+#[derive(serde::Serialize)]
+struct ResidualRecord {
+    s_stat_j_per_mol_k: f64,
+    s_stat_uncertainty: f64,
+    s_stat_uncertainty_given: bool,
+    residual_j_per_mol_k: f64,
+    residual_uncertainty: f64,
+    w_per_unit: f64,
+    w_uncertainty: f64,
+}
+
+/// The JSON document of an analysis.
+fn document(r: &ThirdLaw, sigma_given: bool) -> Document {
     let f = &r.low_t;
     let u = &r.uncertainty;
-    let mut v = json!({
-        "file": r.path.display().to_string(),
-        "points": r.points.len(),
-        "temperature_k": r.target_k,
-        "target_note": r.target_note,
-        "s_cal_j_per_mol_k": r.s_cal,
-        "s_cal_uncertainty": u.total,
-        "uncertainty_parts_j_per_mol_k": {
-            "data": u.data,
-            "extrapolation": u.extrapolation,
-            "quadrature": u.quadrature,
+    Document {
+        file: r.path.display().to_string(),
+        points: r.points.len(),
+        temperature_k: r.target_k,
+        target_note: r.target_note.clone(),
+        s_cal_j_per_mol_k: r.s_cal,
+        s_cal_uncertainty: u.total,
+        uncertainty_parts_j_per_mol_k: UncertaintyParts {
+            data: u.data,
+            extrapolation: u.extrapolation,
+            quadrature: u.quadrature,
         },
-        "low_t_fit": {
-            "points": f.points.len(),
-            "temperatures_k": f.temperatures_k,
-            "weighted": f.weighted,
-            "a_j_per_mol_k4": f.a,
-            "a_uncertainty": f.a_sigma,
+        low_t_fit: LowTFit {
+            points: f.points.len(),
+            temperatures_k: f.temperatures_k.clone(),
+            weighted: f.weighted,
+            a_j_per_mol_k4: f.a,
+            a_uncertainty: f.a_sigma,
         },
-        "debye_temperature_k": f.debye_temperature_k,
-        "debye_temperature_uncertainty": f.debye_temperature_sigma,
-        "lowest_k": f.lowest_k,
-        "extrapolated_j_per_mol_k": f.entropy,
-        "extrapolated_uncertainty": f.entropy_sigma,
-        "integral_j_per_mol_k": r.integral,
-        "integral_trapezoid_j_per_mol_k": r.integral_trapezoid,
-        "transitions": r.transitions.iter().map(|x| json!({
-            "temperature_k": x.transition.t_k,
-            "enthalpy_j_per_mol": x.transition.dh_j_per_mol,
-            "entropy_j_per_mol_k": x.entropy,
-        })).collect::<Vec<_>>(),
-        "s_cal_at_points": r.points.iter().zip(&r.at_points).map(|(p, s)| json!({
-            "temperature_k": p.t_k,
-            "cp_j_per_mol_k": p.cp,
-            "s_cal_j_per_mol_k": s,
-        })).collect::<Vec<_>>(),
-        "notes": notes(r, sigma_given),
-    });
-    if let Some(s) = &r.residual {
-        v["s_stat_j_per_mol_k"] = s.s_stat.into();
-        v["s_stat_uncertainty"] = s.s_stat_sigma.into();
-        v["s_stat_uncertainty_given"] = sigma_given.into();
-        v["residual_j_per_mol_k"] = s.residual.into();
-        v["residual_uncertainty"] = s.residual_sigma.into();
-        v["w_per_unit"] = s.w_per_unit.into();
-        v["w_uncertainty"] = s.w_sigma.into();
+        debye_temperature_k: f.debye_temperature_k,
+        debye_temperature_uncertainty: f.debye_temperature_sigma,
+        lowest_k: f.lowest_k,
+        extrapolated_j_per_mol_k: f.entropy,
+        extrapolated_uncertainty: f.entropy_sigma,
+        integral_j_per_mol_k: r.integral,
+        integral_trapezoid_j_per_mol_k: r.integral_trapezoid,
+        transitions: r
+            .transitions
+            .iter()
+            .map(|x| TransitionRecord {
+                temperature_k: x.transition.t_k,
+                enthalpy_j_per_mol: x.transition.dh_j_per_mol,
+                entropy_j_per_mol_k: x.entropy,
+            })
+            .collect(),
+        s_cal_at_points: r
+            .points
+            .iter()
+            .zip(&r.at_points)
+            .map(|(p, s)| PointRecord {
+                temperature_k: p.t_k,
+                cp_j_per_mol_k: p.cp,
+                s_cal_j_per_mol_k: *s,
+            })
+            .collect(),
+        notes: notes(r, sigma_given),
+        residual: r.residual.as_ref().map(|s| ResidualRecord {
+            s_stat_j_per_mol_k: s.s_stat,
+            s_stat_uncertainty: s.s_stat_sigma,
+            s_stat_uncertainty_given: sigma_given,
+            residual_j_per_mol_k: s.residual,
+            residual_uncertainty: s.residual_sigma,
+            w_per_unit: s.w_per_unit,
+            w_uncertainty: s.w_sigma,
+        }),
     }
-    v
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
@@ -426,7 +505,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let sigma_given = args.options.statistical_sigma_given();
     let t = summary_table(&r, sigma_given);
     match args.format {
-        Format::Json => Ok(serde_json::to_string_pretty(&json(&r, sigma_given))? + "\n"),
+        Format::Json => Ok(groundcount::json::to_string(&document(&r, sigma_given))?),
         Format::Csv => Ok(t.render_csv()),
         fmt => {
             let mut out = String::new();

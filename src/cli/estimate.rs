@@ -8,10 +8,49 @@ use std::path::PathBuf;
 use groundcount::counters::{exact, local};
 use groundcount::estimate::Method;
 use groundcount::estimate::{Survey, SurveyConfig, survey};
+use groundcount::json::{
+    self, CheckRecord, CitedRecord, EstimateOf, ExtrapolatedRecord, PassedOverRecord, SizeFitRecord,
+};
 use groundcount::text::{self, Columns};
-use serde_json::json;
 
 use super::{Common, Format, load, shown, with_threads};
+
+/// The JSON document of `estimate` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    /// The lattice's name.
+    lattice: String,
+    /// The lattice file as named, or "built-in ice Ih".
+    file: String,
+    /// FNV-1a hash of the lattice file's text.
+    content_hash: String,
+    /// The formula unit's name.
+    formula_unit: String,
+    /// Pauling's estimate.
+    pauling: EstimateOf,
+    /// The Bethe approximation, when its messages settled.
+    bethe: Option<EstimateOf>,
+    /// Exact counts, smallest cell first.
+    exact: Vec<EstimateOf>,
+    /// Strips extrapolated to infinite width.
+    transfer_matrix: Option<EstimateOf>,
+    /// The largest Monte Carlo cell.
+    monte_carlo: Option<EstimateOf>,
+    /// Every Monte Carlo cell, smallest first.
+    monte_carlo_cells: Vec<EstimateOf>,
+    /// The Monte Carlo cells extrapolated to the infinite crystal, with the fit.
+    monte_carlo_infinite: Option<ExtrapolatedRecord>,
+    /// The cross-checks of the run.
+    checks: Vec<CheckRecord>,
+    /// The value to cite; `null` when nothing can be cited.
+    cited: Option<CitedRecord>,
+    /// Better-ranked candidates not cited, and why.
+    passed_over: Vec<PassedOverRecord>,
+    /// Why the exact counts stopped (empty when they ran to the limit).
+    stopped: String,
+    /// What ran, what stopped and why, in words.
+    notes: Vec<String>,
+}
 
 /// Arguments of `estimate`.
 #[derive(clap::Args, Debug)]
@@ -68,33 +107,32 @@ fn render(
     let table = text::survey_table(s, &unit, Columns::default());
     match args.common.format {
         Format::Json => {
-            let v = json!({
-                "lattice": c.name,
-                "file": shown(&args.file),
-                "content_hash": lattice.content_hash,
-                "formula_unit": unit,
-                "pauling": text::estimate_json(c, p, None),
-                "bethe": s.bethe.as_ref().map(|e| text::estimate_json(c, e, Some(p))),
-                "exact": s.exact.iter().map(|e| text::estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
-                "transfer_matrix": transfer.map(|e| text::estimate_json(c, e, Some(p))),
-                "monte_carlo": monte_carlo.map(|e| text::estimate_json(c, e, Some(p))),
-                "monte_carlo_cells": s.sampled_sizes.iter().map(|m| text::estimate_json(c, &m.sampled.estimate, Some(p))).collect::<Vec<_>>(),
-                "monte_carlo_infinite": s.extrapolated.as_ref().map(|x| {
-                    let mut v = text::estimate_json(c, &x.estimate, Some(p));
-                    v["fit"] = json!({
-                        "form": x.details.form(),
-                        "chi2": x.details.chi2,
-                        "dof": x.details.dof,
-                    });
-                    v
+            let of = |e: &groundcount::Estimate| EstimateOf::new(c, e, Some(p));
+            Ok(json::to_string(&Document {
+                lattice: c.name.clone(),
+                file: shown(&args.file),
+                content_hash: lattice.content_hash.clone(),
+                formula_unit: unit.clone(),
+                pauling: EstimateOf::new(c, p, None),
+                bethe: s.bethe.as_ref().map(of),
+                exact: s.exact.iter().map(of).collect(),
+                transfer_matrix: transfer.map(of),
+                monte_carlo: monte_carlo.map(of),
+                monte_carlo_cells: s
+                    .sampled_sizes
+                    .iter()
+                    .map(|m| of(&m.sampled.estimate))
+                    .collect(),
+                monte_carlo_infinite: s.extrapolated.as_ref().map(|x| ExtrapolatedRecord {
+                    estimate: of(&x.estimate),
+                    fit: SizeFitRecord::from(&x.details),
                 }),
-                "checks": text::checks_json(&s.checks),
-                "cited": text::cited_json(c, s),
-                "passed_over": text::passed_over_json(&s.cited(), &unit),
-                "stopped": s.stopped,
-                "notes": s.notes,
-            });
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
+                checks: json::checks(&s.checks),
+                cited: CitedRecord::of(c, s),
+                passed_over: json::passed_over(&s.cited(), &unit),
+                stopped: super::words::stopped(s),
+                notes: super::words::notes(s),
+            })?)
         }
         Format::Csv => Ok(table.render_csv()),
         Format::Markdown => {
@@ -172,10 +210,13 @@ fn below_table(s: &Survey, unit: &str) -> Vec<String> {
                 .into(),
         );
     }
-    if !s.stopped.is_empty() {
-        lines.push(format!("exact counts stopped: {}", s.stopped));
+    if s.stopped.is_some() {
+        lines.push(format!(
+            "exact counts stopped: {}",
+            super::words::stopped(s)
+        ));
     }
-    lines.extend(s.notes.iter().cloned());
+    lines.extend(super::words::notes(s));
     lines.push(text::cited_line(s, unit));
     lines
 }

@@ -3,13 +3,73 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::cluster::{Cells, Cluster};
 use groundcount::counters::local;
 use groundcount::crystal::Target;
+use groundcount::json::PaulingSummary;
 use groundcount::text::{self, sig};
-use serde_json::json;
 
 use super::{Format, load, shown};
+
+/// The JSON document of `inspect` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    lattice: String,
+    file: String,
+    content_hash: String,
+    dimensions: usize,
+    /// Length, area or volume of the cell, in the units of the cell vectors.
+    cell_measure: f64,
+    sites: Vec<SiteRecord>,
+    bonds: Vec<BondRecord>,
+    groups: Vec<GroupRecord>,
+    rules: Vec<RuleRecord>,
+    formula_unit: FormulaUnitRecord,
+    pauling: PaulingSummary,
+}
+
+/// A site of the cell.
+#[derive(serde::Serialize)]
+struct SiteRecord {
+    id: String,
+    species: String,
+    /// Fractional coordinates.
+    at: Vec<f64>,
+    /// Bonds at the site in the infinite crystal.
+    coordination: usize,
+}
+
+/// A bond of the cell.
+#[derive(serde::Serialize)]
+struct BondRecord {
+    id: String,
+    from: String,
+    to: String,
+    /// Cell shift of `to`.
+    shift: Vec<i64>,
+    /// Length in the units of the cell vectors.
+    length: f64,
+}
+
+/// A group of sites.
+#[derive(serde::Serialize)]
+struct GroupRecord {
+    id: String,
+    members: usize,
+}
+
+/// A rule.
+#[derive(serde::Serialize)]
+struct RuleRecord {
+    rule: String,
+    instances_per_cell: usize,
+}
+
+/// The formula unit.
+#[derive(serde::Serialize)]
+struct FormulaUnitRecord {
+    name: String,
+    per_cell: f64,
+}
 
 /// Arguments of `inspect`.
 #[derive(clap::Args, Debug)]
@@ -25,44 +85,62 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let lattice = load(args.file.as_deref())?;
     let c = &lattice.crystal;
     let p = super::pauling(c)?;
-    // Coordination from a cluster large enough to show every bond whole.
-    let n = (2 * c.reach() + 1).max(3) as usize;
-    let cluster = Cluster::new(c, Cells::cube(n, c.dimensions))?;
-    let centre = {
-        let mut cell = [0usize; 3];
-        cell[..c.dimensions].fill(n / 2);
-        cell
-    };
-    let coordination: Vec<usize> = (0..c.sites.len())
-        .map(|s| {
-            let i = cluster
-                .sites
-                .iter()
-                .position(|x| x.site == s && x.cell == centre)
-                .expect("every site exists in every cell");
-            cluster
-                .graph
-                .edges(petgraph::graph::NodeIndex::new(i))
-                .count()
-        })
-        .collect();
+    let coordination = c.coordination();
     let unit = &c.formula_unit.name;
     let units_per_cell = c.formula_unit.per_cell(c);
     if args.format == Format::Json {
-        let v = json!({
-            "lattice": c.name,
-            "file": shown(&args.file),
-            "content_hash": lattice.content_hash,
-            "dimensions": c.dimensions,
-            "cell_measure": c.cell_measure(),
-            "sites": c.sites.iter().zip(&coordination).map(|(s, k)| json!({"id": s.id, "species": s.species, "at": &s.frac[..c.dimensions], "coordination": k})).collect::<Vec<_>>(),
-            "bonds": c.bonds.iter().map(|b| json!({"id": b.id, "from": c.sites[b.from].id, "to": c.sites[b.to].id, "shift": &b.shift[..c.dimensions], "length": b.length})).collect::<Vec<_>>(),
-            "groups": c.groups.iter().map(|g| json!({"id": g.id, "members": g.members.len()})).collect::<Vec<_>>(),
-            "rules": c.rules.iter().map(|r| json!({"rule": r.label, "instances_per_cell": r.instances.len()})).collect::<Vec<_>>(),
-            "formula_unit": {"name": unit, "per_cell": units_per_cell},
-            "pauling": {"w_per_unit": p.w_per_unit(), "s_over_r": p.s_over_r(), "s_j_per_mol_k": p.s_j_per_mol_k(), "not_meaningful": local::caveat(&p).map(|k| k.explain(unit))},
-        });
-        return Ok(serde_json::to_string_pretty(&v)? + "\n");
+        let d = c.dimensions;
+        let document = Document {
+            lattice: c.name.clone(),
+            file: shown(&args.file),
+            content_hash: lattice.content_hash.clone(),
+            dimensions: d,
+            cell_measure: c.cell_measure(),
+            sites: c
+                .sites
+                .iter()
+                .zip(&coordination)
+                .map(|(s, &k)| SiteRecord {
+                    id: s.id.clone(),
+                    species: s.species.clone(),
+                    at: s.frac[..d].to_vec(),
+                    coordination: k,
+                })
+                .collect(),
+            bonds: c
+                .bonds
+                .iter()
+                .map(|b| BondRecord {
+                    id: b.id.clone(),
+                    from: c.sites[b.from].id.clone(),
+                    to: c.sites[b.to].id.clone(),
+                    shift: b.shift[..d].to_vec(),
+                    length: b.length,
+                })
+                .collect(),
+            groups: c
+                .groups
+                .iter()
+                .map(|g| GroupRecord {
+                    id: g.id.clone(),
+                    members: g.members.len(),
+                })
+                .collect(),
+            rules: c
+                .rules
+                .iter()
+                .map(|r| RuleRecord {
+                    rule: r.label.clone(),
+                    instances_per_cell: r.instances.len(),
+                })
+                .collect(),
+            formula_unit: FormulaUnitRecord {
+                name: unit.clone(),
+                per_cell: units_per_cell,
+            },
+            pauling: PaulingSummary::new(&p, unit),
+        };
+        return Ok(groundcount::json::to_string(&document)?);
     }
     if args.format == Format::Csv {
         // One quantity per row: the facts a spreadsheet wants, each with its unit.

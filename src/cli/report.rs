@@ -4,14 +4,29 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::calorimetry::ThirdLaw;
 use groundcount::counters::exact;
 use groundcount::estimate::{SurveyConfig, survey};
+use groundcount::json::{CheckRecord, CitedRecord, PassedOverRecord};
 use groundcount::report::{Comparison, Meta, Report, Sentence};
 use groundcount::text::Table;
-use serde_json::json;
 
 use super::{Common, Format, load, shown, with_threads};
+
+/// The JSON document `report` prints (docs/json.md); the report itself is report.json.
+#[derive(serde::Serialize)]
+struct Document {
+    /// The report's directory.
+    directory: String,
+    /// The files written.
+    files: Vec<String>,
+    /// The value to cite; `null` when nothing can be cited.
+    cited: Option<CitedRecord>,
+    /// Better-ranked candidates not cited, and why.
+    passed_over: Vec<PassedOverRecord>,
+    checks: Vec<CheckRecord>,
+    /// Why no sentence is offered for citing; `null` when one is.
+    sentence_refused: Option<String>,
+}
 
 /// Arguments of `report`.
 #[derive(clap::Args, Debug)]
@@ -124,9 +139,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 );
             }
             let r = super::calorimetry::analyse(data, &args.calorimetric)?;
-            Some(comparison(
+            Some(Comparison::new(
                 &r,
-                data,
+                &data.display().to_string(),
                 args.calorimetric.statistical_sigma_given(),
             ))
         }
@@ -157,12 +172,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         date: today(),
         file: shown(&args.file),
     };
-    let w = Report::new(&lattice, &s, meta, comparison);
+    let w = Report::new(&lattice, &s, meta, comparison).with_hints(super::words::hint);
     let mut files: Vec<(String, String)> = vec![
         ("report.md".into(), w.markdown()),
         (
             "report.json".into(),
-            serde_json::to_string_pretty(&w.json())? + "\n",
+            groundcount::json::to_string(&w.json())?,
         ),
     ];
     for f in w.figures() {
@@ -171,16 +186,17 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let written = staging.commit(&files)?;
     let render = || -> anyhow::Result<String> {
         match args.common.format {
-            Format::Json => Ok(serde_json::to_string_pretty(&json!({
-                "directory": args.out.display().to_string(),
-                "files": written,
-                "cited": groundcount::text::cited_json(c, &s),
-                "checks": groundcount::text::checks_json(&s.checks),
-                "sentence_refused": match w.sentence() {
+            Format::Json => Ok(groundcount::json::to_string(&Document {
+                directory: args.out.display().to_string(),
+                files: written.clone(),
+                cited: CitedRecord::of(c, &s),
+                passed_over: groundcount::json::passed_over(&s.cited(), &c.formula_unit.name),
+                checks: groundcount::json::checks(&s.checks),
+                sentence_refused: match w.sentence() {
                     Sentence::Cite(_) => None,
                     Sentence::Refused(why) => Some(why),
                 },
-            }))? + "\n"),
+            })?),
             fmt => {
                 let mut t = Table::new(&["file written"]);
                 for f in &written {
@@ -351,28 +367,6 @@ impl Staging {
             .iter()
             .map(|(name, _)| self.out.join(name).display().to_string())
             .collect())
-    }
-}
-
-/// The report's calorimetric comparison from a third-law analysis with a statistical
-/// entropy.
-fn comparison(r: &ThirdLaw, data: &std::path::Path, sigma_given: bool) -> Comparison {
-    let stat = r
-        .residual
-        .as_ref()
-        .map_or((0.0, 0.0), |x| (x.s_stat, x.s_stat_sigma));
-    Comparison {
-        file: data.display().to_string(),
-        temperature_k: r.target_k,
-        s_cal: (r.s_cal, r.uncertainty.total),
-        s_stat: stat,
-        s_stat_sigma_given: sigma_given,
-        extrapolated: r.low_t.entropy,
-        debye_temperature_k: r.low_t.debye_temperature_k,
-        points: r.points.iter().map(|p| (p.t_k, p.cp)).collect(),
-        lowest_k: r.low_t.lowest_k,
-        curve: r.curve(200),
-        debye_curve: r.debye_curve(50),
     }
 }
 

@@ -11,6 +11,7 @@ use groundcount::cluster::{Cells, Cluster};
 use groundcount::context::Context;
 use groundcount::counters::Counted;
 use groundcount::counters::sampling::{self, Sampled, shard, size, wang_landau};
+use groundcount::json::{EstimateOf, SampledRecord, SizeFitRecord};
 use groundcount::model::Model;
 use groundcount::text::{self, sig};
 
@@ -222,22 +223,21 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
     let e = &w.estimate;
     let unit = &c.formula_unit.name;
     match args.common.format {
-        Format::Json => {
-            let mut v = text::estimate_json(c, e, Some(&p));
-            v["algorithm"] = "wang-landau".into();
-            v["seed"] = w.seed.into();
-            v["replicas"] = w.replicas.into();
-            v["sweeps"] = w.sweeps.into();
-            v["energy_window"] = w.window.into();
-            v["window_fraction"] = w.fraction.into();
-            v["levels_visited"] = w.levels.into();
-            v["per_replica_ln_w_per_unit"] = w.per_replica.clone().into();
-            v["interrupted"] = w.interrupted.into();
-            v["variables"] = model.variables.len().into();
-            v["constraints"] = model.constraints.len().into();
-            v["content_hash"] = lattice.content_hash.clone().into();
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
-        }
+        Format::Json => Ok(groundcount::json::to_string(&WangLandauDocument {
+            estimate: EstimateOf::new(c, e, Some(&p)),
+            algorithm: "wang-landau",
+            seed: w.seed,
+            replicas: w.replicas,
+            sweeps: w.sweeps,
+            energy_window: w.window,
+            window_fraction: w.fraction,
+            levels_visited: w.levels,
+            per_replica_ln_w_per_unit: w.per_replica.clone(),
+            interrupted: w.interrupted,
+            variables: model.variables.len(),
+            constraints: model.constraints.len(),
+            content_hash: lattice.content_hash.clone(),
+        })?),
         Format::Csv => Ok(text::comparison_table(&[p, e.clone()], unit).render_csv()),
         Format::Markdown => Ok(text::comparison_table(&[p, e.clone()], unit).render_markdown()),
         Format::Table => {
@@ -372,12 +372,12 @@ pub(super) fn render(
     let unit = &c.formula_unit.name;
     match format {
         Format::Json => {
-            let mut v = sampled_json(lattice, model, s, shown);
+            let mut d = SampledDocument::new(lattice, model, s, shown);
             if let Some((present, n)) = merged {
-                v["shards"] = n.into();
-                v["shards_merged"] = present.into();
+                d.shards = Some(n);
+                d.shards_merged = Some(present.to_vec());
             }
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
+            Ok(groundcount::json::to_string(&d)?)
         }
         Format::Csv => Ok(text::comparison_table(&[p, e.clone()], unit).render_csv()),
         Format::Markdown => Ok(text::comparison_table(&[p, e.clone()], unit).render_markdown()),
@@ -531,42 +531,102 @@ pub(super) fn equilibration_line(s: &Sampled) -> String {
     }
 }
 
-/// The JSON document of one sampled cell.
-fn sampled_json(
-    lattice: &Lattice,
-    model: &Model,
-    s: &Counted<Sampled>,
-    shown: &Shown,
-) -> serde_json::Value {
-    let c = &lattice.crystal;
-    let p = super::pauling(c).ok();
-    let mut v = text::estimate_json(c, &s.estimate, p.as_ref());
-    v["algorithm"] = "thermodynamic-integration".into();
-    v["seed"] = s.seed.into();
-    v["samples"] = s.samples.into();
-    v["replicas"] = s.replicas.into();
-    v["updates"] = s.updates.into();
-    v["sigma_ln_w_statistical"] = s.sigma_statistical.into();
-    v["sigma_ln_w_quadrature"] = s.sigma_quadrature.into();
-    v["sigma_ln_w_tail"] = s.sigma_tail.into();
-    v["sigma_ln_w_equilibration"] = s.sigma_equilibration.into();
-    v["hysteresis_ln_w_per_unit"] = s.hysteresis.into();
-    v["sigma_hysteresis"] = s.sigma_hysteresis.into();
-    v["equilibrated"] = s.equilibrated.into();
-    v["extensions"] = s.extensions.into();
-    v["sweeps"] = s.sweeps.into();
-    v["equilibration"] = s.equilibration.into();
-    v["interrupted"] = s.interrupted.into();
-    v["beta_max"] = s.beta_max.into();
-    v["loop_attempts_per_sweep"] = s.loop_attempts_per_sweep.into();
-    v["loop_acceptance"] = s.loop_acceptance.into();
-    v["target_error"] = shown.target_error.into();
-    v["target_reached"] = s.target_reached.into();
-    v["violations_at_beta_max"] = s.mean_energy[s.mean_energy.len() - 1].into();
-    v["variables"] = model.variables.len().into();
-    v["constraints"] = model.constraints.len().into();
-    v["content_hash"] = lattice.content_hash.clone().into();
-    v
+/// The JSON document of one sampled cell (docs/json.md).
+#[derive(serde::Serialize)]
+struct SampledDocument {
+    /// The estimate, with the lattice and Pauling's estimate beside it.
+    #[serde(flatten)]
+    estimate: EstimateOf,
+    /// `thermodynamic-integration`.
+    algorithm: &'static str,
+    /// How the run went and the parts of its 1σ.
+    #[serde(flatten)]
+    run: SampledRecord,
+    /// The target error asked for, if any.
+    target_error: Option<f64>,
+    variables: usize,
+    constraints: usize,
+    content_hash: String,
+    /// A merge: the number of shards of the run.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    shards: Option<usize>,
+    /// A merge: the shards present (1..N).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    shards_merged: Option<Vec<usize>>,
+}
+
+impl SampledDocument {
+    fn new(lattice: &Lattice, model: &Model, s: &Counted<Sampled>, shown: &Shown) -> Self {
+        let c = &lattice.crystal;
+        let p = super::pauling(c).ok();
+        SampledDocument {
+            estimate: EstimateOf::new(c, &s.estimate, p.as_ref()),
+            algorithm: "thermodynamic-integration",
+            run: SampledRecord::from(&s.details),
+            target_error: shown.target_error,
+            variables: model.variables.len(),
+            constraints: model.constraints.len(),
+            content_hash: lattice.content_hash.clone(),
+            shards: None,
+            shards_merged: None,
+        }
+    }
+}
+
+/// The JSON document of a Wang–Landau run (docs/json.md).
+#[derive(serde::Serialize)]
+struct WangLandauDocument {
+    #[serde(flatten)]
+    estimate: EstimateOf,
+    /// `wang-landau`.
+    algorithm: &'static str,
+    seed: u64,
+    replicas: usize,
+    sweeps: u64,
+    /// Largest number of violated constraints in the window.
+    energy_window: u64,
+    /// Fraction of uniform assignments inside the window.
+    window_fraction: f64,
+    /// Energies visited.
+    levels_visited: usize,
+    /// ln W per formula unit of every walk.
+    per_replica_ln_w_per_unit: Vec<f64>,
+    interrupted: bool,
+    variables: usize,
+    constraints: usize,
+    content_hash: String,
+}
+
+/// The JSON document of several sampled cells (docs/json.md): the extrapolation to the
+/// infinite crystal, or why there is none, and every cell.
+#[derive(serde::Serialize)]
+struct SizesDocument {
+    /// The extrapolated estimate (its `method` is `monte-carlo-extrapolated`), or the
+    /// lattice alone (`monte-carlo-cells`) with why there is no extrapolation.
+    #[serde(flatten)]
+    head: SizesHead,
+    /// The fit; `null` when there is none.
+    fit: Option<SizeFitRecord>,
+    /// Why the cells were not extrapolated.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    not_extrapolated: Option<String>,
+    /// Every cell sampled, smallest first.
+    cells_sampled: Vec<SampledDocument>,
+}
+
+/// The first keys of [`SizesDocument`].
+#[derive(serde::Serialize)]
+#[serde(untagged)]
+enum SizesHead {
+    /// The extrapolation.
+    Extrapolated(Box<EstimateOf>),
+    /// No extrapolation.
+    Cells {
+        lattice: String,
+        file: String,
+        formula_unit: String,
+        method: &'static str,
+    },
 }
 
 /// The output of several cells and their extrapolation to the infinite crystal (when
@@ -590,43 +650,36 @@ fn render_sizes(
     rows.extend(infinite.iter().cloned());
     match format {
         Format::Json => {
-            let cells: Vec<serde_json::Value> = results
+            let cells_sampled = results
                 .iter()
-                .map(|(m, s)| sampled_json(lattice, m, s, shown))
+                .map(|(m, s)| SampledDocument::new(lattice, m, s, shown))
                 .collect();
-            let mut v = match (&fit, &infinite) {
+            let d = match (&fit, &infinite) {
                 (Ok(fit), Some(infinite)) => {
-                    let mut v = text::estimate_json(c, infinite, Some(&p));
-                    v["method"] = "monte-carlo-extrapolated".into();
-                    v["fit"] = serde_json::json!({
-                        "form": fit.form(),
-                        "ln_w_per_unit_infinite": fit.value,
-                        "sigma_ln_w": fit.sigma,
-                        "sigma_fit": fit.sigma_fit,
-                        "systematic": fit.systematic,
-                        "coefficients": fit.coefficients,
-                        "chi2": fit.chi2,
-                        "dof": fit.dof,
-                        "alternative_form": fit.alternative_form(),
-                        "alternative_ln_w_per_unit": fit.alternative.map(|t| t.0),
-                        "alternative_sigma_ln_w": fit.alternative.map(|t| t.1),
-                    });
-                    v
+                    let mut e = EstimateOf::new(c, infinite, Some(&p));
+                    e.estimate.method = "monte-carlo-extrapolated";
+                    SizesDocument {
+                        head: SizesHead::Extrapolated(Box::new(e)),
+                        fit: Some(SizeFitRecord::from(*fit)),
+                        not_extrapolated: None,
+                        cells_sampled,
+                    }
                 }
-                _ => {
-                    let why = fit.as_ref().err().map_or(String::new(), |e| e.to_string());
-                    serde_json::json!({
-                        "lattice": c.name,
-                        "file": shown.file,
-                        "formula_unit": unit,
-                        "method": "monte-carlo-cells",
-                        "fit": null,
-                        "not_extrapolated": why,
-                    })
-                }
+                _ => SizesDocument {
+                    head: SizesHead::Cells {
+                        lattice: c.name.clone(),
+                        file: shown.file.clone(),
+                        formula_unit: unit.clone(),
+                        method: "monte-carlo-cells",
+                    },
+                    fit: None,
+                    not_extrapolated: Some(
+                        fit.as_ref().err().map_or(String::new(), |e| e.to_string()),
+                    ),
+                    cells_sampled,
+                },
             };
-            v["cells_sampled"] = cells.into();
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
+            Ok(groundcount::json::to_string(&d)?)
         }
         Format::Csv => Ok(text::comparison_table(&rows, unit).render_csv()),
         Format::Markdown => Ok(text::comparison_table(&rows, unit).render_markdown()),

@@ -10,8 +10,9 @@ use groundcount::context::{Context, Progress};
 use groundcount::counters::extrapolate::Scaling;
 use groundcount::counters::transfer::{self, SectorBasis, Sectors, StripConfig};
 use groundcount::crosscheck::{CrossCheck, Route};
+use groundcount::estimate::EstimateRecord;
+use groundcount::json::{CheckRecord, WidthRecord};
 use groundcount::text::{self, Table, sig};
-use serde_json::json;
 
 use super::{Common, Format, Partial, load, shown, with_threads};
 
@@ -101,6 +102,61 @@ pub struct Args {
     max_iterations: usize,
     #[command(flatten)]
     common: Common,
+}
+
+/// The JSON document of `strip` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    lattice: String,
+    file: String,
+    content_hash: String,
+    formula_unit: String,
+    method: groundcount::estimate::Method,
+    /// The cell axis along the strip.
+    along: &'static str,
+    /// The boundary across the strip: `periodic` or `open`.
+    around: &'static str,
+    /// Three-dimensional prisms: cells along the second axis across.
+    depth: Option<usize>,
+    widths: Vec<WidthRecord>,
+    /// Widths computed only to check the sector.
+    calibration_widths: Vec<usize>,
+    checks: Vec<CheckRecord>,
+    checks_agree: bool,
+    stopped: Option<StopRecord>,
+    /// Why there is no extrapolation, in words.
+    no_extrapolation: Option<String>,
+    step: Option<usize>,
+    period: Option<usize>,
+    scaling: Option<&'static str>,
+    central_charge: Option<f64>,
+    w_per_unit: Option<f64>,
+    w_uncertainty: Option<f64>,
+    s_over_r: Option<f64>,
+    s_j_per_mol_k: Option<f64>,
+    s_uncertainty: Option<f64>,
+    seconds: Option<f64>,
+}
+
+/// Why a run stopped.
+#[derive(serde::Serialize)]
+struct StopRecord {
+    /// The width that did not finish.
+    width: usize,
+    /// Why, in words.
+    reason: String,
+    /// What the width would have needed.
+    need: Option<NeedRecord>,
+}
+
+/// What a width that did not finish would have needed, from the growth of the widths
+/// before it.
+#[derive(serde::Serialize)]
+struct NeedRecord {
+    peak_states: f64,
+    bytes: f64,
+    seconds: f64,
+    from_widths: Vec<usize>,
 }
 
 /// The section of a prism of a three-dimensional crystal, for the report.
@@ -534,72 +590,45 @@ fn render(
     let unit = &c.formula_unit.name;
     let series = run.series.as_ref();
     let failed = run.checks.iter().any(|x| !x.agrees());
-    let scaling_name = |x: &groundcount::counters::extrapolate::Extrapolation| match x.scaling {
-        Scaling::Gapped => "gapped",
-        _ => "critical",
-    };
     let shown_file = shown(&Some(file.to_path_buf()));
     match format {
         Format::Json => {
-            let e = series.map(|s| &s.estimate);
-            let v = json!({
-                "lattice": c.name,
-                "file": shown_file,
-                "content_hash": lattice.content_hash,
-                "formula_unit": unit,
-                "method": groundcount::estimate::Method::TransferMatrix.name(),
-                "along": AXES[config.along],
-                "around": if config.periodic { "periodic" } else { "open" },
-                "depth": section.depth,
-                "widths": run.widths.iter().map(|r| json!({
-                    "width": r.width,
-                    "ln_lambda": r.ln_lambda,
-                    "ln_lambda_bracket": [r.ln_bracket.0, r.ln_bracket.1],
-                    "w_per_unit": r.ln_w_per_unit.exp(),
-                    "states": r.states,
-                    "recurrent_states": r.recurrent_states,
-                    "bracket_certified": r.certified,
-                    "peak_states": r.peak_states,
-                    "transitions": r.transitions,
-                    "iterations": r.iterations,
-                    "sector": r.sector,
-                    "sector_basis": basis_word(&r.basis),
-                    "reversal_pairs": r.reversal,
-                    "seconds": r.seconds,
-                })).collect::<Vec<_>>(),
-                "calibration_widths": run.calibration,
-                "checks": run.checks.iter().map(|x| json!({
-                    "route": x.route,
-                    "value": x.value,
-                    "reference": x.reference,
-                    "tolerance": x.tolerance,
-                    "bound": x.is_bound(),
-                    "agrees": x.agrees(),
-                })).collect::<Vec<_>>(),
-                "checks_agree": !failed,
-                "stopped": run.stopped.as_ref().map(|s| json!({
-                    "width": s.width,
-                    "reason": stop_reason(s),
-                    "need": s.need.as_ref().map(|n| json!({
-                        "peak_states": n.peak_states,
-                        "bytes": n.bytes,
-                        "seconds": n.seconds,
-                        "from_widths": n.from,
-                    })),
-                })),
-                "no_extrapolation": run.no_series,
-                "step": series.map(|s| s.step),
-                "period": series.map(|s| s.extrapolation.period),
-                "scaling": series.map(|s| scaling_name(&s.extrapolation)),
-                "central_charge": series.and_then(|s| s.central_charge),
-                "w_per_unit": e.map(|e| e.w_per_unit()),
-                "uncertainty": e.and_then(|e| e.sigma_w()),
-                "s_over_r": e.map(|e| e.s_over_r()),
-                "s_j_per_mol_k": e.map(|e| e.s_j_per_mol_k()),
-                "s_uncertainty": e.and_then(|e| e.sigma_s_j_per_mol_k()),
-                "seconds": e.map(|e| e.seconds),
-            });
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
+            let e = series.map(|s| EstimateRecord::from(&s.estimate));
+            Ok(groundcount::json::to_string(&Document {
+                lattice: c.name.clone(),
+                file: shown_file,
+                content_hash: lattice.content_hash.clone(),
+                formula_unit: unit.clone(),
+                method: groundcount::estimate::Method::TransferMatrix,
+                along: AXES[config.along],
+                around: if config.periodic { "periodic" } else { "open" },
+                depth: section.depth,
+                widths: run.widths.iter().map(WidthRecord::from).collect(),
+                calibration_widths: run.calibration.clone(),
+                checks: groundcount::json::checks(&run.checks),
+                checks_agree: !failed,
+                stopped: run.stopped.as_ref().map(|s| StopRecord {
+                    width: s.width,
+                    reason: stop_reason(s),
+                    need: s.need.as_ref().map(|n| NeedRecord {
+                        peak_states: n.peak_states,
+                        bytes: n.bytes,
+                        seconds: n.seconds,
+                        from_widths: n.from.clone(),
+                    }),
+                }),
+                no_extrapolation: run.no_series.clone(),
+                step: series.map(|s| s.step),
+                period: series.map(|s| s.extrapolation.period),
+                scaling: series.map(|s| groundcount::json::scaling_word(s.extrapolation.scaling)),
+                central_charge: series.and_then(|s| s.central_charge),
+                w_per_unit: e.as_ref().map(|e| e.w_per_unit),
+                w_uncertainty: e.as_ref().and_then(|e| e.w_uncertainty),
+                s_over_r: e.as_ref().map(|e| e.s_over_r),
+                s_j_per_mol_k: e.as_ref().map(|e| e.s_j_per_mol_k),
+                s_uncertainty: e.as_ref().and_then(|e| e.s_uncertainty),
+                seconds: e.as_ref().map(|e| e.seconds),
+            })?)
         }
         format => {
             let w_head = format!("W per {unit}");
@@ -746,17 +775,6 @@ fn render(
             }
             Ok(out)
         }
-    }
-}
-
-/// The sector basis as one word, for JSON.
-fn basis_word(b: &SectorBasis) -> &'static str {
-    match b {
-        SectorBasis::Whole => "all-states",
-        SectorBasis::Given => "given",
-        SectorBasis::FullSpace => "full-space",
-        SectorBasis::LocalMaximum => "neighbours",
-        SectorBasis::Predicted { .. } => "predicted",
     }
 }
 

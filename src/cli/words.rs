@@ -3,6 +3,7 @@
 
 use groundcount::Error;
 use groundcount::cluster::{Cells, CellsError};
+use groundcount::estimate::{Hint, Survey};
 
 /// An error of the library as the command line says it.
 pub fn error(e: &Error) -> String {
@@ -40,4 +41,29 @@ pub fn cells(
         Error::CellSize(c) => anyhow::anyhow!(cells_error(flag, &c)),
         other => anyhow::Error::from(other),
     })
+}
+
+/// Advice on what to run next, naming the command that does it.
+pub fn hint(h: Hint) -> String {
+    match h {
+        Hint::StripShowsEveryWidth => "`groundcount strip` shows every width".into(),
+        Hint::RaiseBudgetOrStrip => "raise the budget or run `groundcount strip`".into(),
+        Hint::SampleRunsLonger => "`groundcount sample` runs larger cells and longer".into(),
+        other => groundcount::text::hint_words(other),
+    }
+}
+
+/// A survey's notes in the command line's words.
+pub fn notes(s: &Survey) -> Vec<String> {
+    s.notes
+        .iter()
+        .map(|n| groundcount::text::note_words(n, &hint))
+        .collect()
+}
+
+/// Why a survey's exact counts stopped, in words; empty when they ran to the limit.
+pub fn stopped(s: &Survey) -> String {
+    s.stopped
+        .as_ref()
+        .map_or(String::new(), groundcount::text::stop_words)
 }

@@ -241,7 +241,7 @@ pub enum CellRoute {
 /// frontier counter, or for a periodic cell by the trace of Tᴸ when its predicted work,
 /// weighted by [`TRACE_WEIGHT`], is smaller than the frontier plan's cost (its column is tried with at most
 /// [`TRACE_MAX_STATES`] states). Both give the same integer; the trace is much cheaper on
-/// long thin tori. [`crate::Lattice::count_exact`] and `groundcount exact` call this.
+/// long thin tori. [`crate::Lattice::count_exact`] and the command line call this.
 pub fn count_cell(
     crystal: &crate::crystal::Crystal,
     cells: &crate::cluster::Cells,
@@ -266,6 +266,37 @@ pub fn count_cell(
         count_with(model, config)?,
         CellRoute::Frontier,
     ))
+}
+
+/// Memory a cluster and its model take per site and bond, in bytes, measured on square
+/// ice (2000x2000: 12 million sites and bonds, 3 GB).
+pub const BYTES_PER_ENTITY: f64 = 250.0;
+
+/// Refuse, before it is built, a cell whose every sweep keeps more cells open than the
+/// frontier's 63 bits can hold (building 2000x2000 alone takes minutes and gigabytes):
+/// [`Error::Budget`] with the cells kept open and the memory the cell would take.
+/// [`crate::Lattice::count_exact`] and the command line check this first.
+pub fn check_cell(crystal: &crate::crystal::Crystal, cells: &crate::cluster::Cells) -> Result<()> {
+    if let Some(open) = crate::cluster::frontier_cells_lower_bound(crystal, cells)
+        && open > 63
+    {
+        let entities = cells.total() as f64 * (crystal.sites.len() + crystal.bonds.len()) as f64;
+        let bytes = entities * BYTES_PER_ENTITY;
+        let memory = if bytes >= 1e9 {
+            format!("{:.1} GB", bytes / 1e9)
+        } else {
+            format!("{:.0} MB", (bytes / 1e6).max(1.0))
+        };
+        return Err(Error::Budget {
+            cells: cells.to_string(),
+            detail: format!(
+                "every order of its variables keeps at least {open} cells on the frontier at once, \
+                 and the frontier counter holds at most 63 bits (one per two-state variable); \
+                 building the cell alone would take about {memory} of memory"
+            ),
+        });
+    }
+    Ok(())
 }
 
 /// The plan that [`count`] would follow (for reports and benchmarks).
@@ -387,6 +418,29 @@ mod tests {
     use super::*;
     use crate::Lattice;
     use crate::cluster::{Cells, Cluster};
+
+    /// Issue 12: a cell too wide for the frontier is refused before it is built, by the
+    /// library (so that `Lattice::count_exact` and the command line refuse the same cells);
+    /// a cell the frontier holds passes.
+    #[test]
+    fn issue12_too_wide_cells_are_refused_before_they_are_built() {
+        let yaml = include_str!("../../lattices/square-ice.yaml");
+        let l = Lattice::from_yaml(yaml, "square-ice.yaml").unwrap();
+        let wide = Cells::periodic(&[2000, 2000]).unwrap();
+        match check_cell(&l.crystal, &wide) {
+            Err(Error::Budget { cells, detail }) => {
+                assert_eq!(cells, "2000x2000 periodic");
+                // 2000² sites and 2·2000² bonds at 250 bytes each.
+                assert!(detail.contains("3.0 GB"), "{detail}");
+            }
+            other => panic!("{other:?}"),
+        }
+        assert!(matches!(
+            l.count_exact(&wide, &ExactConfig::default()),
+            Err(Error::Budget { .. })
+        ));
+        assert!(check_cell(&l.crystal, &Cells::periodic(&[4, 4]).unwrap()).is_ok());
+    }
 
     #[test]
     fn every_integer_width_gives_the_same_count() {

@@ -154,6 +154,27 @@ impl Crystal {
         }
         Ok(out)
     }
+    /// The coordination number of every site, in the order of [`Crystal::sites`]: the bonds
+    /// that meet it in the infinite crystal. A bond from a site to itself in a shifted cell
+    /// meets it twice (once at each end).
+    ///
+    /// ```
+    /// let lattice = groundcount::Lattice::from_yaml(
+    ///     groundcount::ICE_IH_YAML,
+    ///     groundcount::spec::embedded_path("ice-ih.yaml"),
+    /// )
+    /// .unwrap();
+    /// // Every oxygen of ice has four hydrogen bonds.
+    /// assert!(lattice.crystal.coordination().iter().all(|&k| k == 4));
+    /// ```
+    pub fn coordination(&self) -> Vec<usize> {
+        let mut k = vec![0; self.sites.len()];
+        for b in &self.bonds {
+            k[b.from] += 1;
+            k[b.to] += 1;
+        }
+        k
+    }
     /// The largest absolute cell shift used by any bond, group or rule instance.
     pub fn reach(&self) -> i64 {
         let mut r = 0;

@@ -5,14 +5,17 @@
 //! - `survey.rs`: [`Survey`] and [`SurveyConfig`], what a survey is given and what it holds.
 //! - `schedule.rs`: [`survey`], every counter that suits a lattice, run within one time
 //!   budget.
+//! - `note.rs`: [`Note`] and [`ExactStop`], what a survey says about its run, as data.
 //! - `cite.rs`: [`Survey::cited`], the one priority order of the value to cite.
 
 mod cite;
+mod note;
 mod schedule;
 mod survey;
 mod value;
 
 pub use cite::*;
+pub use note::*;
 pub use schedule::*;
 pub use survey::*;
 pub use value::*;

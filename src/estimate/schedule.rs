@@ -43,7 +43,7 @@ use crate::counters::{Counted, bethe, exact, pauling};
 use crate::crosscheck::{CrossCheck, Route};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
-use crate::estimate::{Estimate, Method};
+use crate::estimate::{Estimate, ExactStop, Hint, Method, Note, SectorWidths, Stage};
 use crate::model::Model;
 
 /// Periodic cells of growing size: L×L in 2D; in 3D n×n×n, then (n+1)×n×n, (n+1)×(n+1)×n.
@@ -76,7 +76,9 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
     let bethe = match bethe::count(c, &BetheConfig::default(), context) {
         Ok(b) => Some(b.estimate),
         Err(e) => {
-            notes.push(format!("Bethe approximation left out: {e}"));
+            notes.push(Note::BetheLeftOut {
+                error: e.to_string(),
+            });
             None
         }
     };
@@ -86,14 +88,14 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
     let deadline = start + Duration::from_secs_f64(0.4 * config.budget);
     let end = start + Duration::from_secs_f64(config.budget);
     let mut exact_counts = Vec::new();
-    let mut stopped = String::new();
+    let mut stopped = None;
     let largest = 1usize << 20; // never build absurdly large clusters
     let per_cell = c.formula_unit.per_cell(c);
     let mut interrupted = false;
     for cells in cell_sequence(c.dimensions) {
         if context.interrupt.raised() {
             interrupted = true;
-            stopped = "interrupted".into();
+            stopped = Some(ExactStop::Interrupted);
             break;
         }
         if config
@@ -103,7 +105,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
             break;
         }
         if cells.total() * c.sites.len().max(c.bonds.len()) > largest {
-            stopped = "cell size limit reached".into();
+            stopped = Some(ExactStop::CellSizeLimit);
             break;
         }
         let cluster = Cluster::new(c, cells.clone())?;
@@ -119,43 +121,42 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
         tell(Progress::Counted);
         match outcome {
             Ok(e) => {
-                exact_counts.push(e.estimate);
+                exact_counts.push((cells.clone(), e.estimate));
                 // No constraint left on a cell too large for repeats: every variable is free
                 // (no rule, or rules that allow everything), and every larger cell gives the
                 // same W per formula unit.
                 if !model.has_repeats && model.constraints.is_empty() {
-                    stopped = "no rule restricts any variable (every variable is free), so \
-                               larger cells give the same W per formula unit"
-                        .into();
+                    stopped = Some(ExactStop::NothingRestricted);
                     break;
                 }
             }
             Err(Error::Deadline { cells }) => {
-                stopped = format!(
-                    "the exact counts' share (40 %) of the {} s budget ran out while counting {cells}",
-                    config.budget
-                );
+                stopped = Some(ExactStop::Deadline {
+                    budget: config.budget,
+                    cells,
+                });
                 break;
             }
             Err(Error::Budget { cells, .. }) => {
-                stopped = format!(
-                    "{cells} needs more than {} frontier states",
-                    config.max_states
-                );
+                stopped = Some(ExactStop::States {
+                    cells,
+                    max_states: config.max_states,
+                });
                 break;
             }
             Err(Error::Interrupted { .. }) => {
                 interrupted = true;
-                stopped = format!("interrupted while counting {cells}");
+                stopped = Some(ExactStop::InterruptedWhile {
+                    cells: cells.to_string(),
+                });
                 break;
             }
             Err(e) => return Err(e),
         }
         if Instant::now() > deadline {
-            stopped = format!(
-                "the exact counts' share of the {} s budget is spent",
-                config.budget
-            );
+            stopped = Some(ExactStop::BudgetSpent {
+                budget: config.budget,
+            });
             break;
         }
     }
@@ -166,14 +167,14 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
     // Stage boundary: an interrupt skips what has not begun; a stage that stops on it
     // keeps what it finished.
     let stage = match c.dimensions {
-        2 => "transfer matrix",
-        3 => "Monte Carlo",
-        _ => "",
+        2 => Some(Stage::TransferMatrix),
+        3 => Some(Stage::MonteCarlo),
+        _ => None,
     };
     if interrupted || context.interrupt.raised() {
         interrupted = true;
-        if !stage.is_empty() {
-            notes.push(format!("{stage}: not run (interrupted)"));
+        if let Some(stage) = stage {
+            notes.push(Note::StageNotRun { stage });
         }
     } else {
         let outcome = match c.dimensions {
@@ -201,7 +202,9 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
         match outcome {
             Ok(()) => {}
             Err(Error::Interrupted { .. }) => {
-                notes.push(format!("{stage}: stopped (interrupted)"));
+                if let Some(stage) = stage {
+                    notes.push(Note::StageInterrupted { stage });
+                }
                 interrupted = true;
             }
             Err(e) => return Err(e),
@@ -209,15 +212,13 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
         interrupted |= context.interrupt.raised();
     }
     if interrupted {
-        notes.push(
-            "interrupted (Ctrl-C): the values given are those finished before the interrupt".into(),
-        );
+        notes.push(Note::Interrupted);
     }
     let sampled = sampled_sizes.last().cloned();
     Ok(Survey {
         pauling,
         bethe,
-        exact: exact_counts,
+        exact: exact_counts.into_iter().map(|(_, e)| e).collect(),
         stopped,
         strips,
         sampled,
@@ -238,8 +239,8 @@ fn strip_series(
     c: &Crystal,
     config: &SurveyConfig,
     context: &Context,
-    exact_counts: &[Estimate],
-    notes: &mut Vec<String>,
+    exact_counts: &[(Cells, Estimate)],
+    notes: &mut Vec<Note>,
     checks: &mut Vec<CrossCheck>,
 ) -> Result<Option<Counted<StripSeries>>> {
     let strip_config = StripConfig::default().with_context(context);
@@ -254,21 +255,22 @@ fn strip_series(
             Ok(_) => {}
             Err(Error::Deadline { .. }) => {
                 if config.widths.is_some() {
-                    notes.push(format!(
-                        "transfer matrix: the {} s budget ran out at width {width}",
-                        config.budget
-                    ));
+                    notes.push(Note::StripBudgetRanOut {
+                        budget: config.budget,
+                        width,
+                    });
                 }
                 break;
             }
             Err(Error::Interrupted { .. }) => {
-                notes.push(format!(
-                    "transfer matrix: interrupted at width {width}; the widths before it are kept"
-                ));
+                notes.push(Note::StripInterrupted { width });
                 break;
             }
             Err(e) => {
-                notes.push(format!("transfer matrix: stopped at width {width}: {e}"));
+                notes.push(Note::StripStopped {
+                    width,
+                    error: e.to_string(),
+                });
                 break;
             }
         }
@@ -282,17 +284,15 @@ fn strip_series(
     all.extend(torus_bounds(&run.widths, exact_counts));
     checks.extend(condensed(&all));
     if let Some(failed) = all.iter().find(|x| !x.agrees()) {
-        notes.push(format!(
-            "transfer matrix: a cross-check FAILED ({}: ln W per unit {} against {}); its value must not be cited",
-            crate::text::route_words(&failed.route),
-            failed.value,
-            failed.reference
-        ));
+        notes.push(Note::StripCheckFailed {
+            check: failed.clone(),
+        });
     }
     if done < 4 {
-        notes.push(format!(
-            "transfer matrix: only {done} widths within the budget; raise the budget or run `groundcount strip`"
-        ));
+        notes.push(Note::StripTooFewWidths {
+            done,
+            hint: Hint::RaiseBudgetOrStrip,
+        });
         return Ok(None);
     }
     match run.series {
@@ -300,35 +300,29 @@ fn strip_series(
             let first = series.widths.first().map_or(0, |r| r.width);
             let largest = series.widths.last().map_or(0, |r| r.width);
             let step = series.step;
-            notes.push(format!(
-                "transfer matrix: cylinders of width {first}..{largest}{} along a, extrapolated to infinite width \
-                 ({}){}; `groundcount strip` shows every width",
-                if step > 1 { format!(" in steps of {step} (the period with the smallest spread)") } else { String::new() },
-                match series.extrapolation.scaling {
-                    Scaling::Gapped => {
-                        "gapped: Aitken's Δ² on the last widths of each family, error from the window before".to_string()
-                    }
-                    _ => format!(
-                        "critical: fits in 1/W², error from their spread over {} fits",
-                        series.extrapolation.fits.len()
-                    ),
-                },
-                sector_words(&series.widths)
-            ));
+            notes.push(Note::StripSeries {
+                first,
+                largest,
+                step,
+                scaling: series.extrapolation.scaling,
+                fits: series.extrapolation.fits.len(),
+                sectors: sector_widths(&series.widths),
+                hint: Hint::StripShowsEveryWidth,
+            });
             Ok(Some(series))
         }
         None => {
             let why = run
                 .no_series
                 .unwrap_or_else(|| "too few widths".to_string());
-            notes.push(format!("transfer matrix: no extrapolation ({why})"));
+            notes.push(Note::StripNoExtrapolation { why });
             Ok(None)
         }
     }
 }
 
-/// How the kept charge sectors were established, in words ("" when no sector was kept).
-fn sector_words(widths: &[transfer::StripResult]) -> String {
+/// The widths whose charge sector was established each way.
+fn sector_widths(widths: &[transfer::StripResult]) -> SectorWidths {
     use transfer::SectorBasis;
     let of = |f: &dyn Fn(&SectorBasis) -> bool| -> Vec<usize> {
         widths
@@ -337,44 +331,24 @@ fn sector_words(widths: &[transfer::StripResult]) -> String {
             .map(|r| r.width)
             .collect()
     };
-    let full = of(&|b| *b == SectorBasis::FullSpace);
-    let local = of(&|b| *b == SectorBasis::LocalMaximum);
-    let predicted = of(&|b| matches!(b, SectorBasis::Predicted { .. }));
-    if full.is_empty() && local.is_empty() && predicted.is_empty() {
-        return String::new();
+    SectorWidths {
+        full_space: of(&|b| *b == SectorBasis::FullSpace),
+        neighbours: of(&|b| *b == SectorBasis::LocalMaximum),
+        predicted: of(&|b| matches!(b, SectorBasis::Predicted { .. })),
     }
-    let list = |v: &[usize]| match v {
-        [] => String::new(),
-        [a] => a.to_string(),
-        [a, .., b] => format!("{a}..{b}"),
-    };
-    let mut parts = Vec::new();
-    if !full.is_empty() {
-        parts.push(format!(
-            "checked against the full space at widths {}",
-            list(&full)
-        ));
-    }
-    if !local.is_empty() {
-        parts.push(format!(
-            "against the neighbouring charges at {}",
-            list(&local)
-        ));
-    }
-    if !predicted.is_empty() {
-        parts.push(format!("predicted from those at {}", list(&predicted)));
-    }
-    format!("; the charge sector of each width {}", parts.join(", "))
 }
 
 /// The lower bounds the exact counts of periodic L×L cells put on the largest eigenvalue
 /// of the width-L cylinder along a: Z = Tr T^L ≤ N λ^L, N the assignments of the boundary
 /// fields (a cell longer than the deepest constraint along the strip, so that Z is the
 /// trace).
-fn torus_bounds(widths: &[transfer::StripResult], exact_counts: &[Estimate]) -> Vec<CrossCheck> {
+fn torus_bounds(
+    widths: &[transfer::StripResult],
+    exact_counts: &[(Cells, Estimate)],
+) -> Vec<CrossCheck> {
     let mut out = Vec::new();
-    for e in exact_counts {
-        let Some(size) = e.cells.as_deref().and_then(square_side) else {
+    for (cells, e) in exact_counts {
+        let Some(size) = square_side(cells) else {
             continue;
         };
         let Some(r) = widths.iter().find(|r| r.width == size) else {
@@ -398,12 +372,10 @@ fn torus_bounds(widths: &[transfer::StripResult], exact_counts: &[Estimate]) -> 
     out
 }
 
-/// L for a cell written "LxL periodic" (two dimensions).
-fn square_side(cells: &str) -> Option<usize> {
-    let dims = cells.strip_suffix(" periodic")?;
-    let (a, b) = dims.split_once('x')?;
-    let (a, b): (usize, usize) = (a.parse().ok()?, b.parse().ok()?);
-    (a == b).then_some(a)
+/// L for a periodic L×L cell (two dimensions).
+fn square_side(cells: &Cells) -> Option<usize> {
+    let [a, b, c] = cells.counts;
+    (a == b && c == 1 && cells.periodic[..2] == [true, true]).then_some(a)
 }
 
 /// Every failed check, and of each route the agreeing check of the largest width.
@@ -508,8 +480,8 @@ fn monte_carlo(
     config: &SurveyConfig,
     context: &Context,
     end: Instant,
-    exact_counts: &[Estimate],
-    notes: &mut Vec<String>,
+    exact_counts: &[(Cells, Estimate)],
+    notes: &mut Vec<Note>,
     checks: &mut Vec<CrossCheck>,
 ) -> Result<(Vec<SampledCell>, Option<SizeExtrapolation>)> {
     let interrupt = &context.interrupt;
@@ -535,12 +507,8 @@ fn monte_carlo(
         run_in(cells, model, sample, context)
     };
     let bounded = context.until(end);
-    let interrupted_note = |notes: &mut Vec<String>, done: usize| {
-        notes.push(format!(
-            "Monte Carlo: INTERRUPTED; {done} cell{} finished",
-            if done == 1 { "" } else { "s" }
-        ))
-    };
+    let interrupted_note =
+        |notes: &mut Vec<Note>, done: usize| notes.push(Note::MonteCarloInterrupted { done });
     if interrupt.raised() {
         interrupted_note(notes, 0);
         return Ok((Vec::new(), None));
@@ -552,8 +520,7 @@ fn monte_carlo(
         exact_counts,
         &build,
         &run,
-        notes,
-        checks,
+        (notes, checks),
     );
 
     let per_cell = c.formula_unit.per_cell(c);
@@ -563,7 +530,7 @@ fn monte_carlo(
         None => sample_candidates(per_cell),
     };
     let Some(first_cells) = candidates.first() else {
-        notes.push("Monte Carlo: not run (no periodic cell of a sensible size)".into());
+        notes.push(Note::MonteCarloNoCell);
         return Ok((Vec::new(), None));
     };
     let mut results = Vec::new();
@@ -574,7 +541,9 @@ fn monte_carlo(
             return Ok((Vec::new(), None));
         }
         Err(e) => {
-            notes.push(format!("Monte Carlo: not run ({e})"));
+            notes.push(Note::MonteCarloNotRun {
+                error: e.to_string(),
+            });
             return Ok((Vec::new(), None));
         }
     };
@@ -683,10 +652,7 @@ fn monte_carlo(
     }
     describe(&results, base, notes);
     if !skipped.is_empty() {
-        notes.push(format!(
-            "Monte Carlo: {} left out: the budget ran out",
-            skipped.join(", ")
-        ));
+        notes.push(Note::MonteCarloLeftOut { cells: skipped });
     }
     if interrupt.raised() {
         interrupted_note(notes, results.len());
@@ -696,7 +662,7 @@ fn monte_carlo(
 }
 
 /// The note on what the Monte Carlo ran.
-fn describe(results: &[SampledCell], base: (usize, usize), notes: &mut Vec<String>) {
+fn describe(results: &[SampledCell], base: (usize, usize), notes: &mut Vec<Note>) {
     let Some(s0) = results.first().map(|r| &r.sampled) else {
         return;
     };
@@ -710,93 +676,54 @@ fn describe(results: &[SampledCell], base: (usize, usize), notes: &mut Vec<Strin
         .filter(|r| !r.sampled.equilibrated)
         .map(|r| r.cells.as_str())
         .collect();
-    let settings: Vec<String> = results
+    let settings: Vec<(usize, usize)> = results
         .iter()
-        .map(|r| format!("{} × {}", r.sampled.replicas, r.sampled.sweeps))
+        .map(|r| (r.sampled.replicas, r.sampled.sweeps))
         .collect();
-    let raised = results
-        .iter()
-        .any(|r| (r.sampled.replicas, r.sampled.sweeps) != base);
-    notes.push(format!(
-        "Monte Carlo: thermodynamic integration on {} ({} formula units), seed {}, replicas × sweeps per node {}{}; equilibration check (passes up and down) {}{}; `groundcount sample` runs larger cells and longer",
-        cell_list(results),
-        results
+    let raised = settings.iter().any(|&x| x != base);
+    notes.push(Note::MonteCarloRan {
+        cells: cell_list(results),
+        formula_units: results
             .iter()
-            .map(|r| format!("{}", r.sampled.estimate.formula_units))
-            .collect::<Vec<_>>()
-            .join(", "),
-        s0.seed,
-        settings.join(", "),
-        if raised {
-            format!(
-                " (raised from the default {} × {} to fill the budget)",
-                base.0, base.1
-            )
-        } else {
-            String::new()
-        },
-        if failed.is_empty() {
-            "passed".to_string()
-        } else {
-            format!(
-                "FAILED on {} (an allowance for the lag is in their σ)",
-                failed.join(", ")
-            )
-        },
-        if extended.is_empty() {
-            String::new()
-        } else {
-            format!(
-                "; {} repeated with more sweeps after a first failed check",
-                extended.join(", ")
-            )
-        }
-    ));
+            .map(|r| r.sampled.estimate.formula_units)
+            .collect(),
+        seed: s0.seed,
+        settings,
+        raised_from: raised.then_some(base),
+        failed: failed.into_iter().map(String::from).collect(),
+        extended: extended.into_iter().map(String::from).collect(),
+        hint: Hint::SampleRunsLonger,
+    });
 }
 
 /// The extrapolation of the sampled cells, with a note.
-fn extrapolate_cells(
-    results: &[SampledCell],
-    notes: &mut Vec<String>,
-) -> Option<SizeExtrapolation> {
+fn extrapolate_cells(results: &[SampledCell], notes: &mut Vec<Note>) -> Option<SizeExtrapolation> {
     if results.len() < size::MIN_CELLS {
-        notes.push(format!(
-            "Monte Carlo: {} cell{} only, not extrapolated (a fit needs {} so that one degree of freedom tests its form); every Monte Carlo row is a finite torus, whose W is larger than the infinite crystal's; raise the budget",
-            results.len(),
-            if results.len() == 1 { "" } else { "s" },
-            size::MIN_CELLS
-        ));
+        notes.push(Note::MonteCarloTooFewCells {
+            cells: results.len(),
+            needed: size::MIN_CELLS,
+        });
         return None;
     }
     let cells: Vec<Estimate> = results.iter().map(|r| r.sampled.estimate.clone()).collect();
     match size::count(&cells, &(), &Context::new()) {
         Ok(x) => {
             let fit = &x.details;
-            notes.push(format!(
-                "Monte Carlo: {} cells extrapolated to the infinite crystal by the weighted fit {} (χ² = {:.3} for {} degrees of freedom{}); the other form {} gives ln W = {} per formula unit",
-                results.len(),
-                fit.form(),
-                fit.chi2,
-                fit.dof,
-                if fit.systematic > 0.0 {
-                    format!(
-                        "; the ln N/N term left out, its effect {} in ln W added to σ",
-                        crate::text::sig(fit.systematic, 2)
-                    )
-                } else {
-                    String::new()
-                },
-                fit.alternative_form(),
-                fit.alternative.map_or("—".to_string(), |(v, s)| format!(
-                    "{} ± {}",
-                    crate::text::sig(v, 6),
-                    crate::text::sig(s, 2)
-                ))
-            ));
+            notes.push(Note::MonteCarloExtrapolated {
+                cells: results.len(),
+                form: fit.form(),
+                chi2: fit.chi2,
+                dof: fit.dof,
+                systematic: fit.systematic,
+                alternative_form: fit.alternative_form(),
+                alternative: fit.alternative,
+            });
             Some(x)
         }
         Err(e) => {
-            notes.push(format!("Monte Carlo: no extrapolation ({e})"));
+            notes.push(Note::MonteCarloNoExtrapolation {
+                error: e.to_string(),
+            });
             None
         }
     }
@@ -815,7 +742,7 @@ fn wang_landau_check(
     context: &Context,
     build: &dyn Fn(&Cells) -> Result<Model>,
     run: &dyn Fn(&Cells, &Model, &SampleConfig) -> Result<SampledCell>,
-    notes: &mut Vec<String>,
+    notes: &mut Vec<Note>,
     checks: &mut Vec<CrossCheck>,
 ) {
     let cells = Cells::cube(1, c.dimensions);
@@ -823,14 +750,17 @@ fn wang_landau_check(
     let model = match build(&cells) {
         Ok(m) if m.variables.len() <= WANG_LANDAU_MAX_VARIABLES => m,
         Ok(m) => {
-            notes.push(format!(
-                "Monte Carlo: no cross-check (no exact count in this run, and {name} has {} variables, too many for the Wang–Landau check)",
-                m.variables.len()
-            ));
+            notes.push(Note::NoCrossCheckTooLarge {
+                cells: name,
+                variables: m.variables.len(),
+            });
             return;
         }
         Err(e) => {
-            notes.push(format!("Monte Carlo: no cross-check ({e})"));
+            notes.push(Note::NoCrossCheck {
+                cells: None,
+                error: e.to_string(),
+            });
             return;
         }
     };
@@ -844,9 +774,10 @@ fn wang_landau_check(
         Ok(w) => w,
         Err(Error::Interrupted { .. }) => return,
         Err(e) => {
-            notes.push(format!(
-                "Monte Carlo: no cross-check (no exact count in this run, and the Wang–Landau walk on {name} failed: {e})"
-            ));
+            notes.push(Note::WangLandauFailed {
+                cells: name,
+                error: e.to_string(),
+            });
             return;
         }
     };
@@ -854,7 +785,10 @@ fn wang_landau_check(
         Ok(s) => s,
         Err(Error::Interrupted { .. }) => return,
         Err(e) => {
-            notes.push(format!("Monte Carlo: no cross-check on {name} ({e})"));
+            notes.push(Note::NoCrossCheck {
+                cells: Some(name),
+                error: e.to_string(),
+            });
             return;
         }
     };
@@ -869,20 +803,13 @@ fn wang_landau_check(
         reference: b.ln_w_per_unit,
         tolerance: CROSS_CHECK_SIGMAS * sa.hypot(sb),
     };
-    notes.push(format!(
-        "Monte Carlo cross-check on {name} (no exact count in this run): thermodynamic integration ln W = {} ± {} per formula unit against a Wang–Landau walk {} ± {}; {}. It tests the sampler on a small cell, not the extrapolation to larger cells",
-        crate::text::sig(a.ln_w_per_unit, 6),
-        crate::text::sig(sa, 2),
-        crate::text::sig(b.ln_w_per_unit, 6),
-        crate::text::sig(sb, 2),
-        if check.agrees() {
-            format!("agreement within {CROSS_CHECK_SIGMAS} combined σ")
-        } else {
-            format!(
-                "DISAGREEMENT beyond {CROSS_CHECK_SIGMAS} combined σ: the Monte Carlo values of this run are not to be trusted"
-            )
-        }
-    ));
+    notes.push(Note::WangLandauCheck {
+        cells: name,
+        integrated: (a.ln_w_per_unit, sa),
+        walk: (b.ln_w_per_unit, sb),
+        agrees: check.agrees(),
+        sigmas: CROSS_CHECK_SIGMAS,
+    });
     checks.push(check);
 }
 
@@ -897,25 +824,21 @@ fn cross_check(
     c: &Crystal,
     sample: &SampleConfig,
     context: &Context,
-    exact_counts: &[Estimate],
+    exact_counts: &[(Cells, Estimate)],
     build: &dyn Fn(&Cells) -> Result<Model>,
     run: &dyn Fn(&Cells, &Model, &SampleConfig) -> Result<SampledCell>,
-    notes: &mut Vec<String>,
-    checks: &mut Vec<CrossCheck>,
+    (notes, checks): (&mut Vec<Note>, &mut Vec<CrossCheck>),
 ) {
-    let Some(exact) = exact_counts
+    let Some((cells, exact)) = exact_counts
         .iter()
         .rev()
-        .find(|e| e.ln_w_per_unit.is_finite() && e.formula_units >= 2.0)
+        .find(|(_, e)| e.ln_w_per_unit.is_finite() && e.formula_units >= 2.0)
     else {
         wang_landau_check(c, sample, context, build, run, notes, checks);
         return;
     };
-    let name = exact.cells.clone().unwrap_or_default();
-    let spelled = name.strip_suffix(" periodic").unwrap_or(&name);
-    let outcome = Cells::parse(spelled, None, c.dimensions)
-        .and_then(|cells| build(&cells).map(|m| (cells, m)))
-        .and_then(|(cells, m)| run(&cells, &m, sample));
+    let name = cells.to_string();
+    let outcome = build(cells).and_then(|m| run(cells, &m, sample));
     match outcome {
         Ok(s) => {
             let e = &s.sampled.estimate;
@@ -929,25 +852,21 @@ fn cross_check(
                 reference: exact.ln_w_per_unit,
                 tolerance: CROSS_CHECK_SIGMAS * sigma,
             };
-            notes.push(format!(
-                "Monte Carlo cross-check on {name} (sampled with the default settings, {} s): ln W = {} ± {} per formula unit against the exact {}; {}. It tests the sampler (integration, tail, equilibration) on a cell the exact counter reaches, not the extrapolation to larger cells",
-                crate::text::sig(e.seconds, 2),
-                crate::text::sig(e.ln_w_per_unit, 6),
-                crate::text::sig(sigma, 2),
-                crate::text::sig(exact.ln_w_per_unit, 6),
-                if check.agrees() {
-                    format!("agreement within {CROSS_CHECK_SIGMAS}σ")
-                } else {
-                    format!(
-                        "DISAGREEMENT beyond {CROSS_CHECK_SIGMAS}σ ({:.1}σ): the Monte Carlo values of this run are not to be trusted",
-                        (e.ln_w_per_unit - exact.ln_w_per_unit) / sigma.max(f64::MIN_POSITIVE)
-                    )
-                }
-            ));
+            notes.push(Note::ExactCheck {
+                cells: name,
+                seconds: e.seconds,
+                sampled: (e.ln_w_per_unit, sigma),
+                exact: exact.ln_w_per_unit,
+                agrees: check.agrees(),
+                sigmas: CROSS_CHECK_SIGMAS,
+            });
             checks.push(check);
         }
         Err(Error::Interrupted { .. }) => {}
-        Err(e) => notes.push(format!("Monte Carlo: no cross-check on {name} ({e})")),
+        Err(e) => notes.push(Note::NoCrossCheck {
+            cells: Some(name),
+            error: e.to_string(),
+        }),
     }
 }
 

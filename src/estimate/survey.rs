@@ -6,7 +6,7 @@ use crate::counters::sampling::{SampleConfig, Sampled};
 use crate::counters::transfer::StripSeries;
 use crate::counters::{Counted, exact};
 use crate::crosscheck::CrossCheck;
-use crate::estimate::Estimate;
+use crate::estimate::{Estimate, ExactStop, Note};
 
 /// Settings of a survey.
 #[derive(Clone, Debug)]
@@ -49,7 +49,7 @@ pub struct SampledCell {
 }
 
 /// The sampled cells in words: "3x3x3, 4x4x4 and 5x5x5 periodic".
-pub fn cell_list(cells: &[SampledCell]) -> String {
+pub(crate) fn cell_list(cells: &[SampledCell]) -> String {
     let names: Vec<&str> = cells
         .iter()
         .map(|c| c.cells.strip_suffix(" periodic").unwrap_or(&c.cells))
@@ -79,8 +79,8 @@ pub struct Survey {
     pub bethe: Option<Estimate>,
     /// Exact counts, smallest cell first.
     pub exact: Vec<Estimate>,
-    /// Why the exact counts stopped (empty when they ran to the requested limit).
-    pub stopped: String,
+    /// Why the exact counts stopped (`None` when they ran to the requested limit).
+    pub stopped: Option<ExactStop>,
     /// Transfer matrices on strips, when they ran and extrapolated.
     pub strips: Option<Counted<StripSeries>>,
     /// The Monte Carlo count of the largest cell sampled, when it ran.
@@ -91,8 +91,8 @@ pub struct Survey {
     pub extrapolated: Option<SizeExtrapolation>,
     /// Cited values compared with a second route computed in the same run.
     pub checks: Vec<CrossCheck>,
-    /// Plain sentences on what ran, what stopped and why.
-    pub notes: Vec<String>,
+    /// What ran, what stopped and why ([`crate::text::note_words`] words them).
+    pub notes: Vec<Note>,
     /// The budget in seconds.
     pub budget: f64,
     /// Whether the interrupt stopped the survey before it ran everything: the estimates

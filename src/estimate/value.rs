@@ -54,6 +54,7 @@ impl Method {
 /// whichever method made it.
 #[derive(Clone, Debug, serde::Serialize)]
 #[serde(into = "EstimateRecord")]
+#[non_exhaustive]
 pub struct Estimate {
     /// How it was made.
     pub method: Method,
@@ -74,8 +75,6 @@ pub struct Estimate {
     pub seconds: f64,
     /// Largest number of partial states held at once (exact counts and transfer matrices).
     pub peak_states: Option<usize>,
-    /// Only the constructors make an estimate.
-    _built: (),
 }
 
 impl Estimate {
@@ -105,7 +104,6 @@ impl Estimate {
             sigma_ln_w: None,
             seconds,
             peak_states: None,
-            _built: (),
         }
     }
 
@@ -129,7 +127,6 @@ impl Estimate {
             sigma_ln_w,
             seconds,
             peak_states: None,
-            _built: (),
         }
     }
 
@@ -151,7 +148,6 @@ impl Estimate {
             sigma_ln_w,
             seconds,
             peak_states: None,
-            _built: (),
         }
     }
 
@@ -195,26 +191,39 @@ impl Estimate {
 /// and S0 with their uncertainties, rather than the fields it is computed from. JSON has
 /// no infinities: a zero count has ln = −∞, written as null (serde_json writes every
 /// non-finite number as null).
-#[derive(serde::Serialize)]
-struct EstimateRecord {
-    method: Method,
-    cells: Option<String>,
-    count: Option<String>,
-    ln_count: f64,
-    formula_units: f64,
-    w_per_unit: f64,
-    w_uncertainty: Option<f64>,
-    s_over_r: f64,
-    s_j_per_mol_k: f64,
-    s_uncertainty: Option<f64>,
-    seconds: f64,
-    peak_states: Option<usize>,
+#[derive(Clone, Debug, serde::Serialize)]
+pub struct EstimateRecord {
+    /// The method's name ([`Method::name`]).
+    pub method: &'static str,
+    /// The finite cell; `None` for the infinite crystal.
+    pub cells: Option<String>,
+    /// The exact count in decimal digits, when counted exactly.
+    pub count: Option<String>,
+    /// ln of the number of arrangements the estimate refers to.
+    pub ln_count: f64,
+    /// Formula units the count refers to (1 for the infinite crystal).
+    pub formula_units: f64,
+    /// W per formula unit.
+    pub w_per_unit: f64,
+    /// 1σ of W per formula unit.
+    pub w_uncertainty: Option<f64>,
+    /// S0/R per formula unit (= ln W).
+    pub s_over_r: f64,
+    /// S0 in J/(mol K) per mole of formula units.
+    pub s_j_per_mol_k: f64,
+    /// 1σ of S0 in J/(mol K).
+    pub s_uncertainty: Option<f64>,
+    /// Wall time in seconds.
+    pub seconds: f64,
+    /// Largest number of partial states held at once.
+    pub peak_states: Option<usize>,
 }
 
-impl From<Estimate> for EstimateRecord {
-    fn from(e: Estimate) -> Self {
+impl From<&Estimate> for EstimateRecord {
+    fn from(e: &Estimate) -> Self {
         EstimateRecord {
-            method: e.method,
+            method: e.method.name(),
+            cells: e.cells.clone(),
             count: e.count.as_ref().map(|c| c.to_string()),
             ln_count: e.ln_count,
             formula_units: e.formula_units,
@@ -225,8 +234,13 @@ impl From<Estimate> for EstimateRecord {
             s_uncertainty: e.sigma_s_j_per_mol_k(),
             seconds: e.seconds,
             peak_states: e.peak_states,
-            cells: e.cells,
         }
+    }
+}
+
+impl From<Estimate> for EstimateRecord {
+    fn from(e: Estimate) -> Self {
+        EstimateRecord::from(&e)
     }
 }
 

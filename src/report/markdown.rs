@@ -156,10 +156,10 @@ fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
     for passed in &cited.passed_over {
         writeln!(o, "**Warning:** {}.\n", text::refusal_words(passed, unit))?;
     }
-    if !s.stopped.is_empty() {
-        writeln!(o, "Exact counts stopped: {}.\n", s.stopped)?;
+    if let Some(stop) = &s.stopped {
+        writeln!(o, "Exact counts stopped: {}.\n", text::stop_words(stop))?;
     }
-    for n in &s.notes {
+    for n in w.notes() {
         writeln!(o, "- {n}")?;
     }
     if !s.notes.is_empty() {

@@ -19,7 +19,7 @@
 //! # Method
 //!
 //! The integral is taken over β on [0, β_max] by Simpson's rule on equally spaced nodes
-//! ([`integrate`] says why not in t = e^{−β}); the node β = 0 needs no sampling, since there
+//! (`integrate.rs` says why not in t = e^{−β}); the node β = 0 needs no sampling, since there
 //! ⟨E⟩ = E_ref exactly. Beyond β_max the reference part is analytic,
 //! ∫_{β_max}^∞ e_ref dβ = ln(p + (1 − p) e^{−β_max}) − ln p, and ∫_{β_max}^∞ ⟨E⟩ dβ lies
 //! between 0 and ⟨E⟩(β_max) when ⟨E⟩ ∝ e^{−kβ} with k ≥ 1 (every violation costs at least
@@ -74,7 +74,7 @@
 //! q_v states in d_v constraints; memory O(threads · (variables + constraints)) plus the
 //! shared tables.
 
-pub mod integrate;
+pub(crate) mod integrate;
 pub mod loops;
 pub mod moves;
 pub mod shard;
@@ -729,7 +729,7 @@ fn smallest_nodes(beta_max: f64) -> String {
 
 /// Bytes a run of `replicas` replicas with `nodes` nodes plans to hold: the replica results
 /// (two energies per node), one chain per worker thread and the compiled tables.
-pub fn memory_estimate(model: &Model, nodes: usize, replicas: usize) -> u64 {
+pub(crate) fn memory_estimate(model: &Model, nodes: usize, replicas: usize) -> u64 {
     let per_run = std::mem::size_of::<Run>() as u64 + 16 * nodes as u64;
     let touches: u64 = model.constraints.iter().map(|c| c.scope.len() as u64).sum();
     let tables: u64 = model.tables.iter().map(|t| t.bits.len() as u64 * 8).sum();
@@ -753,7 +753,7 @@ pub(crate) fn bytes_in_words(b: u64) -> String {
 
 /// The default largest β for a model with `constraints` constraints: ln(constraints) + 3,
 /// clamped to [5, 14], so that a handful of violations remain there.
-pub fn default_beta_max(constraints: usize) -> f64 {
+pub(crate) fn default_beta_max(constraints: usize) -> f64 {
     ((constraints.max(1) as f64).ln() + 3.0).clamp(5.0, 14.0)
 }
 

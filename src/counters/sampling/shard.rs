@@ -71,6 +71,11 @@ pub struct Settings {
 /// One shard of a split run, as written to its file.
 #[derive(Clone, Debug, Serialize, Deserialize)]
 pub struct Shard {
+    /// The JSON schema version ([`crate::json::SCHEMA_VERSION`]), the first key as in every
+    /// document groundcount writes; absent in files written before it (their checksum does
+    /// not cover it), which are read as before.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub schema_version: Option<u32>,
     /// [`FORMAT`].
     pub format: String,
     /// groundcount version that ran the shard.
@@ -83,7 +88,7 @@ pub struct Shard {
     pub content_hash: String,
     /// The lattice file's text.
     pub lattice_text: String,
-    /// The periodic cell, e.g. `8x8x8` (as `--cells` takes it).
+    /// The periodic cell, e.g. `8x8x8` (the cell notation of [`crate::cluster::Cells::parse`]).
     pub cells: String,
     /// Settings shared by every shard.
     pub settings: Settings,
@@ -263,6 +268,7 @@ pub fn run_shard(
         loops: config.loops,
     };
     let out = Shard {
+        schema_version: Some(crate::json::SCHEMA_VERSION),
         format: FORMAT.into(),
         version: env!("CARGO_PKG_VERSION").into(),
         method: METHOD.into(),
@@ -459,6 +465,7 @@ mod tests {
     fn shard_with(energies: Vec<Vec<f64>>, seconds: f64, beta_max: f64) -> Shard {
         let nodes = energies.first().map_or(0, Vec::len);
         Shard {
+            schema_version: Some(crate::json::SCHEMA_VERSION),
             format: FORMAT.into(),
             version: "test".into(),
             method: METHOD.into(),
@@ -493,7 +500,24 @@ mod tests {
         }
     }
 
-    /// Issue 11, item 9: untouched shard files were refused as damaged for most `--sweeps`
+    /// Issue 12: a shard file starts with `schema_version` like every document; a file
+    /// written before it had none, and still reads (its checksum never covered the key).
+    #[test]
+    fn issue12_shard_files_carry_the_schema_version_and_old_ones_still_read() {
+        let s = shard_with(vec![vec![1.0, 0.5, 0.25]], 1.0, 2.0);
+        let text = s.to_json();
+        assert!(text.starts_with("{\n  \"schema_version\": 1,"), "{text}");
+        let back = Shard::from_json(&text, Path::new("new.json")).unwrap();
+        assert_eq!(back.schema_version, Some(1));
+        let mut old = s.clone();
+        old.schema_version = None;
+        let text = old.to_json();
+        assert!(!text.contains("schema_version"));
+        let back = Shard::from_json(&text, Path::new("old.json")).unwrap();
+        assert_eq!(back.schema_version, None);
+    }
+
+    /// Issue 11, item 9: untouched shard files were refused as damaged for most sweep
     /// values, because a mean energy such as 123/41 did not read back bit for bit and the
     /// checksum failed. Every ratio k/s for s up to 2000 and a spread of k, and floats of
     /// every magnitude, must read back exactly and pass the checksum.

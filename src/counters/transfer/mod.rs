@@ -113,7 +113,7 @@ mod filters;
 mod geometry;
 mod krylov;
 mod rows;
-pub mod sector;
+pub(crate) mod sector;
 mod series;
 mod symmetry;
 pub mod torus;
@@ -121,7 +121,7 @@ pub mod torus;
 use std::time::Instant;
 
 pub use column::Column;
-pub use eigen::memory_estimate;
+pub(crate) use eigen::memory_estimate;
 pub(crate) use series::Runner;
 pub use series::{Need, Stopped, StripRun, StripSeries, count, from_widths, run, strip};
 
