@@ -50,6 +50,24 @@ pub struct LatticeSpec {
     pub rules: Vec<RuleSpec>,
     /// What one formula unit is.
     pub formula_unit: FormulaUnitSpec,
+    /// Variables held at one state (a strong field, a known ordered sublattice).
+    #[serde(default)]
+    pub pinned: Vec<PinSpec>,
+}
+
+/// One entry of `pinned:`: every variable on a site (by id or species) or on a bond (by id,
+/// or every bond of a generated family) held at one state.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PinSpec {
+    /// Site id or species.
+    #[serde(default)]
+    pub site: Option<Located<String>>,
+    /// Bond id, or the id of a `between`/`distance` family.
+    #[serde(default)]
+    pub bond: Option<Located<String>>,
+    /// The state held (0-based, as the variable kind numbers its states).
+    pub state: Located<u32>,
 }
 
 /// The unit cell.

@@ -8,6 +8,7 @@ mod counts;
 mod estimate;
 mod fuzz;
 mod json;
+mod pinned;
 mod report;
 mod sampling;
 mod shards;

@@ -23,8 +23,19 @@ struct Document {
     bonds: Vec<BondRecord>,
     groups: Vec<GroupRecord>,
     rules: Vec<RuleRecord>,
+    /// Variables held at one state (`pinned:`); empty when none.
+    held: Vec<HeldRecord>,
     formula_unit: FormulaUnitRecord,
     pauling: PaulingSummary,
+}
+
+/// A site or bond of the cell whose variable is held at one state.
+#[derive(serde::Serialize)]
+struct HeldRecord {
+    /// `site` or `bond`.
+    on: &'static str,
+    id: String,
+    state: u32,
 }
 
 /// A site of the cell.
@@ -134,6 +145,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     instances_per_cell: r.instances.len(),
                 })
                 .collect(),
+            held: c.pinned.iter().map(|p| held_record(c, p)).collect(),
             formula_unit: FormulaUnitRecord {
                 name: unit.clone(),
                 per_cell: units_per_cell,
@@ -290,6 +302,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             r.instances.len()
         )?;
     }
+    for p in &c.pinned {
+        let h = held_record(c, p);
+        writeln!(
+            out,
+            "held: {} {} at state {} (one state)",
+            h.on, h.id, h.state
+        )?;
+    }
     writeln!(
         out,
         "formula unit: {unit}, {} ({} per cell)",
@@ -320,5 +340,18 @@ fn plural(n: usize, word: &str) -> String {
         format!("1 {word}")
     } else {
         format!("{n} {word}s")
+    }
+}
+
+/// What a `pinned:` entry holds, by the id the file gives.
+fn held_record(c: &groundcount::crystal::Crystal, p: &groundcount::crystal::Pin) -> HeldRecord {
+    let (on, id) = match p.target {
+        groundcount::crystal::Target::Sites => ("site", c.sites[p.index].id.clone()),
+        groundcount::crystal::Target::Bonds => ("bond", c.bonds[p.index].id.clone()),
+    };
+    HeldRecord {
+        on,
+        id,
+        state: p.state,
     }
 }

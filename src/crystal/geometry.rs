@@ -140,6 +140,7 @@ impl Crystal {
                                 }
                                 out.push(Bond {
                                     id: format!("{prefix}{}", out.len() + 1),
+                                    family: prefix.to_string(),
                                     from: i,
                                     to: j,
                                     shift: n,

@@ -10,9 +10,10 @@
 //! ([`Crystal::from_spec`]) and the range limits it enforces; `geometry.rs` the cell's
 //! geometry (positions, distances, the bonds of a distance window, the largest shift in
 //! use); `rules.rs` the meaning of every rule kind ([`Rule::allows`]) and the expansion of a
-//! rule into its instances.
+//! rule into its instances; `pins.rs` the variables held at one state (`pinned:`).
 
 mod geometry;
+mod pins;
 mod rules;
 mod types;
 mod validate;
@@ -53,4 +54,6 @@ pub struct Crystal {
     pub rules: Vec<Rule>,
     /// Formula unit.
     pub formula_unit: FormulaUnit,
+    /// Variables held at one state, sorted by target and index, at most one per entity.
+    pub pinned: Vec<Pin>,
 }

@@ -162,6 +162,8 @@ pub struct Site {
 pub struct Bond {
     /// Id.
     pub id: String,
+    /// The id written in the file: the bond's own, or its `between`/`distance` family's.
+    pub family: String,
     /// Tail site.
     pub from: usize,
     /// Head site.
@@ -170,6 +172,18 @@ pub struct Bond {
     pub shift: Shift,
     /// Length in the units of the cell vectors.
     pub length: f64,
+}
+
+/// Variables held at one state (`pinned:` in the lattice file): every variable on this
+/// site or bond of the unit cell, in every cell.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Pin {
+    /// Sites or bonds.
+    pub target: Target,
+    /// Index into `Crystal::sites` or `Crystal::bonds`.
+    pub index: usize,
+    /// The state held.
+    pub state: u32,
 }
 
 /// A group of sites.

@@ -40,7 +40,7 @@ pub const MAX_PROBE_ENTITIES: u64 = 1 << 22;
 /// Fewest and most formula units a `per: cell` count may give one cell.
 pub const UNITS_PER_CELL_RANGE: (f64, f64) = (0.01, 1e6);
 
-pub(super) struct Checker<'a> {
+pub(crate) struct Checker<'a> {
     path: &'a Path,
 }
 
@@ -258,6 +258,7 @@ impl Crystal {
                 name: spec.formula_unit.name.clone(),
                 basis: UnitBasis::Cell(1.0),
             },
+            pinned: Vec::new(),
         };
         let site_index = |name: &Located<String>| -> Result<usize> {
             crystal
@@ -417,6 +418,7 @@ impl Crystal {
                 };
                 bonds.push(Bond {
                     id: b.id.value.clone(),
+                    family: b.id.value.clone(),
                     from: f,
                     to: t,
                     shift,
@@ -632,6 +634,7 @@ impl Crystal {
             return ck.at(&fu.per, "`count` applies only with `per: cell`");
         }
         crystal.formula_unit.basis = basis;
+        crystal.pinned = crystal.validate_pins(&spec.pinned, &ck)?;
         crystal.check_probe_size(&spec, &ck)?;
         Ok(crystal)
     }
