@@ -9,6 +9,7 @@
 mod calorimetry;
 mod estimate;
 mod exact;
+mod import;
 mod inspect;
 mod merge;
 mod report;
@@ -47,6 +48,8 @@ enum Command {
     Report(report::Args),
     /// Third-law entropy from measured heat capacities, and the residual entropy it implies.
     Calorimetry(calorimetry::Args),
+    /// Write the lattice file of a published structure (CIF), with where each part came from.
+    Import(import::Args),
 }
 
 /// Output format shared by every command.
@@ -205,6 +208,7 @@ pub fn run() -> i32 {
         Command::Strip(a) => strip::run(a),
         Command::Report(a) => report::run(a),
         Command::Calorimetry(a) => calorimetry::run(a),
+        Command::Import(a) => import::run(a),
     };
     match result {
         Ok(text) => {
@@ -271,10 +275,18 @@ fn interrupt() -> groundcount::context::Interrupt {
     .clone()
 }
 
-/// Load a lattice file, or the built-in ice Ih description when none is given.
+/// Load a lattice file or a structure file (CIF, told by its extension or content), or
+/// the built-in ice Ih description when none is given.
 fn load(file: Option<&Path>) -> anyhow::Result<Lattice> {
     Ok(match file {
-        Some(p) => Lattice::from_file(p)?,
+        Some(p) => {
+            let bytes = groundcount::spec::read_file(p)?;
+            if groundcount::cif::is_cif(p, &bytes) {
+                import::load(&bytes, p)?
+            } else {
+                Lattice::from_bytes(&bytes, p)?
+            }
+        }
         None => Lattice::from_yaml(
             groundcount::ICE_IH_YAML,
             groundcount::spec::embedded_path("ice-ih.yaml"),
