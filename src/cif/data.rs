@@ -241,7 +241,9 @@ mod tests {
         assert_eq!(parse_number(".5").unwrap().value, 0.5);
         assert_eq!(parse_number("5.").unwrap().value, 5.0);
         assert_eq!(parse_number("+2").unwrap().su, None);
-        for bad in ["", ".", "1.2.3", "abc", "1(2", "1()", "1(a)", "1e", "e5", "--1", "nan"] {
+        for bad in [
+            "", ".", "1.2.3", "abc", "1(2", "1()", "1(a)", "1e", "e5", "--1", "nan",
+        ] {
             assert!(parse_number(bad).is_none(), "{bad}");
         }
     }

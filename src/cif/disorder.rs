@@ -167,7 +167,10 @@ fn neighbours(cell: &Cell, e: &Expansion, i: usize, cutoff: f64) -> Vec<Near> {
 fn angle(at: [f64; 3], to_a: [f64; 3], to_b: [f64; 3]) -> f64 {
     let u = [0, 1, 2].map(|k| to_a[k] - at[k]);
     let v = [0, 1, 2].map(|k| to_b[k] - at[k]);
-    (dot(u, v) / (norm(u) * norm(v))).clamp(-1.0, 1.0).acos().to_degrees()
+    (dot(u, v) / (norm(u) * norm(v)))
+        .clamp(-1.0, 1.0)
+        .acos()
+        .to_degrees()
 }
 
 fn add(a: [f64; 3], b: [f64; 3]) -> [f64; 3] {
@@ -301,9 +304,7 @@ pub fn recognise(cell: &Cell, e: &Expansion) -> Result<Network, Refusal> {
     let partial = |i: usize| occupancy(i).value < 1.0 - HALF;
     // Partially occupied hydrogens on atoms that accept no hydrogen bond.
     let guests: Vec<String> = (0..n)
-        .filter(|&i| {
-            donor[i].is_some_and(|(d, _)| !ACCEPTORS.contains(&element(d))) && partial(i)
-        })
+        .filter(|&i| donor[i].is_some_and(|(d, _)| !ACCEPTORS.contains(&element(d))) && partial(i))
         .map(|i| {
             format!(
                 "{} (on {})",
@@ -327,7 +328,9 @@ pub fn recognise(cell: &Cell, e: &Expansion) -> Result<Network, Refusal> {
     let is_acceptor = |i: usize| ACCEPTORS.contains(&element(i));
     let mut pair_of: Vec<Option<usize>> = vec![None; n];
     for h in 0..n {
-        let Some((a, a_to_h)) = donor[h] else { continue };
+        let Some((a, a_to_h)) = donor[h] else {
+            continue;
+        };
         if !is_acceptor(a) || !partial(h) {
             continue;
         }
@@ -344,7 +347,9 @@ pub fn recognise(cell: &Cell, e: &Expansion) -> Result<Network, Refusal> {
                 continue;
             }
             for j in 0..n {
-                let Some((bj, b_to_j)) = donor[j] else { continue };
+                let Some((bj, b_to_j)) = donor[j] else {
+                    continue;
+                };
                 if bj != b || j == h || !partial(j) {
                     continue;
                 }
@@ -375,9 +380,7 @@ pub fn recognise(cell: &Cell, e: &Expansion) -> Result<Network, Refusal> {
                 let pb = e.atoms[*b].at;
                 let frac_b = fractional(cell, *c_b);
                 let shift = [0, 1, 2].map(|k| (pa[k] + frac_b[k] - pb[k]).round() as i64);
-                let (from, to, shift, h_from, h_to) = if a < *b
-                    || (a == *b && shift > [0, 0, 0])
-                {
+                let (from, to, shift, h_from, h_to) = if a < *b || (a == *b && shift > [0, 0, 0]) {
                     (a, *b, shift, h, *j)
                 } else {
                     (*b, a, shift.map(|x| -x), *j, h)

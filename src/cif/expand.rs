@@ -205,14 +205,14 @@ pub fn read_sites(block: &Block) -> Result<Vec<Site>, Problem> {
                     ));
                 }
                 Some(Err(e)) => {
-                    return Err((
-                        format!("the coordinate of {label}: {e}"),
-                        Some(v.clone()),
-                    ));
+                    return Err((format!("the coordinate of {label}: {e}"), Some(v.clone())));
                 }
                 None => {
                     return Err((
-                        format!("{label} has no value for a fractional coordinate ('{}')", v.text),
+                        format!(
+                            "{label} has no value for a fractional coordinate ('{}')",
+                            v.text
+                        ),
                         Some(v.clone()),
                     ));
                 }
@@ -294,7 +294,10 @@ pub fn read_sites(block: &Block) -> Result<Vec<Site>, Problem> {
 /// Expand the asymmetric unit with the operators.
 pub fn expand(cell: &Cell, ops: &[Operator], sites: Vec<Site>) -> Result<Expansion, Problem> {
     if ops.is_empty() {
-        return Err(("no symmetry operators: at least x, y, z is needed".into(), None));
+        return Err((
+            "no symmetry operators: at least x, y, z is needed".into(),
+            None,
+        ));
     }
     let mut atoms: Vec<Atom> = Vec::new();
     for (s, site) in sites.iter().enumerate() {
@@ -414,10 +417,17 @@ mod tests {
         let e = expand(
             &cell,
             &ops,
-            vec![site("A", [0.0, 0.0, 0.0]), site("B", [0.1, 0.2, 0.3]), site("C", [0.5, 0.0, 0.25])],
+            vec![
+                site("A", [0.0, 0.0, 0.0]),
+                site("B", [0.1, 0.2, 0.3]),
+                site("C", [0.5, 0.0, 0.25]),
+            ],
         )
         .unwrap();
-        assert_eq!([e.multiplicity(0), e.multiplicity(1), e.multiplicity(2)], [1, 4, 2]);
+        assert_eq!(
+            [e.multiplicity(0), e.multiplicity(1), e.multiplicity(2)],
+            [1, 4, 2]
+        );
         assert_eq!(e.name(0), "A");
         assert_eq!(e.name(2), "B_2");
         // Images 0.16 Å apart are refused.
@@ -425,6 +435,11 @@ mod tests {
         assert!(m.0.contains("0.160 Å apart"), "{}", m.0);
         let mut wrong = site("W", [0.1, 0.2, 0.3]);
         wrong.multiplicity = Some(2);
-        assert!(expand(&cell, &ops, vec![wrong]).unwrap_err().0.contains("multiplicity as 2"));
+        assert!(
+            expand(&cell, &ops, vec![wrong])
+                .unwrap_err()
+                .0
+                .contains("multiplicity as 2")
+        );
     }
 }

