@@ -106,7 +106,9 @@ impl Lattice {
         })
     }
 
-    /// Tile, compile and count one cell exactly.
+    /// Tile, compile and count one cell exactly, by the route `groundcount exact` takes
+    /// (the frontier counter, or the trace of Tᴸ on a thin torus where that is predicted
+    /// cheaper: [`counters::exact::count_cell`]).
     pub fn count_exact(
         &self,
         cells: &cluster::Cells,
@@ -114,7 +116,7 @@ impl Lattice {
     ) -> Result<Estimate> {
         let cluster = cluster::Cluster::new(&self.crystal, cells.clone())?;
         let model = model::Model::new(&cluster)?;
-        counters::exact::count(&model, config)
+        counters::exact::count_cell(&self.crystal, cells, &model, config).map(|(e, _)| e)
     }
 }
 

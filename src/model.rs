@@ -7,6 +7,12 @@
 //! periodic cells (a bond that wraps onto itself); the table is built over the distinct
 //! variables, evaluating the rule on every occurrence, so such cells are counted honestly.
 //! Identical tables are shared.
+//!
+//! The model remembers where everything comes from: each variable's [`Origin`] (the site or
+//! bond of the crystal and the cell of the cluster it sits in) and each constraint's rule
+//! instance (rule, instance within the rule, anchoring cell), so that a counter that needs
+//! the geometry (the transfer operator places variables in columns and finds the translate
+//! of a constraint one column on) reads it instead of re-deriving it.
 
 use std::collections::HashMap;
 
@@ -27,6 +33,37 @@ pub struct Variable {
     pub states: u32,
     /// Position in cell units, used to order sweeps.
     pub position: [f64; 3],
+    /// The site or bond of the crystal it lives on, and the cell.
+    pub origin: Origin,
+}
+
+/// The entity of the crystal a variable lives on, in one cell of the cluster.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Origin {
+    /// Site `site` of the crystal (an index into `Crystal::sites`) in cell `cell`.
+    Site {
+        /// Index into the crystal's sites.
+        site: usize,
+        /// Cell coordinates in the cluster.
+        cell: [usize; 3],
+    },
+    /// Bond `bond` of the crystal (an index into `Crystal::bonds`) leaving cell `cell`
+    /// (the cell of its `from` site).
+    Bond {
+        /// Index into the crystal's bonds.
+        bond: usize,
+        /// Cell coordinates in the cluster of the bond's `from` site.
+        cell: [usize; 3],
+    },
+}
+
+impl Origin {
+    /// The cell the variable sits in.
+    pub fn cell(&self) -> [usize; 3] {
+        match *self {
+            Origin::Site { cell, .. } | Origin::Bond { cell, .. } => cell,
+        }
+    }
 }
 
 /// A table of allowed assignments of a scope, indexed in mixed radix (first variable
@@ -60,6 +97,11 @@ pub struct Constraint {
     pub table: usize,
     /// Index of the crystal rule it comes from.
     pub rule: usize,
+    /// Index of the rule instance (`Rule::instances`) it compiles.
+    pub instance: usize,
+    /// The cell of the cluster the instance is anchored in (its slots' shifts are relative
+    /// to it).
+    pub cell: [usize; 3],
 }
 
 /// Variables and constraints of a finite cluster.
@@ -93,19 +135,27 @@ impl Model {
         let mut bond_offset = None;
         if let Some(q) = site_var {
             site_offset = Some(variables.len());
-            for i in 0..cluster.sites.len() {
+            for (i, s) in cluster.sites.iter().enumerate() {
                 variables.push(Variable {
                     states: q,
                     position: cluster.site_position(i),
+                    origin: Origin::Site {
+                        site: s.site,
+                        cell: s.cell,
+                    },
                 });
             }
         }
         if let Some(q) = bond_var {
             bond_offset = Some(variables.len());
-            for i in 0..cluster.bonds.len() {
+            for (i, b) in cluster.bonds.iter().enumerate() {
                 variables.push(Variable {
                     states: q,
                     position: cluster.bond_position(i),
+                    origin: Origin::Bond {
+                        bond: b.bond,
+                        cell: b.cell,
+                    },
                 });
             }
         }
@@ -116,7 +166,7 @@ impl Model {
         let mut has_repeats = false;
         for (r, rule) in crystal.rules.iter().enumerate() {
             for cell in cluster.all_cells() {
-                'instance: for inst in &rule.instances {
+                'instance: for (instance, inst) in rule.instances.iter().enumerate() {
                     // (variable, inward state) per occurrence.
                     let mut occ: Vec<(usize, u32)> = Vec::with_capacity(inst.slots.len());
                     for slot in &inst.slots {
@@ -184,6 +234,8 @@ impl Model {
                         scope,
                         table,
                         rule: r,
+                        instance,
+                        cell,
                     });
                 }
             }

@@ -1,15 +1,24 @@
 //! Transfer matrices on strips against published exact values for the infinite lattices,
 //! against the frontier counter on tori, and the `strip` command line.
 
-use groundcount::Lattice;
-use groundcount::cluster::Cells;
+use groundcount::cluster::{Cells, Cluster};
+use groundcount::counters::exact::{self, CellRoute};
 use groundcount::counters::extrapolate::Scaling;
 use groundcount::counters::transfer::{self, Column, Sectors, StripConfig, torus};
+use groundcount::model::Model;
+use groundcount::{Estimate, Lattice};
 
 use crate::util::{lattice, run, run_json};
 
 fn load(name: &str) -> Lattice {
     Lattice::from_file(&lattice(name)).unwrap()
+}
+
+/// The frontier counter's count of a cell (never the trace route, which
+/// `Lattice::count_exact` may take on a thin torus).
+fn frontier(l: &Lattice, cells: &Cells) -> Estimate {
+    let model = Model::new(&Cluster::new(&l.crystal, cells.clone()).unwrap()).unwrap();
+    exact::count(&model, &Default::default()).unwrap()
 }
 
 /// Extrapolate widths and check that the error bar covers the published value and is small.
@@ -139,7 +148,7 @@ fn long_tori_approach_the_largest_eigenvalue() {
     let mut last_gap = f64::INFINITY;
     for length in [8, 16, 24] {
         let cells = Cells::parse(&format!("{length}x4"), None, 2).unwrap();
-        let e = l.count_exact(&cells, &Default::default()).unwrap();
+        let e = frontier(&l, &cells);
         let gap = (e.ln_count / length as f64 - r.ln_lambda).abs();
         assert!(gap < last_gap, "L = {length}: {gap}");
         last_gap = gap;
@@ -160,7 +169,7 @@ fn open_strips_trace_to_the_frontier_count() {
         };
         let column = Column::new(&l.crystal, n, &config).unwrap();
         let cells = Cells::parse(&format!("{n}x{n}"), Some("b"), 2).unwrap();
-        let exact = l.count_exact(&cells, &Default::default()).unwrap();
+        let exact = frontier(&l, &cells);
         assert_eq!(column.trace_power(n).unwrap(), exact.count.unwrap());
     }
 }
@@ -470,7 +479,7 @@ fn torus_counts_by_trace_and_by_frontier_agree_with_oeis() {
     let l = load("square-ice.yaml");
     for (n, &expected) in (1..=8).zip(&published) {
         let cells = Cells::parse(&format!("{n}x{n}"), None, 2).unwrap();
-        let frontier = l.count_exact(&cells, &Default::default()).unwrap();
+        let frontier = frontier(&l, &cells);
         assert_eq!(frontier.count.clone().unwrap(), expected.into(), "{n}x{n}");
         // The template reaches one column back: the trace needs L ≥ 2.
         let Some(route) = torus::route(&l.crystal, &cells, 1 << 16) else {
@@ -492,7 +501,7 @@ fn exact_takes_the_trace_route_on_a_long_thin_torus() {
     // plan's; the count must equal the frontier counter's, digit for digit.
     let l = load("square-ice.yaml");
     let cells = Cells::parse("2x100", None, 2).unwrap();
-    let frontier = l.count_exact(&cells, &Default::default()).unwrap();
+    let frontier = frontier(&l, &cells);
     let out = run(&[
         "exact",
         lattice("square-ice.yaml").to_str().unwrap(),
@@ -509,6 +518,51 @@ fn exact_takes_the_trace_route_on_a_long_thin_torus() {
         .map(str::to_string)
         .unwrap_or_else(|| v["count"].to_string());
     assert_eq!(printed, frontier.count.unwrap().to_string());
+}
+
+/// `Lattice::count_exact` and `groundcount exact` take the same route (the library makes the
+/// choice) and give the same integer as the frontier counter: on a long thin torus (the
+/// trace, predicted cheaper), on a square torus whose frontier bound is loose (the
+/// frontier) and on a cell open along one axis (the frontier).
+#[test]
+fn issue12_count_exact_and_the_command_take_the_same_route() {
+    let l = load("square-ice.yaml");
+    let path = lattice("square-ice.yaml");
+    let path = path.to_str().unwrap();
+    for (shape, open, trace) in [
+        ("2x100", None, true),
+        ("4x60", None, true),
+        ("8x8", None, false),
+        ("4x4", Some("a"), false),
+    ] {
+        let cells = Cells::parse(shape, open, 2).unwrap();
+        let model = Model::new(&Cluster::new(&l.crystal, cells.clone()).unwrap()).unwrap();
+        let (e, route) =
+            exact::count_cell(&l.crystal, &cells, &model, &Default::default()).unwrap();
+        assert_eq!(matches!(route, CellRoute::Trace { .. }), trace, "{shape}");
+        let library = l.count_exact(&cells, &Default::default()).unwrap();
+        assert_eq!(library.count, e.count);
+        let mut args = vec!["exact", path, "--cells", shape, "--format", "json"];
+        if let Some(o) = open {
+            args.extend(["--open", o]);
+        }
+        let v = run_json(&args);
+        assert_eq!(
+            v["route"],
+            if trace { "trace" } else { "frontier" },
+            "{shape}"
+        );
+        let printed = v["count"]
+            .as_str()
+            .map(str::to_string)
+            .unwrap_or_else(|| v["count"].to_string());
+        assert_eq!(
+            printed,
+            library.count.clone().unwrap().to_string(),
+            "{shape}"
+        );
+        assert_eq!(library.count, frontier(&l, &cells).count, "{shape}");
+    }
 }
 
 #[test]
@@ -567,7 +621,7 @@ fn prisms_of_three_dimensional_crystals_trace_to_the_frontier_count() {
             counts[across[1]] = depth.unwrap_or(width);
             let shape = format!("{}x{}x{}", counts[0], counts[1], counts[2]);
             let cells = Cells::parse(&shape, None, 3).unwrap();
-            let frontier = l.count_exact(&cells, &Default::default()).unwrap();
+            let frontier = frontier(&l, &cells);
             assert_eq!(
                 column.trace_power(length).unwrap(),
                 frontier.count.unwrap(),
@@ -660,7 +714,7 @@ fn thin_three_dimensional_tori_count_by_trace_as_by_frontier() {
     ] {
         let l = load(name);
         let cells = Cells::parse(shape, None, 3).unwrap();
-        let frontier = l.count_exact(&cells, &Default::default()).unwrap();
+        let frontier = frontier(&l, &cells);
         let route = torus::route(&l.crystal, &cells, 1 << 16).expect("a trace route");
         let trace = route.count(frontier.formula_units, shape).unwrap();
         assert_eq!(trace.count, frontier.count, "{name} {shape}");

@@ -4,15 +4,12 @@ use std::fmt::Write;
 use std::path::PathBuf;
 
 use groundcount::cluster::{Cells, Cluster};
-use groundcount::counters::transfer::torus;
+use groundcount::counters::exact::CellRoute;
 use groundcount::counters::{exact, pauling};
 use groundcount::model::Model;
 use groundcount::report::{self, sig};
 
 use super::{Common, Format, cell_header, load, pauling_line, with_threads};
-
-/// Largest column state space tried for the trace route of a torus.
-const TRACE_MAX_STATES: usize = 1 << 16;
 
 /// Memory a cluster and its model take per site and bond, measured on square ice
 /// (2000x2000: 12 million sites and bonds, 3 GB).
@@ -78,25 +75,15 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         progress,
         interrupt: super::interrupt(),
     };
-    // A torus may be cheaper as the trace of T^L: compare the predicted work of both
-    // routes (the trace's column is tried with a small state budget only).
-    let frontier_work = exact::plan_for(&model).map_or(f64::INFINITY, |p| p.cost);
-    let trace = if model.contradiction.is_none() {
-        with_threads(args.common.threads, || {
-            torus::route(c, &cells, args.max_states.min(TRACE_MAX_STATES))
-        })?
-        .filter(|r| r.work() < frontier_work)
-    } else {
-        None
-    };
-    let e = with_threads(args.common.threads, || match &trace {
-        Some(r) => r.count(model.formula_units, &model.cells),
-        None => exact::count(&model, &config),
+    // A torus may be cheaper as the trace of T^L: the library compares the predicted work
+    // of both routes.
+    let counted = with_threads(args.common.threads, || {
+        exact::count_cell(c, &cells, &model, &config)
     });
     if let Some(b) = bar {
         b.finish_and_clear();
     }
-    let e = e??;
+    let (e, route) = counted??;
     let unit = &c.formula_unit.name;
     match args.common.format {
         Format::Json => {
@@ -104,7 +91,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             v["variables"] = model.variables.len().into();
             v["constraints"] = model.constraints.len().into();
             v["content_hash"] = lattice.content_hash.clone().into();
-            v["route"] = if trace.is_some() { "trace" } else { "frontier" }.into();
+            v["route"] = match route {
+                CellRoute::Trace { .. } => "trace",
+                CellRoute::Frontier => "frontier",
+            }
+            .into();
             Ok(serde_json::to_string_pretty(&v)? + "\n")
         }
         Format::Csv => Ok(report::comparison_table(&[p, e], unit).render_csv()),
@@ -125,15 +116,15 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             )?;
             out += &pauling_line(&p, unit);
             writeln!(out)?;
-            match &trace {
-                Some(r) => writeln!(
+            match route {
+                CellRoute::Trace { column_states } => writeln!(
                     out,
                     "exact count as the trace of the transfer matrix T^L ({} column states; predicted cheaper than the frontier count), {} s, at most {} states held",
-                    r.states(),
+                    column_states,
                     sig(e.seconds, 3),
                     e.peak_states.unwrap_or(0)
                 )?,
-                None => writeln!(
+                CellRoute::Frontier => writeln!(
                     out,
                     "exact frontier count, {} s, at most {} partial states held",
                     sig(e.seconds, 3),

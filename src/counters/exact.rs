@@ -7,16 +7,21 @@
 //!
 //! # Method
 //!
-//! Variables are added one at a time in the order of a [`Plan`]. The frontier holds the
-//! partial assignments of the variables that some unfinished constraint still reads, each
-//! packed into a `u64` (a bit field per variable, the newest lowest), with the number of
-//! ways to reach it, as sorted runs of keys. Adding a variable shifts each key up and writes
-//! the variable's value below; a constraint is checked the moment its last variable
-//! arrives, by table look-up of the values that survive; a variable that no unfinished
-//! constraint reads is squeezed out of the key. Keys that agree on the squeezed-out values
-//! keep their order, so states that coincide are merged by a linear merge of a few sorted
-//! streams, never a sort. This is the transfer matrix method written variable by variable
+//! Variables are added one at a time in the order of a [`Plan`], by the frontier engine
+//! ([`super::frontier`]) with counts as its payload. The frontier holds the partial
+//! assignments of the variables that some unfinished constraint still reads, each packed
+//! into a `u64` (a bit field per variable, the newest lowest), with the number of ways to
+//! reach it, as sorted runs of keys. Adding a variable shifts each key up and writes the
+//! variable's value below; a constraint is checked the moment its last variable arrives,
+//! by table look-up of the values that survive; a variable that no unfinished constraint
+//! reads is squeezed out of the key. Keys that agree on the squeezed-out values keep their
+//! order, so states that coincide are merged by a linear merge of a few sorted streams,
+//! never a sort. This is the transfer matrix method written variable by variable
 //! ("frontier" or path-decomposition counting).
+//!
+//! [`count_cell`] counts a whole cell by the cheaper of two routes: this one, or for a
+//! torus the trace of the L-th power of a column transfer operator
+//! ([`super::transfer::torus`]), when its predicted work is smaller.
 //!
 //! Counts run in `u128`, then in fixed-width integers, then in arbitrary precision
 //! (`num-bigint`), every addition checked: an overflow restarts the count one width up, so
@@ -25,7 +30,8 @@
 //! # Arguments and returns
 //!
 //! [`count`] takes a model and an [`ExactConfig`] (state budget, deadline) and returns an
-//! [`Estimate`] with `count` set.
+//! [`Estimate`] with `count` set; [`count_cell`] takes the crystal and the cell as well and
+//! says which route it took ([`CellRoute`]).
 //!
 //! # Complexity
 //!
@@ -35,12 +41,16 @@
 //! Large frontiers are processed in parallel with rayon (in whatever pool the caller
 //! installs).
 
+use std::sync::Arc;
 use std::time::Instant;
 
 use num_bigint::BigUint;
-use rayon::prelude::*;
 
-use super::order::{self, Plan, width};
+use super::frontier::layout::{Layout, width};
+use super::frontier::payload::{Count, Wide};
+use super::frontier::step::{Completed, Step};
+use super::frontier::{Frontier, Piece};
+use super::order::{self, Plan};
 use crate::error::{Error, Result};
 use crate::estimate::{Estimate, Method, ln_big};
 use crate::model::Model;
@@ -83,120 +93,8 @@ impl Default for ExactConfig {
 /// merging.
 pub const DEFAULT_MAX_STATES: usize = 1 << 24;
 
-/// Frontiers smaller than this are processed on one thread.
-const PARALLEL_MIN: usize = 1 << 15;
-
-/// Counts the frontier can hold.
-trait Tally: Clone + Send + Sync + Sized {
-    fn zero() -> Self;
-    fn one() -> Self;
-    /// `self += other`; `false` on overflow.
-    fn add(&mut self, other: &Self) -> bool;
-    fn into_big(self) -> BigUint;
-}
-
-impl Tally for u128 {
-    fn zero() -> Self {
-        0
-    }
-    fn one() -> Self {
-        1
-    }
-    #[inline]
-    fn add(&mut self, other: &Self) -> bool {
-        match self.checked_add(*other) {
-            Some(s) => {
-                *self = s;
-                true
-            }
-            None => false,
-        }
-    }
-    fn into_big(self) -> BigUint {
-        BigUint::from(self)
-    }
-}
-
-impl Tally for BigUint {
-    fn zero() -> Self {
-        BigUint::from(0u32)
-    }
-    fn one() -> Self {
-        BigUint::from(1u32)
-    }
-    #[inline]
-    fn add(&mut self, other: &Self) -> bool {
-        *self += other;
-        true
-    }
-    fn into_big(self) -> BigUint {
-        self
-    }
-}
-
 /// A counting run in one integer type, returning the count as a big integer.
 type Runner = fn(&Model, &Plan, &ExactConfig) -> std::result::Result<(BigUint, usize), Failure>;
-
-/// A fixed-width unsigned integer of `N` 64-bit limbs (least significant first): counts
-/// beyond u128 without an allocation per state.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-struct Wide<const N: usize>([u64; N]);
-
-impl<const N: usize> Tally for Wide<N> {
-    fn zero() -> Self {
-        Wide([0; N])
-    }
-    fn one() -> Self {
-        let mut w = [0; N];
-        w[0] = 1;
-        Wide(w)
-    }
-    #[inline]
-    fn add(&mut self, other: &Self) -> bool {
-        let mut carry = false;
-        for (a, b) in self.0.iter_mut().zip(&other.0) {
-            let (s1, c1) = a.overflowing_add(*b);
-            let (s2, c2) = s1.overflowing_add(carry as u64);
-            *a = s2;
-            carry = c1 | c2;
-        }
-        !carry
-    }
-    fn into_big(self) -> BigUint {
-        let digits: Vec<u32> = self
-            .0
-            .iter()
-            .flat_map(|l| [*l as u32, (*l >> 32) as u32])
-            .collect();
-        BigUint::new(digits)
-    }
-}
-
-/// A constraint compiled against the plan's bit layout.
-struct Check<'m> {
-    /// (offset, mask, stride) per scope variable other than the step's new one.
-    fields: Vec<(u32, u64, u64)>,
-    /// Stride of the step's new variable (it completes the constraint, so it is in scope).
-    new_stride: u64,
-    table: &'m crate::model::Table,
-}
-
-impl Check<'_> {
-    /// The values of the new variable (as a bit mask over `0..states`) that the constraint
-    /// allows, given the other variables' values in `key`.
-    #[inline]
-    fn allowed_values(&self, key: u64, states: u64) -> u64 {
-        let mut index = 0u64;
-        for &(off, mask, stride) in &self.fields {
-            index += ((key >> off) & mask) * stride;
-        }
-        let mut allowed = 0u64;
-        for x in 0..states {
-            allowed |= u64::from(self.table.allows(index + x * self.new_stride)) << x;
-        }
-        allowed
-    }
-}
 
 enum Failure {
     Overflow,
@@ -272,347 +170,123 @@ pub fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
     Ok(finish(count, peak))
 }
 
+/// Largest column state space tried for the trace route of a torus ([`count_cell`]).
+pub const TRACE_MAX_STATES: usize = 1 << 16;
+
+/// How many frontier-plan cost units one predicted big-integer addition of the trace is
+/// worth ([`count_cell`]). The plan's cost counts every pattern of the frontier's
+/// variables, an upper bound that the rules cut down on wide tori, so there one unit is
+/// cheap; on long thin tori the bound is tight and big integers dominate both routes.
+/// Measured with `examples/route_cost.rs` (one machine, 2 cores): square ice 10x10 frontier
+/// 1.5 s, trace 4.0 s (work ratio 0.58); square ice 6x1000 frontier 5.6 s, trace 1.4 s
+/// (ratio 0.39); 4x2000 0.42 s against 0.11 s (ratio 0.38); square dimers 10x10 0.68 s
+/// against 1.58 s (ratio 0.30, the one shipped case among these where 2 picks the slower
+/// route). With 2 the faster route is taken on the other shipped 2D tori from 8x8 to 12x12
+/// and on the long thin tori above.
+pub const TRACE_WEIGHT: f64 = 2.0;
+
+/// The route [`count_cell`] took.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum CellRoute {
+    /// The frontier counter ([`count`]).
+    Frontier,
+    /// The trace of Tᴸ of a column transfer operator with this many boundary states.
+    Trace {
+        /// States at a column boundary (the dimension of T).
+        column_states: usize,
+    },
+}
+
+/// The exact count of the cell `cells` of `crystal`, whose model is `model`: by the
+/// frontier counter, or for a periodic cell by the trace of Tᴸ when its predicted work,
+/// weighted by [`TRACE_WEIGHT`], is smaller than the frontier plan's cost (its column is tried with at most
+/// [`TRACE_MAX_STATES`] states). Both give the same integer; the trace is much cheaper on
+/// long thin tori. [`crate::Lattice::count_exact`] and `groundcount exact` call this.
+pub fn count_cell(
+    crystal: &crate::crystal::Crystal,
+    cells: &crate::cluster::Cells,
+    model: &Model,
+    config: &ExactConfig,
+) -> Result<(Estimate, CellRoute)> {
+    if model.contradiction.is_none() {
+        let frontier_work = plan_for(model).map_or(f64::INFINITY, |p| p.cost);
+        let max_states = config.max_states.min(TRACE_MAX_STATES);
+        if let Some(trace) = super::transfer::torus::route(crystal, cells, max_states)
+            && TRACE_WEIGHT * trace.work() < frontier_work
+        {
+            let route = CellRoute::Trace {
+                column_states: trace.states(),
+            };
+            return Ok((trace.count_within(model, config)?, route));
+        }
+    }
+    Ok((count(model, config)?, CellRoute::Frontier))
+}
+
 /// The plan that [`count`] would follow (for reports and benchmarks).
 pub fn plan_for(model: &Model) -> Option<Plan> {
     order::choose(model)
 }
 
-/// A sorted run of frontier states: unique keys in increasing order, with their counts.
-struct Piece<C> {
-    keys: Vec<u64>,
-    counts: Vec<C>,
-}
-
-impl<C> Piece<C> {
-    fn new() -> Self {
-        Piece {
-            keys: Vec::new(),
-            counts: Vec::new(),
-        }
-    }
-    fn clear(&mut self) {
-        self.keys.clear();
-        self.counts.clear();
-    }
-    fn len(&self) -> usize {
-        self.keys.len()
-    }
-}
-
-/// One step of the sweep, compiled: add a variable, check what completes, forget fields.
-///
-/// Keys are packed with the newest variable in the lowest bits: a step shifts the key up by
-/// the new variable's width and writes its value below, then squeezes out the fields of the
-/// variables it forgets. Both moves keep the input's order among keys whose forgotten
-/// fields agree, so each *stream* (one pattern of forgotten values) comes out sorted and
-/// the step is a merge of a few sorted streams (none at all when nothing is forgotten).
-struct Step<'m> {
-    states: u64,
-    width: u32,
-    /// Constraints completed by this step, with offsets in the shifted key.
-    checks: Vec<Check<'m>>,
-    /// (offset, mask) of the forgotten fields in the shifted key.
-    dropped: Vec<(u32, u64)>,
-    /// (source offset, mask, destination offset) of the runs of kept bits.
-    segments: Vec<(u32, u64, u32)>,
-    /// Number of streams: patterns of forgotten values.
-    streams: usize,
-}
-
-impl Step<'_> {
-    #[inline]
-    fn stream(&self, key: u64) -> usize {
-        let mut s = 0usize;
-        let mut radix = 1usize;
-        for &(off, mask) in &self.dropped {
-            s += ((key >> off) & mask) as usize * radix;
-            radix *= mask as usize + 1;
-        }
-        s
-    }
-
-    #[inline]
-    fn squeeze(&self, key: u64) -> u64 {
-        self.segments.iter().fold(0, |acc, &(src, mask, dst)| {
-            acc | (((key >> src) & mask) << dst)
-        })
-    }
-
-    /// Extend a sorted piece into one sorted buffer per stream.
-    fn extend<C: Tally>(&self, input: &Piece<C>, out: &mut [Piece<C>]) {
-        let all = if self.states == 64 {
-            u64::MAX
-        } else {
-            (1u64 << self.states) - 1
-        };
-        for (key, count) in input.keys.iter().zip(&input.counts) {
-            let base = key << self.width;
-            // The completed constraints decide which new values survive, by table look-up,
-            // before any candidate is written.
-            let mut allowed = all;
-            for c in &self.checks {
-                allowed &= c.allowed_values(base, self.states);
-            }
-            while allowed != 0 {
-                let x = allowed.trailing_zeros() as u64;
-                allowed &= allowed - 1;
-                let k = base | x;
-                let f = &mut out[self.stream(k)];
-                f.keys.push(self.squeeze(k));
-                f.counts.push(count.clone());
-            }
-        }
-    }
-}
-
-/// A stream read across several sorted slices whose ranges follow one another.
-struct Cursor<'a, C> {
-    slices: Vec<(&'a [u64], &'a [C])>,
-    i: usize,
-    j: usize,
-}
-
-impl<C> Cursor<'_, C> {
-    #[inline]
-    fn head(&self) -> u64 {
-        self.slices.get(self.i).map_or(u64::MAX, |s| s.0[self.j])
-    }
-    #[inline]
-    fn count(&self) -> &C {
-        &self.slices[self.i].1[self.j]
-    }
-    #[inline]
-    fn advance(&mut self) {
-        self.j += 1;
-        if self.j == self.slices[self.i].0.len() {
-            self.i += 1;
-            self.j = 0;
-        }
-    }
-}
-
-/// Merge sorted streams into `out`, adding the counts of equal keys. Keys never reach
-/// `u64::MAX` (plans use at most 63 bits), which marks an exhausted stream.
-fn merge_streams<C: Tally>(
-    mut cursors: Vec<Cursor<C>>,
-    out: &mut Piece<C>,
-) -> std::result::Result<(), Failure> {
-    let mut heads: Vec<u64> = cursors.iter().map(|c| c.head()).collect();
-    loop {
-        let m = heads.iter().copied().min().unwrap_or(u64::MAX);
-        if m == u64::MAX {
-            return Ok(());
-        }
-        let mut acc: Option<C> = None;
-        for (h, c) in heads.iter_mut().zip(cursors.iter_mut()) {
-            if *h == m {
-                match &mut acc {
-                    None => acc = Some(c.count().clone()),
-                    Some(a) => {
-                        if !a.add(c.count()) {
-                            return Err(Failure::Overflow);
-                        }
-                    }
+/// The steps of a plan, compiled with the newest variable in the lowest bits.
+fn steps(model: &Model, plan: &Plan) -> Vec<Step> {
+    let tables: Vec<Arc<[u64]>> = model
+        .tables
+        .iter()
+        .map(|t| Arc::from(t.bits.as_slice()))
+        .collect();
+    let mut layout = Layout::newest();
+    let mut steps = Vec::with_capacity(plan.order.len());
+    for (t, &v) in plan.order.iter().enumerate() {
+        let q = model.variables[v].states;
+        let before = layout.occupied();
+        let shift = layout.shift(width(q));
+        let at = layout
+            .add(v, width(q))
+            .expect("the plan fits its frontier in 63 bits");
+        let completed: Vec<Completed> = plan.completes[t]
+            .iter()
+            .map(|&c| {
+                let con = &model.constraints[c];
+                let reads = con
+                    .scope
+                    .iter()
+                    .map(|&u| {
+                        let f = layout.field(u).expect("a scope variable on the frontier");
+                        (f.offset, model.variables[u].states)
+                    })
+                    .collect();
+                Completed {
+                    reads,
+                    table: tables[con.table].clone(),
                 }
-                c.advance();
-                *h = c.head();
-            }
-        }
-        out.keys.push(m);
-        out.counts.push(acc.expect("some stream had the minimum"));
+            })
+            .collect();
+        let (gone, forget) = layout.forget(&plan.leaving[t]);
+        steps.push(Step::new(
+            before,
+            shift,
+            &[(at, q)],
+            &completed,
+            &gone,
+            forget,
+            layout.occupied(),
+        ));
     }
+    steps
 }
 
-/// The frontier as sorted pieces covering increasing key ranges, with scratch buffers
-/// kept from step to step (fresh large allocations cost page faults on every step).
-struct Frontier<C> {
-    pieces: Vec<Piece<C>>,
-    next: Vec<Piece<C>>,
-    /// scratch[p][s]: stream s of piece p.
-    scratch: Vec<Vec<Piece<C>>>,
-}
-
-impl<C: Tally> Frontier<C> {
-    fn len(&self) -> usize {
-        self.pieces.iter().map(|p| p.len()).sum()
-    }
-
-    fn step(&mut self, step: &Step) -> std::result::Result<(), Failure> {
-        let n = self.len();
-        let parallel = n >= PARALLEL_MIN;
-        let ways = if parallel {
-            2 * rayon::current_num_threads().max(1)
-        } else {
-            1
-        };
-        // 1. Extend every piece into its streams.
-        self.scratch.resize_with(self.pieces.len(), Vec::new);
-        for sc in &mut self.scratch {
-            sc.resize_with(step.streams.max(sc.len()), Piece::new);
-            sc.iter_mut().for_each(Piece::clear);
-        }
-        let work = self.pieces.iter().zip(self.scratch.iter_mut());
-        if parallel {
-            work.par_bridge()
-                .for_each(|(p, sc)| step.extend(p, &mut sc[..step.streams]));
-        } else {
-            work.for_each(|(p, sc)| step.extend(p, &mut sc[..step.streams]));
-        }
-        if step.streams == 1 {
-            // Nothing forgotten: every piece's single stream is already the next piece.
-            for (p, sc) in self.pieces.iter_mut().zip(self.scratch.iter_mut()) {
-                std::mem::swap(p, &mut sc[0]);
-            }
-            return Ok(());
-        }
-        // 2. Split the output key space into `ways` ranges of similar size.
-        let mut splitters: Vec<u64> = Vec::new();
-        if ways > 1 {
-            let mut sample = Vec::new();
-            for sc in &self.scratch {
-                for piece in &sc[..step.streams] {
-                    let len = piece.len();
-                    for k in 0..16.min(len) {
-                        sample.push(piece.keys[k * len / 16.min(len)]);
-                    }
-                }
-            }
-            sample.sort_unstable();
-            splitters = (1..ways).map(|r| sample[r * sample.len() / ways]).collect();
-            splitters.dedup();
-        }
-        // 3. Merge each range's streams into its own output piece.
-        let ranges = splitters.len() + 1;
-        self.next
-            .resize_with(ranges.max(self.next.len()), Piece::new);
-        self.next.truncate(ranges);
-        let scratch = &self.scratch;
-        let merge_range = |r: usize, out: &mut Piece<C>| {
-            out.clear();
-            let lo = if r == 0 { 0 } else { splitters[r - 1] };
-            let hi = splitters.get(r).copied().unwrap_or(u64::MAX);
-            let cursors: Vec<Cursor<C>> = (0..step.streams)
-                .map(|s| {
-                    let slices = scratch
-                        .iter()
-                        .filter_map(|sc| {
-                            let p = &sc[s];
-                            let a = p.keys.partition_point(|&k| k < lo);
-                            let b = p.keys.partition_point(|&k| k < hi);
-                            (a < b).then(|| (&p.keys[a..b], &p.counts[a..b]))
-                        })
-                        .collect();
-                    Cursor { slices, i: 0, j: 0 }
-                })
-                .collect();
-            merge_streams(cursors, out)
-        };
-        if ranges > 1 {
-            self.next
-                .par_iter_mut()
-                .enumerate()
-                .map(|(r, out)| merge_range(r, out))
-                .collect::<std::result::Result<Vec<()>, Failure>>()?;
-        } else {
-            merge_range(0, &mut self.next[0])?;
-        }
-        std::mem::swap(&mut self.pieces, &mut self.next);
-        Ok(())
-    }
-}
-
-fn run<C: Tally>(
+fn run<C: Count>(
     model: &Model,
     plan: &Plan,
     config: &ExactConfig,
 ) -> std::result::Result<(BigUint, usize), Failure> {
-    let leaving = &plan.leaving;
-    // Follow the key layout (newest variable lowest) through the sweep.
-    let field = |v: usize| width(model.variables[v].states);
-    let mut layout: Vec<usize> = Vec::new(); // frontier variables from the lowest bits up
-    let mut steps: Vec<Step> = Vec::with_capacity(plan.order.len());
-    for (t, &v) in plan.order.iter().enumerate() {
-        layout.insert(0, v);
-        let mut offset = vec![0u32; 0];
-        let mut acc = 0u32;
-        for &u in &layout {
-            offset.push(acc);
-            acc += field(u);
-        }
-        debug_assert!(acc <= plan.max_bits, "the plan bounds the key width");
-        let offset_of = |u: usize| {
-            offset[layout
-                .iter()
-                .position(|&w| w == u)
-                .expect("on the frontier")]
-        };
-        let checks: Vec<Check> = plan.completes[t]
-            .iter()
-            .map(|&c| {
-                let con = &model.constraints[c];
-                let table = &model.tables[con.table];
-                let mut stride = 1u64;
-                let mut new_stride = 0;
-                let mut fields = Vec::with_capacity(con.scope.len());
-                for (&u, &q) in con.scope.iter().zip(&table.radices) {
-                    if u == v {
-                        new_stride = stride;
-                    } else {
-                        fields.push((offset_of(u), (1u64 << width(q)) - 1, stride));
-                    }
-                    stride *= q as u64;
-                }
-                Check {
-                    fields,
-                    new_stride,
-                    table,
-                }
-            })
-            .collect();
-        let dropped: Vec<(u32, u64)> = leaving[t]
-            .iter()
-            .map(|&u| (offset_of(u), (1u64 << field(u)) - 1))
-            .collect();
-        let streams = dropped
-            .iter()
-            .fold(1usize, |a, &(_, m)| a * (m as usize + 1));
-        // Runs of kept fields, packed down.
-        let mut segments: Vec<(u32, u64, u32)> = Vec::new();
-        let mut dst = 0u32;
-        for (i, &u) in layout.iter().enumerate() {
-            if leaving[t].contains(&u) {
-                continue;
-            }
-            let w = field(u);
-            match segments.last_mut() {
-                Some((src, mask, d))
-                    if *src + (64 - mask.leading_zeros()) == offset[i]
-                        && *d + (64 - mask.leading_zeros()) == dst =>
-                {
-                    *mask = (*mask << w) | ((1u64 << w) - 1);
-                }
-                _ => segments.push((offset[i], (1u64 << w) - 1, dst)),
-            }
-            dst += w;
-        }
-        layout.retain(|u| !leaving[t].contains(u));
-        steps.push(Step {
-            states: model.variables[v].states as u64,
-            width: field(v),
-            checks,
-            dropped,
-            segments,
-            streams,
-        });
-    }
-    let mut frontier: Frontier<C> = Frontier {
-        pieces: vec![Piece {
-            keys: vec![0],
-            counts: vec![C::one()],
-        }],
-        next: Vec::new(),
-        scratch: Vec::new(),
-    };
+    let steps = steps(model, plan);
+    let mut frontier: Frontier<Vec<C>> = Frontier::new(vec![Piece {
+        keys: vec![0],
+        payload: vec![C::one()],
+    }]);
+    let mut next: Vec<Piece<Vec<C>>> = Vec::new();
     let mut peak = 1usize;
     for (t, step) in steps.iter().enumerate() {
         if let Some(d) = config.deadline
@@ -627,7 +301,10 @@ fn run<C: Tally>(
                 what: format!("counting {}", model.cells),
             }));
         }
-        frontier.step(step)?;
+        frontier
+            .step(step, false, &mut next)
+            .map_err(|_| Failure::Overflow)?;
+        std::mem::swap(&mut frontier.pieces, &mut next);
         let n = frontier.len();
         if n > config.max_states {
             return Err(Failure::Stop(Error::Budget {
@@ -651,7 +328,7 @@ fn run<C: Tally>(
     }
     let mut total = C::zero();
     for p in &frontier.pieces {
-        for c in &p.counts {
+        for c in &p.payload {
             if !total.add(c) {
                 return Err(Failure::Overflow);
             }
@@ -665,19 +342,6 @@ mod tests {
     use super::*;
     use crate::Lattice;
     use crate::cluster::{Cells, Cluster};
-
-    #[test]
-    fn wide_integers_carry_and_detect_overflow() {
-        let mut a = Wide::<2>([u64::MAX, 0]);
-        assert!(a.add(&Wide::<2>::one()));
-        assert_eq!(a.0, [0, 1]);
-        assert_eq!(a.into_big(), BigUint::from(1u128 << 64));
-        let mut full = Wide::<2>([u64::MAX, u64::MAX]);
-        assert!(
-            !full.add(&Wide::<2>::one()),
-            "2^128 does not fit in two limbs"
-        );
-    }
 
     #[test]
     fn every_integer_width_gives_the_same_count() {

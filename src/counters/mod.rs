@@ -6,6 +6,7 @@ pub mod bethe;
 pub mod brute;
 pub mod exact;
 pub mod extrapolate;
+pub(crate) mod frontier;
 pub mod order;
 pub mod pauling;
 pub mod sampling;

@@ -8,10 +8,7 @@
 
 use crate::model::Model;
 
-/// Bits a variable with `q` states occupies.
-pub fn width(q: u32) -> u32 {
-    32 - (q - 1).leading_zeros()
-}
+pub use super::frontier::layout::width;
 
 /// A variable order with everything the frontier counter needs to follow it.
 #[derive(Clone, Debug)]
@@ -245,14 +242,4 @@ pub fn smallest_frontier_log2(model: &Model) -> f64 {
         best = best.min(max);
     }
     best
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn field_widths() {
-        assert_eq!([2, 3, 4, 5, 8, 9].map(width), [1, 2, 2, 3, 3, 4]);
-    }
 }

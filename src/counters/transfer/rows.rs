@@ -41,13 +41,40 @@ impl Rows {
     /// From compressed rows: output j reads `sources[starts[j]..starts[j + 1]]`.
     pub fn from_compressed(sources: &[u32], starts: &[u32]) -> Rows {
         let outputs = starts.len().saturating_sub(1);
-        let mut entries = Vec::with_capacity(sources.len() + outputs / 8);
+        Rows::from_rows(
+            (0..outputs).map(|j| &sources[starts[j] as usize..starts[j + 1] as usize]),
+            outputs,
+            sources.len(),
+        )
+    }
+
+    /// From compressed rows in pieces, one after the other: each piece is (sources, starts)
+    /// with one start per row, the row ending where the next starts (the last at the end of
+    /// the sources).
+    pub fn from_pieces<'a>(pieces: impl Iterator<Item = (&'a [u32], &'a [u32])> + Clone) -> Rows {
+        let outputs = pieces.clone().map(|p| p.1.len()).sum();
+        let transitions = pieces.clone().map(|p| p.0.len()).sum();
+        let rows = pieces.flat_map(|(sources, starts)| {
+            (0..starts.len()).map(move |j| {
+                let end = starts.get(j + 1).map_or(sources.len(), |&e| e as usize);
+                &sources[starts[j] as usize..end]
+            })
+        });
+        Rows::from_rows(rows, outputs, transitions)
+    }
+
+    /// From the rows in order.
+    fn from_rows<'a>(
+        rows: impl Iterator<Item = &'a [u32]>,
+        outputs: usize,
+        transitions: usize,
+    ) -> Rows {
+        let mut entries = Vec::with_capacity(transitions + outputs / 8);
         let mut chunks = Vec::with_capacity(outputs / CHUNK + 1);
-        for j in 0..outputs {
+        for (j, row) in rows.enumerate() {
             if j % CHUNK == 0 {
                 chunks.push(entries.len());
             }
-            let row = &sources[starts[j] as usize..starts[j + 1] as usize];
             match row.split_last() {
                 None => entries.push(EMPTY),
                 Some((&last, rest)) => {
@@ -61,7 +88,7 @@ impl Rows {
             entries,
             chunks,
             outputs,
-            transitions: sources.len(),
+            transitions,
         }
     }
 
@@ -131,6 +158,17 @@ mod tests {
         let mut out = vec![0.0; 4];
         rows.gather(0, &mut out, &[1.0, 10.0, 100.0]);
         assert_eq!(out, vec![101.0, 0.0, 10.0, 111.0]);
+        // The same rows in two pieces.
+        let pieces = Rows::from_pieces(
+            [
+                (&[0u32, 2, 1][..], &[0u32, 2, 2][..]),
+                (&[0u32, 1, 2][..], &[0u32][..]),
+            ]
+            .into_iter(),
+        );
+        let mut again = vec![0.0; 4];
+        pieces.gather(0, &mut again, &[1.0, 10.0, 100.0]);
+        assert_eq!(again, out);
         // A step without outputs (a sector nothing reaches) sums nothing.
         Rows::from_compressed(&[], &[0]).gather(0, &mut [], &[]);
         let mut seen = Vec::new();
