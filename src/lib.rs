@@ -83,7 +83,8 @@ impl Lattice {
 
     /// Read a structure file (CIF): one data block (`block`, or the only one with atom
     /// sites) is turned into a lattice file by [`cif::import`] and validated. Refused when
-    /// its disorder needs weighted counting this version does not do yet.
+    /// its disorder needs weighted counting (target occupancies, a fixed composition),
+    /// which is not supported yet.
     pub fn from_cif(bytes: &[u8], path: impl AsRef<Path>, block: Option<&str>) -> Result<Lattice> {
         let options = cif::Options {
             block: block.map(str::to_string),

@@ -18,9 +18,10 @@
 //!
 //! **Occupancies other than one half** become target occupancies of the bond's state 1,
 //! and **species sharing a position** (or a heavy atom with partial occupancy, sharing
-//! its position with a vacancy) become variables at a fixed composition. Both need the
-//! weighted counting of the lattice keys `occupancy:` and `composition:`, which this
-//! version does not read yet; they are recorded as [`Pending`] entries.
+//! its position with a vacancy) become variables at a fixed composition. Both need
+//! weighted counting (target occupancies, compositions), which is not supported yet;
+//! they are recorded as [`Pending`] entries, so that the structure is refused where it
+//! would be counted and `import` writes them as comments.
 //!
 //! Everything else that cannot be interpreted is refused with the labels involved:
 //! a hydrogen bonded to no atom or to two, a partially occupied hydrogen with no
@@ -68,7 +69,7 @@ pub struct Bond {
     pub length: f64,
 }
 
-/// Something the lattice needs that this version cannot count yet (issue 13's keys).
+/// Something the count would need that is not supported yet (weighted counting).
 #[derive(Clone, Debug)]
 pub enum Pending {
     /// A bond whose proton sites are not at one half: the refined mean of state 1.

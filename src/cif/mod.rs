@@ -83,25 +83,26 @@ pub struct Imported {
     pub block: String,
     /// What was recognised, one line each (for the command line to show).
     pub summary: Vec<String>,
-    /// What needs weighted counting that this version does not do yet, one line each;
+    /// Disorder that would need weighted counting (not supported yet), one line each;
     /// written as comments in `yaml`. A non-empty list makes [`Imported::lattice`] refuse.
     pub pending: Vec<String>,
+    /// Where in the file the first site named by `pending` stands.
+    pub pending_position: Option<Position>,
 }
 
 impl Imported {
     /// The lattice, validated as a lattice file would be; `path` stands for the structure
     /// file in messages. Refused when the structure needs weighted counting (target
-    /// occupancies, a fixed composition) that this version does not do yet.
+    /// occupancies, a fixed composition), which is not supported yet.
     pub fn lattice(&self, path: impl AsRef<Path>) -> Result<crate::Lattice> {
         if !self.pending.is_empty() {
             return Err(Error::Invalid {
                 path: path.as_ref().to_path_buf(),
-                position: Position::default(),
+                position: self.pending_position.unwrap_or_default(),
                 message: format!(
-                    "block '{}' describes disorder that needs weighted counting, which this \
-                     version does not do yet (the lattice keys `occupancy:` and \
-                     `composition:`); counting it as fully disordered would give a wrong \
-                     number, so nothing was counted: {}",
+                    "block '{}' refines disorder that cannot be counted yet: {}; counting it \
+                     as if every arrangement were equally likely would give a wrong number, \
+                     so nothing was counted",
                     self.block,
                     self.pending.join("; ")
                 ),

@@ -1,8 +1,8 @@
 //! Writing the lattice file of an imported structure: YAML in the format of README "The
 //! lattice file", with comments that say where each part came from (file, block, cell,
 //! operators, the expansion of every site, which proton sites made which bond), for the
-//! user to read and edit. Entries that need weighted counting are written as comments
-//! after a note.
+//! user to read and edit. Disorder that would need weighted counting (not supported yet)
+//! is written as comments after a note.
 
 use std::fmt::Write;
 
@@ -438,13 +438,14 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
     if !net.pending.is_empty() {
         let _ = writeln!(
             o,
-            "\n# ---- Needs weighted counting: not read by this version ----\n\
-             # The entries below use the lattice keys `occupancy:` (target occupancies) and\n\
-             # `composition:` (a fixed composition) of issue 13, which this version does not read\n\
-             # yet. As written above, without them, the file counts every proton arrangement as\n\
-             # equally likely, which is not the refined structure: uncomment them when the\n\
-             # format reads them. A CIF like this one is refused when given to a counting\n\
-             # command directly."
+            "\n# ---- Not supported yet: weighted counting ----\n\
+             # The structure refines disorder that is not \"every arrangement equally likely\":\n\
+             # target occupancies (proton sites not at one half) or a fixed composition (species\n\
+             # sharing a position). Counting them is not supported yet, and the lattice format\n\
+             # has no keys for them; the entries below record what was read, in a proposed form\n\
+             # (`occupancy:`, `composition:`), as comments only. As written above, the file\n\
+             # counts every proton arrangement as equally likely, which is NOT the refined\n\
+             # structure. A counting command given this CIF directly refuses it."
         );
         let occupancies: Vec<&Pending> = net
             .pending
@@ -468,14 +469,29 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
                     );
                 }
             }
-            let n = net
-                .pending
-                .iter()
-                .filter(|p| matches!(p, Pending::Occupancy { .. }))
-                .count();
+            // Site labels in the file's order, occupancies in increasing order.
+            let mut sites: Vec<usize> = Vec::new();
+            let mut values: Vec<f64> = Vec::new();
+            let mut n = 0;
+            for p in &net.pending {
+                if let Pending::Occupancy { bond, mean, .. } = p {
+                    n += 1;
+                    let b = &net.bonds[*bond];
+                    sites.extend([b.h_from, b.h_to].map(|a| e.atoms[a].site));
+                    values.extend([1.0 - mean, *mean]);
+                }
+            }
+            sites.sort_unstable();
+            sites.dedup();
+            values.sort_by(f64::total_cmp);
+            let mut means: Vec<String> = values.iter().map(|&m| num(m)).collect();
+            means.dedup();
+            let labels: Vec<&str> = sites.iter().map(|&k| e.sites[k].label.as_str()).collect();
             pending_lines.push(format!(
-                "{n} hydrogen bond(s) whose proton sites are not at one half (target \
-                 occupancies, `occupancy:`)"
+                "the proton sites {} are refined at occupancies {} instead of one half \
+                 ({n} hydrogen bond(s)): target occupancies, which are not supported yet",
+                labels.join(", "),
+                means.join(", ")
             ));
         }
         for p in &net.pending {
@@ -510,18 +526,33 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
                     );
                 }
                 pending_lines.push(format!(
-                    "the sites {} share a position ({}): a fixed composition, `composition:`",
+                    "the sites {} share a position ({}): a fixed composition, which is not \
+                     supported yet",
                     labels.join(", "),
                     states.join(", ")
                 ));
             }
         }
     }
+    // The first site, in the file's order, that the pending entries name.
+    let pending_position = net
+        .pending
+        .iter()
+        .flat_map(|p| match p {
+            Pending::Occupancy { bond, .. } => {
+                let b = &net.bonds[*bond];
+                vec![e.atoms[b.h_from].site, e.atoms[b.h_to].site]
+            }
+            Pending::Composition { atoms, .. } => atoms.iter().map(|&a| e.atoms[a].site).collect(),
+        })
+        .min()
+        .map(|k| e.sites[k].label_value.position);
     Imported {
         yaml: o,
         block: src.block.clone(),
         summary,
         pending: pending_lines,
+        pending_position,
     }
 }
 

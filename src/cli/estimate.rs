@@ -16,8 +16,11 @@ use super::{Common, Format, load, shown, with_threads};
 /// Arguments of `estimate`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML); the built-in ice Ih description when omitted.
+    /// Lattice file (YAML) or structure file (CIF); the built-in ice Ih description when omitted.
     file: Option<PathBuf>,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Time budget in seconds for all methods together (exact counts get the first 40 %).
     #[arg(long, default_value_t = 20.0)]
     budget: f64,
@@ -30,7 +33,7 @@ pub struct Args {
 
 pub fn run(args: Args) -> anyhow::Result<String> {
     super::check_budget(args.budget)?;
-    let lattice = load(args.file.as_deref())?;
+    let lattice = load(args.file.as_deref(), args.block.as_deref())?;
     let c = &lattice.crystal;
     let (observer, bars) = args.common.survey_progress();
     let mut config = SurveyConfig {

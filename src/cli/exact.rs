@@ -27,8 +27,11 @@ fn memory_words(bytes: f64) -> String {
 /// Arguments of `exact`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML).
+    /// Lattice file (YAML) or structure file (CIF).
     file: PathBuf,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Cell size in unit cells along each axis, e.g. 4x4 or 3x3x2.
     #[arg(long)]
     cells: String,
@@ -43,7 +46,7 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
-    let lattice = load(Some(&args.file))?;
+    let lattice = load(Some(&args.file), args.block.as_deref())?;
     let c = &lattice.crystal;
     let cells = Cells::parse(&args.cells, args.open.as_deref(), c.dimensions)?;
     // A cell whose every sweep keeps more cells open than the frontier's 63 bits can hold

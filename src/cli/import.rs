@@ -51,10 +51,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         summary += &format!("  {line}\n");
     }
     for line in &imported.pending {
-        summary += &format!(
-            "  needs weighted counting, written as comments (the lattice keys `occupancy:` and \
-             `composition:`, not read by this version): {line}\n"
-        );
+        summary += &format!("  not supported yet, written as comments only: {line}\n");
     }
     match &args.output {
         Some(out) => {
@@ -86,7 +83,7 @@ fn with_hints(e: groundcount::Error, file: &Path) -> anyhow::Error {
             file.display()
         );
     }
-    if text.contains("weighted counting") {
+    if text.contains("cannot be counted yet") {
         hint = format!(
             " (`groundcount import {}` writes the lattice file with these entries as comments)",
             file.display()
@@ -99,14 +96,15 @@ fn with_hints(e: groundcount::Error, file: &Path) -> anyhow::Error {
     }
 }
 
-/// Load a CIF given to a counting command: the only data block with atom sites.
-pub fn load(bytes: &[u8], file: &Path) -> anyhow::Result<Lattice> {
-    Lattice::from_cif(bytes, file, None).map_err(|e| {
+/// Load a CIF given to a counting command: the block `block` names, or the only data
+/// block with atom sites.
+pub fn load(bytes: &[u8], file: &Path, block: Option<&str>) -> anyhow::Result<Lattice> {
+    Lattice::from_cif(bytes, file, block).map_err(|e| {
         let text = e.to_string();
         if text.contains("choose one of them by name") {
             anyhow::anyhow!(
-                "{text}; `groundcount import {} --block NAME -o FILE.yaml` writes the lattice \
-                 file of one block",
+                "{text} (`--block NAME`; `groundcount import {} --block NAME -o FILE.yaml` \
+                 writes the lattice file of one block)",
                 file.display()
             )
         } else {

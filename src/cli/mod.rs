@@ -276,21 +276,37 @@ fn interrupt() -> groundcount::context::Interrupt {
 }
 
 /// Load a lattice file or a structure file (CIF, told by its extension or content), or
-/// the built-in ice Ih description when none is given.
-fn load(file: Option<&Path>) -> anyhow::Result<Lattice> {
+/// the built-in ice Ih description when none is given; `block` (`--block`) chooses a data
+/// block of a structure file.
+fn load(file: Option<&Path>, block: Option<&str>) -> anyhow::Result<Lattice> {
     Ok(match file {
         Some(p) => {
             let bytes = groundcount::spec::read_file(p)?;
             if groundcount::cif::is_cif(p, &bytes) {
-                import::load(&bytes, p)?
+                import::load(&bytes, p, block)?
             } else {
+                if let Some(b) = block {
+                    anyhow::bail!(
+                        "--block {b}: {} is a lattice file, not a structure file (CIF); \
+                         --block chooses a data block of a CIF",
+                        p.display()
+                    );
+                }
                 Lattice::from_bytes(&bytes, p)?
             }
         }
-        None => Lattice::from_yaml(
-            groundcount::ICE_IH_YAML,
-            groundcount::spec::embedded_path("ice-ih.yaml"),
-        )?,
+        None => {
+            if let Some(b) = block {
+                anyhow::bail!(
+                    "--block {b}: no structure file was given (the built-in ice Ih \
+                     description is a lattice file); --block chooses a data block of a CIF"
+                );
+            }
+            Lattice::from_yaml(
+                groundcount::ICE_IH_YAML,
+                groundcount::spec::embedded_path("ice-ih.yaml"),
+            )?
+        }
     })
 }
 
