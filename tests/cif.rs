@@ -383,3 +383,64 @@ fn issue14_report_names_the_structure_file_and_block() {
     assert!(md.contains("data block 'ice_VII'"), "{md}");
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// A 46-water cell end to end: `estimate` and `report` on the structure-I clathrate with
+/// fixed limits (exact counts up to one cell of 46 formula units, Monte Carlo on 2x1x1
+/// with few sweeps; the time budget is far beyond what the run needs, so nothing depends
+/// on the machine's speed). The exact count is the hand-written cell's (above); the Monte
+/// Carlo value is checked by the run against it.
+#[test]
+fn issue14_clathrate_through_estimate_and_report() {
+    let path = cif_file("clathrate-si.cif");
+    let p = path.to_str().unwrap();
+    let limits = [
+        "--budget",
+        "600",
+        "--max-exact-units",
+        "46",
+        "--sample-cells",
+        "2x1x1",
+        "--sweeps",
+        "20",
+        "-q",
+    ];
+    let mut args = vec!["estimate", p, "--format", "json"];
+    args.extend(limits);
+    let j = run_json(&args);
+    assert_eq!(
+        j["lattice"],
+        "structure-I clathrate framework, block sI_framework"
+    );
+    assert!(
+        j["file"].as_str().unwrap().ends_with("clathrate-si.cif"),
+        "{}",
+        j["file"]
+    );
+    let exact = j["exact"].as_array().unwrap();
+    assert_eq!(exact.len(), 1, "{exact:?}");
+    assert_eq!(exact[0]["count"], "822823440");
+    assert_eq!(exact[0]["formula_units"], 46.0);
+    assert_eq!(j["monte_carlo"]["formula_units"], 92.0);
+    let checks = j["checks"].as_array().unwrap();
+    assert!(
+        !checks.is_empty() && checks.iter().all(|c| c["agrees"] == true),
+        "{checks:?}"
+    );
+    assert_eq!(j["cited"]["method"], "monte-carlo");
+
+    let dir = std::env::temp_dir().join(format!("groundcount-clathrate-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    let mut args = vec!["report", p, "-o", dir.to_str().unwrap()];
+    args.extend(limits);
+    let o = run(&args);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let md = std::fs::read_to_string(dir.join("report.md")).unwrap();
+    assert!(
+        md.contains("| file | `") && md.contains("clathrate-si.cif`"),
+        "{md}"
+    );
+    assert!(md.contains("data block 'sI_framework'"), "{md}");
+    assert!(md.contains("| exact count | 1x1x1 periodic | 46 |"), "{md}");
+    assert!(md.contains("| Monte Carlo | 2x1x1 periodic | 92 |"), "{md}");
+    let _ = std::fs::remove_dir_all(&dir);
+}
