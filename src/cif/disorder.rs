@@ -347,8 +347,8 @@ pub fn recognise(cell: &Cell, e: &Expansion) -> Result<Network, Refusal> {
             if angle(c_h, [0.0; 3], c_b) < MIN_ANGLE {
                 continue;
             }
-            for j in 0..n {
-                let Some((bj, b_to_j)) = donor[j] else {
+            for (j, d_j) in donor.iter().enumerate() {
+                let Some((bj, b_to_j)) = *d_j else {
                     continue;
                 };
                 if bj != b || j == h || !partial(j) {
@@ -428,8 +428,7 @@ pub fn recognise(cell: &Cell, e: &Expansion) -> Result<Network, Refusal> {
             ));
         }
     }
-    net.bonds
-        .sort_by(|x, y| (x.from, x.to, x.shift).cmp(&(y.from, y.to, y.shift)));
+    net.bonds.sort_by_key(|x| (x.from, x.to, x.shift));
 
     // One proton per bond.
     for (k, b) in net.bonds.iter().enumerate() {

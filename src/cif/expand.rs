@@ -337,7 +337,7 @@ pub fn expand(cell: &Cell, ops: &[Operator], sites: Vec<Site>) -> Result<Expansi
                 });
             }
         }
-        if ops.len() % mine.len() != 0 {
+        if !ops.len().is_multiple_of(mine.len()) {
             return Err((
                 format!(
                     "{} has {} images, which does not divide the {} operators: its \

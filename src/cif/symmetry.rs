@@ -54,7 +54,7 @@ impl Cell {
             }
         }
         let [a, b, c] = lengths;
-        let [ca, cb, cg] = angles.map(|x| cos_deg(x));
+        let [ca, cb, cg] = angles.map(cos_deg);
         let sg = sin_deg(angles[2]);
         let root = 1.0 - ca * ca - cb * cb - cg * cg + 2.0 * ca * cb * cg;
         if root <= 1e-9 {
@@ -661,8 +661,8 @@ mod tests {
         ] {
             let op = parse_operator(text).unwrap();
             assert_eq!(op.rotation, r, "{text}");
-            for i in 0..3 {
-                assert!((op.translation[i] - t[i]).abs() < 1e-12, "{text}");
+            for (got, want) in op.translation.iter().zip(t) {
+                assert!((got - want).abs() < 1e-12, "{text}");
             }
         }
         for bad in [

@@ -214,7 +214,7 @@ pub fn parse(text: &str, path: &Path) -> Result<Document> {
                         ),
                     ));
                 }
-                if values.len() % tags.len() != 0 {
+                if !values.len().is_multiple_of(tags.len()) {
                     let rows = values.len() / tags.len();
                     let first_partial = &values[rows * tags.len()];
                     return Err(s.error(
