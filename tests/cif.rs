@@ -259,6 +259,28 @@ fn issue14_partial_order_and_shared_sites_wait_for_weighted_counting() {
         );
     }
     assert!(yaml.contains("# occupancy:"));
+    // A guest partly occupying its cages (methane at 0.93 on 2a of the structure-I
+    // framework, an invented demo value) is a fixed composition too, though it does not
+    // touch the hydrogen-bond network: refused at its site, not left out silently.
+    let si = cif_file("clathrate-si.cif");
+    let text = std::fs::read_to_string(&si).unwrap().replace(
+        "O1  O  c   6",
+        "C1  C  a   2  0.0 0.0 0.0 0.93\nO1  O  c   6",
+    );
+    let e = Lattice::from_cif(text.as_bytes(), &si, None)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("the site C1 is partly occupied (state 0: C 0.93, state 1: vacancy 0.07)"),
+        "{e}"
+    );
+    let yaml = cif::import(text.as_bytes(), &si, &Default::default())
+        .unwrap()
+        .yaml;
+    assert!(
+        yaml.contains("not in the count: C1 (not in the hydrogen-bond network)"),
+        "{yaml}"
+    );
     let path = cif_file("demo-shared-site.cif");
     let yaml = cif::import(&std::fs::read(&path).unwrap(), &path, &Default::default())
         .unwrap()

@@ -509,8 +509,8 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
                 let list: Vec<String> = atoms.iter().map(|&a| id(&id_of(a))).collect();
                 let _ = writeln!(
                     o,
-                    "# shared position {} ({}), {} per cell; a site variable with {} states,\n\
-                     #   the other sites held (`pinned:`):",
+                    "# shared position {} ({}), {} per cell: a site variable with {} states at a\n\
+                     #   fixed composition:",
                     labels.join("/"),
                     states.join(", "),
                     atoms.len(),
@@ -525,10 +525,13 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
                         num(*x)
                     );
                 }
+                let what = if labels.len() == 1 {
+                    format!("the site {} is partly occupied", labels[0])
+                } else {
+                    format!("the sites {} share a position", labels.join(", "))
+                };
                 pending_lines.push(format!(
-                    "the sites {} share a position ({}): a fixed composition, which is not \
-                     supported yet",
-                    labels.join(", "),
+                    "{what} ({}): a fixed composition, which is not supported yet",
                     states.join(", ")
                 ));
             }
