@@ -281,6 +281,10 @@ fn issue14_partial_order_and_shared_sites_wait_for_weighted_counting() {
         yaml.contains("not in the count: C1 (not in the hydrogen-bond network)"),
         "{yaml}"
     );
+    // As written, the lattice file counts the framework alone: the guest has no bond and
+    // no rule, and the formula unit stays one water.
+    let framework = Lattice::from_yaml(&yaml, &si).unwrap();
+    assert_eq!(count(&framework, "1x1x1"), BigUint::from(822823440u64));
     let path = cif_file("demo-shared-site.cif");
     let yaml = cif::import(&std::fs::read(&path).unwrap(), &path, &Default::default())
         .unwrap()
