@@ -167,8 +167,9 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
         }
     }
     summary.push(format!(
-        "{} symmetry operators{group} ({})",
+        "{} symmetry operator{}{group} ({})",
         src.operators,
+        if src.operators == 1 { "" } else { "s" },
         match &src.symmetry {
             SymmetrySource::Listed { tag } => format!("listed under {tag}"),
             SymmetrySource::Tables { from, .. } => format!("from {from}"),
@@ -489,9 +490,10 @@ pub fn lattice_file(src: &Source, cell: &Cell, e: &Expansion, net: &Network) -> 
             let labels: Vec<&str> = sites.iter().map(|&k| e.sites[k].label.as_str()).collect();
             pending_lines.push(format!(
                 "the proton sites {} are refined at occupancies {} instead of one half \
-                 ({n} hydrogen bond(s)): target occupancies, which are not supported yet",
+                 ({n} hydrogen bond{}): target occupancies, which are not supported yet",
                 labels.join(", "),
-                means.join(", ")
+                means.join(", "),
+                if n == 1 { "" } else { "s" }
             ));
         }
         for p in &net.pending {
