@@ -59,6 +59,7 @@
 //! ```
 
 pub mod calorimetry;
+pub mod cif;
 pub mod cluster;
 pub mod context;
 pub mod counters;
@@ -105,6 +106,17 @@ impl Lattice {
     /// messages. Bytes that are not UTF-8 are refused at their byte offset.
     pub fn from_bytes(bytes: &[u8], path: impl AsRef<Path>) -> Result<Lattice> {
         Self::from_yaml(spec::text_of(bytes, path.as_ref())?, path)
+    }
+
+    /// Read a structure file (CIF): one data block (`block`, or the only one with atom
+    /// sites) is turned into a lattice file by [`cif::import`] and validated. Refused when
+    /// its disorder needs weighted counting (target occupancies, a fixed composition),
+    /// which is not supported yet.
+    pub fn from_cif(bytes: &[u8], path: impl AsRef<Path>, block: Option<&str>) -> Result<Lattice> {
+        let options = cif::Options {
+            block: block.map(str::to_string),
+        };
+        cif::import(bytes, path.as_ref(), &options)?.lattice(path)
     }
 
     /// Parse and validate YAML text; `name` stands for the file in messages.

@@ -242,8 +242,9 @@ impl LatticeSpec {
     }
 }
 
-/// The bytes of a lattice file; a directory or an unreadable file is an [`Error::Read`].
-pub(crate) fn read_file(path: &Path) -> Result<Vec<u8>> {
+/// The bytes of a lattice or structure file; a directory or an unreadable file is an
+/// [`Error::Read`].
+pub fn read_file(path: &Path) -> Result<Vec<u8>> {
     let read_error = |reason: String| Error::Read {
         path: path.to_path_buf(),
         reason,

@@ -3,6 +3,7 @@
 mod util;
 
 mod calorimetry;
+mod cif;
 mod cli_errors;
 mod counts;
 mod estimate;

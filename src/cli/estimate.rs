@@ -55,28 +55,63 @@ struct Document {
 /// Arguments of `estimate`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML); the built-in ice Ih description when omitted.
+    /// Lattice file (YAML) or structure file (CIF); the built-in ice Ih description when omitted.
     file: Option<PathBuf>,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Time budget in seconds for all methods together (exact counts get the first 40 %).
     #[arg(long, default_value_t = 20.0)]
     budget: f64,
     /// Largest number of partial states an exact count may hold at once.
     #[arg(long, default_value_t = exact::DEFAULT_MAX_STATES)]
     max_states: usize,
+    /// Count no exact cell with more formula units than this (makes the exact counts
+    /// independent of the machine's speed).
+    #[arg(long)]
+    max_exact_units: Option<f64>,
+    /// Monte Carlo cell for a 3D lattice, e.g. 3x3x3; default: up to four cubes, the
+    /// largest of about 1000 formula units, extrapolated to the infinite crystal.
+    #[arg(long)]
+    sample_cells: Option<String>,
+    /// Seed of the Monte Carlo streams.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Measured Monte Carlo sweeps per quadrature node and replica.
+    #[arg(long)]
+    sweeps: Option<usize>,
     #[command(flatten)]
     common: Common,
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
     super::check_budget(args.budget)?;
-    let lattice = load(args.file.as_deref())?;
+    let lattice = load(args.file.as_deref(), args.block.as_deref())?;
     let c = &lattice.crystal;
     let (context, bars) = args.common.survey_progress();
-    let config = SurveyConfig {
+    let sample_cells = match &args.sample_cells {
+        Some(s) => Some(super::words::cells(
+            "--sample-cells",
+            s,
+            None,
+            c.dimensions,
+        )?),
+        None => None,
+    };
+    let mut config = SurveyConfig {
         budget: args.budget,
         max_states: args.max_states,
+        max_exact_units: args.max_exact_units,
+        sample_cells,
         ..SurveyConfig::default()
     };
+    config.sample.seed = args.seed;
+    if let Some(s) = args.sweeps {
+        if s == 0 {
+            anyhow::bail!("--sweeps must be at least 1");
+        }
+        config.sample.sweeps = s;
+    }
     let result = with_threads(args.common.threads, || survey(c, &config, &context))?;
     bars.finish();
     let s = result?;

@@ -31,8 +31,11 @@ struct Document {
 /// Arguments of `exact`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML).
+    /// Lattice file (YAML) or structure file (CIF).
     file: PathBuf,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Cell size in unit cells along each axis, e.g. 4x4 or 3x3x2.
     #[arg(long)]
     cells: String,
@@ -47,7 +50,7 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
-    let lattice = load(Some(&args.file))?;
+    let lattice = load(Some(&args.file), args.block.as_deref())?;
     let c = &lattice.crystal;
     let cells = super::words::cells("--cells", &args.cells, args.open.as_deref(), c.dimensions)?;
     // A cell too wide for the frontier is refused before it is built.

@@ -85,15 +85,18 @@ struct FormulaUnitRecord {
 /// Arguments of `inspect`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML); the built-in ice Ih description when omitted.
+    /// Lattice file (YAML) or structure file (CIF); the built-in ice Ih description when omitted.
     file: Option<PathBuf>,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Output format: table, json, csv (one quantity per row) or markdown.
     #[arg(long, value_enum, default_value_t = Format::Table)]
     format: Format,
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
-    let lattice = load(args.file.as_deref())?;
+    let lattice = load(args.file.as_deref(), args.block.as_deref())?;
     let c = &lattice.crystal;
     let p = super::pauling(c)?;
     let coordination = c.coordination();

@@ -9,6 +9,7 @@
 mod calorimetry;
 mod estimate;
 mod exact;
+mod import;
 mod inspect;
 mod merge;
 mod report;
@@ -49,6 +50,8 @@ enum Command {
     Report(report::Args),
     /// Third-law entropy from measured heat capacities, and the residual entropy it implies.
     Calorimetry(calorimetry::Args),
+    /// Write the lattice file of a published structure (CIF), with where each part came from.
+    Import(import::Args),
 }
 
 /// Output format shared by every command.
@@ -237,6 +240,7 @@ pub fn run() -> i32 {
         Command::Strip(a) => strip::run(a),
         Command::Report(a) => report::run(a),
         Command::Calorimetry(a) => calorimetry::run(a),
+        Command::Import(a) => import::run(a),
     };
     match result {
         Ok(text) => {
@@ -306,14 +310,38 @@ fn interrupt() -> groundcount::context::Interrupt {
     .clone()
 }
 
-/// Load a lattice file, or the built-in ice Ih description when none is given.
-fn load(file: Option<&Path>) -> anyhow::Result<Lattice> {
+/// Load a lattice file or a structure file (CIF, told by its extension or content), or
+/// the built-in ice Ih description when none is given; `block` (`--block`) chooses a data
+/// block of a structure file.
+fn load(file: Option<&Path>, block: Option<&str>) -> anyhow::Result<Lattice> {
     Ok(match file {
-        Some(p) => Lattice::from_file(p)?,
-        None => Lattice::from_yaml(
-            groundcount::ICE_IH_YAML,
-            groundcount::spec::embedded_path("ice-ih.yaml"),
-        )?,
+        Some(p) => {
+            let bytes = groundcount::spec::read_file(p)?;
+            if groundcount::cif::is_cif(p, &bytes) {
+                import::load(&bytes, p, block)?
+            } else {
+                if let Some(b) = block {
+                    anyhow::bail!(
+                        "--block {b}: {} is a lattice file, not a structure file (CIF); \
+                         --block chooses a data block of a CIF",
+                        p.display()
+                    );
+                }
+                Lattice::from_bytes(&bytes, p)?
+            }
+        }
+        None => {
+            if let Some(b) = block {
+                anyhow::bail!(
+                    "--block {b}: no structure file was given (the built-in ice Ih \
+                     description is a lattice file); --block chooses a data block of a CIF"
+                );
+            }
+            Lattice::from_yaml(
+                groundcount::ICE_IH_YAML,
+                groundcount::spec::embedded_path("ice-ih.yaml"),
+            )?
+        }
     })
 }
 

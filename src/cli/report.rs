@@ -31,8 +31,11 @@ struct Document {
 /// Arguments of `report`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML); the built-in ice Ih description when omitted.
+    /// Lattice file (YAML) or structure file (CIF); the built-in ice Ih description when omitted.
     file: Option<PathBuf>,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Directory to write report.md, report.json and the figures to: created if missing; an
     /// earlier report there is replaced whole; a directory holding other files is refused.
     #[arg(long, short = 'o', default_value = "groundcount-report")]
@@ -100,7 +103,7 @@ fn civil_date(days: i64) -> String {
 
 pub fn run(args: Args) -> anyhow::Result<String> {
     super::check_budget(args.budget)?;
-    let lattice = load(args.file.as_deref())?;
+    let lattice = load(args.file.as_deref(), args.block.as_deref())?;
     let c = &lattice.crystal;
     let widths = match &args.widths {
         Some(w) => Some(super::strip::parse_widths(w, 1)?),

@@ -20,8 +20,11 @@ use super::{Common, Format, cell_header, load, pauling_line, with_threads};
 /// Arguments of `sample`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML).
+    /// Lattice file (YAML) or structure file (CIF).
     file: PathBuf,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Cell size in unit cells along each axis, e.g. 8x8x8 (periodic); several sizes
     /// separated by commas (4x4x4,6x6x6,8x8x8) are extrapolated to the infinite crystal.
     #[arg(long)]
@@ -83,7 +86,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     if let Some(out) = &args.out {
         super::check_output_file(out, "--out")?; // before any computing
     }
-    let lattice = load(Some(&args.file))?;
+    let lattice = load(Some(&args.file), args.block.as_deref())?;
     let c = &lattice.crystal;
     let sizes: Vec<Cells> = args
         .cells

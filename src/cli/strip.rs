@@ -67,9 +67,12 @@ pub enum SectorsArg {
 /// Arguments of `strip`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML) of a two-dimensional crystal, or of a three-dimensional one for
-    /// thin prisms (infinitely long along `--along`, a finite periodic or open section).
+    /// Lattice file (YAML) or structure file (CIF) of a two-dimensional crystal, or of a
+    /// three-dimensional one for thin prisms (infinitely long along `--along`, a finite periodic or open section).
     file: PathBuf,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Widths in cells across the strip: a range `2..12` (inclusive) or a list `4,6,8`.
     #[arg(long, default_value = "2..12")]
     widths: String,
@@ -225,7 +228,7 @@ pub(super) fn parse_widths(text: &str, step: usize) -> anyhow::Result<Vec<usize>
 
 pub fn run(args: Args) -> anyhow::Result<String> {
     let widths = parse_widths(&args.widths, args.step)?;
-    let lattice = load(Some(&args.file))?;
+    let lattice = load(Some(&args.file), args.block.as_deref())?;
     let c = &lattice.crystal;
     if args.depth.is_some() && c.dimensions != 3 {
         anyhow::bail!(
