@@ -274,9 +274,25 @@ const GOOD_FILES: [&str; 4] = [
 
 #[test]
 fn every_fixture_is_tested() {
+    // The structure files of tests/data/cif/ are the CIF tests' (tests/cif.rs names each).
+    let cif_tests = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/cif.rs"),
+    )
+    .expect("tests/cif.rs");
+    for entry in std::fs::read_dir(fixture("cif")).expect("tests/data/cif") {
+        let name = entry.expect("an entry").file_name();
+        let name = name.to_string_lossy();
+        assert!(
+            cif_tests.contains(name.as_ref()),
+            "tests/data/cif/{name} is in no test"
+        );
+    }
     for entry in std::fs::read_dir(fixture("")).expect("tests/data") {
         let name = entry.expect("an entry").file_name();
         let name = name.to_string_lossy();
+        if name == "cif" {
+            continue;
+        }
         assert!(
             name.starts_with("counts-")
                 || GOOD_FILES.contains(&name.as_ref())
