@@ -4,12 +4,12 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::calorimetry::ThirdLaw;
+use groundcount::calorimetry::{LowTemperatureForm, ThirdLaw, UnitMatch};
 use groundcount::cluster::Cells;
 use groundcount::counters::exact;
 use groundcount::report::Table;
 use groundcount::survey::{SurveyConfig, survey};
-use groundcount::writeup::{Comparison, Meta, Sentence, Writeup};
+use groundcount::writeup::{Comparison, MagneticComparison, Meta, Sentence, Writeup};
 use serde_json::json;
 
 use super::{Common, Format, load, shown, with_threads};
@@ -47,7 +47,8 @@ pub struct Args {
     #[arg(long)]
     sweeps: Option<usize>,
     /// Heat-capacity data (CSV, as for `groundcount calorimetry`) for the calorimetric
-    /// comparison; needs --statistical.
+    /// comparison; needs --statistical or --magnetic. Its `#@ formula-unit` must be the
+    /// lattice's, or --unit-ratio convert.
     #[arg(long, value_name = "DATA.csv")]
     calorimetry: Option<PathBuf>,
     #[command(flatten)]
@@ -113,23 +114,33 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     }
     let comparison = match &args.calorimetry {
         Some(data) => {
-            if !args.calorimetric.has_statistical() {
+            if !args.calorimetric.has_statistical() && !args.calorimetric.is_magnetic() {
                 anyhow::bail!(
                     "--calorimetry needs --statistical S±σ or S (the statistical entropy in \
-                     J/(mol K) at the comparison temperature)"
+                     J/(mol K) at the comparison temperature) or --magnetic Q (the magnetic route)"
                 );
             }
-            let r = super::calorimetry::analyse(data, &args.calorimetric)?;
+            let (r, matched) = super::calorimetry::analyse(
+                data,
+                &args.calorimetric,
+                Some(&c.formula_unit.name),
+            )?;
+            let matched = matched.expect("a target formula unit was given");
+            if matched.unchecked && !args.common.quiet {
+                eprintln!("warning: {}", matched.note.clone().unwrap_or_default());
+            }
             Some(comparison(
                 &r,
                 data,
                 args.calorimetric.statistical_sigma_given(),
+                &matched,
             ))
         }
         None => {
             if args.calorimetric.is_used() {
                 anyhow::bail!(
-                    "--statistical, --transition, --low-t and --to need --calorimetry DATA.csv"
+                    "--statistical, --magnetic, --transition, --low-t, --atoms, --unit-ratio and \
+                     --to need --calorimetry DATA.csv"
                 );
             }
             None
@@ -354,24 +365,57 @@ impl Staging {
 }
 
 /// The report's calorimetric comparison from a third-law analysis with a statistical
-/// entropy.
-fn comparison(r: &ThirdLaw, data: &std::path::Path, sigma_given: bool) -> Comparison {
+/// entropy, or from the magnetic route; entropies per mole of the lattice's formula unit
+/// (the data's divided by the factor of `matched`).
+fn comparison(
+    r: &ThirdLaw,
+    data: &std::path::Path,
+    sigma_given: bool,
+    matched: &UnitMatch,
+) -> Comparison {
+    let k = matched.factor;
     let stat = r
         .residual
         .as_ref()
-        .map_or((0.0, 0.0), |x| (x.s_stat, x.s_stat_sigma));
+        .map_or((0.0, 0.0), |x| (x.s_stat / k, x.s_stat_sigma / k));
+    let mut notes: Vec<String> = matched.note.iter().cloned().collect();
+    notes.extend(super::calorimetry::unit_notes(r));
     Comparison {
         file: data.display().to_string(),
         temperature_k: r.target_k,
-        s_cal: (r.s_cal, r.uncertainty.total),
+        s_cal: (r.s_cal / k, r.uncertainty.total / k),
         s_stat: stat,
-        s_stat_sigma_given: sigma_given,
-        extrapolated: r.low_t.entropy,
+        s_stat_sigma_given: sigma_given || r.magnetic.is_some(),
+        extrapolated: r.low_t.entropy / k,
+        low_t_words: match r.low_t.form {
+            LowTemperatureForm::Debye(_) => "Debye T³".into(),
+            LowTemperatureForm::LinearCubic(_) => "γT + βT³".into(),
+            LowTemperatureForm::Zero => "nothing (taken as 0)".into(),
+            LowTemperatureForm::Given(..) => "the entropy given".into(),
+        },
         debye_temperature_k: r.low_t.debye_temperature_k,
         points: r.points.iter().map(|p| (p.t_k, p.cp)).collect(),
         lowest_k: r.low_t.lowest_k,
         curve: r.curve(200),
         debye_curve: r.debye_curve(50),
+        magnetic: r.magnetic.as_ref().map(|m| MagneticComparison {
+            q: m.q,
+            ions_per_unit: m.ions / k,
+            lattice_term: m.phonons.as_ref().map(|p| {
+                format!(
+                    "{} × {} C(T; θ = {} K){}",
+                    groundcount::report::trimmed(p.atoms, 6),
+                    p.model.name(),
+                    groundcount::report::sig(p.theta_k, 5),
+                    p.fit.map_or(" (given)".into(), |f| format!(
+                        " fitted above {} K",
+                        groundcount::report::trimmed(f.above_k, 6)
+                    ))
+                )
+            }),
+        }),
+        unit_notes: notes,
+        unchecked_unit: matched.unchecked,
     }
 }
 

@@ -54,18 +54,38 @@ pub struct Comparison {
     pub s_stat: (f64, f64),
     /// Whether the statistical entropy came with a 1σ (without one, σ = 0 is used).
     pub s_stat_sigma_given: bool,
-    /// Entropy added below the lowest measured temperature (Debye T³), J/(mol K).
+    /// Entropy added below the lowest measured temperature, J/(mol K).
     pub extrapolated: f64,
-    /// Debye temperature of the low-temperature fit, K.
-    pub debye_temperature_k: f64,
+    /// How it was obtained, in words ("Debye T³", "γT + βT³", …).
+    pub low_t_words: String,
+    /// Debye temperature of the low-temperature fit, K, when a cubic term was fitted.
+    pub debye_temperature_k: Option<f64>,
     /// Measured points: (T in K, Cp in J/(mol K)).
     pub points: Vec<(f64, f64)>,
     /// Lowest temperature of the data, K (the Debye extrapolation covers 0..this).
     pub lowest_k: f64,
     /// The interpolant of Cp/T used for the integral: (T in K, Cp/T in J/(mol K²)).
     pub curve: Vec<(f64, f64)>,
-    /// The Debye T³ extrapolation below the data: (T in K, Cp/T in J/(mol K²)).
+    /// The fitted law below the data: (T in K, Cp/T in J/(mol K²)); empty without a fit.
     pub debye_curve: Vec<(f64, f64)>,
+    /// The magnetic route: `s_cal` is then the magnetic entropy released and `s_stat` the
+    /// free-ion entropy m R ln q (σ 0).
+    pub magnetic: Option<MagneticComparison>,
+    /// Notes on formula units and units of the data (conversions, assumptions).
+    pub unit_notes: Vec<String>,
+    /// Whether the data's formula unit could not be checked (the file states none).
+    pub unchecked_unit: bool,
+}
+
+/// The magnetic route of a calorimetric comparison.
+#[derive(Clone, Debug)]
+pub struct MagneticComparison {
+    /// States per magnetic ion.
+    pub q: u32,
+    /// Magnetic ions per formula unit of the lattice.
+    pub ions_per_unit: f64,
+    /// The lattice term subtracted, in words, if any.
+    pub lattice_term: Option<String>,
 }
 
 impl Comparison {
@@ -318,6 +338,15 @@ impl<'a> Writeup<'a> {
                 "w_per_unit": w,
                 "w_uncertainty": dw,
                 "s_stat_uncertainty_given": k.s_stat_sigma_given,
+                "low_t_form": k.low_t_words,
+                "unit_notes": k.unit_notes,
+                "formula_unit_unchecked": k.unchecked_unit,
+                "magnetic": k.magnetic.as_ref().map(|m| json!({
+                    "states_per_ion": m.q,
+                    "ions_per_formula_unit": m.ions_per_unit,
+                    "free_ion_entropy_j_per_mol_k": k.s_stat.0,
+                    "lattice_term": m.lattice_term,
+                })),
                 "computed_minus_measured_sigmas": cited.value.as_ref().map(|v| {
                     let b = v.estimate;
                     (b.s_j_per_mol_k() - r) / b.sigma_s_j_per_mol_k().unwrap_or(0.0).hypot(dr)
