@@ -289,15 +289,12 @@ impl HeatCapacityData {
                         })?;
                     }
                     _ => {
-                        head.temperature_unit =
-                            parse_temperature_unit(value).ok_or_else(|| {
-                                fail(
-                                    line,
-                                    format!(
-                                        "unknown unit of temperature `{value}`; expected K or mK"
-                                    ),
-                                )
-                            })?;
+                        head.temperature_unit = parse_temperature_unit(value).ok_or_else(|| {
+                            fail(
+                                line,
+                                format!("unknown unit of temperature `{value}`; expected K or mK"),
+                            )
+                        })?;
                     }
                 }
                 continue;

@@ -221,9 +221,8 @@ pub fn extrapolate(
             // S(T₀) = γT₀ + βT₀³/3: gradient (T₀, T₀³/3) through the covariance.
             let g = [t0, t0.powi(3) / 3.0];
             out.entropy = g[0] * c[0] + g[1] * c[1];
-            let var = g[0] * g[0] * cov[0][0]
-                + 2.0 * g[0] * g[1] * cov[0][1]
-                + g[1] * g[1] * cov[1][1];
+            let var =
+                g[0] * g[0] * cov[0][0] + 2.0 * g[0] * g[1] * cov[0][1] + g[1] * g[1] * cov[1][1];
             out.entropy_sigma = var.max(0.0).sqrt();
         }
         LowTemperatureForm::Zero => {
@@ -285,7 +284,7 @@ mod tests {
         // Exact γT + βT³ data: both coefficients back, entropy γT₀ + βT₀³/3 (closed form).
         let (g, b) = (2e-3, 5e-5);
         let t = [0.5, 0.8, 1.1, 1.5, 2.0];
-        let cp: Vec<f64> = t.iter().map(|t| g * t + b * t.powi(3)).collect();
+        let cp: Vec<f64> = t.iter().map(|&t: &f64| g * t + b * t.powi(3)).collect();
         let f = extrapolate(LowTemperatureForm::LinearCubic(5), 0.5, &t, &cp, None, None);
         let (gf, gs) = f.gamma.unwrap();
         assert!((gf - g).abs() < 1e-14 && gs < 1e-12);

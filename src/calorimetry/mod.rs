@@ -408,13 +408,8 @@ fn magnetic_route(
                     .map(|p| p.sigma.unwrap_or(1.0))
                     .collect()
             });
-            let (theta, theta_sigma, chi2) = magnetic::fit_theta(
-                model,
-                atoms,
-                &t,
-                &measured_cp[first..],
-                sigma.as_deref(),
-            );
+            let (theta, theta_sigma, chi2) =
+                magnetic::fit_theta(model, atoms, &t, &measured_cp[first..], sigma.as_deref());
             if !theta_sigma.is_finite() || theta <= 0.11 || theta >= 0.99e5 {
                 return Err(Error::Setting(format!(
                     "the {} temperature of the lattice term cannot be fitted to the {n} points \

@@ -123,7 +123,10 @@ mod tests {
         let named = data("#@ formula-unit: Dy2Ti2O7\n");
         let bare = data("");
         assert_eq!(reconcile(&named, "Dy2Ti2O7", None).unwrap().factor, 1.0);
-        assert_eq!(reconcile(&named, " Dy2Ti2O7 ", Some(1.0)).unwrap().factor, 1.0);
+        assert_eq!(
+            reconcile(&named, " Dy2Ti2O7 ", Some(1.0)).unwrap().factor,
+            1.0
+        );
         assert!(reconcile(&named, "Dy2Ti2O7", Some(2.0)).is_err());
         let e = reconcile(&named, "Dy", None).unwrap_err().to_string();
         assert!(e.starts_with("cp.csv:1: ") && e.contains("Dy2Ti2O7") && e.contains("of Dy;"));

@@ -116,7 +116,6 @@ impl Options {
         self.magnetic.is_some()
     }
 
-
     /// Whether any calorimetric option was given.
     pub fn is_used(&self) -> bool {
         self.to.is_some()
@@ -242,8 +241,8 @@ pub fn analyse(
     let config = options.config()?;
     let d = HeatCapacityData::from_file(data)?;
     let matched = match target {
-        Some(t) => Some(
-            calorimetry::reconcile(&d, t, options.unit_ratio).map_err(|e| match e {
+        Some(t) => Some(calorimetry::reconcile(&d, t, options.unit_ratio).map_err(
+            |e| match e {
                 groundcount::error::Error::FormulaUnitMismatch {
                     ref data_unit,
                     ref target_unit,
@@ -253,8 +252,8 @@ pub fn analyse(
                      to convert"
                 ),
                 e => e.into(),
-            })?,
-        ),
+            },
+        )?),
         None => {
             if options.unit_ratio.is_some() {
                 anyhow::bail!(
@@ -918,7 +917,10 @@ mod tests {
         for bad in ["", "±0.2", "3.43±", "3.43±-1", "inf", "3.43±x", "x"] {
             assert!(parse_statistical(bad).is_err(), "{bad}");
         }
-        assert_eq!(parse_low_t("debye:5").unwrap(), LowTemperatureForm::Debye(5));
+        assert_eq!(
+            parse_low_t("debye:5").unwrap(),
+            LowTemperatureForm::Debye(5)
+        );
         assert_eq!(
             parse_low_t("gamma-beta:6").unwrap(),
             LowTemperatureForm::LinearCubic(6)

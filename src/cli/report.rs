@@ -120,11 +120,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                      J/(mol K) at the comparison temperature) or --magnetic Q (the magnetic route)"
                 );
             }
-            let (r, matched) = super::calorimetry::analyse(
-                data,
-                &args.calorimetric,
-                Some(&c.formula_unit.name),
-            )?;
+            let (r, matched) =
+                super::calorimetry::analyse(data, &args.calorimetric, Some(&c.formula_unit.name))?;
             let matched = matched.expect("a target formula unit was given");
             if matched.unchecked && !args.common.quiet {
                 eprintln!("warning: {}", matched.note.clone().unwrap_or_default());
