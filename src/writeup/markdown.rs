@@ -300,7 +300,7 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
                 Some(m) => format!(
                     "free-ion entropy m R ln {} (m = {} magnetic ions per {unit})",
                     m.q,
-                    sig(m.ions_per_unit, 6)
+                    crate::report::trimmed(m.ions_per_unit, 6)
                 ),
                 None => "statistical entropy S_stat (given)".into(),
             },
