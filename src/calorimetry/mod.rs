@@ -85,7 +85,7 @@ pub struct Transition {
 }
 
 /// What to compute.
-#[derive(Clone, Debug)]
+#[derive(Clone, Debug, Default)]
 pub struct CalorimetryConfig {
     /// Temperature of the result, K; `None`: 298.15 K if inside the data, otherwise the
     /// highest measured temperature.
@@ -102,18 +102,6 @@ pub struct CalorimetryConfig {
     pub magnetic: Option<MagneticConfig>,
 }
 
-impl Default for CalorimetryConfig {
-    fn default() -> Self {
-        CalorimetryConfig {
-            target_k: None,
-            transitions: Vec::new(),
-            low_t: LowTemperatureForm::default(),
-            atoms: None,
-            statistical: None,
-            magnetic: None,
-        }
-    }
-}
 
 /// The parts of the uncertainty of S_cal at the target, J/(mol K).
 #[derive(Clone, Copy, Debug)]
