@@ -594,9 +594,26 @@ fn issue16_lattice_term_given_or_fitted_leaves_the_magnetic_entropy() {
         "fitted θ: {} vs {exact}",
         m.released
     );
-    // The θ part of the uncertainty is there and in the total.
-    let l = fitted.uncertainty.lattice.unwrap();
-    assert!(l > 0.0 && fitted.uncertainty.total >= l);
+    // With θ fitted to data with σ, the Cp noise is carried through the fit and the
+    // integral together (the data part differs from the given-θ one) and the lattice part
+    // holds only a misfit beyond the σ: none for these noiseless data.
+    assert_eq!(fitted.uncertainty.lattice, Some(0.0));
+    let (joint, plain) = (
+        fitted.uncertainty.data.unwrap(),
+        given.uncertainty.data.unwrap(),
+    );
+    assert!(
+        joint > 0.0 && (joint - plain).abs() > 1e-3 * plain,
+        "{joint} vs {plain}"
+    );
+    // A given θ with a 1σ: |∂ΔS/∂θ| σ, and in the total.
+    let with_sigma = run(Phonons::Given(PhononModel::Debye, theta, 2.0));
+    let l = with_sigma.uncertainty.lattice.unwrap();
+    let u = &with_sigma.uncertainty;
+    assert!(l > 0.0);
+    assert!(
+        (u.total - (u.data.unwrap().powi(2) + u.quadrature.powi(2) + l * l).sqrt()).abs() < 1e-12
+    );
     // Without the lattice term, the lattice's entropy up to 60 K would count as magnetic:
     // 3 S_D(60; 250) more, by the Debye entropy of the test's own quadrature.
     let none = calorimetry::analyse(
@@ -902,4 +919,54 @@ fn issue16_magnetic_route_through_the_binary_and_the_report() {
     let md = std::fs::read_to_string(dir.join("report.md")).unwrap();
     assert!(md.contains("magnetic entropy released"), "{md}");
     assert!(md.contains("divided by 2 to be per mole of Dy"), "{md}");
+}
+
+#[test]
+fn issue16_magnetic_error_bars_are_calibrated() {
+    // 60 noisy realisations (seeded) of the model magnet on 3 Debye atoms, θ fitted above
+    // 30 K: the pulls (released − closed form)/σ must have a mean near 0 and a spread near
+    // 1 (the σ holds the Cp noise propagated, the quadrature estimate and the θ part).
+    use rand::Rng;
+    let (gap, theta, atoms) = (1.0, 250.0, 3.0);
+    let temps = geometric(0.2, 60.0, 70);
+    let clean = model_magnet(&temps, 1.0, gap, atoms, theta);
+    let exact = pauling_fraction() * (schottky_entropy(60.0, gap) - schottky_entropy(0.2, gap));
+    let mut rng = rand_pcg::Pcg64Mcg::new(16);
+    let mut uniform = || ((rng.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64;
+    let mut pulls = Vec::new();
+    for _ in 0..60 {
+        let rows: Vec<(f64, f64, Option<f64>)> = clean
+            .iter()
+            .map(|&(t, c, _)| {
+                let s = 0.01 * c + 1e-3;
+                // Box–Muller.
+                let g =
+                    (-2.0 * uniform().ln()).sqrt() * (2.0 * std::f64::consts::PI * uniform()).cos();
+                (t, (c + s * g).max(0.0), Some(s))
+            })
+            .collect();
+        let d = HeatCapacityData::parse(&csv(&rows), "pull.csv").unwrap();
+        let r = calorimetry::analyse(
+            &d,
+            &CalorimetryConfig {
+                low_t: LowTemperatureForm::Zero,
+                atoms: Some(atoms),
+                magnetic: Some(MagneticConfig {
+                    q: 2,
+                    ions: 1.0,
+                    phonons: Some(Phonons::FittedAbove(PhononModel::Debye, 30.0)),
+                }),
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        let m = r.magnetic.unwrap();
+        pulls.push((m.released - exact) / m.released_sigma);
+    }
+    let n = pulls.len() as f64;
+    let mean = pulls.iter().sum::<f64>() / n;
+    let spread = (pulls.iter().map(|p| (p - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+    eprintln!("pulls: mean {mean:.3}, spread {spread:.3}");
+    assert!(mean.abs() < 0.4, "mean pull {mean}");
+    assert!((0.75..1.3).contains(&spread), "spread of pulls {spread}");
 }

@@ -102,7 +102,6 @@ pub struct CalorimetryConfig {
     pub magnetic: Option<MagneticConfig>,
 }
 
-
 /// The parts of the uncertainty of S_cal at the target, J/(mol K).
 #[derive(Clone, Copy, Debug)]
 pub struct Uncertainty {
@@ -194,6 +193,8 @@ pub struct ThirdLaw {
     /// Against a statistical entropy, when one was given, or against m R ln q for the
     /// magnetic route.
     pub residual: Option<Residual>,
+    /// ∂S_cal/∂Cpᵢ at the target for every point (dimensionless), as used for the data part.
+    pub sensitivities: Vec<f64>,
     /// The magnetic route, when asked for.
     pub magnetic: Option<MagneticResult>,
 }
@@ -434,18 +435,61 @@ fn magnetic_route(
         Ok((third_law(&d, config, true)?, negative))
     };
     let (mut main, negative_points) = with_theta(term.as_ref().map(|x| x.theta_k))?;
-    let lattice = match &term {
-        Some(x) if x.theta_sigma > 0.0 => {
-            let h = 1e-4 * x.theta_k;
-            let up = with_theta(Some(x.theta_k + h))?.0.s_cal;
-            let down = with_theta(Some(x.theta_k - h))?.0.s_cal;
-            Some(((up - down) / (2.0 * h) * x.theta_sigma).abs())
+    // The lattice term's θ in the uncertainty. Given θ ± σ: |∂ΔS/∂θ| σ, independent of the
+    // data. Fitted θ: the same Cp noise moves θ and the integral, in opposite directions (a
+    // point that raises the lattice term lowers C_mag), so the data part is propagated
+    // through both at once, √Σᵢ ((∂ΔS/∂Cpᵢ + ∂ΔS/∂θ ∂θ/∂Cpᵢ) σᵢ)², with ∂θ/∂Cpᵢ =
+    // wᵢJᵢ/Σ wⱼJⱼ² (J = ∂C_lat/∂θ, the linearised least squares), and the lattice part holds
+    // only the misfit beyond the σ (the Birge ratio's excess), or all of σ_θ without σ.
+    let mut lattice = None;
+    if let Some(x) = &term
+        && x.theta_sigma > 0.0
+    {
+        let h = 1e-4 * x.theta_k;
+        let up = with_theta(Some(x.theta_k + h))?.0.s_cal;
+        let down = with_theta(Some(x.theta_k - h))?.0.s_cal;
+        let slope = (up - down) / (2.0 * h);
+        match (&x.fit, data.has_sigma()) {
+            (Some(fit), true) => {
+                let first = data.points.len() - fit.points;
+                let jac: Vec<f64> = data.points[first..]
+                    .iter()
+                    .map(|p| {
+                        x.atoms
+                            * (x.model.heat_capacity(p.t_k, x.theta_k + h)
+                                - x.model.heat_capacity(p.t_k, x.theta_k - h))
+                            / (2.0 * h)
+                    })
+                    .collect();
+                let w: Vec<f64> = data.points[first..]
+                    .iter()
+                    .map(|p| p.sigma.map_or(1.0, |s| 1.0 / (s * s)))
+                    .collect();
+                let norm: f64 = jac.iter().zip(&w).map(|(j, w)| w * j * j).sum();
+                let mut joint = 0.0;
+                for (i, p) in data.points.iter().enumerate() {
+                    let dtheta = if i >= first {
+                        w[i - first] * jac[i - first] / norm
+                    } else {
+                        0.0
+                    };
+                    let g = main.sensitivities[i] + slope * dtheta;
+                    joint += (g * p.sigma.unwrap_or(0.0)).powi(2);
+                }
+                main.uncertainty.data = Some(joint.sqrt());
+                let birge = fit.chi2 / fit.dof.max(1) as f64;
+                lattice = Some((slope / norm.sqrt() * (birge - 1.0).max(0.0).sqrt()).abs());
+            }
+            _ => lattice = Some((slope * x.theta_sigma).abs()),
         }
-        _ => None,
-    };
+    }
     let u = &mut main.uncertainty;
     u.lattice = lattice;
-    u.total = u.total.hypot(lattice.unwrap_or(0.0));
+    u.total = (u.data.unwrap_or(0.0).powi(2)
+        + u.extrapolation.powi(2)
+        + u.quadrature.powi(2)
+        + lattice.unwrap_or(0.0).powi(2))
+    .sqrt();
     let released = main.s_cal;
     let released_sigma = main.uncertainty.total;
     let full = m.ions * R * f64::from(m.q).ln();
@@ -598,9 +642,15 @@ fn third_law(
     let (integral_trapezoid, _) = Pieces::new(&t, &cp, &transitions, true).entropy_to(target_k);
     let s_cal = low_t.entropy + integral + transition_entropy;
 
-    let data_part = sigma
-        .as_ref()
-        .map(|s| data_uncertainty(&t, &cp, s, &pieces, target_k));
+    let sensitivities = data_sensitivities(&t, &cp, &pieces, target_k);
+    let data_part = sigma.as_ref().map(|s| {
+        sensitivities
+            .iter()
+            .zip(s)
+            .map(|(g, s)| (g * s).powi(2))
+            .sum::<f64>()
+            .sqrt()
+    });
     let quadrature = (integral - integral_trapezoid).abs();
     let extrapolation = low_t.entropy_sigma;
     let total =
@@ -636,17 +686,19 @@ fn third_law(
         s_cal,
         uncertainty,
         residual,
+        sensitivities,
         magnetic: None,
     })
 }
 
-/// The 1σ of Cp propagated through ∫ Cp d(ln T) up to the target: Σᵢ (∂S/∂Cpᵢ σᵢ)², the
-/// sensitivities by central finite differences of the monotone interpolant of each point's
-/// stretch. A point moves the interpolant only near itself, so each sensitivity is computed
-/// on a few intervals ([`integrate::monotone_sensitivity`]): O(n) in all.
-fn data_uncertainty(t: &[f64], cp: &[f64], sigma: &[f64], pieces: &Pieces, target_k: f64) -> f64 {
+/// The sensitivities ∂S/∂Cpᵢ of ∫ Cp d(ln T) up to the target (the data part of the
+/// uncertainty is √Σᵢ (∂S/∂Cpᵢ σᵢ)²), by central finite differences of the monotone
+/// interpolant of each point's stretch. A point moves the interpolant only near itself, so
+/// each sensitivity is computed on a few intervals ([`integrate::monotone_sensitivity`]):
+/// O(n) in all.
+fn data_sensitivities(t: &[f64], cp: &[f64], pieces: &Pieces, target_k: f64) -> Vec<f64> {
     let scale = cp.iter().fold(0.0f64, |m, &c| m.max(c.abs())).max(1e-300);
-    let mut sum = 0.0;
+    let mut out = vec![0.0; t.len()];
     let mut start = 0;
     for stretch in &pieces.stretches {
         let end = start + stretch.points;
@@ -664,12 +716,12 @@ fn data_uncertainty(t: &[f64], cp: &[f64], sigma: &[f64], pieces: &Pieces, targe
                     stretch.lower,
                     top,
                 );
-                sum += (g * sigma[i]).powi(2);
+                out[i] = g;
             }
         }
         start = end;
     }
-    sum.sqrt()
+    out
 }
 
 /// A stretch bound in words.
