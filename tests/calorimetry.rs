@@ -606,6 +606,9 @@ fn issue16_lattice_term_given_or_fitted_leaves_the_magnetic_entropy() {
         joint > 0.0 && (joint - plain).abs() > 1e-3 * plain,
         "{joint} vs {plain}"
     );
+    // The second threshold (the upper half of the points above 30 K) agrees here.
+    let check = m.phonons.as_ref().unwrap().fit.unwrap().check.unwrap();
+    assert!(!check.disagrees && check.above_k > 30.0, "{check:?}");
     // A given θ with a 1σ: |∂ΔS/∂θ| σ, and in the total.
     let with_sigma = run(Phonons::Given(PhononModel::Debye, theta, 2.0));
     let l = with_sigma.uncertainty.lattice.unwrap();
@@ -969,4 +972,56 @@ fn issue16_magnetic_error_bars_are_calibrated() {
     eprintln!("pulls: mean {mean:.3}, spread {spread:.3}");
     assert!(mean.abs() < 0.4, "mean pull {mean}");
     assert!((0.75..1.3).contains(&spread), "spread of pulls {spread}");
+}
+
+#[test]
+fn issue16_demo_magnet_flags_a_threshold_inside_the_anomaly() {
+    // The invented demo magnet (its header: generated with a residual of R ln(3/2) per
+    // formula unit, plus 0.0142 J/(mol K) that the spins release outside 0.3..40 K). With
+    // the lattice term fitted above 10 K, where the spins' Schottky tail is still 5 % of Cp,
+    // the second threshold moves ΔS_mag by more than 2σ and the output says so; above 28 K
+    // the check passes and the residual lies within 2σ of the generating model's.
+    let data = lattice("demo-magnet-cp.csv");
+    let json_of = |above: &str| -> Value {
+        let out = run(&[
+            "calorimetry",
+            data.to_str().unwrap(),
+            "--magnetic",
+            "2",
+            "--ions",
+            "2",
+            "--atoms",
+            "11",
+            "--phonons",
+            &format!("debye:above:{above}"),
+            "--low-t",
+            "none",
+            "--format",
+            "json",
+        ]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let low = json_of("10");
+    assert_eq!(low["magnetic"]["lattice_term"]["check"]["disagrees"], true);
+    assert!(
+        low["notes"]
+            .to_string()
+            .contains("WARNING: with θ refitted")
+    );
+    let high = json_of("28");
+    assert_eq!(
+        high["magnetic"]["lattice_term"]["check"]["disagrees"],
+        false
+    );
+    let model = R * 1.5f64.ln() + 0.0142;
+    let (r, dr) = (
+        high["residual_j_per_mol_k"].as_f64().unwrap(),
+        high["residual_uncertainty"].as_f64().unwrap(),
+    );
+    assert!((r - model).abs() < 2.0 * dr, "{r} ± {dr} vs {model}");
 }

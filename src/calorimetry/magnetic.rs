@@ -23,7 +23,12 @@
 //! free, C_mag ≈ 0. The fit minimises χ²(θ) over ln θ by a scan of 400 values from 0.1 K
 //! to 10⁵ K and golden-section refinement; the 1σ of θ is √(2/χ²''(θ)) (scaled by the Birge
 //! ratio above 1 with σ, or by the residual variance without σ; common practice). The 1σ of
-//! θ is carried into ΔS_mag by central differences of the whole analysis in θ.
+//! θ is carried into ΔS_mag by central differences of the whole analysis in θ; with a fitted
+//! θ and σ in the data, the Cp noise is carried through the fit and the integral together.
+//!
+//! A fitted θ absorbs whatever the spins still add above the threshold. As a second route,
+//! θ is refitted to the upper half of those points ([`ThresholdCheck`], 4 points or more);
+//! a ΔS_mag that moves by more than twice its 1σ is flagged.
 //!
 //! # Complexity
 //!
@@ -106,6 +111,25 @@ pub struct PhononFit {
     pub chi2: f64,
     /// Degrees of freedom, points − 1.
     pub dof: usize,
+    /// The second threshold: θ refitted to the upper half of the points, when there are 4
+    /// or more.
+    pub check: Option<ThresholdCheck>,
+}
+
+/// The lattice term refitted to the upper half of the points above the threshold: the
+/// spins still adding heat capacity above the threshold show as a shift of ΔS_mag.
+#[derive(Clone, Copy, Debug)]
+pub struct ThresholdCheck {
+    /// The points above this temperature (K) were refitted.
+    pub above_k: f64,
+    /// Number of points refitted.
+    pub points: usize,
+    /// θ of the refit, K.
+    pub theta_k: f64,
+    /// ΔS_mag with that θ, J/(mol K).
+    pub released: f64,
+    /// Whether |ΔS_mag − this| exceeds twice the 1σ of ΔS_mag.
+    pub disagrees: bool,
 }
 
 /// The result of the magnetic route.

@@ -417,6 +417,7 @@ fn magnetic_route(
                     points: n,
                     chi2,
                     dof: n - 1,
+                    check: None,
                 }),
             })
         }
@@ -490,6 +491,42 @@ fn magnetic_route(
         + u.quadrature.powi(2)
         + lattice.unwrap_or(0.0).powi(2))
     .sqrt();
+    // The second threshold: the upper half of the fitted points.
+    let mut check = None;
+    if let Some(x) = &term
+        && let Some(fit) = &x.fit
+        && fit.points >= 4
+    {
+        let k = fit.points / 2;
+        let first = data.points.len() - k;
+        let t: Vec<f64> = data.points[first..].iter().map(|p| p.t_k).collect();
+        let sigma: Option<Vec<f64>> = data.has_sigma().then(|| {
+            data.points[first..]
+                .iter()
+                .map(|p| p.sigma.unwrap_or(1.0))
+                .collect()
+        });
+        let (theta2, _, _) = magnetic::fit_theta(
+            x.model,
+            x.atoms,
+            &t,
+            &measured_cp[first..],
+            sigma.as_deref(),
+        );
+        let released2 = with_theta(Some(theta2))?.0.s_cal;
+        check = Some(magnetic::ThresholdCheck {
+            // Halfway between the last point left out and the first kept.
+            above_k: 0.5 * (data.points[first - 1].t_k + data.points[first].t_k),
+            points: k,
+            theta_k: theta2,
+            released: released2,
+            disagrees: (released2 - main.s_cal).abs() > 2.0 * main.uncertainty.total,
+        });
+    }
+    let mut term = term;
+    if let Some(fit) = term.as_mut().and_then(|x| x.fit.as_mut()) {
+        fit.check = check;
+    }
     let released = main.s_cal;
     let released_sigma = main.uncertainty.total;
     let full = m.ions * R * f64::from(m.q).ln();

@@ -451,6 +451,19 @@ fn quantities(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> V
             J,
         ));
     }
+    if let Some(c) = threshold_check(r) {
+        out.push(Quantity::new(
+            format!(
+                "  check: θ = {} K fitted above {} K instead",
+                sig(c.theta_k, 5),
+                t(c.above_k)
+            ),
+            c.released,
+            None,
+            6,
+            J,
+        ));
+    }
     match (&r.magnetic, &r.residual) {
         (Some(m), Some(s)) => {
             out.push(Quantity::new(
@@ -573,6 +586,40 @@ fn summary_table(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -
     t
 }
 
+/// The magnetic route's second threshold, when there is one.
+fn threshold_check(r: &ThirdLaw) -> Option<calorimetry::magnetic::ThresholdCheck> {
+    r.magnetic
+        .as_ref()
+        .and_then(|m| m.phonons.as_ref())
+        .and_then(|p| p.fit.as_ref())
+        .and_then(|f| f.check)
+}
+
+/// The note on the second threshold: loud when ΔS_mag moves by more than 2σ.
+pub fn threshold_note(r: &ThirdLaw) -> Option<String> {
+    let c = threshold_check(r)?;
+    let shift = c.released - r.s_cal;
+    Some(if c.disagrees {
+        format!(
+            "WARNING: with θ refitted to the {} points above {} K, ΔS_mag moves by {} J/(mol K), \
+             more than twice its 1σ: the spins still add heat capacity above the threshold, \
+             so the lattice term absorbs part of the magnetic entropy; raise the threshold, \
+             or give θ, before citing the residual",
+            c.points,
+            report::trimmed(c.above_k, 6),
+            sig(shift, 2)
+        )
+    } else {
+        format!(
+            "with θ refitted to the {} points above {} K, ΔS_mag moves by {} J/(mol K), within \
+             twice its 1σ",
+            c.points,
+            report::trimmed(c.above_k, 6),
+            sig(shift, 2)
+        )
+    })
+}
+
 /// What the data file's `#@` lines said about units, in words, when not the defaults.
 pub fn unit_notes(r: &ThirdLaw) -> Vec<String> {
     let mut n = Vec::new();
@@ -693,6 +740,9 @@ fn notes(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Vec<St
                         None => "θ as given".into(),
                     }
                 ));
+                if let Some(note) = threshold_note(r) {
+                    n.push(note);
+                }
                 if m.negative_points > 0 {
                     n.push(format!(
                         "the lattice term exceeds the measured Cp at {} point(s): C_mag is \
@@ -819,6 +869,13 @@ pub fn json(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> ser
                 "fitted_points": p.fit.map(|x| x.points),
                 "chi2": p.fit.map(|x| x.chi2),
                 "dof": p.fit.map(|x| x.dof),
+                "check": p.fit.and_then(|x| x.check).map(|c| json!({
+                    "fitted_above_k": c.above_k,
+                    "fitted_points": c.points,
+                    "theta_k": c.theta_k,
+                    "released_j_per_mol_k": c.released,
+                    "disagrees": c.disagrees,
+                })),
             })),
             "negative_points": m.negative_points,
             "measured_cp_j_per_mol_k": m.measured_cp,

@@ -377,6 +377,7 @@ fn comparison(
         .map_or((0.0, 0.0), |x| (x.s_stat / k, x.s_stat_sigma / k));
     let mut notes: Vec<String> = matched.note.iter().cloned().collect();
     notes.extend(super::calorimetry::unit_notes(r));
+    notes.extend(super::calorimetry::threshold_note(r));
     Comparison {
         file: data.display().to_string(),
         temperature_k: r.target_k,
