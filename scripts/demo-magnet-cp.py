@@ -60,7 +60,7 @@ def main():
           f"{2 * F * R * math.log(2) - top_released:.4f} above 40 K, which no")
     print("# analysis of these points can see. Try:")
     print("#   groundcount calorimetry lattices/demo-magnet-cp.csv --magnetic 2 --ions 2 --atoms 11 \\")
-    print("#     --phonons debye:above:20 --low-t none")
+    print("#     --phonons debye:above:28 --low-t none   (above:20 shows the threshold warning)")
     print("#@ formula-unit: Qm2Ti2O7")
     print("#@ cp-unit: J/(mol K)")
     print("#@ temperature-unit: K")
