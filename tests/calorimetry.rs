@@ -1025,3 +1025,47 @@ fn issue16_demo_magnet_flags_a_threshold_inside_the_anomaly() {
     );
     assert!((r - model).abs() < 2.0 * dr, "{r} ± {dr} vs {model}");
 }
+
+#[test]
+fn issue16_data_without_a_formula_unit_are_compared_with_a_warning() {
+    // The demo hydrate's heat capacities with the `#@` lines removed: accepted per the
+    // lattice's formula unit, with a warning on standard error and in report.md.
+    let text: String = std::fs::read_to_string(lattice("quillonite-dihydrate-cp.csv"))
+        .unwrap()
+        .lines()
+        .filter(|l| !l.starts_with("#@"))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    let data = write("issue16-no-unit.csv", &text);
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("issue16-no-unit");
+    let _ = std::fs::remove_dir_all(&dir);
+    let out = run(&[
+        "report",
+        lattice("demo-hydrate.yaml").to_str().unwrap(),
+        "-o",
+        dir.to_str().unwrap(),
+        "--widths",
+        "2..4",
+        "--max-exact-units",
+        "6",
+        "--budget",
+        "600",
+        "--threads",
+        "1",
+        "--calorimetry",
+        data.to_str().unwrap(),
+        "--statistical",
+        "186.77±0.30",
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{stderr}");
+    assert!(
+        stderr.contains("warning: the data file does not state its formula unit"),
+        "{stderr}"
+    );
+    let md = std::fs::read_to_string(dir.join("report.md")).unwrap();
+    assert!(
+        md.contains("**Warning:** the data file does not state its formula unit"),
+        "{md}"
+    );
+}

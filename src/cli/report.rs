@@ -375,7 +375,17 @@ fn comparison(
         .residual
         .as_ref()
         .map_or((0.0, 0.0), |x| (x.s_stat / k, x.s_stat_sigma / k));
-    let mut notes: Vec<String> = matched.note.iter().cloned().collect();
+    let mut notes: Vec<String> = matched
+        .note
+        .iter()
+        .map(|n| {
+            if matched.unchecked {
+                format!("WARNING: {n}")
+            } else {
+                n.clone()
+            }
+        })
+        .collect();
     notes.extend(super::calorimetry::unit_notes(r));
     notes.extend(super::calorimetry::threshold_note(r));
     Comparison {
@@ -412,7 +422,7 @@ fn comparison(
                 )
             }),
         }),
-        unit_notes: notes,
+        notes,
         unchecked_unit: matched.unchecked,
     }
 }

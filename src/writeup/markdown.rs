@@ -346,9 +346,9 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
             format!("{} J/(mol K)", sig(p.s_j_per_mol_k(), 6)),
         ]);
         writeln!(o, "{}", t.render_markdown())?;
-        for n in &k.unit_notes {
-            if k.unchecked_unit {
-                writeln!(o, "**Warning:** {n}.\n")?;
+        for n in &k.notes {
+            if let Some(rest) = n.strip_prefix("WARNING: ") {
+                writeln!(o, "**Warning:** {rest}.\n")?;
             } else {
                 let mut c = n.chars();
                 let first: String = c.next().into_iter().flat_map(char::to_uppercase).collect();

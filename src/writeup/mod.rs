@@ -71,8 +71,9 @@ pub struct Comparison {
     /// The magnetic route: `s_cal` is then the magnetic entropy released and `s_stat` the
     /// free-ion entropy m R ln q (σ 0).
     pub magnetic: Option<MagneticComparison>,
-    /// Notes on formula units and units of the data (conversions, assumptions).
-    pub unit_notes: Vec<String>,
+    /// Notes on formula units and units of the data (conversions, assumptions) and the
+    /// magnetic route's threshold check; a note that begins `WARNING: ` is shown as one.
+    pub notes: Vec<String>,
     /// Whether the data's formula unit could not be checked (the file states none).
     pub unchecked_unit: bool,
 }
@@ -339,7 +340,7 @@ impl<'a> Writeup<'a> {
                 "w_uncertainty": dw,
                 "s_stat_uncertainty_given": k.s_stat_sigma_given,
                 "low_t_form": k.low_t_words,
-                "unit_notes": k.unit_notes,
+                "notes": k.notes,
                 "formula_unit_unchecked": k.unchecked_unit,
                 "magnetic": k.magnetic.as_ref().map(|m| json!({
                     "states_per_ion": m.q,
