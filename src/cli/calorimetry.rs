@@ -30,7 +30,8 @@ pub struct Args {
     /// Output format.
     #[arg(long, value_enum, default_value_t = Format::Table)]
     format: Format,
-    /// No messages on standard error (this command prints none but errors).
+    /// No messages on standard error (this command prints none but errors and the warning
+    /// that a formula unit could not be checked).
     #[arg(long, short)]
     quiet: bool,
 }
