@@ -5,6 +5,7 @@
 mod common;
 
 use criterion::{Criterion, criterion_group, criterion_main};
+use groundcount::context::Context;
 use groundcount::counters::exact::{ExactConfig, count};
 
 fn frontier(c: &mut Criterion) {
@@ -21,7 +22,9 @@ fn frontier(c: &mut Criterion) {
         let model = common::model(file, cells, open);
         let config = ExactConfig::default();
         let name = format!("{} {}", file.trim_end_matches(".yaml"), model.cells);
-        group.bench_function(name, |b| b.iter(|| count(&model, &config).expect("counts")));
+        group.bench_function(name, |b| {
+            b.iter(|| count(&model, &config, &Context::new()).expect("counts"))
+        });
     }
     group.finish();
 }

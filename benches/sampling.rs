@@ -39,14 +39,13 @@ fn sweeps(c: &mut Criterion) {
         replicas: 2,
         sweeps: 5_000,
         uniform: 2_000,
-        ..Default::default()
     };
     // 2 replicas × 2 stages × 5000 sweeps × 64 variables
     group.throughput(Throughput::Elements(
         2 * 2 * 5_000 * small.variables.len() as u64,
     ));
     group.bench_function("ice-ih 2x2x2, 2 walks of 5000 + 5000 sweeps", |b| {
-        b.iter(|| wang_landau::wang_landau(&small, &config).expect("walks"))
+        b.iter(|| wang_landau::count(&small, &config, &Default::default()).expect("walks"))
     });
     group.finish();
 }

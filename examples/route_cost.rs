@@ -21,7 +21,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let config = exact::ExactConfig::default();
     let cost = exact::plan_for(&model).map_or(f64::INFINITY, |p| p.cost);
     let start = Instant::now();
-    let frontier = match exact::count(&model, &config) {
+    let frontier = match exact::count(&model, &config, &Default::default()) {
         Ok(_) => format!("{:.3} s", start.elapsed().as_secs_f64()),
         Err(e) => format!("not finished: {e}"),
     };

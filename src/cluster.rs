@@ -32,50 +32,264 @@ pub const MAX_CELLS: usize = 1 << 22;
 /// Most sites plus bonds a cluster may hold.
 pub const MAX_ENTITIES: usize = 1 << 24;
 
+/// Why a cell cannot be used. Each problem carries its data (the axis, the limit, the cell
+/// as written); the binary words it with the flag it came from.
+#[derive(Clone, Debug, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum CellsError {
+    /// A size is missing in the notation (`4x`).
+    MissingSize {
+        /// The notation as written.
+        text: String,
+        /// Dimensions of the crystal.
+        dimensions: usize,
+    },
+    /// A size is not a whole number.
+    NotANumber {
+        /// The notation as written.
+        text: String,
+        /// The part that is not a number.
+        part: String,
+    },
+    /// As many sizes as neither 1 nor the crystal's dimensions.
+    WrongCount {
+        /// The notation as written, when the cell came from text.
+        text: Option<String>,
+        /// Sizes given.
+        given: usize,
+        /// Dimensions of the crystal.
+        dimensions: usize,
+    },
+    /// A size of 0.
+    ZeroSize {
+        /// The notation as written, when the cell came from text.
+        text: Option<String>,
+        /// The axis (0 = a, 1 = b, 2 = c).
+        axis: usize,
+    },
+    /// More unit cells than [`MAX_CELLS`].
+    TooManyCells {
+        /// The notation as written, when the cell came from text.
+        text: Option<String>,
+        /// The limit.
+        max: usize,
+    },
+    /// An open axis that the crystal does not have (or that is not an axis name).
+    NoSuchAxis {
+        /// The axis as written or numbered.
+        axis: String,
+        /// Dimensions of the crystal.
+        dimensions: usize,
+    },
+    /// A cell with a different number of axes than the crystal has dimensions.
+    DimensionMismatch {
+        /// The cell.
+        cells: String,
+        /// Its axes.
+        axes: usize,
+        /// The crystal's dimensions.
+        dimensions: usize,
+    },
+    /// A cell with more sites and bonds than [`MAX_ENTITIES`].
+    TooManyEntities {
+        /// The cell.
+        cells: String,
+        /// Its unit cells.
+        total: usize,
+        /// Sites per unit cell.
+        sites: usize,
+        /// Bonds per unit cell.
+        bonds: usize,
+        /// The limit.
+        max: usize,
+    },
+}
+
+/// An example of the notation for a crystal of `dimensions` dimensions.
+fn example(dimensions: usize) -> &'static str {
+    ["4", "4x4", "4x4x2"][dimensions.clamp(1, 3) - 1]
+}
+
+impl CellsError {
+    /// The notation as written, when the problem is in it (the binary names the flag).
+    pub fn text(&self) -> Option<&str> {
+        match self {
+            CellsError::MissingSize { text, .. } | CellsError::NotANumber { text, .. } => {
+                Some(text)
+            }
+            CellsError::WrongCount { text, .. }
+            | CellsError::ZeroSize { text, .. }
+            | CellsError::TooManyCells { text, .. } => text.as_deref(),
+            _ => None,
+        }
+    }
+
+    /// What is wrong, in words, without the notation it was found in.
+    pub fn problem(&self) -> String {
+        match self {
+            CellsError::MissingSize { dimensions, .. } => format!(
+                "a size is missing; expected whole numbers joined by x, e.g. {}",
+                example(*dimensions)
+            ),
+            CellsError::NotANumber { part, .. } => {
+                format!("'{part}' is not a whole number; expected e.g. 4x4x2")
+            }
+            CellsError::WrongCount {
+                given, dimensions, ..
+            } => format!(
+                "{given} sizes given for a {dimensions}-dimensional crystal; expected {dimensions} (e.g. {})",
+                example(*dimensions)
+            ),
+            CellsError::ZeroSize { axis, .. } => format!(
+                "the size along {} is 0; every size must be at least 1",
+                AXES.get(*axis).copied().unwrap_or('?')
+            ),
+            CellsError::TooManyCells { max, .. } => {
+                format!("too large: at most {max} unit cells in all")
+            }
+            CellsError::NoSuchAxis { dimensions, .. } => format!(
+                "expected a comma-separated list of axes among {}",
+                AXES[..(*dimensions).clamp(1, 3)]
+                    .iter()
+                    .map(|c| c.to_string())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+            CellsError::DimensionMismatch {
+                cells,
+                axes,
+                dimensions,
+            } => format!(
+                "the cell {cells} has {axes} axes but the crystal has {dimensions} dimensions"
+            ),
+            CellsError::TooManyEntities {
+                cells,
+                total,
+                sites,
+                bonds,
+                max,
+            } => format!(
+                "the cell {cells} is too large: {total} unit cells of {sites} sites and {bonds} bonds (at most {max} in all)"
+            ),
+        }
+    }
+}
+
+impl fmt::Display for CellsError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match (self, self.text()) {
+            (CellsError::NoSuchAxis { axis, .. }, _) => {
+                write!(f, "open axis '{axis}': {}", self.problem())
+            }
+            (_, Some(text)) => write!(f, "cells '{text}': {}", self.problem()),
+            (_, None) => f.write_str(&self.problem()),
+        }
+    }
+}
+
+impl std::error::Error for CellsError {}
+
 impl Cells {
-    /// Parse `4x4x2` (and `--open a,b`) for a crystal of the given dimension.
+    /// `counts[k]` unit cells along axis k (one count per dimension of the crystal, 1 to
+    /// 3), periodic along every axis.
     ///
-    /// A single number `4` means 4 along every axis.
+    /// ```
+    /// use groundcount::cluster::Cells;
+    /// let c = Cells::periodic(&[4, 4, 2]).unwrap();
+    /// assert_eq!(c.to_string(), "4x4x2 periodic");
+    /// assert_eq!(c.with_open(2).unwrap().to_string(), "4x4x2 open along c");
+    /// assert!(Cells::periodic(&[4, 0]).is_err());
+    /// ```
+    pub fn periodic(counts: &[usize]) -> Result<Cells> {
+        let dimensions = counts.len();
+        if !(1..=3).contains(&dimensions) {
+            return Err(Error::CellSize(CellsError::WrongCount {
+                text: None,
+                given: dimensions,
+                dimensions: dimensions.clamp(1, 3),
+            }));
+        }
+        if let Some(axis) = counts.iter().position(|&c| c == 0) {
+            return Err(Error::CellSize(CellsError::ZeroSize { text: None, axis }));
+        }
+        let total = counts.iter().try_fold(1usize, |a, &c| a.checked_mul(c));
+        if total.is_none_or(|t| t > MAX_CELLS) {
+            return Err(Error::CellSize(CellsError::TooManyCells {
+                text: None,
+                max: MAX_CELLS,
+            }));
+        }
+        let mut all = [1usize; 3];
+        all[..dimensions].copy_from_slice(counts);
+        Ok(Cells {
+            counts: all,
+            periodic: [true; 3],
+            dimensions,
+        })
+    }
+
+    /// The same cell with open boundaries along `axis` (0 = a, 1 = b, 2 = c): bonds that
+    /// leave the cell across those faces are dropped.
+    pub fn with_open(mut self, axis: usize) -> Result<Cells> {
+        if axis >= self.dimensions {
+            return Err(Error::CellSize(CellsError::NoSuchAxis {
+                axis: AXES.get(axis).map_or(axis.to_string(), |c| c.to_string()),
+                dimensions: self.dimensions,
+            }));
+        }
+        self.periodic[axis] = false;
+        Ok(self)
+    }
+
+    /// Read the cell notation `4x4x2` (a single number `4` means 4 along every axis) and a
+    /// comma-separated list of open axes `a,b` (none when `None`), as a user writes them,
+    /// for a crystal of the given dimension. Errors carry the text that did not read
+    /// ([`CellsError::text`]).
     pub fn parse(text: &str, open: Option<&str>, dimensions: usize) -> Result<Cells> {
-        let bad = |why: String| Error::Cells(format!("--cells '{text}': {why}"));
+        let bad = |e: CellsError| Error::CellSize(e);
         let parts: Vec<&str> = text.split(['x', 'X', '×']).map(str::trim).collect();
-        let mut counts = [1usize; 3];
         let values: Vec<usize> = parts
             .iter()
             .map(|p| {
                 if p.is_empty() {
-                    return Err(bad(format!(
-                        "a size is missing; expected whole numbers joined by x, e.g. {}",
-                        ["4", "4x4", "4x4x2"][dimensions - 1]
-                    )));
+                    return Err(bad(CellsError::MissingSize {
+                        text: text.to_string(),
+                        dimensions,
+                    }));
                 }
-                p.parse::<usize>()
-                    .map_err(|_| bad(format!("'{p}' is not a whole number; expected e.g. 4x4x2")))
+                p.parse::<usize>().map_err(|_| {
+                    bad(CellsError::NotANumber {
+                        text: text.to_string(),
+                        part: p.to_string(),
+                    })
+                })
             })
             .collect::<Result<_>>()?;
-        match values.len() {
-            1 => counts[..dimensions].fill(values[0]),
-            n if n == dimensions => counts[..dimensions].copy_from_slice(&values),
+        let counts: Vec<usize> = match values.len() {
+            1 => vec![values[0]; dimensions],
+            n if n == dimensions => values,
             n => {
-                return Err(bad(format!(
-                    "{n} sizes given for a {dimensions}-dimensional crystal; expected {dimensions} (e.g. {})",
-                    ["4", "4x4", "4x4x2"][dimensions - 1]
-                )));
+                return Err(bad(CellsError::WrongCount {
+                    text: Some(text.to_string()),
+                    given: n,
+                    dimensions,
+                }));
             }
-        }
-        if let Some(k) = counts[..dimensions].iter().position(|&c| c == 0) {
-            return Err(bad(format!(
-                "the size along {} is 0; every size must be at least 1",
-                AXES[k]
-            )));
-        }
-        let total = counts.iter().try_fold(1usize, |a, &c| a.checked_mul(c));
-        if total.is_none_or(|t| t > MAX_CELLS) {
-            return Err(bad(format!(
-                "too large: at most {MAX_CELLS} unit cells in all"
-            )));
-        }
-        let mut periodic = [true; 3];
+        };
+        let with_text = |e: Error| match e {
+            Error::CellSize(CellsError::ZeroSize { axis, .. }) => bad(CellsError::ZeroSize {
+                text: Some(text.to_string()),
+                axis,
+            }),
+            Error::CellSize(CellsError::TooManyCells { max, .. }) => {
+                bad(CellsError::TooManyCells {
+                    text: Some(text.to_string()),
+                    max,
+                })
+            }
+            other => other,
+        };
+        let mut cells = Cells::periodic(&counts).map_err(with_text)?;
         for axis in open
             .unwrap_or("")
             .split(',')
@@ -86,24 +300,16 @@ impl Cells {
                 .iter()
                 .position(|a| a.to_string() == axis)
             {
-                Some(k) => periodic[k] = false,
+                Some(k) => cells = cells.with_open(k)?,
                 None => {
-                    return Err(Error::Cells(format!(
-                        "--open '{axis}': expected a comma-separated list of axes among {}",
-                        AXES[..dimensions]
-                            .iter()
-                            .map(|c| c.to_string())
-                            .collect::<Vec<_>>()
-                            .join(", ")
-                    )));
+                    return Err(bad(CellsError::NoSuchAxis {
+                        axis: axis.to_string(),
+                        dimensions,
+                    }));
                 }
             }
         }
-        Ok(Cells {
-            counts,
-            periodic,
-            dimensions,
-        })
+        Ok(cells)
     }
 
     /// The same number of cells along every axis, all periodic.
@@ -152,7 +358,7 @@ impl fmt::Display for Cells {
 ///
 /// Each cell on the frontier holds at least one variable of at least one bit, so a bound
 /// above the counter's 63 bits means the count cannot run, whatever the order.
-pub fn frontier_cells_lower_bound(crystal: &Crystal, cells: &Cells) -> Option<usize> {
+pub(crate) fn frontier_cells_lower_bound(crystal: &Crystal, cells: &Cells) -> Option<usize> {
     let dims = crystal.dimensions;
     if dims < 2 || cells.dimensions != dims {
         return None;
@@ -231,19 +437,23 @@ impl<'c> Cluster<'c> {
     /// Tile the crystal.
     pub fn new(crystal: &'c Crystal, cells: Cells) -> Result<Cluster<'c>> {
         if cells.dimensions != crystal.dimensions {
-            return Err(Error::Cells(format!(
-                "the cell {cells} has {} axes but the crystal has {} dimensions",
-                cells.dimensions, crystal.dimensions
-            )));
+            return Err(Error::CellSize(CellsError::DimensionMismatch {
+                cells: cells.to_string(),
+                axes: cells.dimensions,
+                dimensions: crystal.dimensions,
+            }));
         }
         let ns = crystal.sites.len();
         let nb = crystal.bonds.len();
         let total = cells.total();
         if total.checked_mul(ns + nb).is_none_or(|n| n > MAX_ENTITIES) {
-            return Err(Error::Cells(format!(
-                "the cell {cells} is too large: {total} unit cells of {} sites and {} bonds (at most {MAX_ENTITIES} in all)",
-                ns, nb
-            )));
+            return Err(Error::CellSize(CellsError::TooManyEntities {
+                cells: cells.to_string(),
+                total,
+                sites: ns,
+                bonds: nb,
+                max: MAX_ENTITIES,
+            }));
         }
         let mut sites = Vec::with_capacity(total * ns);
         let mut bonds = Vec::new();
@@ -329,7 +539,7 @@ impl<'c> Cluster<'c> {
     }
 
     /// The cluster site or bond an entity anchored in cell `cell` refers to, if it lies inside.
-    pub fn locate(&self, entity: Entity, cell: [usize; 3]) -> Option<ClusterEntity> {
+    pub(crate) fn locate(&self, entity: Entity, cell: [usize; 3]) -> Option<ClusterEntity> {
         let base = [cell[0] as i64, cell[1] as i64, cell[2] as i64];
         match entity {
             Entity::Site { site, shift } => {
@@ -344,7 +554,7 @@ impl<'c> Cluster<'c> {
     }
 
     /// Cell coordinates of every cell.
-    pub fn all_cells(&self) -> impl Iterator<Item = [usize; 3]> + '_ {
+    pub(crate) fn all_cells(&self) -> impl Iterator<Item = [usize; 3]> + '_ {
         (0..self.cells.total()).map(|c| self.cell_coords(c))
     }
 
@@ -364,14 +574,14 @@ impl<'c> Cluster<'c> {
     }
 
     /// Position of a site in cell units (for ordering sweeps).
-    pub fn site_position(&self, i: usize) -> [f64; 3] {
+    pub(crate) fn site_position(&self, i: usize) -> [f64; 3] {
         let s = self.sites[i];
         let f = self.crystal.sites[s.site].frac;
         [0, 1, 2].map(|k| s.cell[k] as f64 + f[k])
     }
 
     /// Position of a bond's midpoint in cell units (unwrapped from its `from` end).
-    pub fn bond_position(&self, i: usize) -> [f64; 3] {
+    pub(crate) fn bond_position(&self, i: usize) -> [f64; 3] {
         let b = self.bonds[i];
         let bond = &self.crystal.bonds[b.bond];
         let f = self.crystal.sites[bond.from].frac;
@@ -397,6 +607,40 @@ pub enum ClusterEntity {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Issue 12: `Crystal::coordination` counts each bond's two ends; the second route is
+    /// the graph of a periodic cluster large enough to show every bond whole (what
+    /// `inspect` built before): the edges at each site of the central cell.
+    #[test]
+    fn issue12_coordination_matches_the_cluster_graph() {
+        let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/lattices");
+        for entry in std::fs::read_dir(dir).unwrap() {
+            let path = entry.unwrap().path();
+            if path.extension().is_none_or(|e| e != "yaml") {
+                continue;
+            }
+            let l = crate::Lattice::from_file(&path).unwrap();
+            let c = &l.crystal;
+            let n = (2 * c.reach() + 1).max(3) as usize;
+            let cluster = Cluster::new(c, Cells::cube(n, c.dimensions)).unwrap();
+            let mut centre = [0usize; 3];
+            centre[..c.dimensions].fill(n / 2);
+            let graph: Vec<usize> = (0..c.sites.len())
+                .map(|s| {
+                    let i = cluster
+                        .sites
+                        .iter()
+                        .position(|x| x.site == s && x.cell == centre)
+                        .unwrap();
+                    cluster
+                        .graph
+                        .edges(petgraph::graph::NodeIndex::new(i))
+                        .count()
+                })
+                .collect();
+            assert_eq!(c.coordination(), graph, "{}", path.display());
+        }
+    }
 
     #[test]
     fn parses_sizes_and_open_axes() {

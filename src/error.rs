@@ -1,8 +1,10 @@
 //! Typed errors of the library core.
 //!
 //! Every error carries its culprit: the file and the line and column where the problem sits
-//! (when it comes from a lattice file), or the cell, rule or budget that failed. The binary
-//! turns them into one message on standard error and a non-zero exit code.
+//! (when it comes from a lattice file), or the cell, rule or budget that failed. The
+//! messages here name no command-line flag and no command: the binary words each error
+//! for its user (which flag to change, which command to run instead), prints one message
+//! on standard error and exits with a non-zero code.
 
 use std::fmt;
 use std::path::PathBuf;
@@ -84,16 +86,16 @@ pub enum Error {
         /// The formula unit of the comparison (the lattice's).
         target_unit: String,
     },
-    /// A cell size or boundary option that cannot be used.
+    /// A finite cell that cannot be used: its notation, a size, an axis, its size against
+    /// the limits.
+    #[error("{0}")]
+    CellSize(crate::cluster::CellsError),
+    /// A strip, or an extrapolation over widths, that cannot be made (in words).
     #[error("{0}")]
     Cells(String),
-    /// An exact count whose frontier would exceed the state budget.
-    #[error(
-        "the exact count on {cells} needs more than the state budget: {detail}; \
-         try a smaller cell or width, a larger --max-states if memory allows, or a \
-         statistical method (`groundcount sample` for Monte Carlo; `groundcount strip` \
-         for the infinite crystal of a 2D lattice)"
-    )]
+    /// A count whose frontier would exceed the state budget (a smaller cell or width, a
+    /// larger budget or a statistical method may do).
+    #[error("the exact count on {cells} needs more than the state budget: {detail}")]
     Budget {
         /// The cell that was asked for.
         cells: String,
@@ -109,9 +111,19 @@ pub enum Error {
     /// A setting (budget, limit) out of its range.
     #[error("{0}")]
     Setting(String),
-    /// A rule whose local table is too large to compile.
+    /// A rule whose local table is too large to compile, or a model a counter cannot take.
     #[error("{0}")]
     Model(String),
+    /// The charge sector that holds the largest eigenvalue of a strip cannot be established
+    /// within the checks' limits; the operator on every state
+    /// ([`crate::counters::transfer::Sectors::Full`]) needs no sector.
+    #[error("{why}; use every state (Sectors::Full)")]
+    Sector {
+        /// Strip width in cells.
+        width: usize,
+        /// What could not be established, in words.
+        why: String,
+    },
     /// A shard file of a split Monte Carlo run that cannot be used or merged.
     #[error("{}: {message}", path.display())]
     Shard {

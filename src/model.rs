@@ -24,13 +24,25 @@ use crate::error::{Error, Result};
 pub const MAX_TABLE: u64 = 1 << 24;
 
 /// What makes two compiled tables the same: rule, occurrence pattern, radices.
-type TableKey = (usize, Vec<(usize, u32)>, Vec<u32>);
+type TableKey = (usize, Vec<(Read, u32)>, Vec<u32>);
+
+/// What one occurrence of a rule instance reads: a variable of the scope (by its place in
+/// the scope), or the state of a pinned variable, which is not in the scope.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+enum Read {
+    /// The scope variable at this place.
+    Scope(usize),
+    /// A pinned variable held at this state.
+    Held(u32),
+}
 
 /// One variable.
 #[derive(Clone, Debug)]
 pub struct Variable {
-    /// Number of states.
+    /// Number of states: 1 for a pinned variable, which then appears in no constraint.
     pub states: u32,
+    /// The state a pinned variable is held at (`pinned:` in the lattice file).
+    pub held: Option<u32>,
     /// Position in cell units, used to order sweeps.
     pub position: [f64; 3],
     /// The site or bond of the crystal it lives on, and the cell.
@@ -133,11 +145,20 @@ impl Model {
         let mut variables = Vec::new();
         let mut site_offset = None;
         let mut bond_offset = None;
+        let held = |target: Target, index: usize| {
+            crystal
+                .pinned
+                .iter()
+                .find(|p| p.target == target && p.index == index)
+                .map(|p| p.state)
+        };
         if let Some(q) = site_var {
             site_offset = Some(variables.len());
             for (i, s) in cluster.sites.iter().enumerate() {
+                let h = held(Target::Sites, s.site);
                 variables.push(Variable {
-                    states: q,
+                    states: if h.is_some() { 1 } else { q },
+                    held: h,
                     position: cluster.site_position(i),
                     origin: Origin::Site {
                         site: s.site,
@@ -149,8 +170,10 @@ impl Model {
         if let Some(q) = bond_var {
             bond_offset = Some(variables.len());
             for (i, b) in cluster.bonds.iter().enumerate() {
+                let h = held(Target::Bonds, b.bond);
                 variables.push(Variable {
-                    states: q,
+                    states: if h.is_some() { 1 } else { q },
+                    held: h,
                     position: cluster.bond_position(i),
                     origin: Origin::Bond {
                         bond: b.bond,
@@ -186,18 +209,28 @@ impl Model {
                             None => continue 'instance,
                         }
                     }
+                    // Pinned variables are read as constants and left out of the scope.
                     let mut scope: Vec<usize> = Vec::new();
-                    let mut local: Vec<(usize, u32)> = Vec::with_capacity(occ.len());
+                    let mut local: Vec<(Read, u32)> = Vec::with_capacity(occ.len());
+                    let mut repeats = false;
                     for &(v, w) in &occ {
-                        let p = scope.iter().position(|&x| x == v).unwrap_or_else(|| {
-                            scope.push(v);
-                            scope.len() - 1
-                        });
-                        local.push((p, w));
+                        if let Some(h) = variables[v].held {
+                            local.push((Read::Held(h), w));
+                            continue;
+                        }
+                        let p = match scope.iter().position(|&x| x == v) {
+                            Some(p) => {
+                                repeats = true;
+                                p
+                            }
+                            None => {
+                                scope.push(v);
+                                scope.len() - 1
+                            }
+                        };
+                        local.push((Read::Scope(p), w));
                     }
-                    if scope.len() < occ.len() {
-                        has_repeats = true;
-                    }
+                    has_repeats |= repeats;
                     let radices: Vec<u32> = scope.iter().map(|&v| variables[v].states).collect();
                     let key = (r, local, radices);
                     let table = match table_ids.get(&key) {
@@ -252,7 +285,7 @@ impl Model {
     }
 
     /// ln of the number of assignments with no constraint at all.
-    pub fn ln_unconstrained(&self) -> f64 {
+    pub(crate) fn ln_unconstrained(&self) -> f64 {
         self.variables.iter().map(|v| (v.states as f64).ln()).sum()
     }
 }
@@ -260,7 +293,7 @@ impl Model {
 /// Enumerate the local assignments of a scope and keep those the rule allows.
 fn compile_table(
     rule: &crate::crystal::Rule,
-    local: &[(usize, u32)],
+    local: &[(Read, u32)],
     radices: &[u32],
     label: &str,
 ) -> std::result::Result<Table, String> {
@@ -295,8 +328,11 @@ fn compile_table(
             *v = (rest % q as u64) as u32;
             rest /= q as u64;
         }
-        for (o, &(p, _)) in occ_values.iter_mut().zip(local) {
-            *o = values[p];
+        for (o, &(read, _)) in occ_values.iter_mut().zip(local) {
+            *o = match read {
+                Read::Scope(p) => values[p],
+                Read::Held(h) => h,
+            };
         }
         if rule.allows(&inward, &occ_values) {
             bits[(index >> 6) as usize] |= 1 << (index & 63);

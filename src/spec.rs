@@ -15,7 +15,7 @@ use crate::error::{Error, Position, Result};
 pub type Located<T> = Spanned<T>;
 
 /// Position of a located value.
-pub fn position_of<T>(value: &Located<T>) -> Position {
+pub(crate) fn position_of<T>(value: &Located<T>) -> Position {
     Position {
         line: value.referenced.line(),
         column: value.referenced.column(),
@@ -50,6 +50,24 @@ pub struct LatticeSpec {
     pub rules: Vec<RuleSpec>,
     /// What one formula unit is.
     pub formula_unit: FormulaUnitSpec,
+    /// Variables held at one state (a strong field, a known ordered sublattice).
+    #[serde(default)]
+    pub pinned: Vec<PinSpec>,
+}
+
+/// One entry of `pinned:`: every variable on a site (by id or species) or on a bond (by id,
+/// or every bond of a generated family) held at one state.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PinSpec {
+    /// Site id or species.
+    #[serde(default)]
+    pub site: Option<Located<String>>,
+    /// Bond id, or the id of a `between`/`distance` family.
+    #[serde(default)]
+    pub bond: Option<Located<String>>,
+    /// The state held (0-based, as the variable kind numbers its states).
+    pub state: Located<u32>,
 }
 
 /// The unit cell.
@@ -224,7 +242,8 @@ impl LatticeSpec {
     }
 }
 
-/// The bytes of a lattice file; a directory or an unreadable file is an [`Error::Read`].
+/// The bytes of a lattice or structure file; a directory or an unreadable file is an
+/// [`Error::Read`].
 pub fn read_file(path: &Path) -> Result<Vec<u8>> {
     let read_error = |reason: String| Error::Read {
         path: path.to_path_buf(),
@@ -239,7 +258,7 @@ pub fn read_file(path: &Path) -> Result<Vec<u8>> {
 }
 
 /// An operating-system error in words, without its error number.
-pub fn io_words(e: &std::io::Error) -> String {
+pub(crate) fn io_words(e: &std::io::Error) -> String {
     use std::io::ErrorKind;
     match e.kind() {
         ErrorKind::NotFound => "no such file".into(),
@@ -256,7 +275,7 @@ pub fn io_words(e: &std::io::Error) -> String {
 
 /// The bytes of a lattice file as text. Bytes that are not UTF-8 are an [`Error::Syntax`]
 /// at the line and column of the first bad byte, with its byte offset.
-pub fn text_of<'a>(bytes: &'a [u8], path: &Path) -> Result<&'a str> {
+pub(crate) fn text_of<'a>(bytes: &'a [u8], path: &Path) -> Result<&'a str> {
     std::str::from_utf8(bytes).map_err(|e| {
         let offset = e.valid_up_to();
         let before = std::str::from_utf8(&bytes[..offset]).unwrap_or("");

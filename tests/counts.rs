@@ -49,8 +49,9 @@ fn exact_in(lat: &Lattice, size: &str, open: &str) -> BigUint {
     let c = cells(lat, size, open);
     let model =
         Model::new(&Cluster::new(&lat.crystal, c.clone()).expect("cluster")).expect("model");
-    counters::exact::count(&model, &ExactConfig::default())
+    counters::exact::count(&model, &ExactConfig::default(), &Default::default())
         .unwrap_or_else(|e| panic!("{} {c}: {e}", lat.crystal.name))
+        .estimate
         .count
         .expect("an exact count carries its integer")
 }
@@ -765,7 +766,7 @@ fn spin_ice_equals_diamond_bond_arrows() {
 
 /// Pauling's W per formula unit and S0 in J/(mol K).
 fn pauling(file: &str) -> (f64, f64) {
-    let e = counters::pauling::estimate(&load(file).crystal).expect("pauling");
+    let e = load(file).pauling().expect("pauling");
     (e.w_per_unit(), e.s_j_per_mol_k())
 }
 

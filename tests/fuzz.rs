@@ -259,7 +259,7 @@ enum Outcome {
 fn load_and_inspect(bytes: Vec<u8>, name: PathBuf) -> Result<(), String> {
     let lattice = Lattice::from_bytes(&bytes, &name).map_err(|e| e.to_string())?;
     let c = &lattice.crystal;
-    pauling::estimate(c).map_err(|e| e.to_string())?;
+    pauling::count(c, &(), &Default::default()).map_err(|e| e.to_string())?;
     let n = (2 * c.reach() + 1).max(3) as usize;
     let cluster = Cluster::new(c, Cells::cube(n, c.dimensions)).map_err(|e| e.to_string())?;
     let _ = cluster.connected_components();

@@ -3,6 +3,7 @@
 
 use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
+use groundcount::context::Context;
 use groundcount::counters::exact::{self, ExactConfig};
 use groundcount::counters::sampling::{self, SampleConfig, Sampled};
 use groundcount::model::Model;
@@ -36,10 +37,20 @@ fn config(seed: u64, replicas: usize, sweeps: usize) -> SampleConfig {
 /// The sampled ln W per formula unit must lie within 4σ of the exact count of the same
 /// cell (an independent method: frontier dynamic programming), and σ must be small enough
 /// for the check to mean something.
-fn agrees_with_exact(file: &str, cells: &str, sweeps: usize, max_sigma: f64) -> Sampled {
+fn agrees_with_exact(
+    file: &str,
+    cells: &str,
+    sweeps: usize,
+    max_sigma: f64,
+) -> groundcount::counters::Counted<Sampled> {
     let m = model(file, cells);
-    let exact = exact::count(&m, &ExactConfig::default()).unwrap();
-    let s = in_pool(2, || sampling::sample(&m, &config(7, 8, sweeps))).unwrap();
+    let exact = exact::count(&m, &ExactConfig::default(), &Context::new())
+        .unwrap()
+        .estimate;
+    let s = in_pool(2, || {
+        sampling::count(&m, &config(7, 8, sweeps), &Context::new())
+    })
+    .unwrap();
     let sigma = s.estimate.sigma_ln_w.unwrap();
     let diff = s.estimate.ln_w_per_unit - exact.ln_w_per_unit;
     assert!(
@@ -109,8 +120,13 @@ formula_unit: {name: site, per: sites}
     .unwrap();
     let m = Model::new(&Cluster::new(&l.crystal, Cells::parse("6x6", None, 2).unwrap()).unwrap())
         .unwrap();
-    let exact = exact::count(&m, &ExactConfig::default()).unwrap();
-    let s = in_pool(2, || sampling::sample(&m, &config(3, 8, 600))).unwrap();
+    let exact = exact::count(&m, &ExactConfig::default(), &Context::new())
+        .unwrap()
+        .estimate;
+    let s = in_pool(2, || {
+        sampling::count(&m, &config(3, 8, 600), &Context::new())
+    })
+    .unwrap();
     let sigma = s.estimate.sigma_ln_w.unwrap();
     assert!(sigma < 0.01, "σ = {sigma}");
     let diff = s.estimate.ln_w_per_unit - exact.ln_w_per_unit;
@@ -129,8 +145,14 @@ fn statistical_error_falls_as_one_over_root_samples() {
     // error from 32 replicas scatters by about 13 %, and the per-replica estimates are
     // skewed (defect pairs live long at large β), so the ratio may lie between 1.4 and 3.2.
     let m = model("square-ice.yaml", "6x6");
-    let few = in_pool(2, || sampling::sample(&m, &config(11, 32, 50))).unwrap();
-    let many = in_pool(2, || sampling::sample(&m, &config(12, 32, 200))).unwrap();
+    let few = in_pool(2, || {
+        sampling::count(&m, &config(11, 32, 50), &Context::new())
+    })
+    .unwrap();
+    let many = in_pool(2, || {
+        sampling::count(&m, &config(12, 32, 200), &Context::new())
+    })
+    .unwrap();
     let ratio = few.sigma_statistical / many.sigma_statistical;
     assert!((1.4..3.2).contains(&ratio), "σ ratio {ratio}");
 }
@@ -138,15 +160,24 @@ fn statistical_error_falls_as_one_over_root_samples() {
 #[test]
 fn same_seed_same_numbers_on_any_thread_count() {
     let m = model("ice-ih.yaml", "2x2x2");
-    let one = in_pool(1, || sampling::sample(&m, &config(42, 4, 50))).unwrap();
-    let two = in_pool(2, || sampling::sample(&m, &config(42, 4, 50))).unwrap();
+    let one = in_pool(1, || {
+        sampling::count(&m, &config(42, 4, 50), &Context::new())
+    })
+    .unwrap();
+    let two = in_pool(2, || {
+        sampling::count(&m, &config(42, 4, 50), &Context::new())
+    })
+    .unwrap();
     let bits = |s: &Sampled| -> Vec<u64> { s.per_replica.iter().map(|x| x.to_bits()).collect() };
     assert_eq!(bits(&one), bits(&two));
     assert_eq!(
         one.estimate.ln_w_per_unit.to_bits(),
         two.estimate.ln_w_per_unit.to_bits()
     );
-    let other = in_pool(2, || sampling::sample(&m, &config(43, 4, 50))).unwrap();
+    let other = in_pool(2, || {
+        sampling::count(&m, &config(43, 4, 50), &Context::new())
+    })
+    .unwrap();
     assert_ne!(
         bits(&one),
         bits(&other),
@@ -195,7 +226,7 @@ fn sample_command_writes_the_documented_json() {
     assert_eq!(one["samples"], 16000);
     for key in [
         "w_per_unit",
-        "uncertainty",
+        "w_uncertainty",
         "s_over_r",
         "s_j_per_mol_k",
         "s_uncertainty",
@@ -254,7 +285,7 @@ fn target_error_adds_replicas_until_reached() {
         target_error: Some(0.002),
         ..config(5, 4, 100)
     };
-    let s = in_pool(2, || sampling::sample(&m, &target)).unwrap();
+    let s = in_pool(2, || sampling::count(&m, &target, &Context::new())).unwrap();
     assert_eq!(s.target_reached, Some(true));
     assert!(s.estimate.sigma_ln_w.unwrap() <= 0.002);
     assert!(
@@ -264,7 +295,10 @@ fn target_error_adds_replicas_until_reached() {
     );
     // The same numbers as a plain run of that many replicas: batches continue the
     // replica numbering, so their streams are the same.
-    let plain = in_pool(1, || sampling::sample(&m, &config(5, s.replicas, 100))).unwrap();
+    let plain = in_pool(1, || {
+        sampling::count(&m, &config(5, s.replicas, 100), &Context::new())
+    })
+    .unwrap();
     assert_eq!(
         s.estimate.ln_w_per_unit.to_bits(),
         plain.estimate.ln_w_per_unit.to_bits()
@@ -313,7 +347,7 @@ fn wl(
     seed: u64,
     replicas: usize,
     sweeps: u64,
-) -> sampling::wang_landau::WangLandau {
+) -> groundcount::counters::Counted<sampling::wang_landau::WangLandau> {
     wl_with(file, cells, seed, replicas, sweeps, 20_000)
 }
 
@@ -324,27 +358,28 @@ fn wl_with(
     replicas: usize,
     sweeps: u64,
     uniform: usize,
-) -> sampling::wang_landau::WangLandau {
+) -> groundcount::counters::Counted<sampling::wang_landau::WangLandau> {
     let m = model(file, cells);
     let config = sampling::wang_landau::WangLandauConfig {
         seed,
         replicas,
         sweeps,
         uniform,
-        ..Default::default()
     };
-    sampling::wang_landau::wang_landau(&m, &config).unwrap()
+    sampling::wang_landau::count(&m, &config, &Context::new()).unwrap()
 }
 
 fn exact_ln_w(file: &str, cells: &str) -> f64 {
     let m = model(file, cells);
-    exact::count(&m, &ExactConfig::default())
+    exact::count(&m, &ExactConfig::default(), &Context::new())
         .unwrap()
+        .estimate
         .ln_w_per_unit
 }
 
 /// The second Monte Carlo method (Wang–Landau 1/t, then multicanonical production) against the exact frontier counter on
-/// cells it can do, within 4σ, with σ small enough to mean something.
+/// cells it can do, within 4σ, with σ small enough to mean something (20000 sweeps give
+/// σ at most 0.0018, under half of every bound).
 #[test]
 fn wang_landau_agrees_with_the_exact_count() {
     for (file, cells, max_sigma) in [
@@ -354,7 +389,7 @@ fn wang_landau_agrees_with_the_exact_count() {
         ("triangular-afm.yaml", "6x6", 0.003),
         ("spin-ice.yaml", "1x1x1", 0.01),
     ] {
-        let w = wl(file, cells, 3, 8, 40_000);
+        let w = wl(file, cells, 3, 8, 20_000);
         let exact = exact_ln_w(file, cells);
         let (s, sigma) = (w.estimate.ln_w_per_unit, w.estimate.sigma_ln_w.unwrap());
         assert!(
@@ -373,7 +408,7 @@ fn wang_landau_agrees_with_the_exact_count() {
 #[test]
 fn wang_landau_and_thermodynamic_integration_agree() {
     let m = model("ice-ic.yaml", "2x2x2");
-    let ti = sampling::sample(&m, &config(4, 16, 400)).unwrap();
+    let ti = sampling::count(&m, &config(4, 16, 400), &Context::new()).unwrap();
     let w = wl("ice-ic.yaml", "2x2x2", 4, 8, 40_000);
     let (a, sa) = (ti.estimate.ln_w_per_unit, ti.estimate.sigma_ln_w.unwrap());
     let (b, sb) = (w.estimate.ln_w_per_unit, w.estimate.sigma_ln_w.unwrap());
@@ -386,11 +421,12 @@ fn wang_landau_and_thermodynamic_integration_agree() {
 /// The multicanonical production's error falls as 1/√t, and the binomial error of the
 /// window fraction as 1/√(uniform samples): 16 times more of both give a spread of the
 /// replicas about 4 times smaller (accepted between 2 and 8: the spread of 16 walks is
-/// itself uncertain by ~20 %).
+/// itself uncertain by ~20 %). With 5000 against 80000 the ratio was 3.2–4.5 over seeds
+/// 5–9 (4.3 for seed 5; 3.0–4.1 with 20000 against 320000).
 #[test]
 fn wang_landau_error_falls_as_one_over_root_time() {
-    let short = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 20_000, 20_000);
-    let long = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 320_000, 320_000);
+    let short = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 5_000, 5_000);
+    let long = wl_with("ice-ih.yaml", "2x1x1", 5, 16, 80_000, 80_000);
     let ratio = short.estimate.sigma_ln_w.unwrap() / long.estimate.sigma_ln_w.unwrap();
     assert!((2.0..8.0).contains(&ratio), "σ ratio {ratio}");
 }
@@ -405,7 +441,10 @@ fn wang_landau_reproduces_on_any_thread_count() {
 
 /// Ice Ih extrapolated from three periodic cells agrees within 4σ with Nagle's series
 /// value W = 1.50685 ± 0.00015 per H2O (Nagle 1966, J. Math. Phys. 7, 1484; from memory).
+/// Slow tier: smaller cells or fewer sweeps gave bars up to 0.0059 against the 0.006
+/// required, so the run keeps its size.
 #[test]
+#[ignore = "slow tier: `cargo test --release -- --ignored`, run by .ci/run"]
 fn ice_ih_extrapolation_agrees_with_nagle() {
     let file = lattice("ice-ih.yaml");
     let v = crate::util::run_json(&[
@@ -423,7 +462,7 @@ fn ice_ih_extrapolation_agrees_with_nagle() {
         "json",
     ]);
     let w = v["w_per_unit"].as_f64().unwrap();
-    let sigma = v["uncertainty"].as_f64().unwrap();
+    let sigma = v["w_uncertainty"].as_f64().unwrap();
     assert!(sigma < 0.006, "σ = {sigma}");
     let nagle = 1.50685;
     assert!(
@@ -439,17 +478,19 @@ fn pulls(path: &std::path::Path, cells: &str, seeds: u64) -> Vec<f64> {
     let l = Lattice::from_file(path).unwrap();
     let cells = Cells::parse(cells, None, l.crystal.dimensions).unwrap();
     let m = Model::new(&Cluster::new(&l.crystal, cells).unwrap()).unwrap();
-    let exact = exact::count(&m, &ExactConfig::default())
+    let exact = exact::count(&m, &ExactConfig::default(), &Context::new())
         .unwrap()
+        .estimate
         .ln_w_per_unit;
     (1..=seeds)
         .map(|seed| {
-            let s = sampling::sample(
+            let s = sampling::count(
                 &m,
                 &SampleConfig {
                     seed,
                     ..SampleConfig::default()
                 },
+                &Context::new(),
             )
             .unwrap();
             (s.estimate.ln_w_per_unit - exact) / s.estimate.sigma_ln_w.unwrap()
@@ -478,9 +519,11 @@ fn assert_calibrated(what: &str, p: &[f64]) {
 
 /// Issue 11, item 4: over 10 seeds the pulls had a spread of 1.3–1.4. Over 50 seeds the
 /// error bars must now be calibrated, on two cheap cells with exact counts: spin ice 2x2x2
-/// (loop moves) and the triangular antiferromagnet 6x6 (single flips only). The heavier run
-/// over more cells, ice Ih among them, is `issue11_calibration_over_many_cells`.
+/// (loop moves) and the triangular antiferromagnet 6x6 (single flips only): 100 runs, in
+/// the slow tier. The heavier run over more cells, ice Ih among them, is
+/// `issue11_calibration_over_many_cells`.
 #[test]
+#[ignore = "slow tier: `cargo test --release -- --ignored`, run by .ci/run"]
 fn issue11_error_bars_are_calibrated() {
     for (file, cells) in [("spin-ice.yaml", "2x2x2"), ("triangular-afm.yaml", "6x6")] {
         let p = in_pool(2, || pulls(&lattice(file), cells, 50));
@@ -654,8 +697,9 @@ fn issue11_wang_landau_that_does_not_converge_exits_2() {
 #[test]
 fn issue11_equilibration_check_fails_and_extends() {
     let m = model("ice-ih.yaml", "2x2x24");
-    let exact = exact::count(&m, &ExactConfig::default())
+    let exact = exact::count(&m, &ExactConfig::default(), &Context::new())
         .unwrap()
+        .estimate
         .ln_w_per_unit;
     let short = SampleConfig {
         seed: 3,
@@ -665,7 +709,7 @@ fn issue11_equilibration_check_fails_and_extends() {
         max_extensions: 0,
         ..SampleConfig::default()
     };
-    let s = in_pool(2, || sampling::sample(&m, &short)).unwrap();
+    let s = in_pool(2, || sampling::count(&m, &short, &Context::new())).unwrap();
     assert!(
         !s.equilibrated,
         "hysteresis {} ± {}",
@@ -683,12 +727,13 @@ fn issue11_equilibration_check_fails_and_extends() {
         s.estimate.ln_w_per_unit
     );
     let extended = in_pool(2, || {
-        sampling::sample(
+        sampling::count(
             &m,
             &SampleConfig {
                 max_extensions: 4,
                 ..short.clone()
             },
+            &Context::new(),
         )
     })
     .unwrap();
@@ -710,20 +755,24 @@ fn interrupt_stops_starting_replicas_and_keeps_the_finished_ones() {
         replicas: 40,
         sweeps: 20,
         equilibration: 5,
-        interrupt: interrupt.clone(),
         ..SampleConfig::default()
     };
-    let done = AtomicUsize::new(0);
-    let raise_after_three = || {
-        if done.fetch_add(1, Ordering::SeqCst) + 1 == 3 {
-            interrupt.raise();
-        }
-    };
-    let s = in_pool(1, || sampling::sample_with(&m, &config, &raise_after_three)).unwrap();
+    let done = std::sync::Arc::new(AtomicUsize::new(0));
+    let raised = interrupt.clone();
+    let context = Context::new()
+        .with_interrupt(interrupt.clone())
+        .with_observer(move |p| {
+            if *p == groundcount::context::Progress::Replica
+                && done.fetch_add(1, Ordering::SeqCst) + 1 == 3
+            {
+                raised.raise();
+            }
+        });
+    let s = in_pool(1, || sampling::count(&m, &config, &context)).unwrap();
     assert!(s.interrupted);
     assert_eq!(s.replicas, 3, "one thread: the fourth replica never starts");
     assert!(s.estimate.sigma_ln_w.unwrap() > 0.0);
-    let e = sampling::sample(&m, &config).unwrap_err();
+    let e = sampling::count(&m, &config, &context).unwrap_err();
     assert!(matches!(e, groundcount::Error::Interrupted { .. }), "{e}");
 }
 
@@ -740,14 +789,14 @@ fn interrupt_stops_starting_replicas_and_keeps_the_finished_ones() {
 #[test]
 fn issue11_survey_samples_by_formula_units_and_cross_checks() {
     use groundcount::crosscheck::Route;
-    use groundcount::survey::{SurveyConfig, survey};
+    use groundcount::estimate::{SurveyConfig, survey};
     let l = Lattice::from_file(&crate::util::fixture("counts-ice-vii.yaml")).unwrap();
     let config = SurveyConfig {
         budget: 8.0,
         max_exact_units: Some(16.0),
         ..SurveyConfig::default()
     };
-    let s = in_pool(2, || survey(&l.crystal, &config)).unwrap();
+    let s = in_pool(2, || survey(&l.crystal, &config, &Context::new())).unwrap();
     assert_eq!(
         s.exact.last().unwrap().count.as_ref().unwrap().to_string(),
         "8100"
@@ -769,7 +818,7 @@ fn issue11_survey_samples_by_formula_units_and_cross_checks() {
     }
     match &s.extrapolated {
         Some(x) => {
-            assert!(x.fit.dof >= 1);
+            assert!(x.details.dof >= 1);
             let (w, sigma) = (x.estimate.ln_w_per_unit, x.estimate.sigma_ln_w.unwrap());
             let published = 1.5071f64.ln();
             assert!(
@@ -778,7 +827,11 @@ fn issue11_survey_samples_by_formula_units_and_cross_checks() {
             );
         }
         None => assert!(
-            s.sampled_sizes.len() < 3 && s.notes.iter().any(|n| n.contains("not extrapolated")),
+            s.sampled_sizes.len() < 3
+                && s.notes.iter().any(|n| matches!(
+                    n,
+                    groundcount::estimate::Note::MonteCarloTooFewCells { .. }
+                )),
             "{:?}",
             s.notes
         ),

@@ -5,6 +5,7 @@ use std::path::{Path, PathBuf};
 
 use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
+use groundcount::context::Context;
 use groundcount::counters::sampling::shard::{self, Shard};
 use groundcount::counters::sampling::{self, SampleConfig};
 use groundcount::model::Model;
@@ -35,7 +36,7 @@ fn ice_ih() -> (Lattice, Cells, Model) {
 #[test]
 fn merged_shards_equal_one_run() {
     let (l, cells, model) = ice_ih();
-    let whole = sampling::sample(&model, &config(9)).unwrap();
+    let whole = sampling::count(&model, &config(9), &Context::new()).unwrap();
     let parts: Vec<(PathBuf, Shard)> = [2, 3, 1]
         .iter()
         .map(|&k| {
@@ -46,7 +47,7 @@ fn merged_shards_equal_one_run() {
                 &model,
                 &config(3),
                 (k, 3),
-                &|| {},
+                &Context::new(),
             )
             .unwrap();
             let path = PathBuf::from(format!("part{k}.json"));
@@ -141,7 +142,7 @@ fn merge_command_combines_and_refuses() {
         "json",
     ]);
     assert_eq!(merged["w_per_unit"], whole["w_per_unit"]);
-    assert_eq!(merged["uncertainty"], whole["uncertainty"]);
+    assert_eq!(merged["w_uncertainty"], whole["w_uncertainty"]);
     assert_eq!(merged["replicas"], 4);
     assert_eq!(merged["shards_merged"], serde_json::json!([1, 2]));
 
@@ -259,7 +260,7 @@ fn issue11_untouched_shards_merge_for_any_sweeps() {
             "--sweeps {sweeps}"
         );
         assert_eq!(
-            merged["uncertainty"], whole["uncertainty"],
+            merged["w_uncertainty"], whole["w_uncertainty"],
             "--sweeps {sweeps}"
         );
     }

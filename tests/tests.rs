@@ -3,10 +3,13 @@
 mod util;
 
 mod calorimetry;
+mod cif;
 mod cli_errors;
 mod counts;
 mod estimate;
 mod fuzz;
+mod json;
+mod pinned;
 mod report;
 mod sampling;
 mod shards;

@@ -14,7 +14,7 @@
 //! shape-preserving three-point formula. It never overshoots the data, so a steep rise in Cp
 //! does not make the interpolant ring. Each cubic is integrated exactly: over an interval of
 //! width h in u, ∫ = h (y₀ + y₁)/2 + h² (d₀ − d₁)/12, and over part of it by the integrated
-//! Hermite basis. The trapezoid rule in u ([`Interpolant::linear`], [`trapezoid`]) is kept
+//! Hermite basis. The trapezoid rule in u ([`Interpolant::linear`]) is kept
 //! beside it as the quadrature-error estimate. With two points the interpolant is the straight line.
 //!
 //! # Arguments and returns
@@ -82,11 +82,6 @@ impl Interpolant {
         Interpolant::with_slopes(u, cp.to_vec(), slopes.clone(), slopes)
     }
 
-    /// The first and last temperature, K.
-    pub fn range(&self) -> (f64, f64) {
-        (self.u[0].exp(), self.u[self.u.len() - 1].exp())
-    }
-
     /// Cp at temperature t (K). Outside the data it continues as the straight line in ln T
     /// through the end point with the end slope (used only up to a transition).
     pub fn value(&self, t_k: f64) -> f64 {
@@ -125,6 +120,7 @@ impl Interpolant {
     }
 
     /// ∫ Cp d(ln T) from the first point to each point: `out[i]` for point i (`out[0]` = 0).
+    #[cfg(test)]
     pub fn cumulative(&self) -> Vec<f64> {
         self.cumulative.clone()
     }
@@ -153,7 +149,9 @@ impl Interpolant {
     }
 }
 
-/// ∫ Cp d(ln T) from the first point to the last by the trapezoid rule in ln T.
+/// ∫ Cp d(ln T) from the first point to the last by the trapezoid rule in ln T: the
+/// closed sum that checks [`Interpolant::linear`] in the tests.
+#[cfg(test)]
 pub fn trapezoid(t_k: &[f64], cp: &[f64]) -> f64 {
     (1..t_k.len())
         .map(|i| (t_k[i] / t_k[i - 1]).ln() * (cp[i] + cp[i - 1]) / 2.0)

@@ -9,7 +9,7 @@
 //! * below the lowest point T₀, S(T₀) from Debye's T³ law or γT + βT³ fitted to the lowest
 //!   N points, zero, or a given value ([`lowt`]);
 //! * from T₀ on, the exact integral of a monotone cubic (Fritsch–Carlson) interpolant of Cp
-//!   against ln T ([`integrate`]);
+//!   against ln T (`integrate.rs`);
 //! * ΔH/T at each first-order transition; the interpolant is not continued across a
 //!   transition: each side is interpolated from its own points and continued to T_tr as
 //!   the straight line in ln T with its end slope.
@@ -55,7 +55,7 @@
 //! The method is the classical one of Giauque & Stout 1936 (J. Am. Chem. Soc. 58, 1144) for
 //! ice; the interpolant is Fritsch & Carlson 1980 (SIAM J. Numer. Anal. 17, 238).
 
-pub mod data;
+mod data;
 pub mod debye;
 pub mod integrate;
 pub mod lowt;

@@ -9,8 +9,7 @@ use groundcount::calorimetry::{
     self, CalorimetryConfig, CpUnit, HeatCapacityData, LowTemperatureForm, MagneticConfig,
     PhononModel, Phonons, TemperatureUnit, ThirdLaw, Transition, UnitMatch,
 };
-use groundcount::report::{self, Table, sig};
-use serde_json::json;
+use groundcount::text::{self, Table, sig};
 
 use super::Format;
 
@@ -296,7 +295,7 @@ const J: &str = "J/(mol K)";
 /// The rows of the extrapolation below the lowest point.
 fn low_t_rows(r: &ThirdLaw, out: &mut Vec<Quantity>) {
     let f = &r.low_t;
-    let t = |x: f64| report::trimmed(x, 6);
+    let t = |x: f64| text::trimmed(x, 6);
     let n = f.points.len();
     match f.form {
         LowTemperatureForm::Debye(_) => {
@@ -359,7 +358,7 @@ fn low_t_rows(r: &ThirdLaw, out: &mut Vec<Quantity>) {
 /// columns; what the fit used is in the notes.
 fn quantities(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Vec<Quantity> {
     let u = &r.uncertainty;
-    let t = |x: f64| report::trimmed(x, 6);
+    let t = |x: f64| text::trimmed(x, 6);
     let mut out = Vec::new();
     if let Some(p) = r.magnetic.as_ref().and_then(|m| m.phonons.as_ref()) {
         out.push(Quantity::new(
@@ -579,9 +578,9 @@ fn summary_table(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -
         ]);
         t.csv_row(vec![
             q.label,
-            q.value.map_or_else(|_| String::new(), report::number),
-            report::optional(q.sigma),
-            q.unit,
+            q.value.map_or_else(|_| String::new(), text::number),
+            text::optional(q.sigma),
+            q.unit.into(),
         ]);
     }
     t
@@ -607,7 +606,7 @@ pub fn threshold_note(r: &ThirdLaw) -> Option<String> {
              so the lattice term absorbs part of the magnetic entropy; raise the threshold, \
              or give θ, before citing the residual",
             c.points,
-            report::trimmed(c.above_k, 6),
+            text::trimmed(c.above_k, 6),
             sig(shift, 2)
         )
     } else {
@@ -615,7 +614,7 @@ pub fn threshold_note(r: &ThirdLaw) -> Option<String> {
             "with θ refitted to the {} points above {} K, ΔS_mag moves by {} J/(mol K), within \
              twice its 1σ",
             c.points,
-            report::trimmed(c.above_k, 6),
+            text::trimmed(c.above_k, 6),
             sig(shift, 2)
         )
     })
@@ -673,7 +672,7 @@ fn notes(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Vec<St
     let temps: Vec<String> = f
         .temperatures_k
         .iter()
-        .map(|t| report::trimmed(*t, 6))
+        .map(|t| text::trimmed(*t, 6))
         .collect();
     let weighting = if f.weighted {
         "weighted by 1/σ²"
@@ -683,7 +682,7 @@ fn notes(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Vec<St
     let atoms = if f.atoms_given {
         format!(
             "θ_D = (12π⁴ n R/(5β))^(1/3) is per atom with n = {} atoms per formula unit",
-            report::trimmed(f.atoms, 6)
+            text::trimmed(f.atoms, 6)
         )
     } else {
         "θ_D = (12π⁴R/(5β))^(1/3) counts one atom per formula unit (--atoms N gives it per atom)"
@@ -704,11 +703,11 @@ fn notes(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Vec<St
         LowTemperatureForm::Zero => n.push(format!(
             "no entropy is counted below the lowest point, {} K (--low-t none): right only if \
              the heat capacity there is negligible",
-            report::trimmed(f.lowest_k, 6)
+            text::trimmed(f.lowest_k, 6)
         )),
         LowTemperatureForm::Given(..) => n.push(format!(
             "the entropy below the lowest point, {} K, is the value given (--low-t entropy:)",
-            report::trimmed(f.lowest_k, 6)
+            text::trimmed(f.lowest_k, 6)
         )),
     }
     if let Some(m) = &r.magnetic {
@@ -716,17 +715,17 @@ fn notes(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Vec<St
             "magnetic route: ΔS_mag = ∫ C_mag/T dT from 0 to {} K with {} magnetic ion(s) of {} \
              states per formula unit; the residual is {} R ln {} − ΔS_mag, the entropy the spins \
              keep below the lowest point",
-            report::trimmed(r.target_k, 6),
-            report::trimmed(m.ions, 6),
+            text::trimmed(r.target_k, 6),
+            text::trimmed(m.ions, 6),
             m.q,
-            report::trimmed(m.ions, 6),
+            text::trimmed(m.ions, 6),
             m.q
         ));
         match &m.phonons {
             Some(p) => {
                 n.push(format!(
                     "C_mag = Cp − {} × {} C(T; θ = {} K); {}",
-                    report::trimmed(p.atoms, 6),
+                    text::trimmed(p.atoms, 6),
                     p.model.name(),
                     sig(p.theta_k, 6),
                     match &p.fit {
@@ -734,7 +733,7 @@ fn notes(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Vec<St
                             "θ fitted to the {} points above {} K (χ² = {} for {} degrees of \
                              freedom), where the spins are taken to add nothing",
                             fit.points,
-                            report::trimmed(fit.above_k, 6),
+                            text::trimmed(fit.above_k, 6),
                             sig(fit.chi2, 3),
                             fit.dof
                         ),
@@ -786,113 +785,262 @@ fn notes(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Vec<St
     n
 }
 
-/// The JSON document.
-pub fn json(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> serde_json::Value {
+/// The JSON document of `calorimetry` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    file: String,
+    points: usize,
+    temperature_k: f64,
+    target_note: Option<String>,
+    s_cal_j_per_mol_k: f64,
+    s_cal_uncertainty: f64,
+    uncertainty_parts_j_per_mol_k: UncertaintyParts,
+    low_t_fit: LowTFit,
+    /// `null` for the `none` and `given` low-temperature forms.
+    debye_temperature_k: Option<f64>,
+    debye_temperature_uncertainty: Option<f64>,
+    lowest_k: f64,
+    extrapolated_j_per_mol_k: f64,
+    extrapolated_uncertainty: f64,
+    integral_j_per_mol_k: f64,
+    integral_trapezoid_j_per_mol_k: f64,
+    transitions: Vec<TransitionRecord>,
+    s_cal_at_points: Vec<PointRecord>,
+    /// `debye`, `gamma-beta`, `none` or `given`: how the entropy below the lowest point
+    /// was found.
+    low_t_form: &'static str,
+    gamma_j_per_mol_k2: Option<f64>,
+    gamma_uncertainty: Option<f64>,
+    atoms_per_formula_unit: Option<f64>,
+    data_formula_unit: Option<String>,
+    data_cp_unit: &'static str,
+    data_temperature_unit: &'static str,
+    notes: Vec<String>,
+    /// With a statistical entropy: the residual entropy it implies.
+    #[serde(flatten)]
+    residual: Option<ResidualRecord>,
+    /// The magnetic route, when asked for.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    magnetic: Option<MagneticRecord>,
+    /// How the data's formula unit matches the lattice's, when a lattice was given.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    unit_match: Option<UnitMatchRecord>,
+}
+
+/// The magnetic route: entropy released per formula unit and the residual per ion.
+#[derive(serde::Serialize)]
+struct MagneticRecord {
+    states_per_ion: u32,
+    ions_per_formula_unit: f64,
+    free_ion_entropy_j_per_mol_k: f64,
+    released_j_per_mol_k: f64,
+    released_uncertainty: f64,
+    residual_per_ion_j_per_mol_k: f64,
+    residual_per_ion_uncertainty: f64,
+    lattice_term: Option<LatticeTermRecord>,
+    negative_points: usize,
+    measured_cp_j_per_mol_k: Vec<f64>,
+}
+
+/// The lattice heat capacity subtracted on the magnetic route.
+#[derive(serde::Serialize)]
+struct LatticeTermRecord {
+    model: &'static str,
+    atoms_per_formula_unit: f64,
+    theta_k: f64,
+    theta_uncertainty: f64,
+    fitted_above_k: Option<f64>,
+    fitted_points: Option<usize>,
+    chi2: Option<f64>,
+    dof: Option<usize>,
+    check: Option<ThresholdCheckRecord>,
+}
+
+/// θ refitted to the upper half of the fitted points, as a second route.
+#[derive(serde::Serialize)]
+struct ThresholdCheckRecord {
+    fitted_above_k: f64,
+    fitted_points: usize,
+    theta_k: f64,
+    released_j_per_mol_k: f64,
+    disagrees: bool,
+}
+
+/// The data's formula unit against the lattice's.
+#[derive(serde::Serialize)]
+struct UnitMatchRecord {
+    target_formula_unit: String,
+    data_formula_unit: Option<String>,
+    factor: f64,
+    unchecked: bool,
+    residual_per_target_unit_j_per_mol_k: Option<f64>,
+    residual_per_target_unit_uncertainty: Option<f64>,
+}
+
+/// The three parts of the 1σ of S_cal, J/(mol K).
+#[derive(serde::Serialize)]
+struct UncertaintyParts {
+    data: Option<f64>,
+    extrapolation: f64,
+    quadrature: f64,
+    /// The lattice term of the magnetic route.
+    lattice_term: Option<f64>,
+}
+
+/// The T³ fit to the lowest points.
+#[derive(serde::Serialize)]
+struct LowTFit {
+    points: usize,
+    temperatures_k: Vec<f64>,
+    weighted: bool,
+    a_j_per_mol_k4: f64,
+    a_uncertainty: f64,
+}
+
+/// A first-order transition.
+#[derive(serde::Serialize)]
+struct TransitionRecord {
+    temperature_k: f64,
+    enthalpy_j_per_mol: f64,
+    entropy_j_per_mol_k: f64,
+}
+
+/// A measured point and S_cal there.
+#[derive(serde::Serialize)]
+struct PointRecord {
+    temperature_k: f64,
+    cp_j_per_mol_k: f64,
+    s_cal_j_per_mol_k: f64,
+}
+
+/// The residual entropy implied by a statistical entropy.
+#[derive(serde::Serialize)]
+struct ResidualRecord {
+    /// Not written on the magnetic route (the free-ion entropy is in `magnetic`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    s_stat_j_per_mol_k: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    s_stat_uncertainty: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    s_stat_uncertainty_given: Option<bool>,
+    residual_j_per_mol_k: f64,
+    residual_uncertainty: f64,
+    w_per_unit: f64,
+    w_uncertainty: f64,
+}
+
+/// The JSON document of an analysis.
+fn document(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Document {
     let f = &r.low_t;
     let u = &r.uncertainty;
-    let mut v = json!({
-        "file": r.path.display().to_string(),
-        "points": r.points.len(),
-        "temperature_k": r.target_k,
-        "target_note": r.target_note,
-        "s_cal_j_per_mol_k": r.s_cal,
-        "s_cal_uncertainty": u.total,
-        "uncertainty_parts_j_per_mol_k": {
-            "data": u.data,
-            "extrapolation": u.extrapolation,
-            "quadrature": u.quadrature,
-            "lattice_term": u.lattice,
+    Document {
+        file: r.path.display().to_string(),
+        points: r.points.len(),
+        temperature_k: r.target_k,
+        target_note: r.target_note.clone(),
+        s_cal_j_per_mol_k: r.s_cal,
+        s_cal_uncertainty: u.total,
+        uncertainty_parts_j_per_mol_k: UncertaintyParts {
+            data: u.data,
+            extrapolation: u.extrapolation,
+            quadrature: u.quadrature,
+            lattice_term: u.lattice,
         },
-        "low_t_fit": {
-            "points": f.points.len(),
-            "temperatures_k": f.temperatures_k,
-            "weighted": f.weighted,
-            "a_j_per_mol_k4": f.a,
-            "a_uncertainty": f.a_sigma,
+        low_t_fit: LowTFit {
+            points: f.points.len(),
+            temperatures_k: f.temperatures_k.clone(),
+            weighted: f.weighted,
+            a_j_per_mol_k4: f.a,
+            a_uncertainty: f.a_sigma,
         },
-        "low_t_form": match f.form {
+        debye_temperature_k: f.debye_temperature_k,
+        debye_temperature_uncertainty: f.debye_temperature_sigma,
+        lowest_k: f.lowest_k,
+        extrapolated_j_per_mol_k: f.entropy,
+        extrapolated_uncertainty: f.entropy_sigma,
+        integral_j_per_mol_k: r.integral,
+        integral_trapezoid_j_per_mol_k: r.integral_trapezoid,
+        transitions: r
+            .transitions
+            .iter()
+            .map(|x| TransitionRecord {
+                temperature_k: x.transition.t_k,
+                enthalpy_j_per_mol: x.transition.dh_j_per_mol,
+                entropy_j_per_mol_k: x.entropy,
+            })
+            .collect(),
+        s_cal_at_points: r
+            .points
+            .iter()
+            .zip(&r.at_points)
+            .map(|(p, s)| PointRecord {
+                temperature_k: p.t_k,
+                cp_j_per_mol_k: p.cp,
+                s_cal_j_per_mol_k: *s,
+            })
+            .collect(),
+        low_t_form: match f.form {
             LowTemperatureForm::Debye(_) => "debye",
             LowTemperatureForm::LinearCubic(_) => "gamma-beta",
             LowTemperatureForm::Zero => "none",
             LowTemperatureForm::Given(..) => "given",
         },
-        "gamma_j_per_mol_k2": f.gamma.map(|g| g.0),
-        "gamma_uncertainty": f.gamma.map(|g| g.1),
-        "atoms_per_formula_unit": f.atoms_given.then_some(f.atoms),
-        "debye_temperature_k": f.debye_temperature_k,
-        "debye_temperature_uncertainty": f.debye_temperature_sigma,
-        "lowest_k": f.lowest_k,
-        "extrapolated_j_per_mol_k": f.entropy,
-        "extrapolated_uncertainty": f.entropy_sigma,
-        "integral_j_per_mol_k": r.integral,
-        "integral_trapezoid_j_per_mol_k": r.integral_trapezoid,
-        "transitions": r.transitions.iter().map(|x| json!({
-            "temperature_k": x.transition.t_k,
-            "enthalpy_j_per_mol": x.transition.dh_j_per_mol,
-            "entropy_j_per_mol_k": x.entropy,
-        })).collect::<Vec<_>>(),
-        "s_cal_at_points": r.points.iter().zip(&r.at_points).map(|(p, s)| json!({
-            "temperature_k": p.t_k,
-            "cp_j_per_mol_k": p.cp,
-            "s_cal_j_per_mol_k": s,
-        })).collect::<Vec<_>>(),
-        "data_formula_unit": r.header.formula_unit.as_ref().map(|x| x.0.clone()),
-        "data_cp_unit": r.header.cp_unit.name(),
-        "data_temperature_unit": r.header.temperature_unit.name(),
-        "notes": notes(r, sigma_given, matched),
-    });
-    if let Some(s) = &r.residual {
-        if r.magnetic.is_none() {
-            v["s_stat_j_per_mol_k"] = s.s_stat.into();
-            v["s_stat_uncertainty"] = s.s_stat_sigma.into();
-            v["s_stat_uncertainty_given"] = sigma_given.into();
-        }
-        v["residual_j_per_mol_k"] = s.residual.into();
-        v["residual_uncertainty"] = s.residual_sigma.into();
-        v["w_per_unit"] = s.w_per_unit.into();
-        v["w_uncertainty"] = s.w_sigma.into();
+        gamma_j_per_mol_k2: f.gamma.map(|g| g.0),
+        gamma_uncertainty: f.gamma.map(|g| g.1),
+        atoms_per_formula_unit: f.atoms_given.then_some(f.atoms),
+        data_formula_unit: r.header.formula_unit.as_ref().map(|x| x.0.clone()),
+        data_cp_unit: r.header.cp_unit.name(),
+        data_temperature_unit: r.header.temperature_unit.name(),
+        notes: notes(r, sigma_given, matched),
+        residual: r.residual.as_ref().map(|s| ResidualRecord {
+            s_stat_j_per_mol_k: (r.magnetic.is_none()).then_some(s.s_stat),
+            s_stat_uncertainty: (r.magnetic.is_none()).then_some(s.s_stat_sigma),
+            s_stat_uncertainty_given: (r.magnetic.is_none()).then_some(sigma_given),
+            residual_j_per_mol_k: s.residual,
+            residual_uncertainty: s.residual_sigma,
+            w_per_unit: s.w_per_unit,
+            w_uncertainty: s.w_sigma,
+        }),
+        magnetic: r.magnetic.as_ref().map(|m| MagneticRecord {
+            states_per_ion: m.q,
+            ions_per_formula_unit: m.ions,
+            free_ion_entropy_j_per_mol_k: m.full,
+            released_j_per_mol_k: m.released,
+            released_uncertainty: m.released_sigma,
+            residual_per_ion_j_per_mol_k: m.residual_per_ion.0,
+            residual_per_ion_uncertainty: m.residual_per_ion.1,
+            lattice_term: m.phonons.as_ref().map(|p| LatticeTermRecord {
+                model: p.model.name(),
+                atoms_per_formula_unit: p.atoms,
+                theta_k: p.theta_k,
+                theta_uncertainty: p.theta_sigma,
+                fitted_above_k: p.fit.map(|x| x.above_k),
+                fitted_points: p.fit.map(|x| x.points),
+                chi2: p.fit.map(|x| x.chi2),
+                dof: p.fit.map(|x| x.dof),
+                check: p.fit.and_then(|x| x.check).map(|c| ThresholdCheckRecord {
+                    fitted_above_k: c.above_k,
+                    fitted_points: c.points,
+                    theta_k: c.theta_k,
+                    released_j_per_mol_k: c.released,
+                    disagrees: c.disagrees,
+                }),
+            }),
+            negative_points: m.negative_points,
+            measured_cp_j_per_mol_k: m.measured_cp.clone(),
+        }),
+        unit_match: matched.map(|m| UnitMatchRecord {
+            target_formula_unit: m.target_unit.clone(),
+            data_formula_unit: m.data_unit.clone(),
+            factor: m.factor,
+            unchecked: m.unchecked,
+            residual_per_target_unit_j_per_mol_k: r.residual.as_ref().map(|s| s.residual / m.factor),
+            residual_per_target_unit_uncertainty: r
+                .residual
+                .as_ref()
+                .map(|s| s.residual_sigma / m.factor),
+        }),
     }
-    if let Some(m) = &r.magnetic {
-        v["magnetic"] = json!({
-            "states_per_ion": m.q,
-            "ions_per_formula_unit": m.ions,
-            "free_ion_entropy_j_per_mol_k": m.full,
-            "released_j_per_mol_k": m.released,
-            "released_uncertainty": m.released_sigma,
-            "residual_per_ion_j_per_mol_k": m.residual_per_ion.0,
-            "residual_per_ion_uncertainty": m.residual_per_ion.1,
-            "lattice_term": m.phonons.as_ref().map(|p| json!({
-                "model": p.model.name(),
-                "atoms_per_formula_unit": p.atoms,
-                "theta_k": p.theta_k,
-                "theta_uncertainty": p.theta_sigma,
-                "fitted_above_k": p.fit.map(|x| x.above_k),
-                "fitted_points": p.fit.map(|x| x.points),
-                "chi2": p.fit.map(|x| x.chi2),
-                "dof": p.fit.map(|x| x.dof),
-                "check": p.fit.and_then(|x| x.check).map(|c| json!({
-                    "fitted_above_k": c.above_k,
-                    "fitted_points": c.points,
-                    "theta_k": c.theta_k,
-                    "released_j_per_mol_k": c.released,
-                    "disagrees": c.disagrees,
-                })),
-            })),
-            "negative_points": m.negative_points,
-            "measured_cp_j_per_mol_k": m.measured_cp,
-        });
-    }
-    if let Some(m) = matched {
-        v["unit_match"] = json!({
-            "target_formula_unit": m.target_unit,
-            "data_formula_unit": m.data_unit,
-            "factor": m.factor,
-            "unchecked": m.unchecked,
-            "residual_per_target_unit_j_per_mol_k": r.residual.as_ref().map(|s| s.residual / m.factor),
-            "residual_per_target_unit_uncertainty": r.residual.as_ref().map(|s| s.residual_sigma / m.factor),
-        });
-    }
-    v
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
@@ -907,7 +1055,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let sigma_given = args.options.statistical_sigma_given();
     let t = summary_table(&r, sigma_given, matched);
     match args.format {
-        Format::Json => Ok(serde_json::to_string_pretty(&json(&r, sigma_given, matched))? + "\n"),
+        Format::Json => Ok(groundcount::json::to_string(&document(&r, sigma_given, matched))?),
         Format::Csv => Ok(t.render_csv()),
         fmt => {
             let mut out = String::new();
@@ -921,8 +1069,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 },
                 r.path.display(),
                 r.points.len(),
-                report::trimmed(r.points[0].t_k, 6),
-                report::trimmed(r.points[r.points.len() - 1].t_k, 6)
+                text::trimmed(r.points[0].t_k, 6),
+                text::trimmed(r.points[r.points.len() - 1].t_k, 6)
             )?;
             let mut p = if r.magnetic.is_some() {
                 Table::new(&[
@@ -935,7 +1083,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 Table::new(&["T (K)", "Cp (J/(mol K))", "S_cal (J/(mol K))"])
             };
             for (i, (x, s)) in r.points.iter().zip(&r.at_points).enumerate() {
-                let mut row = vec![report::trimmed(x.t_k, 6)];
+                let mut row = vec![text::trimmed(x.t_k, 6)];
                 if let Some(m) = &r.magnetic {
                     row.push(sig(m.measured_cp[i], 6));
                 }

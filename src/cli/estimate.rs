@@ -5,43 +5,114 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::counters::{exact, pauling};
+use groundcount::counters::{exact, local};
 use groundcount::estimate::Method;
-use groundcount::report::{self, Columns};
-use groundcount::survey::{Survey, SurveyConfig, survey};
-use serde_json::json;
+use groundcount::estimate::{Survey, SurveyConfig, survey};
+use groundcount::json::{
+    self, CheckRecord, CitedRecord, EstimateOf, ExtrapolatedRecord, PassedOverRecord, SizeFitRecord,
+};
+use groundcount::text::{self, Columns};
 
 use super::{Common, Format, load, shown, with_threads};
+
+/// The JSON document of `estimate` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    /// The lattice's name.
+    lattice: String,
+    /// The lattice file as named, or "built-in ice Ih".
+    file: String,
+    /// FNV-1a hash of the lattice file's text.
+    content_hash: String,
+    /// The formula unit's name.
+    formula_unit: String,
+    /// Pauling's estimate.
+    pauling: EstimateOf,
+    /// The Bethe approximation, when its messages settled.
+    bethe: Option<EstimateOf>,
+    /// Exact counts, smallest cell first.
+    exact: Vec<EstimateOf>,
+    /// Strips extrapolated to infinite width.
+    transfer_matrix: Option<EstimateOf>,
+    /// The largest Monte Carlo cell.
+    monte_carlo: Option<EstimateOf>,
+    /// Every Monte Carlo cell, smallest first.
+    monte_carlo_cells: Vec<EstimateOf>,
+    /// The Monte Carlo cells extrapolated to the infinite crystal, with the fit.
+    monte_carlo_infinite: Option<ExtrapolatedRecord>,
+    /// The cross-checks of the run.
+    checks: Vec<CheckRecord>,
+    /// The value to cite; `null` when nothing can be cited.
+    cited: Option<CitedRecord>,
+    /// Better-ranked candidates not cited, and why.
+    passed_over: Vec<PassedOverRecord>,
+    /// Why the exact counts stopped (empty when they ran to the limit).
+    stopped: String,
+    /// What ran, what stopped and why, in words.
+    notes: Vec<String>,
+}
 
 /// Arguments of `estimate`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML); the built-in ice Ih description when omitted.
+    /// Lattice file (YAML) or structure file (CIF); the built-in ice Ih description when omitted.
     file: Option<PathBuf>,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Time budget in seconds for all methods together (exact counts get the first 40 %).
     #[arg(long, default_value_t = 20.0)]
     budget: f64,
     /// Largest number of partial states an exact count may hold at once.
     #[arg(long, default_value_t = exact::DEFAULT_MAX_STATES)]
     max_states: usize,
+    /// Count no exact cell with more formula units than this (makes the exact counts
+    /// independent of the machine's speed).
+    #[arg(long)]
+    max_exact_units: Option<f64>,
+    /// Monte Carlo cell for a 3D lattice, e.g. 3x3x3; default: up to four cubes, the
+    /// largest of about 1000 formula units, extrapolated to the infinite crystal.
+    #[arg(long)]
+    sample_cells: Option<String>,
+    /// Seed of the Monte Carlo streams.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Measured Monte Carlo sweeps per quadrature node and replica.
+    #[arg(long)]
+    sweeps: Option<usize>,
     #[command(flatten)]
     common: Common,
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
     super::check_budget(args.budget)?;
-    let lattice = load(args.file.as_deref())?;
+    let lattice = load(args.file.as_deref(), args.block.as_deref())?;
     let c = &lattice.crystal;
-    let (observer, bars) = args.common.survey_progress();
+    let (context, bars) = args.common.survey_progress();
+    let sample_cells = match &args.sample_cells {
+        Some(s) => Some(super::words::cells(
+            "--sample-cells",
+            s,
+            None,
+            c.dimensions,
+        )?),
+        None => None,
+    };
     let mut config = SurveyConfig {
         budget: args.budget,
         max_states: args.max_states,
-        observer,
-        interrupt: super::interrupt(),
+        max_exact_units: args.max_exact_units,
+        sample_cells,
         ..SurveyConfig::default()
     };
-    config.sample.interrupt = config.interrupt.clone();
-    let result = with_threads(args.common.threads, || survey(c, &config))?;
+    config.sample.seed = args.seed;
+    if let Some(s) = args.sweeps {
+        if s == 0 {
+            anyhow::bail!("--sweeps must be at least 1");
+        }
+        config.sample.sweeps = s;
+    }
+    let result = with_threads(args.common.threads, || survey(c, &config, &context))?;
     bars.finish();
     let s = result?;
     if s.interrupted {
@@ -61,43 +132,42 @@ pub fn run(args: Args) -> anyhow::Result<String> {
 fn render(
     args: &Args,
     lattice: &groundcount::Lattice,
-    s: &groundcount::survey::Survey,
+    s: &groundcount::estimate::Survey,
 ) -> anyhow::Result<String> {
     let c = &lattice.crystal;
     let unit = c.formula_unit.name.clone();
     let p = &s.pauling;
     let transfer = s.strips.as_ref().map(|t| &t.estimate);
     let monte_carlo = s.sampled.as_ref().map(|m| &m.sampled.estimate);
-    let table = report::survey_table(s, &unit, Columns::default());
+    let table = text::survey_table(s, &unit, Columns::default());
     match args.common.format {
         Format::Json => {
-            let v = json!({
-                "lattice": c.name,
-                "file": shown(&args.file),
-                "content_hash": lattice.content_hash,
-                "formula_unit": unit,
-                "pauling": report::estimate_json(c, p, None),
-                "bethe": s.bethe.as_ref().map(|e| report::estimate_json(c, e, Some(p))),
-                "exact": s.exact.iter().map(|e| report::estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
-                "transfer_matrix": transfer.map(|e| report::estimate_json(c, e, Some(p))),
-                "monte_carlo": monte_carlo.map(|e| report::estimate_json(c, e, Some(p))),
-                "monte_carlo_cells": s.sampled_sizes.iter().map(|m| report::estimate_json(c, &m.sampled.estimate, Some(p))).collect::<Vec<_>>(),
-                "monte_carlo_infinite": s.extrapolated.as_ref().map(|x| {
-                    let mut v = report::estimate_json(c, &x.estimate, Some(p));
-                    v["fit"] = json!({
-                        "form": x.fit.form(),
-                        "chi2": x.fit.chi2,
-                        "dof": x.fit.dof,
-                    });
-                    v
+            let of = |e: &groundcount::Estimate| EstimateOf::new(c, e, Some(p));
+            Ok(json::to_string(&Document {
+                lattice: c.name.clone(),
+                file: shown(&args.file),
+                content_hash: lattice.content_hash.clone(),
+                formula_unit: unit.clone(),
+                pauling: EstimateOf::new(c, p, None),
+                bethe: s.bethe.as_ref().map(of),
+                exact: s.exact.iter().map(of).collect(),
+                transfer_matrix: transfer.map(of),
+                monte_carlo: monte_carlo.map(of),
+                monte_carlo_cells: s
+                    .sampled_sizes
+                    .iter()
+                    .map(|m| of(&m.sampled.estimate))
+                    .collect(),
+                monte_carlo_infinite: s.extrapolated.as_ref().map(|x| ExtrapolatedRecord {
+                    estimate: of(&x.estimate),
+                    fit: SizeFitRecord::from(&x.details),
                 }),
-                "checks": report::checks_json(&s.checks),
-                "cited": report::cited_json(c, s),
-                "passed_over": report::passed_over_json(&s.cited(), &unit),
-                "stopped": s.stopped,
-                "notes": s.notes,
-            });
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
+                checks: json::checks(&s.checks),
+                cited: CitedRecord::of(c, s),
+                passed_over: json::passed_over(&s.cited(), &unit),
+                stopped: super::words::stopped(s),
+                notes: super::words::notes(s),
+            })?)
         }
         Format::Csv => Ok(table.render_csv()),
         Format::Markdown => {
@@ -107,7 +177,7 @@ fn render(
                 writeln!(out, "cross-checks: none computed in this run\n")?;
             } else {
                 writeln!(out, "cross-checks (a second route computed in this run):\n")?;
-                out += &report::checks_table(&s.checks, &unit).render_markdown();
+                out += &text::checks_table(&s.checks, &unit).render_markdown();
                 writeln!(out)?;
             }
             for line in below_table(s, &unit) {
@@ -135,7 +205,7 @@ fn render(
                 writeln!(out, "cross-checks: none computed in this run")?;
             } else {
                 writeln!(out, "cross-checks (a second route computed in this run):")?;
-                out += &report::checks_table(&s.checks, &unit).render();
+                out += &text::checks_table(&s.checks, &unit).render();
             }
             writeln!(out)?;
             for line in below_table(s, &unit) {
@@ -152,13 +222,13 @@ fn below_table(s: &Survey, unit: &str) -> Vec<String> {
     let mut lines: Vec<String> = s
         .failed_checks()
         .into_iter()
-        .map(|c| report::check_failure(c, unit))
+        .map(|c| text::check_failure(c, unit))
         .collect();
     for e in [Some(&s.pauling), s.bethe.as_ref()].into_iter().flatten() {
-        if let Some(caveat) = pauling::caveat(e) {
+        if let Some(caveat) = local::caveat(e) {
             lines.push(format!(
                 "* {}: {}{}",
-                report::method_label(e),
+                text::method_label(e),
                 caveat.explain(unit),
                 if e.method == Method::Pauling && s.bethe.is_some() {
                     "; the Bethe row carries the mean-field estimate"
@@ -175,10 +245,13 @@ fn below_table(s: &Survey, unit: &str) -> Vec<String> {
                 .into(),
         );
     }
-    if !s.stopped.is_empty() {
-        lines.push(format!("exact counts stopped: {}", s.stopped));
+    if s.stopped.is_some() {
+        lines.push(format!(
+            "exact counts stopped: {}",
+            super::words::stopped(s)
+        ));
     }
-    lines.extend(s.notes.iter().cloned());
-    lines.push(report::cited_line(s, unit));
+    lines.extend(super::words::notes(s));
+    lines.push(text::cited_line(s, unit));
     lines
 }

@@ -3,32 +3,39 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::cluster::{Cells, Cluster};
+use groundcount::cluster::Cluster;
+use groundcount::counters::exact;
 use groundcount::counters::exact::CellRoute;
-use groundcount::counters::{exact, pauling};
+use groundcount::json::EstimateOf;
 use groundcount::model::Model;
-use groundcount::report::{self, sig};
+use groundcount::text::{self, sig};
 
 use super::{Common, Format, cell_header, load, pauling_line, with_threads};
 
-/// Memory a cluster and its model take per site and bond, measured on square ice
-/// (2000x2000: 12 million sites and bonds, 3 GB).
-const BYTES_PER_ENTITY: f64 = 250.0;
-
-/// Bytes in words: "3.0 GB".
-fn memory_words(bytes: f64) -> String {
-    if bytes >= 1e9 {
-        format!("{:.1} GB", bytes / 1e9)
-    } else {
-        format!("{:.0} MB", (bytes / 1e6).max(1.0))
-    }
+/// The JSON document of `exact` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    /// The count, with the lattice and Pauling's estimate beside it.
+    #[serde(flatten)]
+    estimate: EstimateOf,
+    /// Variables of the cell's model.
+    variables: usize,
+    /// Constraints of the cell's model.
+    constraints: usize,
+    /// FNV-1a hash of the lattice file's text.
+    content_hash: String,
+    /// How the count was made: `frontier` or `trace`.
+    route: &'static str,
 }
 
 /// Arguments of `exact`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML).
+    /// Lattice file (YAML) or structure file (CIF).
     file: PathBuf,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Cell size in unit cells along each axis, e.g. 4x4 or 3x3x2.
     #[arg(long)]
     cells: String,
@@ -43,63 +50,47 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
-    let lattice = load(Some(&args.file))?;
+    let lattice = load(Some(&args.file), args.block.as_deref())?;
     let c = &lattice.crystal;
-    let cells = Cells::parse(&args.cells, args.open.as_deref(), c.dimensions)?;
-    // A cell whose every sweep keeps more cells open than the frontier's 63 bits can hold
-    // is refused before it is built (building 2000x2000 alone takes minutes and gigabytes).
-    if let Some(open) = groundcount::cluster::frontier_cells_lower_bound(c, &cells)
-        && open > 63
-    {
-        let entities = cells.total() as f64 * (c.sites.len() + c.bonds.len()) as f64;
-        return Err(groundcount::Error::Budget {
-            cells: cells.to_string(),
-            detail: format!(
-                "every order of its variables keeps at least {open} cells on the frontier at once, \
-                 and the frontier counter holds at most 63 bits (one per two-state variable); \
-                 building the cell alone would take about {} of memory",
-                memory_words(entities * BYTES_PER_ENTITY)
-            ),
-        }
-        .into());
-    }
-    let p = pauling::estimate(c)?;
+    let cells = super::words::cells("--cells", &args.cells, args.open.as_deref(), c.dimensions)?;
+    // A cell too wide for the frontier is refused before it is built.
+    exact::check_cell(c, &cells)?;
+    let p = super::pauling(c)?;
     let cluster = Cluster::new(c, cells.clone())?;
     let model = Model::new(&cluster)?;
-    let (progress, bar) = args
+    let (context, bar) = args
         .common
         .exact_progress(&format!("counting {}", model.cells));
     let config = exact::ExactConfig {
         max_states: args.max_states,
-        deadline: None,
-        progress,
-        interrupt: super::interrupt(),
+        ..Default::default()
     };
     // A torus may be cheaper as the trace of T^L: the library compares the predicted work
     // of both routes.
     let counted = with_threads(args.common.threads, || {
-        exact::count_cell(c, &cells, &model, &config)
+        exact::count_cell(c, &cells, &model, &config, &context)
     });
     if let Some(b) = bar {
         b.finish_and_clear();
     }
-    let (e, route) = counted??;
+    let groundcount::counters::Counted {
+        estimate: e,
+        details: route,
+    } = counted??;
     let unit = &c.formula_unit.name;
     match args.common.format {
-        Format::Json => {
-            let mut v = report::estimate_json(c, &e, Some(&p));
-            v["variables"] = model.variables.len().into();
-            v["constraints"] = model.constraints.len().into();
-            v["content_hash"] = lattice.content_hash.clone().into();
-            v["route"] = match route {
+        Format::Json => Ok(groundcount::json::to_string(&Document {
+            estimate: EstimateOf::new(c, &e, Some(&p)),
+            variables: model.variables.len(),
+            constraints: model.constraints.len(),
+            content_hash: lattice.content_hash.clone(),
+            route: match route {
                 CellRoute::Trace { .. } => "trace",
                 CellRoute::Frontier => "frontier",
-            }
-            .into();
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
-        }
-        Format::Csv => Ok(report::comparison_table(&[p, e], unit).render_csv()),
-        Format::Markdown => Ok(report::comparison_table(&[p, e], unit).render_markdown()),
+            },
+        })?),
+        Format::Csv => Ok(text::comparison_table(&[p, e], unit).render_csv()),
+        Format::Markdown => Ok(text::comparison_table(&[p, e], unit).render_markdown()),
         Format::Table => {
             let mut out = String::new();
             out += &cell_header(c, &args.file, &e, &model);

@@ -3,70 +3,163 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::cluster::{Cells, Cluster};
-use groundcount::counters::pauling;
+use groundcount::counters::local;
 use groundcount::crystal::Target;
-use groundcount::report::{self, sig};
-use serde_json::json;
+use groundcount::json::PaulingSummary;
+use groundcount::text::{self, sig};
 
 use super::{Format, load, shown};
+
+/// The JSON document of `inspect` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    lattice: String,
+    file: String,
+    content_hash: String,
+    dimensions: usize,
+    /// Length, area or volume of the cell, in the units of the cell vectors.
+    cell_measure: f64,
+    sites: Vec<SiteRecord>,
+    bonds: Vec<BondRecord>,
+    groups: Vec<GroupRecord>,
+    rules: Vec<RuleRecord>,
+    /// Variables held at one state (`pinned:`); empty when none.
+    held: Vec<HeldRecord>,
+    formula_unit: FormulaUnitRecord,
+    pauling: PaulingSummary,
+}
+
+/// A site or bond of the cell whose variable is held at one state.
+#[derive(serde::Serialize)]
+struct HeldRecord {
+    /// `site` or `bond`.
+    on: &'static str,
+    id: String,
+    state: u32,
+}
+
+/// A site of the cell.
+#[derive(serde::Serialize)]
+struct SiteRecord {
+    id: String,
+    species: String,
+    /// Fractional coordinates.
+    at: Vec<f64>,
+    /// Bonds at the site in the infinite crystal.
+    coordination: usize,
+}
+
+/// A bond of the cell.
+#[derive(serde::Serialize)]
+struct BondRecord {
+    id: String,
+    from: String,
+    to: String,
+    /// Cell shift of `to`.
+    shift: Vec<i64>,
+    /// Length in the units of the cell vectors.
+    length: f64,
+}
+
+/// A group of sites.
+#[derive(serde::Serialize)]
+struct GroupRecord {
+    id: String,
+    members: usize,
+}
+
+/// A rule.
+#[derive(serde::Serialize)]
+struct RuleRecord {
+    rule: String,
+    instances_per_cell: usize,
+}
+
+/// The formula unit.
+#[derive(serde::Serialize)]
+struct FormulaUnitRecord {
+    name: String,
+    per_cell: f64,
+}
 
 /// Arguments of `inspect`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML); the built-in ice Ih description when omitted.
+    /// Lattice file (YAML) or structure file (CIF); the built-in ice Ih description when omitted.
     file: Option<PathBuf>,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Output format: table, json, csv (one quantity per row) or markdown.
     #[arg(long, value_enum, default_value_t = Format::Table)]
     format: Format,
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
-    let lattice = load(args.file.as_deref())?;
+    let lattice = load(args.file.as_deref(), args.block.as_deref())?;
     let c = &lattice.crystal;
-    let p = pauling::estimate(c)?;
-    // Coordination from a cluster large enough to show every bond whole.
-    let n = (2 * c.reach() + 1).max(3) as usize;
-    let cluster = Cluster::new(c, Cells::cube(n, c.dimensions))?;
-    let centre = {
-        let mut cell = [0usize; 3];
-        cell[..c.dimensions].fill(n / 2);
-        cell
-    };
-    let coordination: Vec<usize> = (0..c.sites.len())
-        .map(|s| {
-            let i = cluster
-                .sites
-                .iter()
-                .position(|x| x.site == s && x.cell == centre)
-                .expect("every site exists in every cell");
-            cluster
-                .graph
-                .edges(petgraph::graph::NodeIndex::new(i))
-                .count()
-        })
-        .collect();
+    let p = super::pauling(c)?;
+    let coordination = c.coordination();
     let unit = &c.formula_unit.name;
     let units_per_cell = c.formula_unit.per_cell(c);
     if args.format == Format::Json {
-        let v = json!({
-            "lattice": c.name,
-            "file": shown(&args.file),
-            "content_hash": lattice.content_hash,
-            "dimensions": c.dimensions,
-            "cell_measure": c.cell_measure(),
-            "sites": c.sites.iter().zip(&coordination).map(|(s, k)| json!({"id": s.id, "species": s.species, "at": &s.frac[..c.dimensions], "coordination": k})).collect::<Vec<_>>(),
-            "bonds": c.bonds.iter().map(|b| json!({"id": b.id, "from": c.sites[b.from].id, "to": c.sites[b.to].id, "shift": &b.shift[..c.dimensions], "length": b.length})).collect::<Vec<_>>(),
-            "groups": c.groups.iter().map(|g| json!({"id": g.id, "members": g.members.len()})).collect::<Vec<_>>(),
-            "rules": c.rules.iter().map(|r| json!({"rule": r.label, "instances_per_cell": r.instances.len()})).collect::<Vec<_>>(),
-            "formula_unit": {"name": unit, "per_cell": units_per_cell},
-            "pauling": {"w_per_unit": p.w_per_unit(), "s_over_r": p.s_over_r(), "s_j_per_mol_k": p.s_j_per_mol_k(), "not_meaningful": pauling::caveat(&p).map(|k| k.explain(unit))},
-        });
-        return Ok(serde_json::to_string_pretty(&v)? + "\n");
+        let d = c.dimensions;
+        let document = Document {
+            lattice: c.name.clone(),
+            file: shown(&args.file),
+            content_hash: lattice.content_hash.clone(),
+            dimensions: d,
+            cell_measure: c.cell_measure(),
+            sites: c
+                .sites
+                .iter()
+                .zip(&coordination)
+                .map(|(s, &k)| SiteRecord {
+                    id: s.id.clone(),
+                    species: s.species.clone(),
+                    at: s.frac[..d].to_vec(),
+                    coordination: k,
+                })
+                .collect(),
+            bonds: c
+                .bonds
+                .iter()
+                .map(|b| BondRecord {
+                    id: b.id.clone(),
+                    from: c.sites[b.from].id.clone(),
+                    to: c.sites[b.to].id.clone(),
+                    shift: b.shift[..d].to_vec(),
+                    length: b.length,
+                })
+                .collect(),
+            groups: c
+                .groups
+                .iter()
+                .map(|g| GroupRecord {
+                    id: g.id.clone(),
+                    members: g.members.len(),
+                })
+                .collect(),
+            rules: c
+                .rules
+                .iter()
+                .map(|r| RuleRecord {
+                    rule: r.label.clone(),
+                    instances_per_cell: r.instances.len(),
+                })
+                .collect(),
+            held: c.pinned.iter().map(|p| held_record(c, p)).collect(),
+            formula_unit: FormulaUnitRecord {
+                name: unit.clone(),
+                per_cell: units_per_cell,
+            },
+            pauling: PaulingSummary::new(&p, unit),
+        };
+        return Ok(groundcount::json::to_string(&document)?);
     }
     if args.format == Format::Csv {
         // One quantity per row: the facts a spreadsheet wants, each with its unit.
-        let mut t = report::Table::new(&["quantity", "value"]);
+        let mut t = text::Table::new(&["quantity", "value"]);
         let rows: Vec<(String, String)> = vec![
             ("lattice".into(), c.name.clone()),
             ("file".into(), shown(&args.file)),
@@ -83,22 +176,22 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                     .join("; "),
             ),
             ("formula unit".into(), unit.clone()),
-            (format!("{unit} per cell"), report::number(units_per_cell)),
+            (format!("{unit} per cell"), text::number(units_per_cell)),
             (
                 format!("Pauling W per {unit}"),
-                report::number(p.w_per_unit()),
+                text::number(p.w_per_unit()),
             ),
             (
                 format!("Pauling S0/R per {unit}"),
-                report::number(p.s_over_r()),
+                text::number(p.s_over_r()),
             ),
             (
                 format!("Pauling S0 J/(mol K) per mole of {unit}"),
-                report::number(p.s_j_per_mol_k()),
+                text::number(p.s_j_per_mol_k()),
             ),
             (
                 "Pauling meaningful".into(),
-                if pauling::caveat(&p).is_some() {
+                if local::caveat(&p).is_some() {
                     "no"
                 } else {
                     "yes"
@@ -112,7 +205,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         return Ok(t.render_csv());
     }
     let markdown = args.format == Format::Markdown;
-    let render = |t: &report::Table| {
+    let render = |t: &text::Table| {
         if markdown {
             t.render_markdown()
         } else {
@@ -141,7 +234,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         let v: Vec<String> = vector[..c.dimensions].iter().map(|x| sig(*x, 6)).collect();
         writeln!(out, "  {name} = [{}]", v.join(", "))?;
     }
-    let mut t = report::Table::new(&["site", "species", "fractional position", "coordination"]);
+    let mut t = text::Table::new(&["site", "species", "fractional position", "coordination"]);
     for (s, k) in c.sites.iter().zip(&coordination) {
         let f: Vec<String> = s.frac[..c.dimensions].iter().map(|x| sig(*x, 6)).collect();
         t.row(vec![
@@ -158,7 +251,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         render(&t)
     )?;
     if !c.bonds.is_empty() {
-        let mut t = report::Table::new(&["bond", "from", "to", "shift", "length"]);
+        let mut t = text::Table::new(&["bond", "from", "to", "shift", "length"]);
         for b in &c.bonds {
             let sh: Vec<String> = b.shift[..c.dimensions]
                 .iter()
@@ -212,11 +305,19 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             r.instances.len()
         )?;
     }
+    for p in &c.pinned {
+        let h = held_record(c, p);
+        writeln!(
+            out,
+            "held: {} {} at state {} (one state)",
+            h.on, h.id, h.state
+        )?;
+    }
     writeln!(
         out,
         "formula unit: {unit}, {} ({} per cell)",
         c.formula_unit.describe(),
-        report::amount(units_per_cell)
+        text::amount(units_per_cell)
     )?;
     writeln!(out)?;
     writeln!(
@@ -226,7 +327,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         sig(p.s_over_r(), 8),
         sig(p.s_j_per_mol_k(), 6)
     )?;
-    if let Some(caveat) = pauling::caveat(&p) {
+    if let Some(caveat) = local::caveat(&p) {
         writeln!(
             out,
             "Not meaningful for this rule: {}. `groundcount estimate` shows the Bethe \
@@ -242,5 +343,18 @@ fn plural(n: usize, word: &str) -> String {
         format!("1 {word}")
     } else {
         format!("{n} {word}s")
+    }
+}
+
+/// What a `pinned:` entry holds, by the id the file gives.
+fn held_record(c: &groundcount::crystal::Crystal, p: &groundcount::crystal::Pin) -> HeldRecord {
+    let (on, id) = match p.target {
+        groundcount::crystal::Target::Sites => ("site", c.sites[p.index].id.clone()),
+        groundcount::crystal::Target::Bonds => ("bond", c.bonds[p.index].id.clone()),
+    };
+    HeldRecord {
+        on,
+        id,
+        state: p.state,
     }
 }

@@ -9,16 +9,19 @@
 mod calorimetry;
 mod estimate;
 mod exact;
+mod import;
 mod inspect;
 mod merge;
 mod report;
 mod sample;
 mod strip;
+mod words;
 
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 
 use clap::{Parser, Subcommand, ValueEnum};
+use groundcount::context::{Context, Progress};
 use groundcount::{Error, Lattice};
 
 /// Count the arrangements a crystal's local rules allow and report the residual entropy.
@@ -47,6 +50,8 @@ enum Command {
     Report(report::Args),
     /// Third-law entropy from measured heat capacities, and the residual entropy it implies.
     Calorimetry(calorimetry::Args),
+    /// Write the lattice file of a published structure (CIF), with where each part came from.
+    Import(import::Args),
 }
 
 /// Output format shared by every command.
@@ -82,16 +87,12 @@ impl Common {
         !self.quiet && std::io::stderr().is_terminal()
     }
 
-    /// A progress bar on standard error for one exact count, when progress is wanted.
-    fn exact_progress(
-        &self,
-        label: &str,
-    ) -> (
-        Option<groundcount::counters::exact::ProgressHook>,
-        Option<indicatif::ProgressBar>,
-    ) {
+    /// The context of one exact count: Ctrl-C raises its interrupt; when progress is wanted,
+    /// a bar on standard error follows the steps.
+    fn exact_progress(&self, label: &str) -> (Context, Option<indicatif::ProgressBar>) {
+        let context = Context::new().with_interrupt(interrupt());
         if !self.progress() {
-            return (None, None);
+            return (context, None);
         }
         let bar = indicatif::ProgressBar::new(1);
         bar.set_style(
@@ -103,14 +104,47 @@ impl Common {
         );
         bar.set_prefix(label.to_string());
         let b = bar.clone();
-        let hook = groundcount::counters::exact::ProgressHook(std::sync::Arc::new(
-            move |done, all, states| {
-                b.set_length(all as u64);
-                b.set_position(done as u64);
+        let context = context.with_observer(move |p| {
+            if let Progress::Step { done, all, states } = p {
+                b.set_length(*all as u64);
+                b.set_position(*done as u64);
                 b.set_message(format!("{states} states"));
-            },
+            }
+        });
+        (context, Some(bar))
+    }
+
+    /// The context of a Monte Carlo run: Ctrl-C raises its interrupt; when progress is
+    /// wanted, a bar on standard error counts the finished replicas.
+    fn replica_progress(
+        &self,
+        model: &groundcount::model::Model,
+        replicas: usize,
+    ) -> (Context, Option<indicatif::ProgressBar>) {
+        let context = Context::new().with_interrupt(interrupt());
+        if !self.progress() {
+            return (context, None);
+        }
+        let bar = indicatif::ProgressBar::new(replicas as u64);
+        bar.set_style(
+            indicatif::ProgressStyle::with_template(
+                "{prefix} [{bar:30}] {pos}/{len} replicas, ETA {eta}",
+            )
+            .expect("valid template")
+            .progress_chars("=> "),
+        );
+        bar.set_prefix(format!(
+            "sampling {} ({} variables)",
+            model.cells,
+            model.variables.len()
         ));
-        (Some(hook), Some(bar))
+        let b = bar.clone();
+        let context = context.with_observer(move |p| {
+            if *p == Progress::Replica {
+                b.inc(1);
+            }
+        });
+        (context, Some(bar))
     }
 }
 
@@ -127,12 +161,12 @@ impl SurveyBars {
 }
 
 impl Common {
-    /// An observer for [`groundcount::survey::survey`] that shows its stages, when progress
-    /// is wanted.
-    fn survey_progress(&self) -> (Option<groundcount::survey::Observer>, SurveyBars) {
-        use groundcount::survey::{Observer, Stage};
+    /// The context of a survey ([`groundcount::estimate::survey`]): Ctrl-C raises its
+    /// interrupt; when progress is wanted, a line on standard error shows its stages.
+    fn survey_progress(&self) -> (Context, SurveyBars) {
+        let context = Context::new().with_interrupt(interrupt());
         if !self.progress() {
-            return (None, SurveyBars(None));
+            return (context, SurveyBars(None));
         }
         let bar = indicatif::ProgressBar::new_spinner();
         let counting = indicatif::ProgressStyle::with_template(
@@ -145,30 +179,31 @@ impl Common {
                 .expect("valid template");
         bar.enable_steady_tick(std::time::Duration::from_millis(200));
         let b = bar.clone();
-        let observer = Observer(std::sync::Arc::new(move |stage| match stage {
-            Stage::Exact(cells) => {
+        let context = context.with_observer(move |p| match p {
+            Progress::Counting { cells } => {
                 b.set_style(counting.clone());
                 b.set_prefix(format!("counting {cells}"));
                 b.set_position(0);
             }
-            Stage::ExactStep(done, all, states) => {
-                b.set_length(all as u64);
-                b.set_position(done as u64);
+            Progress::Step { done, all, states } => {
+                b.set_length(*all as u64);
+                b.set_position(*done as u64);
                 b.set_message(format!("{states} states"));
             }
-            Stage::ExactDone => b.set_message(""),
-            Stage::Strip(width) => {
+            Progress::Counted => b.set_message(""),
+            Progress::Width { width } => {
                 b.set_style(waiting.clone());
                 b.set_prefix("transfer matrix");
                 b.set_message(format!("cylinder of width {width}"));
             }
-            Stage::Sampling(cells, variables) => {
+            Progress::Sampling { cells, variables } => {
                 b.set_style(waiting.clone());
                 b.set_prefix("Monte Carlo");
                 b.set_message(format!("sampling {cells} ({variables} variables)"));
             }
-        }));
-        (Some(observer), SurveyBars(Some(bar)))
+            _ => {}
+        });
+        (context, SurveyBars(Some(bar)))
     }
 }
 
@@ -205,6 +240,7 @@ pub fn run() -> i32 {
         Command::Strip(a) => strip::run(a),
         Command::Report(a) => report::run(a),
         Command::Calorimetry(a) => calorimetry::run(a),
+        Command::Import(a) => import::run(a),
     };
     match result {
         Ok(text) => {
@@ -217,7 +253,10 @@ pub fn run() -> i32 {
                 eprintln!("error: {}", p.message);
                 return p.code;
             }
-            eprintln!("error: {e:#}");
+            match e.downcast_ref::<Error>() {
+                Some(error) => eprintln!("error: {}", words::error(error)),
+                None => eprintln!("error: {e:#}"),
+            }
             match e.downcast_ref::<Error>() {
                 Some(
                     Error::Budget { .. } | Error::Deadline { .. } | Error::NotConverged { .. },
@@ -271,14 +310,38 @@ fn interrupt() -> groundcount::context::Interrupt {
     .clone()
 }
 
-/// Load a lattice file, or the built-in ice Ih description when none is given.
-fn load(file: Option<&Path>) -> anyhow::Result<Lattice> {
+/// Load a lattice file or a structure file (CIF, told by its extension or content), or
+/// the built-in ice Ih description when none is given; `block` (`--block`) chooses a data
+/// block of a structure file.
+fn load(file: Option<&Path>, block: Option<&str>) -> anyhow::Result<Lattice> {
     Ok(match file {
-        Some(p) => Lattice::from_file(p)?,
-        None => Lattice::from_yaml(
-            groundcount::ICE_IH_YAML,
-            groundcount::spec::embedded_path("ice-ih.yaml"),
-        )?,
+        Some(p) => {
+            let bytes = groundcount::spec::read_file(p)?;
+            if groundcount::cif::is_cif(p, &bytes) {
+                import::load(&bytes, p, block)?
+            } else {
+                if let Some(b) = block {
+                    anyhow::bail!(
+                        "--block {b}: {} is a lattice file, not a structure file (CIF); \
+                         --block chooses a data block of a CIF",
+                        p.display()
+                    );
+                }
+                Lattice::from_bytes(&bytes, p)?
+            }
+        }
+        None => {
+            if let Some(b) = block {
+                anyhow::bail!(
+                    "--block {b}: no structure file was given (the built-in ice Ih \
+                     description is a lattice file); --block chooses a data block of a CIF"
+                );
+            }
+            Lattice::from_yaml(
+                groundcount::ICE_IH_YAML,
+                groundcount::spec::embedded_path("ice-ih.yaml"),
+            )?
+        }
     })
 }
 
@@ -362,20 +425,25 @@ fn cell_header(
         e.cells.as_deref().unwrap_or(""),
         model.variables.len(),
         model.constraints.len(),
-        groundcount::report::amount(e.formula_units),
+        groundcount::text::amount(e.formula_units),
         c.formula_unit.name
     )
 }
 
+/// Pauling's estimate of a crystal (milliseconds; nothing to observe or stop).
+fn pauling(c: &groundcount::crystal::Crystal) -> groundcount::Result<groundcount::Estimate> {
+    groundcount::counters::pauling::count(c, &(), &Context::new()).map(|p| p.estimate)
+}
+
 /// The Pauling comparison line under a one-cell result.
 fn pauling_line(p: &groundcount::Estimate, unit: &str) -> String {
-    use groundcount::report::sig;
+    use groundcount::text::sig;
     let mut line = format!(
         "Pauling (infinite)    W = {} per {unit}, S0 = {} J/(mol K)\n",
         sig(p.w_per_unit(), 10),
         sig(p.s_j_per_mol_k(), 6)
     );
-    if let Some(c) = groundcount::counters::pauling::caveat(p) {
+    if let Some(c) = groundcount::counters::local::caveat(p) {
         line += &format!(
             "                      not meaningful: {}\n",
             c.explain(unit)

@@ -4,21 +4,38 @@
 use std::fmt::Write;
 use std::path::PathBuf;
 
-use groundcount::calorimetry::{LowTemperatureForm, ThirdLaw, UnitMatch};
-use groundcount::cluster::Cells;
 use groundcount::counters::exact;
-use groundcount::report::Table;
-use groundcount::survey::{SurveyConfig, survey};
-use groundcount::writeup::{Comparison, MagneticComparison, Meta, Sentence, Writeup};
-use serde_json::json;
+use groundcount::estimate::{SurveyConfig, survey};
+use groundcount::json::{CheckRecord, CitedRecord, PassedOverRecord};
+use groundcount::report::{Comparison, Meta, Report, Sentence};
+use groundcount::text::Table;
 
 use super::{Common, Format, load, shown, with_threads};
+
+/// The JSON document `report` prints (docs/json.md); the report itself is report.json.
+#[derive(serde::Serialize)]
+struct Document {
+    /// The report's directory.
+    directory: String,
+    /// The files written.
+    files: Vec<String>,
+    /// The value to cite; `null` when nothing can be cited.
+    cited: Option<CitedRecord>,
+    /// Better-ranked candidates not cited, and why.
+    passed_over: Vec<PassedOverRecord>,
+    checks: Vec<CheckRecord>,
+    /// Why no sentence is offered for citing; `null` when one is.
+    sentence_refused: Option<String>,
+}
 
 /// Arguments of `report`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML); the built-in ice Ih description when omitted.
+    /// Lattice file (YAML) or structure file (CIF); the built-in ice Ih description when omitted.
     file: Option<PathBuf>,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Directory to write report.md, report.json and the figures to: created if missing; an
     /// earlier report there is replaced whole; a directory holding other files is refused.
     #[arg(long, short = 'o', default_value = "groundcount-report")]
@@ -87,14 +104,19 @@ fn civil_date(days: i64) -> String {
 
 pub fn run(args: Args) -> anyhow::Result<String> {
     super::check_budget(args.budget)?;
-    let lattice = load(args.file.as_deref())?;
+    let lattice = load(args.file.as_deref(), args.block.as_deref())?;
     let c = &lattice.crystal;
     let widths = match &args.widths {
         Some(w) => Some(super::strip::parse_widths(w, 1)?),
         None => None,
     };
     let sample_cells = match &args.sample_cells {
-        Some(s) => Some(Cells::parse(s, None, c.dimensions)?),
+        Some(s) => Some(super::words::cells(
+            "--sample-cells",
+            s,
+            None,
+            c.dimensions,
+        )?),
         None => None,
     };
     let mut config = SurveyConfig {
@@ -126,11 +148,25 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             if matched.unchecked && !args.common.quiet {
                 eprintln!("warning: {}", matched.note.clone().unwrap_or_default());
             }
-            Some(comparison(
+            let mut notes: Vec<String> = matched
+                .note
+                .iter()
+                .map(|n| {
+                    if matched.unchecked {
+                        format!("WARNING: {n}")
+                    } else {
+                        n.clone()
+                    }
+                })
+                .collect();
+            notes.extend(super::calorimetry::unit_notes(&r));
+            notes.extend(super::calorimetry::threshold_note(&r));
+            Some(Comparison::new(
                 &r,
-                data,
+                &data.display().to_string(),
                 args.calorimetric.statistical_sigma_given(),
                 &matched,
+                notes,
             ))
         }
         None => {
@@ -146,11 +182,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     // The output is checked, and a fresh directory made beside it, before anything is
     // computed: an unwritable place is found at once, not after the run.
     let staging = Staging::new(&args.out)?;
-    let (observer, bars) = args.common.survey_progress();
-    config.observer = observer;
-    config.interrupt = super::interrupt();
-    config.sample.interrupt = config.interrupt.clone();
-    let result = with_threads(args.common.threads, || survey(c, &config));
+    let (context, bars) = args.common.survey_progress();
+    let result = with_threads(args.common.threads, || survey(c, &config, &context));
     bars.finish();
     let s = match result.and_then(|r| r.map_err(anyhow::Error::from)) {
         Ok(s) => s,
@@ -164,12 +197,12 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         date: today(),
         file: shown(&args.file),
     };
-    let w = Writeup::new(&lattice, &s, meta, comparison);
+    let w = Report::new(&lattice, &s, meta, comparison).with_hints(super::words::hint);
     let mut files: Vec<(String, String)> = vec![
         ("report.md".into(), w.markdown()),
         (
             "report.json".into(),
-            serde_json::to_string_pretty(&w.json())? + "\n",
+            groundcount::json::to_string(&w.json())?,
         ),
     ];
     for f in w.figures() {
@@ -178,16 +211,17 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let written = staging.commit(&files)?;
     let render = || -> anyhow::Result<String> {
         match args.common.format {
-            Format::Json => Ok(serde_json::to_string_pretty(&json!({
-                "directory": args.out.display().to_string(),
-                "files": written,
-                "cited": groundcount::report::cited_json(c, &s),
-                "checks": groundcount::report::checks_json(&s.checks),
-                "sentence_refused": match w.sentence() {
+            Format::Json => Ok(groundcount::json::to_string(&Document {
+                directory: args.out.display().to_string(),
+                files: written.clone(),
+                cited: CitedRecord::of(c, &s),
+                passed_over: groundcount::json::passed_over(&s.cited(), &c.formula_unit.name),
+                checks: groundcount::json::checks(&s.checks),
+                sentence_refused: match w.sentence() {
                     Sentence::Cite(_) => None,
                     Sentence::Refused(why) => Some(why),
                 },
-            }))? + "\n"),
+            })?),
             fmt => {
                 let mut t = Table::new(&["file written"]);
                 for f in &written {
@@ -204,9 +238,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 writeln!(out)?;
                 let unit = &c.formula_unit.name;
                 for f in s.failed_checks() {
-                    writeln!(out, "{}", groundcount::report::check_failure(f, unit))?;
+                    writeln!(out, "{}", groundcount::text::check_failure(f, unit))?;
                 }
-                writeln!(out, "{}", groundcount::report::cited_line(&s, unit))?;
+                writeln!(out, "{}", groundcount::text::cited_line(&s, unit))?;
                 writeln!(out)?;
                 match w.sentence() {
                     Sentence::Cite(t) => writeln!(out, "{t}")?,
@@ -358,72 +392,6 @@ impl Staging {
             .iter()
             .map(|(name, _)| self.out.join(name).display().to_string())
             .collect())
-    }
-}
-
-/// The report's calorimetric comparison from a third-law analysis with a statistical
-/// entropy, or from the magnetic route; entropies per mole of the lattice's formula unit
-/// (the data's divided by the factor of `matched`).
-fn comparison(
-    r: &ThirdLaw,
-    data: &std::path::Path,
-    sigma_given: bool,
-    matched: &UnitMatch,
-) -> Comparison {
-    let k = matched.factor;
-    let stat = r
-        .residual
-        .as_ref()
-        .map_or((0.0, 0.0), |x| (x.s_stat / k, x.s_stat_sigma / k));
-    let mut notes: Vec<String> = matched
-        .note
-        .iter()
-        .map(|n| {
-            if matched.unchecked {
-                format!("WARNING: {n}")
-            } else {
-                n.clone()
-            }
-        })
-        .collect();
-    notes.extend(super::calorimetry::unit_notes(r));
-    notes.extend(super::calorimetry::threshold_note(r));
-    Comparison {
-        file: data.display().to_string(),
-        temperature_k: r.target_k,
-        s_cal: (r.s_cal / k, r.uncertainty.total / k),
-        s_stat: stat,
-        s_stat_sigma_given: sigma_given || r.magnetic.is_some(),
-        extrapolated: r.low_t.entropy / k,
-        low_t_words: match r.low_t.form {
-            LowTemperatureForm::Debye(_) => "Debye T³".into(),
-            LowTemperatureForm::LinearCubic(_) => "γT + βT³".into(),
-            LowTemperatureForm::Zero => "nothing (taken as 0)".into(),
-            LowTemperatureForm::Given(..) => "the entropy given".into(),
-        },
-        debye_temperature_k: r.low_t.debye_temperature_k,
-        points: r.points.iter().map(|p| (p.t_k, p.cp)).collect(),
-        lowest_k: r.low_t.lowest_k,
-        curve: r.curve(200),
-        debye_curve: r.debye_curve(50),
-        magnetic: r.magnetic.as_ref().map(|m| MagneticComparison {
-            q: m.q,
-            ions_per_unit: m.ions / k,
-            lattice_term: m.phonons.as_ref().map(|p| {
-                format!(
-                    "{} × {} C(T; θ = {} K){}",
-                    groundcount::report::trimmed(p.atoms, 6),
-                    p.model.name(),
-                    groundcount::report::sig(p.theta_k, 5),
-                    p.fit.map_or(" (given)".into(), |f| format!(
-                        " fitted above {} K",
-                        groundcount::report::trimmed(f.above_k, 6)
-                    ))
-                )
-            }),
-        }),
-        notes,
-        unchecked_unit: matched.unchecked,
     }
 }
 

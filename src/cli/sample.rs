@@ -8,18 +8,23 @@ use std::path::PathBuf;
 
 use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
-use groundcount::counters::pauling;
+use groundcount::context::Context;
+use groundcount::counters::Counted;
 use groundcount::counters::sampling::{self, Sampled, shard, size, wang_landau};
+use groundcount::json::{EstimateOf, SampledRecord, SizeFitRecord};
 use groundcount::model::Model;
-use groundcount::report::{self, sig};
+use groundcount::text::{self, sig};
 
 use super::{Common, Format, cell_header, load, pauling_line, with_threads};
 
 /// Arguments of `sample`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML).
+    /// Lattice file (YAML) or structure file (CIF).
     file: PathBuf,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Cell size in unit cells along each axis, e.g. 8x8x8 (periodic); several sizes
     /// separated by commas (4x4x4,6x6x6,8x8x8) are extrapolated to the infinite crystal.
     #[arg(long)]
@@ -81,13 +86,13 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     if let Some(out) = &args.out {
         super::check_output_file(out, "--out")?; // before any computing
     }
-    let lattice = load(Some(&args.file))?;
+    let lattice = load(Some(&args.file), args.block.as_deref())?;
     let c = &lattice.crystal;
     let sizes: Vec<Cells> = args
         .cells
         .split(',')
-        .map(|t| Cells::parse(t.trim(), None, c.dimensions))
-        .collect::<Result<_, _>>()?;
+        .map(|t| super::words::cells("--cells", t.trim(), None, c.dimensions))
+        .collect::<anyhow::Result<_>>()?;
     if let Some(t) = args.target_error
         && !(t > 0.0 && t.is_finite())
     {
@@ -108,8 +113,6 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         target_error: args.target_error,
         max_replicas: args.max_replicas,
         max_extensions: args.max_extensions,
-        deadline: None,
-        interrupt: super::interrupt(),
     };
     let shown = Shown {
         file: args.file.display().to_string(),
@@ -129,7 +132,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     }
     let mut results = Vec::new();
     for cells in &sizes {
-        if config.interrupt.raised() {
+        if super::interrupt().raised() {
             break;
         }
         let cluster = Cluster::new(c, cells.clone())?;
@@ -210,43 +213,36 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
         replicas: args.replicas,
         sweeps: args.sweeps.unwrap_or(100_000) as u64,
         uniform: args.uniform,
-        interrupt: super::interrupt(),
     };
-    let bar = replica_bar(args.common.progress(), &model, config.replicas);
-    let on_replica = || {
-        if let Some(b) = &bar {
-            b.inc(1);
-        }
-    };
+    let (context, bar) = args.common.replica_progress(&model, config.replicas);
     let w = with_threads(args.common.threads, || {
-        wang_landau::wang_landau_with(&model, &config, &on_replica)
+        wang_landau::count(&model, &config, &context)
     });
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
     let w = w??;
-    let p = pauling::estimate(c)?;
+    let p = super::pauling(c)?;
     let e = &w.estimate;
     let unit = &c.formula_unit.name;
     match args.common.format {
-        Format::Json => {
-            let mut v = report::estimate_json(c, e, Some(&p));
-            v["algorithm"] = "wang-landau".into();
-            v["seed"] = w.seed.into();
-            v["replicas"] = w.replicas.into();
-            v["sweeps"] = w.sweeps.into();
-            v["energy_window"] = w.window.into();
-            v["window_fraction"] = w.fraction.into();
-            v["levels_visited"] = w.levels.into();
-            v["per_replica_ln_w_per_unit"] = w.per_replica.clone().into();
-            v["interrupted"] = w.interrupted.into();
-            v["variables"] = model.variables.len().into();
-            v["constraints"] = model.constraints.len().into();
-            v["content_hash"] = lattice.content_hash.clone().into();
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
-        }
-        Format::Csv => Ok(report::comparison_table(&[p, e.clone()], unit).render_csv()),
-        Format::Markdown => Ok(report::comparison_table(&[p, e.clone()], unit).render_markdown()),
+        Format::Json => Ok(groundcount::json::to_string(&WangLandauDocument {
+            estimate: EstimateOf::new(c, e, Some(&p)),
+            algorithm: "wang-landau",
+            seed: w.seed,
+            replicas: w.replicas,
+            sweeps: w.sweeps,
+            energy_window: w.window,
+            window_fraction: w.fraction,
+            levels_visited: w.levels,
+            per_replica_ln_w_per_unit: w.per_replica.clone(),
+            interrupted: w.interrupted,
+            variables: model.variables.len(),
+            constraints: model.constraints.len(),
+            content_hash: lattice.content_hash.clone(),
+        })?),
+        Format::Csv => Ok(text::comparison_table(&[p, e.clone()], unit).render_csv()),
+        Format::Markdown => Ok(text::comparison_table(&[p, e.clone()], unit).render_markdown()),
         Format::Table => {
             let mut out = cell_header(c, &args.file, e, &model);
             writeln!(out)?;
@@ -306,42 +302,13 @@ fn sample_one(
     common: &Common,
     model: &Model,
     config: &sampling::SampleConfig,
-) -> anyhow::Result<Sampled> {
-    let progress = common.progress();
-    let bar = replica_bar(progress, model, config.replicas);
-    let on_replica = || {
-        if let Some(b) = &bar {
-            b.inc(1);
-        }
-    };
-    let s = with_threads(common.threads, || {
-        sampling::sample_with(model, config, &on_replica)
-    })??;
+) -> anyhow::Result<Counted<Sampled>> {
+    let (context, bar) = common.replica_progress(model, config.replicas);
+    let s = with_threads(common.threads, || sampling::count(model, config, &context))??;
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
     Ok(s)
-}
-
-/// A progress bar over replicas on standard error, when progress is wanted.
-fn replica_bar(progress: bool, model: &Model, replicas: usize) -> Option<indicatif::ProgressBar> {
-    if !progress {
-        return None;
-    }
-    let bar = indicatif::ProgressBar::new(replicas as u64);
-    bar.set_style(
-        indicatif::ProgressStyle::with_template(
-            "{prefix} [{bar:30}] {pos}/{len} replicas, ETA {eta}",
-        )
-        .expect("valid template")
-        .progress_chars("=> "),
-    );
-    bar.set_prefix(format!(
-        "sampling {} ({} variables)",
-        model.cells,
-        model.variables.len()
-    ));
-    Some(bar)
 }
 
 /// Run one shard and write its file.
@@ -361,12 +328,7 @@ fn run_shard(
     }
     let cluster = Cluster::new(&lattice.crystal, cells.clone())?;
     let model = Model::new(&cluster)?;
-    let bar = replica_bar(args.common.progress(), &model, config.replicas);
-    let on_replica = || {
-        if let Some(b) = &bar {
-            b.inc(1);
-        }
-    };
+    let (context, bar) = args.common.replica_progress(&model, config.replicas);
     let (part, s) = with_threads(args.common.threads, || {
         shard::run_shard(
             lattice,
@@ -375,7 +337,7 @@ fn run_shard(
             &model,
             config,
             (k, n),
-            &on_replica,
+            &context,
         )
     })??;
     if let Some(b) = &bar {
@@ -404,24 +366,24 @@ pub(super) fn render(
     lattice: &Lattice,
     shown: &Shown,
     model: &Model,
-    s: &Sampled,
+    s: &Counted<Sampled>,
     merged: Option<(&[usize], usize)>,
 ) -> anyhow::Result<String> {
     let c = &lattice.crystal;
-    let p = pauling::estimate(c)?;
+    let p = super::pauling(c)?;
     let e = &s.estimate;
     let unit = &c.formula_unit.name;
     match format {
         Format::Json => {
-            let mut v = sampled_json(lattice, model, s, shown);
+            let mut d = SampledDocument::new(lattice, model, s, shown);
             if let Some((present, n)) = merged {
-                v["shards"] = n.into();
-                v["shards_merged"] = present.into();
+                d.shards = Some(n);
+                d.shards_merged = Some(present.to_vec());
             }
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
+            Ok(groundcount::json::to_string(&d)?)
         }
-        Format::Csv => Ok(report::comparison_table(&[p, e.clone()], unit).render_csv()),
-        Format::Markdown => Ok(report::comparison_table(&[p, e.clone()], unit).render_markdown()),
+        Format::Csv => Ok(text::comparison_table(&[p, e.clone()], unit).render_csv()),
+        Format::Markdown => Ok(text::comparison_table(&[p, e.clone()], unit).render_markdown()),
         Format::Table => {
             let mut out = String::new();
             out += &cell_header(c, std::path::Path::new(&shown.file), e, model);
@@ -473,7 +435,7 @@ fn pm(x: f64, s: Option<f64>) -> String {
 }
 
 /// The error budget and run lines under a sampled result.
-fn diagnostics(s: &Sampled, shown: &Shown) -> String {
+fn diagnostics(s: &Counted<Sampled>, shown: &Shown) -> String {
     let unit_free = |x: f64| sig(x, 2);
     let mut out = String::new();
     let _ = writeln!(
@@ -572,37 +534,102 @@ pub(super) fn equilibration_line(s: &Sampled) -> String {
     }
 }
 
-/// The JSON document of one sampled cell.
-fn sampled_json(lattice: &Lattice, model: &Model, s: &Sampled, shown: &Shown) -> serde_json::Value {
-    let c = &lattice.crystal;
-    let p = pauling::estimate(c).ok();
-    let mut v = report::estimate_json(c, &s.estimate, p.as_ref());
-    v["algorithm"] = "thermodynamic-integration".into();
-    v["seed"] = s.seed.into();
-    v["samples"] = s.samples.into();
-    v["replicas"] = s.replicas.into();
-    v["updates"] = s.updates.into();
-    v["sigma_ln_w_statistical"] = s.sigma_statistical.into();
-    v["sigma_ln_w_quadrature"] = s.sigma_quadrature.into();
-    v["sigma_ln_w_tail"] = s.sigma_tail.into();
-    v["sigma_ln_w_equilibration"] = s.sigma_equilibration.into();
-    v["hysteresis_ln_w_per_unit"] = s.hysteresis.into();
-    v["sigma_hysteresis"] = s.sigma_hysteresis.into();
-    v["equilibrated"] = s.equilibrated.into();
-    v["extensions"] = s.extensions.into();
-    v["sweeps"] = s.sweeps.into();
-    v["equilibration"] = s.equilibration.into();
-    v["interrupted"] = s.interrupted.into();
-    v["beta_max"] = s.beta_max.into();
-    v["loop_attempts_per_sweep"] = s.loop_attempts_per_sweep.into();
-    v["loop_acceptance"] = s.loop_acceptance.into();
-    v["target_error"] = shown.target_error.into();
-    v["target_reached"] = s.target_reached.into();
-    v["violations_at_beta_max"] = s.mean_energy[s.mean_energy.len() - 1].into();
-    v["variables"] = model.variables.len().into();
-    v["constraints"] = model.constraints.len().into();
-    v["content_hash"] = lattice.content_hash.clone().into();
-    v
+/// The JSON document of one sampled cell (docs/json.md).
+#[derive(serde::Serialize)]
+struct SampledDocument {
+    /// The estimate, with the lattice and Pauling's estimate beside it.
+    #[serde(flatten)]
+    estimate: EstimateOf,
+    /// `thermodynamic-integration`.
+    algorithm: &'static str,
+    /// How the run went and the parts of its 1σ.
+    #[serde(flatten)]
+    run: SampledRecord,
+    /// The target error asked for, if any.
+    target_error: Option<f64>,
+    variables: usize,
+    constraints: usize,
+    content_hash: String,
+    /// A merge: the number of shards of the run.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    shards: Option<usize>,
+    /// A merge: the shards present (1..N).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    shards_merged: Option<Vec<usize>>,
+}
+
+impl SampledDocument {
+    fn new(lattice: &Lattice, model: &Model, s: &Counted<Sampled>, shown: &Shown) -> Self {
+        let c = &lattice.crystal;
+        let p = super::pauling(c).ok();
+        SampledDocument {
+            estimate: EstimateOf::new(c, &s.estimate, p.as_ref()),
+            algorithm: "thermodynamic-integration",
+            run: SampledRecord::from(&s.details),
+            target_error: shown.target_error,
+            variables: model.variables.len(),
+            constraints: model.constraints.len(),
+            content_hash: lattice.content_hash.clone(),
+            shards: None,
+            shards_merged: None,
+        }
+    }
+}
+
+/// The JSON document of a Wang–Landau run (docs/json.md).
+#[derive(serde::Serialize)]
+struct WangLandauDocument {
+    #[serde(flatten)]
+    estimate: EstimateOf,
+    /// `wang-landau`.
+    algorithm: &'static str,
+    seed: u64,
+    replicas: usize,
+    sweeps: u64,
+    /// Largest number of violated constraints in the window.
+    energy_window: u64,
+    /// Fraction of uniform assignments inside the window.
+    window_fraction: f64,
+    /// Energies visited.
+    levels_visited: usize,
+    /// ln W per formula unit of every walk.
+    per_replica_ln_w_per_unit: Vec<f64>,
+    interrupted: bool,
+    variables: usize,
+    constraints: usize,
+    content_hash: String,
+}
+
+/// The JSON document of several sampled cells (docs/json.md): the extrapolation to the
+/// infinite crystal, or why there is none, and every cell.
+#[derive(serde::Serialize)]
+struct SizesDocument {
+    /// The extrapolated estimate (its `method` is `monte-carlo-extrapolated`), or the
+    /// lattice alone (`monte-carlo-cells`) with why there is no extrapolation.
+    #[serde(flatten)]
+    head: SizesHead,
+    /// The fit; `null` when there is none.
+    fit: Option<SizeFitRecord>,
+    /// Why the cells were not extrapolated.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    not_extrapolated: Option<String>,
+    /// Every cell sampled, smallest first.
+    cells_sampled: Vec<SampledDocument>,
+}
+
+/// The first keys of [`SizesDocument`].
+#[derive(serde::Serialize)]
+#[serde(untagged)]
+enum SizesHead {
+    /// The extrapolation.
+    Extrapolated(Box<EstimateOf>),
+    /// No extrapolation.
+    Cells {
+        lattice: String,
+        file: String,
+        formula_unit: String,
+        method: &'static str,
+    },
 }
 
 /// The output of several cells and their extrapolation to the infinite crystal (when
@@ -611,70 +638,57 @@ fn render_sizes(
     format: Format,
     lattice: &Lattice,
     shown: &Shown,
-    results: &[(Model, Sampled)],
+    results: &[(Model, Counted<Sampled>)],
 ) -> anyhow::Result<String> {
     let c = &lattice.crystal;
     let unit = &c.formula_unit.name;
-    let points: Vec<size::SizePoint> = results
-        .iter()
-        .map(|(_, s)| size::SizePoint {
-            units: s.estimate.formula_units,
-            value: s.estimate.ln_w_per_unit,
-            sigma: s.estimate.sigma_ln_w.unwrap_or(0.0),
-        })
-        .collect();
-    let fit = size::extrapolate(&points);
-    let seconds: f64 = results.iter().map(|(_, s)| s.estimate.seconds).sum();
-    let infinite = fit.as_ref().ok().map(|f| f.estimate(seconds));
-    let p = pauling::estimate(c)?;
+    let estimates: Vec<groundcount::Estimate> =
+        results.iter().map(|(_, s)| s.estimate.clone()).collect();
+    let extrapolated = size::count(&estimates, &(), &Context::new());
+    let fit = extrapolated.as_ref().map(|x| &x.details);
+    let infinite = extrapolated.as_ref().ok().map(|x| x.estimate.clone());
+    let p = super::pauling(c)?;
     let mut rows = vec![p.clone()];
     rows.extend(results.iter().map(|(_, s)| s.estimate.clone()));
     rows.extend(infinite.iter().cloned());
     match format {
         Format::Json => {
-            let cells: Vec<serde_json::Value> = results
+            let cells_sampled = results
                 .iter()
-                .map(|(m, s)| sampled_json(lattice, m, s, shown))
+                .map(|(m, s)| SampledDocument::new(lattice, m, s, shown))
                 .collect();
-            let mut v = match (&fit, &infinite) {
+            let d = match (&fit, &infinite) {
                 (Ok(fit), Some(infinite)) => {
-                    let mut v = report::estimate_json(c, infinite, Some(&p));
-                    v["method"] = "monte-carlo-extrapolated".into();
-                    v["fit"] = serde_json::json!({
-                        "form": fit.form(),
-                        "ln_w_per_unit_infinite": fit.value,
-                        "sigma_ln_w": fit.sigma,
-                        "sigma_fit": fit.sigma_fit,
-                        "systematic": fit.systematic,
-                        "coefficients": fit.coefficients,
-                        "chi2": fit.chi2,
-                        "dof": fit.dof,
-                        "alternative_form": fit.alternative_form(),
-                        "alternative_ln_w_per_unit": fit.alternative.map(|t| t.0),
-                        "alternative_sigma_ln_w": fit.alternative.map(|t| t.1),
-                    });
-                    v
+                    let mut e = EstimateOf::new(c, infinite, Some(&p));
+                    e.estimate.method = "monte-carlo-extrapolated";
+                    SizesDocument {
+                        head: SizesHead::Extrapolated(Box::new(e)),
+                        fit: Some(SizeFitRecord::from(*fit)),
+                        not_extrapolated: None,
+                        cells_sampled,
+                    }
                 }
-                _ => {
-                    let why = fit.as_ref().err().map_or(String::new(), |e| e.to_string());
-                    serde_json::json!({
-                        "lattice": c.name,
-                        "file": shown.file,
-                        "formula_unit": unit,
-                        "method": "monte-carlo-cells",
-                        "fit": null,
-                        "not_extrapolated": why,
-                    })
-                }
+                _ => SizesDocument {
+                    head: SizesHead::Cells {
+                        lattice: c.name.clone(),
+                        file: shown.file.clone(),
+                        formula_unit: unit.clone(),
+                        method: "monte-carlo-cells",
+                    },
+                    fit: None,
+                    not_extrapolated: Some(
+                        fit.as_ref().err().map_or(String::new(), |e| e.to_string()),
+                    ),
+                    cells_sampled,
+                },
             };
-            v["cells_sampled"] = cells.into();
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
+            Ok(groundcount::json::to_string(&d)?)
         }
-        Format::Csv => Ok(report::comparison_table(&rows, unit).render_csv()),
-        Format::Markdown => Ok(report::comparison_table(&rows, unit).render_markdown()),
+        Format::Csv => Ok(text::comparison_table(&rows, unit).render_csv()),
+        Format::Markdown => Ok(text::comparison_table(&rows, unit).render_markdown()),
         Format::Table => {
             let mut out = format!("{} ({})\n\n", c.name, shown.file);
-            out += &report::comparison_table(&rows, unit).render();
+            out += &text::comparison_table(&rows, unit).render();
             writeln!(out)?;
             match (&fit, &infinite) {
                 (Ok(fit), Some(infinite)) => {

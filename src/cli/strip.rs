@@ -6,11 +6,13 @@ use std::path::{Path, PathBuf};
 
 use clap::ValueEnum;
 use groundcount::Error;
+use groundcount::context::{Context, Progress};
 use groundcount::counters::extrapolate::Scaling;
 use groundcount::counters::transfer::{self, SectorBasis, Sectors, StripConfig};
 use groundcount::crosscheck::{CrossCheck, Route};
-use groundcount::report::{self, Table, sig};
-use serde_json::json;
+use groundcount::estimate::EstimateRecord;
+use groundcount::json::{CheckRecord, WidthRecord};
+use groundcount::text::{self, Table, sig};
 
 use super::{Common, Format, Partial, load, shown, with_threads};
 
@@ -65,9 +67,12 @@ pub enum SectorsArg {
 /// Arguments of `strip`.
 #[derive(clap::Args, Debug)]
 pub struct Args {
-    /// Lattice file (YAML) of a two-dimensional crystal, or of a three-dimensional one for
-    /// thin prisms (infinitely long along `--along`, a finite periodic or open section).
+    /// Lattice file (YAML) or structure file (CIF) of a two-dimensional crystal, or of a
+    /// three-dimensional one for thin prisms (infinitely long along `--along`, a finite periodic or open section).
     file: PathBuf,
+    /// The data block to read when FILE is a structure file (CIF) with several structures.
+    #[arg(long, value_name = "NAME")]
+    block: Option<String>,
     /// Widths in cells across the strip: a range `2..12` (inclusive) or a list `4,6,8`.
     #[arg(long, default_value = "2..12")]
     widths: String,
@@ -100,6 +105,61 @@ pub struct Args {
     max_iterations: usize,
     #[command(flatten)]
     common: Common,
+}
+
+/// The JSON document of `strip` (docs/json.md).
+#[derive(serde::Serialize)]
+struct Document {
+    lattice: String,
+    file: String,
+    content_hash: String,
+    formula_unit: String,
+    method: groundcount::estimate::Method,
+    /// The cell axis along the strip.
+    along: &'static str,
+    /// The boundary across the strip: `periodic` or `open`.
+    around: &'static str,
+    /// Three-dimensional prisms: cells along the second axis across.
+    depth: Option<usize>,
+    widths: Vec<WidthRecord>,
+    /// Widths computed only to check the sector.
+    calibration_widths: Vec<usize>,
+    checks: Vec<CheckRecord>,
+    checks_agree: bool,
+    stopped: Option<StopRecord>,
+    /// Why there is no extrapolation, in words.
+    no_extrapolation: Option<String>,
+    step: Option<usize>,
+    period: Option<usize>,
+    scaling: Option<&'static str>,
+    central_charge: Option<f64>,
+    w_per_unit: Option<f64>,
+    w_uncertainty: Option<f64>,
+    s_over_r: Option<f64>,
+    s_j_per_mol_k: Option<f64>,
+    s_uncertainty: Option<f64>,
+    seconds: Option<f64>,
+}
+
+/// Why a run stopped.
+#[derive(serde::Serialize)]
+struct StopRecord {
+    /// The width that did not finish.
+    width: usize,
+    /// Why, in words.
+    reason: String,
+    /// What the width would have needed.
+    need: Option<NeedRecord>,
+}
+
+/// What a width that did not finish would have needed, from the growth of the widths
+/// before it.
+#[derive(serde::Serialize)]
+struct NeedRecord {
+    peak_states: f64,
+    bytes: f64,
+    seconds: f64,
+    from_widths: Vec<usize>,
 }
 
 /// The section of a prism of a three-dimensional crystal, for the report.
@@ -168,7 +228,7 @@ pub(super) fn parse_widths(text: &str, step: usize) -> anyhow::Result<Vec<usize>
 
 pub fn run(args: Args) -> anyhow::Result<String> {
     let widths = parse_widths(&args.widths, args.step)?;
-    let lattice = load(Some(&args.file))?;
+    let lattice = load(Some(&args.file), args.block.as_deref())?;
     let c = &lattice.crystal;
     if args.depth.is_some() && c.dimensions != 3 {
         anyhow::bail!(
@@ -177,6 +237,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             c.dimensions
         );
     }
+    let scaling = match args.scaling {
+        ScalingArg::Auto => Scaling::Auto,
+        ScalingArg::Critical => Scaling::Critical,
+        ScalingArg::Gapped => Scaling::Gapped,
+    };
+    // A step above 1 is the user's spacing (and the families' period); with 1 the spacing
+    // is chosen from the values, as `estimate` does.
+    let step = (args.step > 1).then_some(args.step);
     let config = StripConfig {
         along: match args.along {
             Axis::A => 0,
@@ -191,13 +259,10 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             SectorsArg::Largest => Sectors::Largest,
             SectorsArg::Full => Sectors::Full,
         },
-        interrupt: super::interrupt(),
+        widths: widths.clone(),
+        step,
+        scaling,
         ..Default::default()
-    };
-    let scaling = match args.scaling {
-        ScalingArg::Auto => Scaling::Auto,
-        ScalingArg::Critical => Scaling::Critical,
-        ScalingArg::Gapped => Scaling::Gapped,
     };
     // Progress in units of a rough cost model, 2^W per width (the state counts of the
     // shipped lattices grow like 1.6^W to 2^W), so that the ETA is not far off.
@@ -214,21 +279,19 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         );
         b
     });
-    let done = std::sync::Mutex::new(0.0f64);
-    let on_width = |w: usize| {
-        let mut d = done.lock().expect("progress counter");
-        if let Some(b) = &bar {
-            b.set_position((1000.0 * *d / total) as u64);
-            b.set_message(format!("cylinder of width {w}"));
-        }
-        *d += cost(w);
-    };
-    // A step above 1 is the user's spacing (and the families' period); with 1 the spacing
-    // is chosen from the values, as `estimate` does.
-    let step = (args.step > 1).then_some(args.step);
-    let outcome = with_threads(args.common.threads, || {
-        transfer::run(c, &widths, step, scaling, &config, &on_width)
-    });
+    let mut context = Context::new().with_interrupt(super::interrupt());
+    if let Some(b) = bar.clone() {
+        let done = std::sync::Mutex::new(0.0f64);
+        context = context.with_observer(move |p| {
+            if let Progress::Width { width } = p {
+                let mut d = done.lock().expect("progress counter");
+                b.set_position((1000.0 * *d / total) as u64);
+                b.set_message(format!("cylinder of width {width}"));
+                *d += cost(*width);
+            }
+        });
+    }
+    let outcome = with_threads(args.common.threads, || transfer::run(c, &config, &context));
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
@@ -332,7 +395,7 @@ fn stop_reason(stop: &transfer::Stopped) -> String {
         Error::Deadline { .. } => format!("width {w} ran out of time{need}"),
         Error::Interrupted { .. } => format!("interrupted during width {w}"),
         Error::NotConverged { .. } => format!("width {w}: {}; raise --max-iterations", stop.error),
-        other => format!("width {w}: {other}"),
+        other => format!("width {w}: {}", super::words::error(other)),
     }
 }
 
@@ -530,72 +593,45 @@ fn render(
     let unit = &c.formula_unit.name;
     let series = run.series.as_ref();
     let failed = run.checks.iter().any(|x| !x.agrees());
-    let scaling_name = |x: &groundcount::counters::extrapolate::Extrapolation| match x.scaling {
-        Scaling::Gapped => "gapped",
-        _ => "critical",
-    };
     let shown_file = shown(&Some(file.to_path_buf()));
     match format {
         Format::Json => {
-            let e = series.map(|s| &s.estimate);
-            let v = json!({
-                "lattice": c.name,
-                "file": shown_file,
-                "content_hash": lattice.content_hash,
-                "formula_unit": unit,
-                "method": groundcount::estimate::Method::TransferMatrix.name(),
-                "along": AXES[config.along],
-                "around": if config.periodic { "periodic" } else { "open" },
-                "depth": section.depth,
-                "widths": run.widths.iter().map(|r| json!({
-                    "width": r.width,
-                    "ln_lambda": r.ln_lambda,
-                    "ln_lambda_bracket": [r.ln_bracket.0, r.ln_bracket.1],
-                    "w_per_unit": r.ln_w_per_unit.exp(),
-                    "states": r.states,
-                    "recurrent_states": r.recurrent_states,
-                    "bracket_certified": r.certified,
-                    "peak_states": r.peak_states,
-                    "transitions": r.transitions,
-                    "iterations": r.iterations,
-                    "sector": r.sector,
-                    "sector_basis": basis_word(&r.basis),
-                    "reversal_pairs": r.reversal,
-                    "seconds": r.seconds,
-                })).collect::<Vec<_>>(),
-                "calibration_widths": run.calibration,
-                "checks": run.checks.iter().map(|x| json!({
-                    "route": x.route,
-                    "value": x.value,
-                    "reference": x.reference,
-                    "tolerance": x.tolerance,
-                    "bound": x.is_bound(),
-                    "agrees": x.agrees(),
-                })).collect::<Vec<_>>(),
-                "checks_agree": !failed,
-                "stopped": run.stopped.as_ref().map(|s| json!({
-                    "width": s.width,
-                    "reason": stop_reason(s),
-                    "need": s.need.as_ref().map(|n| json!({
-                        "peak_states": n.peak_states,
-                        "bytes": n.bytes,
-                        "seconds": n.seconds,
-                        "from_widths": n.from,
-                    })),
-                })),
-                "no_extrapolation": run.no_series,
-                "step": series.map(|s| s.step),
-                "period": series.map(|s| s.extrapolation.period),
-                "scaling": series.map(|s| scaling_name(&s.extrapolation)),
-                "central_charge": series.and_then(|s| s.central_charge),
-                "w_per_unit": e.map(|e| e.w_per_unit()),
-                "uncertainty": e.and_then(|e| e.sigma_w()),
-                "s_over_r": e.map(|e| e.s_over_r()),
-                "s_j_per_mol_k": e.map(|e| e.s_j_per_mol_k()),
-                "s_uncertainty": e.and_then(|e| e.sigma_s_j_per_mol_k()),
-                "seconds": e.map(|e| e.seconds),
-            });
-            Ok(serde_json::to_string_pretty(&v)? + "\n")
+            let e = series.map(|s| EstimateRecord::from(&s.estimate));
+            Ok(groundcount::json::to_string(&Document {
+                lattice: c.name.clone(),
+                file: shown_file,
+                content_hash: lattice.content_hash.clone(),
+                formula_unit: unit.clone(),
+                method: groundcount::estimate::Method::TransferMatrix,
+                along: AXES[config.along],
+                around: if config.periodic { "periodic" } else { "open" },
+                depth: section.depth,
+                widths: run.widths.iter().map(WidthRecord::from).collect(),
+                calibration_widths: run.calibration.clone(),
+                checks: groundcount::json::checks(&run.checks),
+                checks_agree: !failed,
+                stopped: run.stopped.as_ref().map(|s| StopRecord {
+                    width: s.width,
+                    reason: stop_reason(s),
+                    need: s.need.as_ref().map(|n| NeedRecord {
+                        peak_states: n.peak_states,
+                        bytes: n.bytes,
+                        seconds: n.seconds,
+                        from_widths: n.from.clone(),
+                    }),
+                }),
+                no_extrapolation: run.no_series.clone(),
+                step: series.map(|s| s.step),
+                period: series.map(|s| s.extrapolation.period),
+                scaling: series.map(|s| groundcount::json::scaling_word(s.extrapolation.scaling)),
+                central_charge: series.and_then(|s| s.central_charge),
+                w_per_unit: e.as_ref().map(|e| e.w_per_unit),
+                w_uncertainty: e.as_ref().and_then(|e| e.w_uncertainty),
+                s_over_r: e.as_ref().map(|e| e.s_over_r),
+                s_j_per_mol_k: e.as_ref().map(|e| e.s_j_per_mol_k),
+                s_uncertainty: e.as_ref().and_then(|e| e.s_uncertainty),
+                seconds: e.as_ref().map(|e| e.seconds),
+            })?)
         }
         format => {
             let w_head = format!("W per {unit}");
@@ -631,10 +667,10 @@ fn render(
                     r.width.to_string(),
                     r.states.to_string(),
                     r.iterations.to_string(),
-                    report::number(r.ln_lambda),
-                    report::number(r.ln_w_per_unit.exp()),
-                    report::number(r.ln_bracket.0),
-                    report::number(r.ln_bracket.1),
+                    text::number(r.ln_lambda),
+                    text::number(r.ln_w_per_unit.exp()),
+                    text::number(r.ln_bracket.0),
+                    text::number(r.ln_bracket.1),
                 ];
                 if any_sector {
                     row.push(sector_cell(r));
@@ -642,7 +678,7 @@ fn render(
                     csv.push(sector_basis_word(r).to_string());
                 }
                 row.push(format!("{:.3}", r.seconds));
-                csv.push(report::number(r.seconds));
+                csv.push(text::number(r.seconds));
                 t.row(row);
                 t.csv_row(csv);
             }
@@ -696,7 +732,7 @@ fn render(
                     writeln!(
                         out,
                         "method               {}, {} s in all",
-                        report::method_label(e),
+                        text::method_label(e),
                         sig(e.seconds, 3)
                     )?;
                 }
@@ -742,17 +778,6 @@ fn render(
             }
             Ok(out)
         }
-    }
-}
-
-/// The sector basis as one word, for JSON.
-fn basis_word(b: &SectorBasis) -> &'static str {
-    match b {
-        SectorBasis::Whole => "all-states",
-        SectorBasis::Given => "given",
-        SectorBasis::FullSpace => "full-space",
-        SectorBasis::LocalMaximum => "neighbours",
-        SectorBasis::Predicted { .. } => "predicted",
     }
 }
 
@@ -827,16 +852,11 @@ mod tests {
     fn a_failed_cross_check_withholds_the_value() {
         let path = format!("{}/lattices/hard-squares.yaml", env!("CARGO_MANIFEST_DIR"));
         let lattice = groundcount::Lattice::from_file(Path::new(&path)).unwrap();
-        let config = StripConfig::default();
-        let mut run = transfer::run(
-            &lattice.crystal,
-            &[2, 3, 4, 5, 6, 7],
-            None,
-            Scaling::Auto,
-            &config,
-            &|_| {},
-        )
-        .unwrap();
+        let config = StripConfig {
+            widths: vec![2, 3, 4, 5, 6, 7],
+            ..Default::default()
+        };
+        let mut run = transfer::run(&lattice.crystal, &config, &Context::new()).unwrap();
         let section = Section::of(2, 0, None);
         let file = Path::new(&path);
         let fine = render(Format::Table, file, &lattice, &config, &section, &run).unwrap();

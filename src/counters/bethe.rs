@@ -23,8 +23,9 @@
 //!
 //! # Arguments and returns
 //!
-//! [`estimate`] takes a crystal and returns an [`Estimate`] for the infinite crystal;
-//! [`for_model`] runs on a given model and returns ln W_B per formula unit, or
+//! [`count`] takes a crystal and a [`BetheConfig`] (iteration cap and tolerance) and returns
+//! an [`Estimate`] for the infinite crystal; [`for_model`] runs on a given model and returns
+//! ln W_B per formula unit, or
 //! [`Error::NotConverged`] when the messages do not settle.
 //!
 //! # Complexity
@@ -40,16 +41,29 @@
 
 use std::time::Instant;
 
+use super::{Context, Counted};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
 use crate::estimate::{Estimate, Method};
 use crate::model::Model;
 
-/// Largest number of message updates.
-const MAX_ITERATIONS: usize = 20_000;
+/// Settings of belief propagation.
+#[derive(Clone, Debug)]
+pub struct BetheConfig {
+    /// Largest number of message updates ([`Error::NotConverged`] beyond).
+    pub max_iterations: usize,
+    /// Largest change of any message at which the iteration stops.
+    pub tolerance: f64,
+}
 
-/// Largest change of any message at which the iteration stops.
-const TOLERANCE: f64 = 1e-13;
+impl Default for BetheConfig {
+    fn default() -> Self {
+        BetheConfig {
+            max_iterations: 20_000,
+            tolerance: 1e-13,
+        }
+    }
+}
 
 /// Normalise a message to sum 1 (a zero message stays zero).
 fn normalise(m: &mut [f64]) {
@@ -62,7 +76,7 @@ fn normalise(m: &mut [f64]) {
 }
 
 /// ln W_B per formula unit of a model whose constraints read every variable once.
-pub fn for_model(model: &Model) -> Result<f64> {
+pub fn for_model(model: &Model, config: &BetheConfig) -> Result<f64> {
     if model.contradiction.is_some() {
         return Ok(f64::NEG_INFINITY);
     }
@@ -103,7 +117,7 @@ pub fn for_model(model: &Model) -> Result<f64> {
         })
         .collect();
     let mut converged = false;
-    for _ in 0..MAX_ITERATIONS {
+    for _ in 0..config.max_iterations {
         let mut change = 0.0f64;
         // Constraint → variable.
         for (c, con) in model.constraints.iter().enumerate() {
@@ -145,7 +159,7 @@ pub fn for_model(model: &Model) -> Result<f64> {
                 }
             }
         }
-        if change < TOLERANCE {
+        if change < config.tolerance {
             converged = true;
             break;
         }
@@ -153,7 +167,7 @@ pub fn for_model(model: &Model) -> Result<f64> {
     if !converged {
         return Err(Error::NotConverged {
             what: "belief propagation for the Bethe approximation".into(),
-            iterations: MAX_ITERATIONS,
+            iterations: config.max_iterations,
             detail: "the messages did not settle".into(),
         });
     }
@@ -187,22 +201,28 @@ pub fn for_model(model: &Model) -> Result<f64> {
     })
 }
 
-/// The Bethe estimate for the infinite crystal.
-pub fn estimate(crystal: &Crystal) -> Result<Estimate> {
+/// The Bethe estimate for the infinite crystal, on the cluster Pauling's estimate uses
+/// ([`super::local::tree_free_model`]). The context is not watched (a few hundred
+/// iterations on a small cluster).
+pub fn count(crystal: &Crystal, config: &BetheConfig, _context: &Context) -> Result<Counted<()>> {
     let start = Instant::now();
-    let model = super::pauling::tree_free_model(crystal)?;
-    let ln_w = for_model(&model)?;
-    Ok(super::pauling::infinite_crystal(
+    let model = super::local::tree_free_model(crystal)?;
+    let ln_w = for_model(&model, config)?;
+    Ok(Counted::plain(Estimate::infinite(
         Method::Bethe,
-        crystal,
         ln_w,
-        start,
-    ))
+        None,
+        start.elapsed().as_secs_f64(),
+    )))
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn estimate(c: &Crystal) -> Result<Estimate> {
+        count(c, &BetheConfig::default(), &Context::new()).map(|c| c.estimate)
+    }
     use crate::Lattice;
 
     fn lattice(name: &str) -> Lattice {
@@ -222,7 +242,10 @@ mod tests {
         ] {
             let c = &lattice(name).crystal;
             let b = estimate(c).unwrap().ln_w_per_unit;
-            let p = crate::counters::pauling::estimate(c).unwrap().ln_w_per_unit;
+            let p = crate::counters::pauling::count(c, &(), &Context::new())
+                .unwrap()
+                .estimate
+                .ln_w_per_unit;
             assert!((b - p).abs() < 1e-10, "{name}: Bethe {b}, Pauling {p}");
         }
     }
@@ -284,7 +307,7 @@ mod tests {
             "{} against {expected}",
             b.ln_w_per_unit
         );
-        assert_eq!(crate::counters::pauling::caveat(&b), None);
+        assert_eq!(crate::counters::local::caveat(&b), None);
         assert!((b.w_per_unit() / 1.3954859724793 - 1.0).abs() < 0.02);
     }
 }

@@ -29,9 +29,10 @@
 //!
 //! # Arguments and returns
 //!
-//! [`count`] takes a model and an [`ExactConfig`] (state budget, deadline) and returns an
-//! [`Estimate`] with `count` set; [`count_cell`] takes the crystal and the cell as well and
-//! says which route it took ([`CellRoute`]).
+//! [`count`] takes a model, an [`ExactConfig`] (the state budget) and the [`Context`]
+//! (deadline, interrupt, progress observer told every step) and returns an [`Estimate`]
+//! with `count` set; [`count_cell`] takes the crystal and the cell as well and says which
+//! route it took ([`CellRoute`]).
 //!
 //! # Complexity
 //!
@@ -51,8 +52,10 @@ use super::frontier::payload::{Count, Wide};
 use super::frontier::step::{Completed, Step};
 use super::frontier::{Frontier, Piece};
 use super::order::{self, Plan};
+use super::{Context, Counted};
+use crate::context::Progress;
 use crate::error::{Error, Result};
-use crate::estimate::{Estimate, Method, ln_big};
+use crate::estimate::Estimate;
 use crate::model::Model;
 
 /// Limits of an exact count.
@@ -60,11 +63,17 @@ use crate::model::Model;
 pub struct ExactConfig {
     /// Largest number of frontier states allowed at once.
     pub max_states: usize,
-    /// Stop with [`Error::Deadline`] after this instant.
+    /// Filled from the [`Context`] by [`count`] (whatever is set here is replaced): stop
+    /// with [`Error::Deadline`] after this instant.
+    #[doc(hidden)]
     pub deadline: Option<Instant>,
-    /// Told after every step: (steps done, steps in all, frontier states).
+    /// Filled from the [`Context`] by [`count`]: told after every step (steps done, steps
+    /// in all, frontier states).
+    #[doc(hidden)]
     pub progress: Option<ProgressHook>,
-    /// Stop with [`Error::Interrupted`] once raised.
+    /// Filled from the [`Context`] by [`count`]: stop with [`Error::Interrupted`] once
+    /// raised.
+    #[doc(hidden)]
     pub interrupt: crate::context::Interrupt,
 }
 
@@ -101,19 +110,50 @@ enum Failure {
     Stop(Error),
 }
 
-/// Count the model exactly.
-pub fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
+/// Count the model exactly: the number of assignments that satisfy every constraint.
+///
+/// The context's deadline and interrupt are checked after every step
+/// ([`Error::Deadline`], [`Error::Interrupted`]); its observer is told every step
+/// ([`Progress::Step`]). More frontier states than `config.max_states` is
+/// [`Error::Budget`].
+///
+/// ```
+/// use groundcount::{Lattice, cluster::{Cells, Cluster}, counters::{exact, Context}, model::Model};
+/// let ice = Lattice::from_yaml(groundcount::ICE_IH_YAML, "ice-ih.yaml").unwrap();
+/// let cluster = Cluster::new(&ice.crystal, Cells::periodic(&[2, 1, 1]).unwrap()).unwrap();
+/// let model = Model::new(&cluster).unwrap();
+/// let e = exact::count(&model, &exact::ExactConfig::default(), &Context::new()).unwrap();
+/// assert_eq!(e.estimate.count.unwrap().to_string(), "114");
+/// ```
+pub fn count(model: &Model, config: &ExactConfig, context: &Context) -> Result<Counted<()>> {
+    count_with(model, &filled(config, context)).map(Counted::plain)
+}
+
+/// `config` with the context's deadline, interrupt and observer in its hidden fields.
+fn filled(config: &ExactConfig, context: &Context) -> ExactConfig {
+    ExactConfig {
+        max_states: config.max_states,
+        deadline: context.deadline,
+        progress: context.observer.clone().map(|o| {
+            ProgressHook(std::sync::Arc::new(move |done, all, states| {
+                (o.0)(&Progress::Step { done, all, states })
+            }))
+        }),
+        interrupt: context.interrupt.clone(),
+    }
+}
+
+/// [`count`] with the context's parts already in the configuration.
+fn count_with(model: &Model, config: &ExactConfig) -> Result<Estimate> {
     let start = Instant::now();
-    let finish = |count: BigUint, peak: usize| Estimate {
-        method: Method::Exact,
-        cells: Some(model.cells.clone()),
-        ln_count: ln_big(&count),
-        formula_units: model.formula_units,
-        ln_w_per_unit: ln_big(&count) / model.formula_units,
-        count: Some(count),
-        sigma_ln_w: None,
-        seconds: start.elapsed().as_secs_f64(),
-        peak_states: Some(peak),
+    let finish = |count: BigUint, peak: usize| {
+        Estimate::exact(
+            model.cells.clone(),
+            count,
+            model.formula_units,
+            start.elapsed().as_secs_f64(),
+        )
+        .with_peak_states(Some(peak))
     };
     if model.contradiction.is_some() {
         return Ok(finish(BigUint::from(0u32), 0));
@@ -138,7 +178,7 @@ pub fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
     // Start in u128 unless the count will surely not fit: the Pauling sum is a good guide
     // (overflow is detected exactly in any case, and then the count restarts in big integers).
     let guess_bits =
-        super::pauling::for_model(model) * model.formula_units / std::f64::consts::LN_2;
+        super::local::pauling_ln_w(model) * model.formula_units / std::f64::consts::LN_2;
     // Try the narrowest integer width the guess allows, widening on overflow.
     let widths: [(u32, Runner); 6] = [
         (120, run::<u128>),
@@ -201,13 +241,15 @@ pub enum CellRoute {
 /// frontier counter, or for a periodic cell by the trace of Tᴸ when its predicted work,
 /// weighted by [`TRACE_WEIGHT`], is smaller than the frontier plan's cost (its column is tried with at most
 /// [`TRACE_MAX_STATES`] states). Both give the same integer; the trace is much cheaper on
-/// long thin tori. [`crate::Lattice::count_exact`] and `groundcount exact` call this.
+/// long thin tori. [`crate::Lattice::count_exact`] and the command line call this.
 pub fn count_cell(
     crystal: &crate::crystal::Crystal,
     cells: &crate::cluster::Cells,
     model: &Model,
     config: &ExactConfig,
-) -> Result<(Estimate, CellRoute)> {
+    context: &Context,
+) -> Result<Counted<CellRoute>> {
+    let config = &filled(config, context);
     if model.contradiction.is_none() {
         let frontier_work = plan_for(model).map_or(f64::INFINITY, |p| p.cost);
         let max_states = config.max_states.min(TRACE_MAX_STATES);
@@ -217,10 +259,44 @@ pub fn count_cell(
             let route = CellRoute::Trace {
                 column_states: trace.states(),
             };
-            return Ok((trace.count_within(model, config)?, route));
+            return Ok(Counted::new(trace.count_within(model, config)?, route));
         }
     }
-    Ok((count(model, config)?, CellRoute::Frontier))
+    Ok(Counted::new(
+        count_with(model, config)?,
+        CellRoute::Frontier,
+    ))
+}
+
+/// Memory a cluster and its model take per site and bond, in bytes, measured on square
+/// ice (2000x2000: 12 million sites and bonds, 3 GB).
+pub const BYTES_PER_ENTITY: f64 = 250.0;
+
+/// Refuse, before it is built, a cell whose every sweep keeps more cells open than the
+/// frontier's 63 bits can hold (building 2000x2000 alone takes minutes and gigabytes):
+/// [`Error::Budget`] with the cells kept open and the memory the cell would take.
+/// [`crate::Lattice::count_exact`] and the command line check this first.
+pub fn check_cell(crystal: &crate::crystal::Crystal, cells: &crate::cluster::Cells) -> Result<()> {
+    if let Some(open) = crate::cluster::frontier_cells_lower_bound(crystal, cells)
+        && open > 63
+    {
+        let entities = cells.total() as f64 * (crystal.sites.len() + crystal.bonds.len()) as f64;
+        let bytes = entities * BYTES_PER_ENTITY;
+        let memory = if bytes >= 1e9 {
+            format!("{:.1} GB", bytes / 1e9)
+        } else {
+            format!("{:.0} MB", (bytes / 1e6).max(1.0))
+        };
+        return Err(Error::Budget {
+            cells: cells.to_string(),
+            detail: format!(
+                "every order of its variables keeps at least {open} cells on the frontier at once, \
+                 and the frontier counter holds at most 63 bits (one per two-state variable); \
+                 building the cell alone would take about {memory} of memory"
+            ),
+        });
+    }
+    Ok(())
 }
 
 /// The plan that [`count`] would follow (for reports and benchmarks).
@@ -310,7 +386,7 @@ fn run<C: Count>(
             return Err(Failure::Stop(Error::Budget {
                 cells: model.cells.clone(),
                 detail: format!(
-                    "the frontier reached {n} states at step {} of {} (budget {}, set by --max-states); it could grow to 2^{:.0}",
+                    "the frontier reached {n} states at step {} of {} (budget {}); it could grow to 2^{:.0}",
                     t + 1,
                     plan.order.len(),
                     config.max_states,
@@ -342,6 +418,29 @@ mod tests {
     use super::*;
     use crate::Lattice;
     use crate::cluster::{Cells, Cluster};
+
+    /// Issue 12: a cell too wide for the frontier is refused before it is built, by the
+    /// library (so that `Lattice::count_exact` and the command line refuse the same cells);
+    /// a cell the frontier holds passes.
+    #[test]
+    fn issue12_too_wide_cells_are_refused_before_they_are_built() {
+        let yaml = include_str!("../../lattices/square-ice.yaml");
+        let l = Lattice::from_yaml(yaml, "square-ice.yaml").unwrap();
+        let wide = Cells::periodic(&[2000, 2000]).unwrap();
+        match check_cell(&l.crystal, &wide) {
+            Err(Error::Budget { cells, detail }) => {
+                assert_eq!(cells, "2000x2000 periodic");
+                // 2000² sites and 2·2000² bonds at 250 bytes each.
+                assert!(detail.contains("3.0 GB"), "{detail}");
+            }
+            other => panic!("{other:?}"),
+        }
+        assert!(matches!(
+            l.count_exact(&wide, &ExactConfig::default()),
+            Err(Error::Budget { .. })
+        ));
+        assert!(check_cell(&l.crystal, &Cells::periodic(&[4, 4]).unwrap()).is_ok());
+    }
 
     #[test]
     fn every_integer_width_gives_the_same_count() {

@@ -13,7 +13,7 @@
 //! flux). The period p is the smallest of step, 2·step, 3·step and 6·step at which the last
 //! five values of every family change monotonically (one sign, shrinking steps); 2·step
 //! when none does. For square ice and dimers that gives W mod 2, for the triangular
-//! antiferromagnet W mod 3 (with `--step 3` a single family).
+//! antiferromagnet W mod 3 (with a given spacing of 3, a single family).
 //!
 //! * **Critical** models (square ice, dimers, the triangular antiferromagnet) approach the
 //!   limit as s(W) = s∞ + a₁/W² + a₂/W⁴ + … on periodic cylinders (conformal invariance:
@@ -173,7 +173,7 @@ pub fn extrapolate(
 /// `errors` (empty, or one per point) are the numerical uncertainties of the values; they
 /// are propagated through the central fit (polynomial fits amplify them: through widths
 /// 15…20 in powers of 1/W by about 5·10⁵) and added to the uncertainty.
-pub fn extrapolate_in(
+pub(crate) fn extrapolate_in(
     points: &[(usize, f64)],
     errors: &[f64],
     step: usize,

@@ -210,7 +210,7 @@ pub fn choose(model: &Model) -> Option<Plan> {
 }
 
 /// The largest frontier any candidate order would need, in log2 of states (for messages).
-pub fn smallest_frontier_log2(model: &Model) -> f64 {
+pub(crate) fn smallest_frontier_log2(model: &Model) -> f64 {
     let vars = constrained(model);
     let mut best = f64::INFINITY;
     for axes in [[0, 1, 2], [1, 0, 2], [2, 0, 1]] {

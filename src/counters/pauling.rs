@@ -10,8 +10,9 @@
 //!
 //! # Arguments and returns
 //!
-//! [`estimate`] takes a crystal and returns an [`Estimate`] for the infinite crystal
-//! (`cells: None`); [`for_model`] evaluates the same sum on a given finite model.
+//! [`count`] takes a crystal (no settings) and returns an [`Estimate`] for the infinite
+//! crystal (`cells: None`); [`super::local::pauling_ln_w`] evaluates the same sum on a given
+//! finite model.
 //!
 //! # When it means nothing
 //!
@@ -19,7 +20,7 @@
 //! independent. For some rules it falls below 1 per formula unit (hard hexagons:
 //! 2 · (3/4)³ = 0.844 per site), a negative entropy. No count can give that: the number of
 //! arrangements of a cell is 0 or at least 1, so W per formula unit is 0 or at least 1, in
-//! every cell and in the limit. [`caveat`] finds such values from the numbers, for any
+//! every cell and in the limit. [`super::local::caveat`] finds such values from the numbers, for any
 //! rule, and says why they are not meaningful; the Bethe approximation, which accounts
 //! for how constraints that share a variable bias each other, then carries the local
 //! estimate.
@@ -32,117 +33,41 @@
 
 use std::time::Instant;
 
-use serde::Serialize;
-
-use crate::cluster::{Cells, Cluster};
+use super::local::{pauling_ln_w, tree_free_model};
+use super::{Context, Counted};
 use crate::crystal::Crystal;
 use crate::error::Result;
 use crate::estimate::{Estimate, Method};
-use crate::model::Model;
 
-/// ln W_P per formula unit of a finite model.
-pub fn for_model(model: &Model) -> f64 {
-    let mut ln = model.ln_unconstrained();
-    for c in &model.constraints {
-        let t = &model.tables[c.table];
-        ln += (t.allowed as f64 / t.size as f64).ln();
-    }
-    if model.contradiction.is_some() {
-        return f64::NEG_INFINITY;
-    }
-    let per_unit = ln / model.formula_units;
-    // Sums of logarithms that cancel exactly (ln 4 + ln 1/4 for dimers) leave rounding noise.
-    if per_unit.abs() < 1e-12 {
-        0.0
-    } else {
-        per_unit
-    }
-}
-
-/// The model of a periodic cube just large enough that no constraint reads a variable
-/// twice (3 cells per axis, more for long shifts, at most 9), on which local estimates of
-/// the infinite crystal are evaluated.
-pub fn tree_free_model(crystal: &Crystal) -> Result<Model> {
-    let mut n = (2 * crystal.reach() + 1).max(3) as usize;
-    loop {
-        let cluster = Cluster::new(crystal, Cells::cube(n, crystal.dimensions))?;
-        let model = Model::new(&cluster)?;
-        if !model.has_repeats || n >= 9 {
-            return Ok(model);
-        }
-        n += 2;
-    }
-}
-
-/// Pauling's estimate for the infinite crystal.
-pub fn estimate(crystal: &Crystal) -> Result<Estimate> {
+/// Pauling's estimate for the infinite crystal. Takes no settings; the context is not
+/// watched (the sum takes milliseconds).
+///
+/// ```
+/// use groundcount::{Lattice, counters::{pauling, Context}};
+/// let ice = Lattice::from_yaml(groundcount::ICE_IH_YAML, "ice-ih.yaml").unwrap();
+/// let p = pauling::count(&ice.crystal, &(), &Context::new()).unwrap();
+/// assert!((p.estimate.w_per_unit() - 1.5).abs() < 1e-12); // Pauling 1935
+/// ```
+pub fn count(crystal: &Crystal, _config: &(), _context: &Context) -> Result<Counted<()>> {
     let start = Instant::now();
     let model = tree_free_model(crystal)?;
-    Ok(infinite_crystal(
+    Ok(Counted::plain(Estimate::infinite(
         Method::Pauling,
-        crystal,
-        for_model(&model),
-        start,
-    ))
-}
-
-/// A local estimate of the infinite crystal (no count, no error bar) from ln W per formula
-/// unit, reported per unit cell of the crystal.
-pub fn infinite_crystal(method: Method, crystal: &Crystal, ln_w: f64, start: Instant) -> Estimate {
-    let units = crystal.formula_unit.per_cell(crystal);
-    Estimate {
-        method,
-        cells: None,
-        count: None,
-        ln_count: ln_w * units,
-        formula_units: units,
-        ln_w_per_unit: ln_w,
-        sigma_ln_w: None,
-        seconds: start.elapsed().as_secs_f64(),
-        peak_states: None,
-    }
-}
-
-/// Why a local estimate (Pauling's, or the Bethe approximation) is not a meaningful value of
-/// W for the rule it was computed for. Derived from the numbers, never from the rule's kind.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
-#[serde(tag = "kind", rename_all = "kebab-case")]
-#[non_exhaustive]
-pub enum Caveat {
-    /// 0 < W < 1 per formula unit, i.e. S0 < 0: impossible for a count, which is 0 or at
-    /// least 1 in every cell, so that W per formula unit is 0 or at least 1.
-    BelowOne {
-        /// The estimate's W per formula unit.
-        w_per_unit: f64,
-    },
-}
-
-impl Caveat {
-    /// The reason in words (no command-line terms).
-    pub fn explain(&self, unit: &str) -> String {
-        match self {
-            Caveat::BelowOne { w_per_unit } => format!(
-                "W = {w_per_unit:.6} per {unit} is below 1 (S0 < 0): the independent-constraint \
-                 product is not meaningful for this rule, since a count of arrangements is 0 or \
-                 at least 1 and W per {unit} therefore 0 or at least 1"
-            ),
-        }
-    }
-}
-
-/// Whether a local estimate is not meaningful, and why (`None`: nothing against it). A
-/// tolerance of 1e-9 in ln W keeps rounding noise of an exact 1 from raising it.
-pub fn caveat(e: &Estimate) -> Option<Caveat> {
-    let ln = e.ln_w_per_unit;
-    (ln.is_finite() && ln < -1e-9).then(|| Caveat::BelowOne {
-        w_per_unit: ln.exp(),
-    })
+        pauling_ln_w(&model),
+        None,
+        start.elapsed().as_secs_f64(),
+    )))
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
     use crate::Lattice;
+    use crate::counters::local::{Caveat, caveat};
+
+    fn estimate(c: &Crystal) -> Result<Estimate> {
+        count(c, &(), &Context::new()).map(|c| c.estimate)
+    }
 
     fn lattice(name: &str) -> Lattice {
         let path = format!("{}/lattices/{name}", env!("CARGO_MANIFEST_DIR"));

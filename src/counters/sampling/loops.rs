@@ -84,7 +84,12 @@ fn orientation(table: &crate::model::Table) -> Option<u32> {
 impl Loops {
     /// The loop structure of a model, or `None` when loop moves do not apply to it.
     pub fn new(model: &Model) -> Option<Loops> {
-        if model.variables.iter().any(|v| v.states != 2) || model.constraints.is_empty() {
+        if model
+            .variables
+            .iter()
+            .any(|v| v.states != 2 && v.held.is_none())
+            || model.constraints.is_empty()
+        {
             return None;
         }
         let table_orientation: Vec<Option<u32>> = model.tables.iter().map(orientation).collect();

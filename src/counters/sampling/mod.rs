@@ -19,7 +19,7 @@
 //! # Method
 //!
 //! The integral is taken over β on [0, β_max] by Simpson's rule on equally spaced nodes
-//! ([`integrate`] says why not in t = e^{−β}); the node β = 0 needs no sampling, since there
+//! (`integrate.rs` says why not in t = e^{−β}); the node β = 0 needs no sampling, since there
 //! ⟨E⟩ = E_ref exactly. Beyond β_max the reference part is analytic,
 //! ∫_{β_max}^∞ e_ref dβ = ln(p + (1 − p) e^{−β_max}) − ln p, and ∫_{β_max}^∞ ⟨E⟩ dβ lies
 //! between 0 and ⟨E⟩(β_max) when ⟨E⟩ ∝ e^{−kβ} with k ≥ 1 (every violation costs at least
@@ -45,7 +45,7 @@
 //!
 //! Settings that cannot give an honest number are refused up front: nodes further apart
 //! than [`MAX_NODE_SPACING`] in β, and runs that would hold more than [`MAX_MEMORY`].
-//! Once the configuration's interrupt is raised no replica starts; the finished ones give
+//! Once the context's interrupt is raised no replica starts; the finished ones give
 //! the estimate ([`Sampled::interrupted`]).
 //!
 //! Thermodynamic integration for the residual entropy of ice: Kolafa 2014, J. Chem. Phys.
@@ -60,9 +60,10 @@
 //!
 //! # Arguments and returns
 //!
-//! [`sample`] takes a model and a [`SampleConfig`] and returns [`Sampled`]: an
-//! [`Estimate`] (method [`Method::MonteCarlo`], `sigma_ln_w` set) and the pieces of the
-//! error, the integrand and diagnostics.
+//! [`count`] takes a model, a [`SampleConfig`] and the [`Context`] (interrupt; a deadline
+//! past which no repetition starts; an observer told every finished replica) and returns
+//! an [`Estimate`] (method [`Method::MonteCarlo`], `sigma_ln_w` set) with [`Sampled`]
+//! beside it: the pieces of the error, the integrand and diagnostics.
 //! [`Plan`] is the same run taken apart (compile once, run any range of replica indices,
 //! combine), which [`shard`] uses to split a run over machines; [`size`] extrapolates
 //! several cells to the infinite crystal; [`wang_landau`] is the independent second method.
@@ -73,7 +74,7 @@
 //! q_v states in d_v constraints; memory O(threads · (variables + constraints)) plus the
 //! shared tables.
 
-pub mod integrate;
+pub(crate) mod integrate;
 pub mod loops;
 pub mod moves;
 pub mod shard;
@@ -84,7 +85,8 @@ use std::time::Instant;
 
 use rayon::prelude::*;
 
-use crate::context::Interrupt;
+use super::{Context, Counted};
+use crate::context::Progress;
 use crate::error::{Error, Result};
 use crate::estimate::{Estimate, Method};
 use crate::model::Model;
@@ -114,12 +116,10 @@ pub struct SampleConfig {
     /// Most replicas a `target_error` run may use.
     pub max_replicas: usize,
     /// How many times the run may be repeated with twice the sweeps and equilibration
-    /// when the equilibration check fails (0: never; the check is still reported).
+    /// when the equilibration check fails (0: never; the check is still reported). No
+    /// repetition starts that would, at the pace of the run before it, end after the
+    /// context's deadline.
     pub max_extensions: usize,
-    /// No repetition starts that would, at the pace of the run before it, end after this.
-    pub deadline: Option<Instant>,
-    /// Start no further replica once raised.
-    pub interrupt: Interrupt,
 }
 
 impl Default for SampleConfig {
@@ -135,18 +135,15 @@ impl Default for SampleConfig {
             target_error: None,
             max_replicas: 1024,
             max_extensions: 3,
-            deadline: None,
-            interrupt: Interrupt::default(),
         }
     }
 }
 
-/// A Monte Carlo estimate with its error budget and diagnostics.
+/// What a Monte Carlo estimate has beside it: its error budget and diagnostics. The
+/// estimate's `sigma_ln_w` is the root sum of squares of the statistical, quadrature, tail
+/// and equilibration parts.
 #[derive(Clone, Debug)]
 pub struct Sampled {
-    /// The estimate; `sigma_ln_w` is the root sum of squares of the statistical,
-    /// quadrature, tail and equilibration parts.
-    pub estimate: Estimate,
     /// Standard error of the replica mean of ln W per formula unit, widened for the number
     /// of replicas ([`student_factor`]).
     pub sigma_statistical: f64,
@@ -339,19 +336,28 @@ pub fn stream(seed: u64, r: usize) -> rand_pcg::Pcg64Mcg {
 }
 
 /// Count a model by thermodynamic integration.
-pub fn sample(model: &Model, config: &SampleConfig) -> Result<Sampled> {
-    sample_with(model, config, &|| {})
-}
-
-/// [`sample`], calling `on_replica` whenever a replica finishes (for progress reports).
 ///
 /// When the equilibration check fails, the whole run is repeated with twice the sweeps
-/// and twice the equilibration, up to `max_extensions` times; the result says how often.
-pub fn sample_with(
-    model: &Model,
-    config: &SampleConfig,
-    on_replica: &(dyn Fn() + Sync),
-) -> Result<Sampled> {
+/// and twice the equilibration, up to `max_extensions` times (never past the context's
+/// deadline); the result says how often. Once the context's interrupt is raised no
+/// replica starts, and the finished ones make the estimate ([`Sampled::interrupted`]), or
+/// [`Error::Interrupted`] when fewer than two finished. The observer is told every
+/// finished replica ([`Progress::Replica`]).
+///
+/// ```
+/// use groundcount::{Lattice, cluster::{Cells, Cluster}, counters::{sampling, Context}, model::Model};
+/// let ice = Lattice::from_yaml(groundcount::ICE_IH_YAML, "ice-ih.yaml").unwrap();
+/// let cluster = Cluster::new(&ice.crystal, Cells::periodic(&[2, 1, 1]).unwrap()).unwrap();
+/// let model = Model::new(&cluster).unwrap();
+/// let config = sampling::SampleConfig { replicas: 4, sweeps: 20, ..Default::default() };
+/// let s = sampling::count(&model, &config, &Context::new()).unwrap();
+/// // The exact count of this cell is 114 arrangements of 8 waters.
+/// let exact = 114f64.ln() / 8.0;
+/// let e = &s.estimate;
+/// assert!((e.ln_w_per_unit - exact).abs() < 5.0 * e.sigma_ln_w.unwrap());
+/// assert_eq!(s.replicas, 4);
+/// ```
+pub fn count(model: &Model, config: &SampleConfig, context: &Context) -> Result<Counted<Sampled>> {
     let start = Instant::now();
     let mut config = config.clone();
     let mut extensions = 0;
@@ -359,17 +365,17 @@ pub fn sample_with(
     loop {
         let attempt = Instant::now();
         let plan = Plan::new(model, &config)?;
-        let mut runs = plan.run(0..config.replicas, on_replica);
+        let mut runs = plan.run(0..config.replicas, context);
         if let Some(target) = config.target_error {
-            while !config.interrupt.raised()
+            while !context.interrupt.raised()
                 && plan.combine(&runs).total() > target
                 && runs.len() + config.replicas <= config.max_replicas
             {
                 let from = runs.len();
-                runs.extend(plan.run(from..from + config.replicas, on_replica));
+                runs.extend(plan.run(from..from + config.replicas, context));
             }
         }
-        let interrupted = config.interrupt.raised();
+        let interrupted = context.interrupt.raised();
         if runs.len() < 2 {
             return Err(Error::Interrupted {
                 what: format!(
@@ -381,7 +387,7 @@ pub fn sample_with(
         }
         updates = updates.saturating_add(plan.updates(runs.len()));
         // A repetition takes about twice as long as this attempt.
-        let late = config
+        let late = context
             .deadline
             .is_some_and(|d| Instant::now() + 2 * attempt.elapsed() > d);
         let done = interrupted
@@ -456,8 +462,8 @@ impl<'m> Plan<'m> {
             return Err(Error::Setting(format!(
                 "{} quadrature nodes up to β = {} would lie {} apart, but the mean number of violated constraints changes on a scale of 1 in β (each costs 1 in βE), and nodes further apart than {MAX_NODE_SPACING} can step over that change entirely and return Pauling's value with no error bar; with {} nodes the largest β can be at most {}{}",
                 config.nodes,
-                crate::report::sig(beta_max, 4),
-                crate::report::sig(spacing, 3),
+                crate::text::sig(beta_max, 4),
+                crate::text::sig(spacing, 3),
                 config.nodes,
                 MAX_NODE_SPACING * (config.nodes - 1) as f64,
                 smallest_nodes(beta_max)
@@ -535,14 +541,10 @@ impl<'m> Plan<'m> {
     }
 
     /// Run the replicas `replicas` in parallel (in the caller's rayon pool), in index order.
-    /// Once the configuration's interrupt is raised no further replica starts; the replicas
-    /// that finished are returned (in index order).
-    pub fn run(
-        &self,
-        replicas: std::ops::Range<usize>,
-        on_replica: &(dyn Fn() + Sync),
-    ) -> Vec<Run> {
-        let interrupt = &self.config.interrupt;
+    /// Once the context's interrupt is raised no further replica starts; the replicas that
+    /// finished are returned (in index order). The observer is told every finished replica.
+    pub fn run(&self, replicas: std::ops::Range<usize>, context: &Context) -> Vec<Run> {
+        let interrupt = &context.interrupt;
         let runs: Vec<Option<Run>> = replicas
             .into_par_iter()
             .with_max_len(1)
@@ -559,7 +561,7 @@ impl<'m> Plan<'m> {
                     self.reference[0],
                     r,
                 );
-                on_replica();
+                context.tell(Progress::Replica);
                 Some(run)
             })
             .collect();
@@ -632,7 +634,7 @@ impl<'m> Plan<'m> {
 
     /// The estimate from the replicas run (at least 2, in replica order), which took
     /// `seconds` of wall time.
-    pub fn finish(&self, runs: &[Run], seconds: f64) -> Sampled {
+    pub fn finish(&self, runs: &[Run], seconds: f64) -> Counted<Sampled> {
         let config = &self.config;
         let c = self.combine(runs);
         let target_reached = config.target_error.map(|t| c.total() <= t);
@@ -661,18 +663,15 @@ impl<'m> Plan<'m> {
             .saturating_mul(sampled_nodes)
             .saturating_mul(config.sweeps as u64);
         let attempted: u64 = runs.iter().map(|r| r.attempted).sum();
-        Sampled {
-            estimate: Estimate {
-                method: Method::MonteCarlo,
-                cells: Some(self.model.cells.clone()),
-                count: None,
-                ln_count: ln_w * units,
-                formula_units: units,
-                ln_w_per_unit: ln_w,
-                sigma_ln_w: Some(sigma),
-                seconds,
-                peak_states: None,
-            },
+        let estimate = Estimate::finite(
+            Method::MonteCarlo,
+            self.model.cells.clone(),
+            units,
+            ln_w,
+            Some(sigma),
+            seconds,
+        );
+        let details = Sampled {
             sigma_statistical,
             sigma_quadrature,
             sigma_tail,
@@ -700,7 +699,8 @@ impl<'m> Plan<'m> {
             } else {
                 runs.iter().map(|r| r.flipped).sum::<u64>() as f64 / attempted.max(1) as f64
             },
-        }
+        };
+        Counted::new(estimate, details)
     }
 }
 
@@ -719,7 +719,7 @@ fn smallest_nodes(beta_max: f64) -> String {
     if intervals <= 1000.0 {
         format!(
             ", and β = {} needs at least {} nodes",
-            crate::report::sig(beta_max, 4),
+            crate::text::sig(beta_max, 4),
             intervals as u64 + 1
         )
     } else {
@@ -729,7 +729,7 @@ fn smallest_nodes(beta_max: f64) -> String {
 
 /// Bytes a run of `replicas` replicas with `nodes` nodes plans to hold: the replica results
 /// (two energies per node), one chain per worker thread and the compiled tables.
-pub fn memory_estimate(model: &Model, nodes: usize, replicas: usize) -> u64 {
+pub(crate) fn memory_estimate(model: &Model, nodes: usize, replicas: usize) -> u64 {
     let per_run = std::mem::size_of::<Run>() as u64 + 16 * nodes as u64;
     let touches: u64 = model.constraints.iter().map(|c| c.scope.len() as u64).sum();
     let tables: u64 = model.tables.iter().map(|t| t.bits.len() as u64 * 8).sum();
@@ -753,7 +753,7 @@ pub(crate) fn bytes_in_words(b: u64) -> String {
 
 /// The default largest β for a model with `constraints` constraints: ln(constraints) + 3,
 /// clamped to [5, 14], so that a handful of violations remain there.
-pub fn default_beta_max(constraints: usize) -> f64 {
+pub(crate) fn default_beta_max(constraints: usize) -> f64 {
     ((constraints.max(1) as f64).ln() + 3.0).clamp(5.0, 14.0)
 }
 

@@ -211,7 +211,7 @@ impl Chain {
     }
 
     /// Give variable `v` value `x`, whose energy change `de` is known ([`Chain::delta`]).
-    pub fn assign(&mut self, k: &Kernel, v: usize, x: u8, de: i32) {
+    pub(crate) fn assign(&mut self, k: &Kernel, v: usize, x: u8, de: i32) {
         let now = self.values[v] as i64;
         for &(c, s) in k.touches(v) {
             let i = &mut self.index[c as usize];
@@ -222,7 +222,7 @@ impl Chain {
     }
 
     /// Draw a fresh uniformly random assignment (from the chain's own stream).
-    pub fn randomise(&mut self, k: &Kernel) {
+    pub(crate) fn randomise(&mut self, k: &Kernel) {
         for v in 0..k.variables() {
             self.values[v] = (self.rng.next_u64() % k.states[v] as u64) as u8;
         }
@@ -230,7 +230,7 @@ impl Chain {
     }
 
     /// Rebuild the indices and the energy from the values.
-    pub fn recompute(&mut self, k: &Kernel) {
+    pub(crate) fn recompute(&mut self, k: &Kernel) {
         self.index
             .iter_mut()
             .zip(&k.table_offset)

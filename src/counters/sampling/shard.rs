@@ -36,6 +36,7 @@ use serde::{Deserialize, Serialize};
 use super::{Plan, Run, SampleConfig, Sampled};
 use crate::Lattice;
 use crate::cluster::{Cells, Cluster};
+use crate::counters::{Context, Counted};
 use crate::error::{Error, Result};
 use crate::model::Model;
 
@@ -70,6 +71,11 @@ pub struct Settings {
 /// One shard of a split run, as written to its file.
 #[derive(Clone, Debug, Serialize, Deserialize)]
 pub struct Shard {
+    /// The JSON schema version ([`crate::json::SCHEMA_VERSION`]), the first key as in every
+    /// document groundcount writes; absent in files written before it (their checksum does
+    /// not cover it), which are read as before.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub schema_version: Option<u32>,
     /// [`FORMAT`].
     pub format: String,
     /// groundcount version that ran the shard.
@@ -82,7 +88,7 @@ pub struct Shard {
     pub content_hash: String,
     /// The lattice file's text.
     pub lattice_text: String,
-    /// The periodic cell, e.g. `8x8x8` (as `--cells` takes it).
+    /// The periodic cell, e.g. `8x8x8` (the cell notation of [`crate::cluster::Cells::parse`]).
     pub cells: String,
     /// Settings shared by every shard.
     pub settings: Settings,
@@ -200,8 +206,6 @@ fn config_of(settings: &Settings) -> SampleConfig {
         target_error: None,
         max_replicas: settings.replicas_per_shard,
         max_extensions: 0,
-        deadline: None,
-        interrupt: Default::default(),
     }
 }
 
@@ -214,8 +218,8 @@ pub fn run_shard(
     model: &Model,
     config: &SampleConfig,
     (shard, shards): (usize, usize),
-    on_replica: &(dyn Fn() + Sync),
-) -> Result<(Shard, Sampled)> {
+    context: &Context,
+) -> Result<(Shard, Counted<Sampled>)> {
     if shards == 0 || shard == 0 || shard > shards {
         return Err(Error::Setting(format!(
             "a shard is K/N with 1 ≤ K ≤ N, not {shard}/{shards}"
@@ -223,7 +227,7 @@ pub fn run_shard(
     }
     if config.target_error.is_some() {
         return Err(Error::Setting(
-            "a shard runs a fixed number of replicas: give --replicas, not --target-error".into(),
+            "a shard runs a fixed number of replicas: set `replicas`, not `target_error`".into(),
         ));
     }
     if cells.periodic[..cells.dimensions].iter().any(|p| !p) {
@@ -243,7 +247,7 @@ pub fn run_shard(
         ..config.clone()
     };
     let plan = Plan::new(model, &config)?;
-    let runs = plan.run(range.clone(), on_replica);
+    let runs = plan.run(range.clone(), context);
     if runs.len() < range.len() {
         return Err(Error::Interrupted {
             what: format!(
@@ -264,6 +268,7 @@ pub fn run_shard(
         loops: config.loops,
     };
     let out = Shard {
+        schema_version: Some(crate::json::SCHEMA_VERSION),
         format: FORMAT.into(),
         version: env!("CARGO_PKG_VERSION").into(),
         method: METHOD.into(),
@@ -294,7 +299,7 @@ pub struct Merged {
     /// The model of the cell.
     pub model: Model,
     /// The combined estimate (replicas of every shard, in replica order).
-    pub sampled: Sampled,
+    pub sampled: Counted<Sampled>,
     /// The settings of the run.
     pub settings: Settings,
     /// The shard indices merged, sorted.
@@ -460,6 +465,7 @@ mod tests {
     fn shard_with(energies: Vec<Vec<f64>>, seconds: f64, beta_max: f64) -> Shard {
         let nodes = energies.first().map_or(0, Vec::len);
         Shard {
+            schema_version: Some(crate::json::SCHEMA_VERSION),
             format: FORMAT.into(),
             version: "test".into(),
             method: METHOD.into(),
@@ -494,7 +500,24 @@ mod tests {
         }
     }
 
-    /// Issue 11, item 9: untouched shard files were refused as damaged for most `--sweeps`
+    /// Issue 12: a shard file starts with `schema_version` like every document; a file
+    /// written before it had none, and still reads (its checksum never covered the key).
+    #[test]
+    fn issue12_shard_files_carry_the_schema_version_and_old_ones_still_read() {
+        let s = shard_with(vec![vec![1.0, 0.5, 0.25]], 1.0, 2.0);
+        let text = s.to_json();
+        assert!(text.starts_with("{\n  \"schema_version\": 1,"), "{text}");
+        let back = Shard::from_json(&text, Path::new("new.json")).unwrap();
+        assert_eq!(back.schema_version, Some(1));
+        let mut old = s.clone();
+        old.schema_version = None;
+        let text = old.to_json();
+        assert!(!text.contains("schema_version"));
+        let back = Shard::from_json(&text, Path::new("old.json")).unwrap();
+        assert_eq!(back.schema_version, None);
+    }
+
+    /// Issue 11, item 9: untouched shard files were refused as damaged for most sweep
     /// values, because a mean energy such as 123/41 did not read back bit for bit and the
     /// checksum failed. Every ratio k/s for s up to 2000 and a spread of k, and floats of
     /// every magnitude, must read back exactly and pass the checksum.

@@ -29,12 +29,38 @@
 //! form on the same cells is reported beside it ([`SizeFit::alternative`]) to show how much
 //! the form matters.
 //!
+//! # Arguments and returns
+//!
+//! [`count`], the counter's entry point, takes the sampled cells' estimates and returns the
+//! infinite-crystal [`Estimate`] with the [`SizeFit`] beside it; [`extrapolate`] fits given
+//! points.
+//!
 //! # Complexity
 //!
 //! O(cells), a 3×3 solve.
 
+use crate::counters::{Context, Counted};
 use crate::error::{Error, Result};
 use crate::estimate::{Estimate, Method};
+
+/// Extrapolate Monte Carlo estimates of periodic cells (smallest first or in any order) to
+/// the infinite crystal: the fit of [`extrapolate`] on their formula units, values and σ,
+/// and s∞ as an [`Estimate`] of the infinite crystal whose time is that of the cells. Takes
+/// no settings; the context is not watched (a 3×3 solve).
+pub fn count(cells: &[Estimate], _config: &(), _context: &Context) -> Result<Counted<SizeFit>> {
+    let points: Vec<SizePoint> = cells
+        .iter()
+        .map(|e| SizePoint {
+            units: e.formula_units,
+            value: e.ln_w_per_unit,
+            sigma: e.sigma_ln_w.unwrap_or(0.0),
+        })
+        .collect();
+    let fit = extrapolate(&points)?;
+    let seconds = cells.iter().map(|e| e.seconds).sum();
+    let estimate = Estimate::infinite(Method::MonteCarlo, fit.value, Some(fit.sigma), seconds);
+    Ok(Counted::new(estimate, fit))
+}
 
 /// One cell's value: formula units N, ln W per formula unit and its 1σ.
 #[derive(Clone, Copy, Debug)]
@@ -86,22 +112,6 @@ impl SizeFit {
             "s(N) = s∞ + a/N"
         } else {
             "s(N) = s∞ + a/N + b ln N/N"
-        }
-    }
-
-    /// s∞ as a Monte Carlo estimate of the infinite crystal; `seconds` is the time of the
-    /// cells behind it.
-    pub fn estimate(&self, seconds: f64) -> Estimate {
-        Estimate {
-            method: Method::MonteCarlo,
-            cells: None,
-            count: None,
-            ln_count: self.value,
-            formula_units: 1.0,
-            ln_w_per_unit: self.value,
-            sigma_ln_w: Some(self.sigma),
-            seconds,
-            peak_states: None,
         }
     }
 }

@@ -59,6 +59,8 @@ use rayon::prelude::*;
 
 use super::moves::{Chain, Kernel};
 use super::stream;
+use crate::context::Progress;
+use crate::counters::{Context, Counted};
 use crate::error::{Error, Result};
 use crate::estimate::{Estimate, Method};
 use crate::model::Model;
@@ -75,8 +77,6 @@ pub struct WangLandauConfig {
     pub sweeps: u64,
     /// Uniform random assignments per replica that estimate the window fraction F.
     pub uniform: usize,
-    /// Start no further walk once raised.
-    pub interrupt: crate::context::Interrupt,
 }
 
 impl Default for WangLandauConfig {
@@ -86,17 +86,15 @@ impl Default for WangLandauConfig {
             replicas: 8,
             sweeps: 100_000,
             uniform: 20_000,
-            interrupt: Default::default(),
         }
     }
 }
 
-/// A Wang–Landau estimate with diagnostics.
+/// What a Wang–Landau estimate has beside it: its diagnostics. The estimate's `sigma_ln_w`
+/// is the standard error of the replica mean, widened for the number of walks
+/// ([`super::student_factor`]).
 #[derive(Clone, Debug)]
 pub struct WangLandau {
-    /// The estimate; `sigma_ln_w` is the standard error of the replica mean, widened for the
-    /// number of walks ([`super::student_factor`]).
-    pub estimate: Estimate,
     /// The seed used.
     pub seed: u64,
     /// Replicas run.
@@ -119,17 +117,15 @@ pub struct WangLandau {
 /// Salt that separates these streams from the thermodynamic integration's.
 const SALT: u64 = 0x57A9_6C3B_1D4E_8F01;
 
-/// Count a model by Wang–Landau sampling.
-pub fn wang_landau(model: &Model, config: &WangLandauConfig) -> Result<WangLandau> {
-    wang_landau_with(model, config, &|| {})
-}
-
-/// [`wang_landau`], calling `on_replica` whenever a walk finishes (for progress reports).
-pub fn wang_landau_with(
+/// Count a model by Wang–Landau sampling. Once the context's interrupt is raised no walk
+/// starts, and the finished ones make the estimate ([`WangLandau::interrupted`]), or
+/// [`Error::Interrupted`] when fewer than two finished; the observer is told every
+/// finished walk ([`Progress::Replica`]).
+pub fn count(
     model: &Model,
     config: &WangLandauConfig,
-    on_replica: &(dyn Fn() + Sync),
-) -> Result<WangLandau> {
+    context: &Context,
+) -> Result<Counted<WangLandau>> {
     let start = Instant::now();
     if config.replicas < 2 {
         return Err(Error::Model(
@@ -176,11 +172,11 @@ pub fn wang_landau_with(
         .into_par_iter()
         .with_max_len(1)
         .map(|r| {
-            if config.interrupt.raised() {
+            if context.interrupt.raised() {
                 return None;
             }
             let w = walk(&kernel, config, window, r, &model.cells);
-            on_replica();
+            context.tell(Progress::Replica);
             Some(w)
         })
         .collect();
@@ -204,18 +200,15 @@ pub fn wang_landau_with(
     let mean = per_replica.iter().sum::<f64>() / r;
     let var = per_replica.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (r - 1.0);
     let levels = runs.iter().map(|w| w.levels).min().unwrap_or(0);
-    Ok(WangLandau {
-        estimate: Estimate {
-            method: Method::MonteCarlo,
-            cells: Some(model.cells.clone()),
-            count: None,
-            ln_count: mean * units,
-            formula_units: units,
-            ln_w_per_unit: mean,
-            sigma_ln_w: Some((var / r).sqrt() * super::student_factor(runs.len())),
-            seconds: start.elapsed().as_secs_f64(),
-            peak_states: None,
-        },
+    let estimate = Estimate::finite(
+        Method::MonteCarlo,
+        model.cells.clone(),
+        units,
+        mean,
+        Some((var / r).sqrt() * super::student_factor(runs.len())),
+        start.elapsed().as_secs_f64(),
+    );
+    let details = WangLandau {
         seed: config.seed,
         replicas: runs.len(),
         sweeps: config.sweeps,
@@ -224,7 +217,8 @@ pub fn wang_landau_with(
         per_replica,
         levels,
         interrupted,
-    })
+    };
+    Ok(Counted::new(estimate, details))
 }
 
 /// What one walk gives.

@@ -438,9 +438,4 @@ impl Column {
     pub fn transitions(&self) -> usize {
         self.rows.iter().map(Rows::transitions).sum()
     }
-
-    /// Formula units per column.
-    pub fn units_per_column(&self) -> f64 {
-        self.units_per_column
-    }
 }

@@ -134,11 +134,14 @@ impl<'a> Finder<'a> {
             return Ok(r);
         }
         if let Some(why) = &self.broken {
-            return Err(Error::Model(format!(
-                "the charge sector of the largest eigenvalue of a strip {width} cells wide \
-                 cannot be established: {why}, and the full space at this width is beyond \
-                 the {FULL_CHECK_STATES} states allowed for it; use every state (--sectors full)"
-            )));
+            return Err(Error::Sector {
+                width,
+                why: format!(
+                    "the charge sector of the largest eigenvalue of a strip {width} cells wide \
+                     cannot be established: {why}, and the full space at this width is beyond \
+                     the {FULL_CHECK_STATES} states allowed for it"
+                ),
+            });
         }
         if self.checked.len() < MIN_CHECKED {
             self.calibrate(width)?;
@@ -155,13 +158,16 @@ impl<'a> Finder<'a> {
         };
         let r = self.search(layout, width, &starts)?;
         if must_check && matches!(r.basis, SectorBasis::Predicted { .. }) {
-            return Err(Error::Model(format!(
-                "the charge sector of the largest eigenvalue of a strip {width} cells wide \
-                 cannot be established: its full space is beyond the {FULL_CHECK_STATES} \
-                 boundary states allowed for a check, its neighbouring charges beyond \
-                 {NEIGHBOUR_STATES} states, and fewer than {MIN_CHECKED} smaller widths were \
-                 checked; use every state (--sectors full)"
-            )));
+            return Err(Error::Sector {
+                width,
+                why: format!(
+                    "the charge sector of the largest eigenvalue of a strip {width} cells wide \
+                     cannot be established: its full space is beyond the {FULL_CHECK_STATES} \
+                     boundary states allowed for a check, its neighbouring charges beyond \
+                     {NEIGHBOUR_STATES} states, and fewer than {MIN_CHECKED} smaller widths \
+                     were checked"
+                ),
+            });
         }
         Ok(r)
     }
@@ -259,11 +265,14 @@ impl<'a> Finder<'a> {
             }
         }
         let Some((mut q, mut best)) = best else {
-            return Err(Error::Model(format!(
-                "no charge sector near the predicted charge {} of a strip {width} cells \
-                 wide has an arrangement of unbounded length; use every state (--sectors full)",
-                starts.first().copied().unwrap_or(0)
-            )));
+            return Err(Error::Sector {
+                width,
+                why: format!(
+                    "no charge sector near the predicted charge {} of a strip {width} cells \
+                 wide has an arrangement of unbounded length",
+                    starts.first().copied().unwrap_or(0)
+                ),
+            });
         };
         // Neighbours: climb while one is larger; a side that cannot be computed leaves the
         // width unchecked.

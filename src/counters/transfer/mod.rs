@@ -113,7 +113,7 @@ mod filters;
 mod geometry;
 mod krylov;
 mod rows;
-pub mod sector;
+pub(crate) mod sector;
 mod series;
 mod symmetry;
 pub mod torus;
@@ -121,10 +121,9 @@ pub mod torus;
 use std::time::Instant;
 
 pub use column::Column;
-pub use eigen::memory_estimate;
-pub use series::{
-    Need, Runner, Stopped, StripRun, StripSeries, from_widths, run, series, series_with, strip,
-};
+pub(crate) use eigen::memory_estimate;
+pub(crate) use series::Runner;
+pub use series::{Need, Stopped, StripRun, StripSeries, count, from_widths, run, strip};
 
 /// Options of a strip computation.
 #[derive(Clone, Debug)]
@@ -142,12 +141,36 @@ pub struct StripConfig {
     pub tolerance: f64,
     /// Iteration cap.
     pub max_iterations: usize,
-    /// Stop with [`Error::Deadline`] after this instant.
+    /// Filled from the [`crate::context::Context`] by [`count`] and [`run`] (whatever is
+    /// set here is replaced): stop with [`Error::Deadline`] after this instant.
+    #[doc(hidden)]
     pub deadline: Option<Instant>,
     /// Which states the operator acts on: one charge sector or all.
     pub sectors: Sectors,
-    /// Stop with [`Error::Interrupted`] once raised.
+    /// Filled from the [`crate::context::Context`] by [`count`] and [`run`]: stop with
+    /// [`Error::Interrupted`] once raised.
+    #[doc(hidden)]
     pub interrupt: crate::context::Interrupt,
+    /// The widths [`count`] and [`run`] compute, in this order.
+    pub widths: Vec<usize>,
+    /// The spacing of the widths used for the extrapolation (e.g. 3 for a three-sublattice
+    /// structure, the families' period); `None` chooses it from the values.
+    pub step: Option<usize>,
+    /// How the values approach their limit ([`Scaling::Auto`] decides from the last
+    /// differences).
+    pub scaling: crate::counters::extrapolate::Scaling,
+}
+
+impl StripConfig {
+    /// The same settings with the context's deadline and interrupt, which the operator
+    /// watches.
+    pub(crate) fn with_context(&self, context: &crate::context::Context) -> StripConfig {
+        StripConfig {
+            deadline: context.deadline,
+            interrupt: context.interrupt.clone(),
+            ..self.clone()
+        }
+    }
 }
 
 /// The state space of the operator when the rule conserves a charge across the column
@@ -176,6 +199,9 @@ impl Default for StripConfig {
             deadline: None,
             sectors: Sectors::Largest,
             interrupt: Default::default(),
+            widths: (2..=12).collect(),
+            step: None,
+            scaling: crate::counters::extrapolate::Scaling::Auto,
         }
     }
 }

@@ -4,12 +4,12 @@
 //!
 //! # What it computes
 //!
-//! [`run`] computes the widths in the order given and never loses a finished one: a width
-//! that exceeds the state budget or the deadline, that does not converge, or that is
-//! interrupted ends the run ([`Stopped`], with a rough [`Need`] of states, memory and time
-//! for that width from the growth of the finished ones) and the widths done are
-//! extrapolated when there are enough of them. [`series`] is the same for callers that want
-//! every width or an error.
+//! [`run`] computes the widths of the [`StripConfig`] in the order given and never loses a
+//! finished one: a width that exceeds the state budget or the deadline, that does not
+//! converge, or that is interrupted ends the run ([`Stopped`], with a rough [`Need`] of
+//! states, memory and time for that width from the growth of the finished ones) and the
+//! widths done are extrapolated when there are enough of them. [`count`], the counter's
+//! entry point, is the same for callers that want every width or an error.
 //!
 //! # Cross-checks
 //!
@@ -32,8 +32,9 @@ use num_bigint::BigUint;
 use super::dominant::Finder;
 use super::{Column, Kept, StripConfig, StripResult};
 use crate::cluster::{Cells, Cluster};
-use crate::counters::exact;
+use crate::context::{Context, Progress};
 use crate::counters::extrapolate::{Extrapolation, Scaling, extrapolate_in};
+use crate::counters::{Counted, exact};
 use crate::crosscheck::{CrossCheck, Route};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
@@ -57,8 +58,6 @@ pub struct StripSeries {
     /// two-dimensional crystal only); a diagnostic that assumes the lattice is isotropic
     /// in its cell coordinates.
     pub central_charge: Option<f64>,
-    /// The extrapolated value as an estimate for the infinite crystal.
-    pub estimate: Estimate,
     /// Every comparison with a second route made while computing the widths (empty when
     /// the series was extrapolated from widths computed elsewhere, [`from_widths`]).
     pub checks: Vec<CrossCheck>,
@@ -112,7 +111,7 @@ pub struct StripRun {
     /// The width that ended the run early, if one did.
     pub stopped: Option<Stopped>,
     /// The extrapolation of the finished widths, when there are enough of them.
-    pub series: Option<StripSeries>,
+    pub series: Option<Counted<StripSeries>>,
     /// Why there is no extrapolation.
     pub no_series: Option<String>,
 }
@@ -126,31 +125,34 @@ pub fn strip(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<St
     Finder::new(crystal, config).width(width)
 }
 
-/// Compute every width and extrapolate; an error if any width fails.
+/// Strips of every width of `config.widths`, extrapolated to the infinite crystal; an error
+/// if any width fails (see [`run`] to keep the widths finished before a failure).
 ///
-/// `step` is the spacing of the widths (`None`: chosen from the values, see
-/// [`from_widths`]); `scaling` says how the values approach their limit
-/// ([`Scaling::Auto`] decides from the last differences).
-pub fn series(
+/// `config.step` is the spacing of the widths (`None`: chosen from the values, see
+/// [`from_widths`]); `config.scaling` says how the values approach their limit
+/// ([`Scaling::Auto`] decides from the last differences). The context's deadline and
+/// interrupt are watched; its observer is told each width ([`Progress::Width`]).
+///
+/// ```
+/// use groundcount::{Lattice, counters::{transfer, Context}};
+/// let square_ice = "name: square ice\ndimensions: 2\ncell: {vectors: [[1.0, 0.0], [0.0, 1.0]]}\n\
+///     sites: [{id: O, at: [0.0, 0.0]}]\n\
+///     bonds: [{id: h, from: O, to: O, shift: [1, 0]}, {id: v, from: O, to: O, shift: [0, 1]}]\n\
+///     variables: [{on: bonds, kind: arrow}]\nrules: [{kind: inward, at: sites, allowed: [2]}]\n\
+///     formula_unit: {name: H2O, per: sites}\n";
+/// let l = Lattice::from_yaml(square_ice, "square-ice.yaml").unwrap();
+/// let config = transfer::StripConfig { widths: (2..=7).collect(), ..Default::default() };
+/// let s = transfer::count(&l.crystal, &config, &Context::new()).unwrap();
+/// // Lieb 1967: W = (4/3)^(3/2) = 1.5396 per H2O
+/// let e = &s.estimate;
+/// assert!((e.w_per_unit() - (4.0f64 / 3.0).powf(1.5)).abs() < 3.0 * e.sigma_w().unwrap());
+/// ```
+pub fn count(
     crystal: &Crystal,
-    widths: &[usize],
-    step: Option<usize>,
-    scaling: Scaling,
     config: &StripConfig,
-) -> Result<StripSeries> {
-    series_with(crystal, widths, step, scaling, config, &|_| {})
-}
-
-/// [`series`], calling `on_width(w)` before each width `w` is computed (for progress).
-pub fn series_with(
-    crystal: &Crystal,
-    widths: &[usize],
-    step: Option<usize>,
-    scaling: Scaling,
-    config: &StripConfig,
-    on_width: &dyn Fn(usize),
-) -> Result<StripSeries> {
-    let out = run(crystal, widths, step, scaling, config, on_width)?;
+    context: &Context,
+) -> Result<Counted<StripSeries>> {
+    let out = run(crystal, config, context)?;
     if let Some(s) = out.stopped {
         return Err(s.error);
     }
@@ -160,22 +162,17 @@ pub fn series_with(
     }
 }
 
-/// Compute the widths in order, keeping every finished one; see the module documentation.
+/// Compute the widths of `config.widths` in order, keeping every finished one; see the
+/// module documentation.
 ///
 /// Errors only when the first width fails for a reason other than a budget, a deadline,
 /// an interrupt or a non-converging iteration (a lattice that has no strip, say).
-pub fn run(
-    crystal: &Crystal,
-    widths: &[usize],
-    step: Option<usize>,
-    scaling: Scaling,
-    config: &StripConfig,
-    on_width: &dyn Fn(usize),
-) -> Result<StripRun> {
+pub fn run(crystal: &Crystal, config: &StripConfig, context: &Context) -> Result<StripRun> {
+    let config = &config.with_context(context);
     let mut runner = Runner::new(crystal, config);
     let mut stopped = None;
-    for &w in widths {
-        on_width(w);
+    for &w in &config.widths {
+        context.tell(Progress::Width { width: w });
         if let Err(e) = runner.width(w) {
             let budget_like = matches!(
                 e,
@@ -187,16 +184,17 @@ pub fn run(
             if runner.results.is_empty() && !budget_like {
                 return Err(e);
             }
-            stopped = Some(runner.stopped(w, step.unwrap_or(1), e));
+            stopped = Some(runner.stopped(w, config.step.unwrap_or(1), e));
             break;
         }
     }
-    Ok(runner.finish(step, scaling, stopped))
+    Ok(runner.finish(config.step, config.scaling, stopped))
 }
 
 /// Widths computed one at a time, sharing what the checked widths established about the
-/// charge sector; [`run`] and the survey's strips use it.
-pub struct Runner<'a> {
+/// charge sector; [`run`] and the survey's strips use it. Its configuration carries the
+/// context's deadline and interrupt ([`StripConfig::with_context`]).
+pub(crate) struct Runner<'a> {
     crystal: &'a Crystal,
     config: &'a StripConfig,
     finder: Finder<'a>,
@@ -274,7 +272,7 @@ impl<'a> Runner<'a> {
         } else {
             match from_widths(self.crystal, results.clone(), step, scaling, self.config) {
                 Ok(mut s) => {
-                    s.checks = checks.clone();
+                    s.details.checks = checks.clone();
                     s.estimate.seconds = self.start.elapsed().as_secs_f64();
                     (Some(s), None)
                 }
@@ -412,11 +410,14 @@ fn torus_pair(
     let model = Model::new(&cluster).ok()?;
     let exact_config = exact::ExactConfig {
         max_states: 1 << 20,
+        ..Default::default()
+    };
+    let context = Context {
+        observer: None,
         deadline: config.deadline,
-        progress: None,
         interrupt: config.interrupt.clone(),
     };
-    let frontier = exact::count(&model, &exact_config).ok()?;
+    let frontier = exact::count(&model, &exact_config, &context).ok()?.estimate;
     let trace: BigUint = column.trace_power(length).ok()?;
     let units = frontier.formula_units;
     if units <= 0.0 {
@@ -449,7 +450,7 @@ pub fn from_widths(
     step: Option<usize>,
     scaling: Scaling,
     config: &StripConfig,
-) -> Result<StripSeries> {
+) -> Result<Counted<StripSeries>> {
     match step {
         Some(step) => extrapolate_widths(crystal, results, step, scaling, config),
         None => choose_step(crystal, results, scaling, config),
@@ -462,7 +463,7 @@ fn choose_step(
     results: Vec<StripResult>,
     scaling: Scaling,
     config: &StripConfig,
-) -> Result<StripSeries> {
+) -> Result<Counted<StripSeries>> {
     // Every width, in families W mod p: when every family is smooth this uses all the
     // information, and a family that disagrees widens the bar (dropping it would not).
     let all = extrapolate_widths(crystal, results.clone(), 1, scaling, config);
@@ -474,7 +475,7 @@ fn choose_step(
     // Otherwise the multiples of 2 and of 3 (a sublattice period makes them one smooth
     // family); the smooth one with the smallest uncertainty, widened where the other
     // smooth candidates disagree beyond their own uncertainty.
-    let mut candidates: Vec<StripSeries> = Vec::new();
+    let mut candidates: Vec<Counted<StripSeries>> = Vec::new();
     for step in 2..=3usize {
         let chosen: Vec<StripResult> = results
             .iter()
@@ -522,7 +523,7 @@ fn extrapolate_widths(
     step: usize,
     scaling: Scaling,
     config: &StripConfig,
-) -> Result<StripSeries> {
+) -> Result<Counted<StripSeries>> {
     let points: Vec<(usize, f64)> = results.iter().map(|r| (r.width, r.ln_w_per_unit)).collect();
     // Open edges add a 1/W term; a cylinder, or a slab of fixed depth, has 1/W²
     // corrections; square sections of a 3D prism approach the bulk as 1/W³ at leading order.
@@ -547,23 +548,21 @@ fn extrapolate_widths(
         let units_per_cell = r.units_per_column / r.width as f64;
         6.0 * units_per_cell * t2 * a1 / (std::f64::consts::PI * area)
     });
-    let estimate = Estimate {
-        method: Method::TransferMatrix,
-        cells: None,
-        count: None,
-        ln_count: extrapolation.value,
-        formula_units: 1.0,
-        ln_w_per_unit: extrapolation.value,
-        sigma_ln_w: Some(extrapolation.uncertainty),
-        seconds: results.iter().map(|r| r.seconds).sum(),
-        peak_states: results.iter().map(|r| r.peak_states).max(),
-    };
-    Ok(StripSeries {
-        widths: results,
-        extrapolation,
-        central_charge,
+    let estimate = Estimate::infinite(
+        Method::TransferMatrix,
+        extrapolation.value,
+        Some(extrapolation.uncertainty),
+        results.iter().map(|r| r.seconds).sum(),
+    )
+    .with_peak_states(results.iter().map(|r| r.peak_states).max());
+    Ok(Counted::new(
         estimate,
-        checks: Vec::new(),
-        step,
-    })
+        StripSeries {
+            widths: results,
+            extrapolation,
+            central_charge,
+            checks: Vec::new(),
+            step,
+        },
+    ))
 }

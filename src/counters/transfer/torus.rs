@@ -39,7 +39,7 @@ use crate::cluster::Cells;
 use crate::counters::exact::ExactConfig;
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
-use crate::estimate::{Estimate, Method, ln_big};
+use crate::estimate::Estimate;
 use crate::model::Model;
 
 impl Column {
@@ -180,18 +180,13 @@ impl TorusRoute {
         if formula_units <= 0.0 {
             return Err(Error::Model("the cell holds no formula unit".into()));
         }
-        let ln_count = ln_big(&count);
-        Ok(Estimate {
-            method: Method::Exact,
-            cells: Some(cells.to_string()),
-            ln_count,
+        Ok(Estimate::exact(
+            cells,
+            count,
             formula_units,
-            ln_w_per_unit: ln_count / formula_units,
-            count: Some(count),
-            sigma_ln_w: None,
-            seconds: self.build_seconds + start.elapsed().as_secs_f64(),
-            peak_states: Some(self.column.peak_states()),
-        })
+            self.build_seconds + start.elapsed().as_secs_f64(),
+        )
+        .with_peak_states(Some(self.column.peak_states())))
     }
 }
 
@@ -211,8 +206,9 @@ mod tests {
     fn torus(l: &Lattice, a: usize, b: usize) -> BigUint {
         let cells = Cells::parse(&format!("{a}x{b}"), None, 2).unwrap();
         let model = Model::new(&Cluster::new(&l.crystal, cells).unwrap()).unwrap();
-        exact::count(&model, &Default::default())
+        exact::count(&model, &Default::default(), &crate::context::Context::new())
             .unwrap()
+            .estimate
             .count
             .unwrap()
     }

@@ -3,19 +3,19 @@
 
 use std::fmt::Write;
 
-use super::{Sentence, Writeup};
-use crate::counters::pauling;
-use crate::report::{self, Columns, Table, amount, method_label, plus_minus as pm, sig};
+use super::{Report, Sentence};
+use crate::counters::local;
+use crate::text::{self, Columns, Table, amount, method_label, plus_minus as pm, sig};
 
 /// Render the report.
-pub fn render(w: &Writeup<'_>) -> String {
+pub fn render(w: &Report<'_>) -> String {
     let mut o = String::new();
     // Writing to a String cannot fail.
     let _ = body(w, &mut o);
     o
 }
 
-fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
+fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
     let c = &w.lattice.crystal;
     let s = w.survey;
     let unit = &c.formula_unit.name;
@@ -78,14 +78,14 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
     writeln!(
         o,
         "{}",
-        report::survey_table(s, unit, columns).render_markdown()
+        text::survey_table(s, unit, columns).render_markdown()
     )?;
     writeln!(
         o,
         "`units` is the number of formula units ({unit}) in the cell.\n"
     )?;
     for e in [Some(p), s.bethe.as_ref()].into_iter().flatten() {
-        if let Some(caveat) = pauling::caveat(e) {
+        if let Some(caveat) = local::caveat(e) {
             writeln!(
                 o,
                 "\\* {}: {}{}.\n",
@@ -113,10 +113,10 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
         writeln!(
             o,
             "{}",
-            report::checks_table(&s.checks, unit).render_markdown()
+            text::checks_table(&s.checks, unit).render_markdown()
         )?;
         for f in s.failed_checks() {
-            writeln!(o, "**{}.**\n", report::check_failure(f, unit))?;
+            writeln!(o, "**{}.**\n", text::check_failure(f, unit))?;
         }
     }
     match &cited.value {
@@ -126,13 +126,13 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
             let local = [Some(p), s.bethe.as_ref()]
                 .into_iter()
                 .flatten()
-                .find(|e| pauling::caveat(e).is_none());
+                .find(|e| local::caveat(e).is_none());
             writeln!(
                 o,
                 "**Cited value** ({}, {}): W = {} per {unit}, S0 = {} J/(mol K) = {} R{}. \
                  Why this one: {}.\n",
                 method_label(b),
-                report::cell_label(b),
+                text::cell_label(b),
                 pm(b.w_per_unit(), b.sigma_w(), 12),
                 pm(b.s_j_per_mol_k(), b.sigma_s_j_per_mol_k(), 12),
                 pm(b.s_over_r(), b.sigma_ln_w, 12),
@@ -148,18 +148,18 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
                         }
                     ))
                     .unwrap_or_default(),
-                report::reason_words(s, v)
+                text::reason_words(s, v)
             )?;
         }
         None => writeln!(o, "**No value can be cited** from this run.\n")?,
     }
     for passed in &cited.passed_over {
-        writeln!(o, "**Warning:** {}.\n", report::refusal_words(passed, unit))?;
+        writeln!(o, "**Warning:** {}.\n", text::refusal_words(passed, unit))?;
     }
-    if !s.stopped.is_empty() {
-        writeln!(o, "Exact counts stopped: {}.\n", s.stopped)?;
+    if let Some(stop) = &s.stopped {
+        writeln!(o, "Exact counts stopped: {}.\n", text::stop_words(stop))?;
     }
-    for n in &s.notes {
+    for n in w.notes() {
         writeln!(o, "- {n}")?;
     }
     if !s.notes.is_empty() {
@@ -213,7 +213,7 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
             o,
             "Extrapolated to infinite width: W = {} per {unit} ({}, {} fits{}).\n",
             pm(e.w_per_unit(), e.sigma_w(), 12),
-            format!("{:?}", tm.extrapolation.scaling).to_lowercase(),
+            crate::json::scaling_word(tm.extrapolation.scaling),
             tm.extrapolation.fits.len(),
             tm.central_charge
                 .map(|c| format!("; fitted central charge {}", sig(c, 4)))
@@ -255,10 +255,10 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
                 "The cells {} were sampled with the same settings and extrapolated to the infinite \
                  crystal by the weighted fit {} in the number N of formula units (χ² = {} for {} degrees \
                  of freedom; σ scaled by √(χ²/dof) when above 1): W = {} per {unit}.\n",
-                crate::survey::cell_list(&s.sampled_sizes),
-                x.fit.form(),
-                sig(x.fit.chi2, 3),
-                x.fit.dof,
+                crate::estimate::cell_list(&s.sampled_sizes),
+                x.details.form(),
+                sig(x.details.chi2, 3),
+                x.details.dof,
                 pm(x.estimate.w_per_unit(), x.estimate.sigma_w(), 8)
             )?;
         }
@@ -300,7 +300,7 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
                 Some(m) => format!(
                     "free-ion entropy m R ln {} (m = {} magnetic ions per {unit})",
                     m.q,
-                    crate::report::trimmed(m.ions_per_unit, 6)
+                    crate::text::trimmed(m.ions_per_unit, 6)
                 ),
                 None => "statistical entropy S_stat (given)".into(),
             },
@@ -338,7 +338,7 @@ fn body(w: &Writeup<'_>, o: &mut String) -> std::fmt::Result {
             ]);
         }
         t.row(vec![
-            if pauling::caveat(p).is_some() {
+            if local::caveat(p).is_some() {
                 "Pauling (not meaningful: W below 1)".into()
             } else {
                 "Pauling".into()

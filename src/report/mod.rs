@@ -4,9 +4,9 @@
 //!
 //! A user who must state a residual entropy in a paper needs every method's number side by
 //! side, the diagnostics behind each, the calorimetric comparison when there is one, and a
-//! sentence saying how the number was made. [`Writeup::new`] gathers these from a
-//! [`Survey`] (and optionally a calorimetric result); [`Writeup::json`],
-//! [`Writeup::markdown`] and [`Writeup::figures`] render them. Nothing here computes a
+//! sentence saying how the number was made. [`Report::new`] gathers these from a
+//! [`Survey`] (and optionally a calorimetric result); [`Report::json`],
+//! [`Report::markdown`] and [`Report::figures`] render them. Nothing here computes a
 //! count: it only reads estimates.
 //!
 //! # Arguments and returns
@@ -15,18 +15,19 @@
 //! optional [`Comparison`] of a statistical value with a calorimetric one. The renderers
 //! return strings; the caller writes the files.
 
+mod json;
 mod markdown;
 mod plots;
 
-use serde_json::{Value, json};
-
 use crate::Lattice;
-use crate::counters::pauling;
+use crate::calorimetry::ThirdLaw;
+use crate::counters::local;
 use crate::estimate::Method;
-use crate::report::{amount, estimate_json, method_label, plus_minus, sig};
-use crate::survey::{Cited, CitedReason, CitedValue, Survey};
+use crate::estimate::{Cited, CitedReason, CitedValue, Hint, Survey};
+use crate::text::{amount, plus_minus, sig};
 use crate::thermo;
 
+pub use json::ReportDocument;
 pub use plots::Figure;
 
 /// Facts about the run that are not results.
@@ -90,6 +91,64 @@ pub struct MagneticComparison {
 }
 
 impl Comparison {
+    /// The comparison of a third-law analysis ([`ThirdLaw`]) with a statistical entropy
+    /// ([`ThirdLaw::residual`]; without one, S_stat = 0 ± 0), or of the magnetic route: the
+    /// data file `file` as the user named it, whether the statistical entropy came with its
+    /// 1σ, how the data's formula unit matches the lattice's (`matched`: every molar value
+    /// is divided by its factor), and the notes to show (worded by the caller; one that
+    /// begins `WARNING: ` is shown as a warning).
+    pub fn new(
+        r: &ThirdLaw,
+        file: &str,
+        s_stat_sigma_given: bool,
+        matched: &crate::calorimetry::UnitMatch,
+        notes: Vec<String>,
+    ) -> Comparison {
+        use crate::calorimetry::LowTemperatureForm;
+        let k = matched.factor;
+        let s_stat = r
+            .residual
+            .as_ref()
+            .map_or((0.0, 0.0), |x| (x.s_stat / k, x.s_stat_sigma / k));
+        Comparison {
+            file: file.to_string(),
+            temperature_k: r.target_k,
+            s_cal: (r.s_cal / k, r.uncertainty.total / k),
+            s_stat,
+            s_stat_sigma_given: s_stat_sigma_given || r.magnetic.is_some(),
+            extrapolated: r.low_t.entropy / k,
+            low_t_words: match r.low_t.form {
+                LowTemperatureForm::Debye(_) => "Debye T³".into(),
+                LowTemperatureForm::LinearCubic(_) => "γT + βT³".into(),
+                LowTemperatureForm::Zero => "nothing (taken as 0)".into(),
+                LowTemperatureForm::Given(..) => "the entropy given".into(),
+            },
+            debye_temperature_k: r.low_t.debye_temperature_k,
+            points: r.points.iter().map(|p| (p.t_k, p.cp)).collect(),
+            lowest_k: r.low_t.lowest_k,
+            curve: r.curve(200),
+            debye_curve: r.debye_curve(50),
+            magnetic: r.magnetic.as_ref().map(|m| MagneticComparison {
+                q: m.q,
+                ions_per_unit: m.ions / k,
+                lattice_term: m.phonons.as_ref().map(|p| {
+                    format!(
+                        "{} × {} C(T; θ = {} K){}",
+                        crate::text::trimmed(p.atoms, 6),
+                        p.model.name(),
+                        sig(p.theta_k, 5),
+                        p.fit.map_or(" (given)".into(), |f| format!(
+                            " fitted above {} K",
+                            crate::text::trimmed(f.above_k, 6)
+                        ))
+                    )
+                }),
+            }),
+            notes,
+            unchecked_unit: matched.unchecked,
+        }
+    }
+
     /// The measured residual entropy S_stat − S_cal in J/(mol K) and its 1σ (independent
     /// errors added in quadrature).
     pub fn residual(&self) -> (f64, f64) {
@@ -109,27 +168,45 @@ impl Comparison {
 
 /// Everything a report shows.
 #[derive(Clone, Debug)]
-pub struct Writeup<'a> {
+pub struct Report<'a> {
     lattice: &'a Lattice,
     survey: &'a Survey,
     meta: Meta,
     comparison: Option<Comparison>,
+    hints: fn(Hint) -> String,
 }
 
-impl<'a> Writeup<'a> {
+impl<'a> Report<'a> {
     /// Gather a report.
     pub fn new(
         lattice: &'a Lattice,
         survey: &'a Survey,
         meta: Meta,
         comparison: Option<Comparison>,
-    ) -> Writeup<'a> {
-        Writeup {
+    ) -> Report<'a> {
+        Report {
             lattice,
             survey,
             meta,
             comparison,
+            hints: crate::text::hint_words,
         }
+    }
+
+    /// The same report, with the advice on what to run next worded by `hints` (the
+    /// binary's words name its commands; by default [`crate::text::hint_words`]).
+    pub fn with_hints(mut self, hints: fn(Hint) -> String) -> Self {
+        self.hints = hints;
+        self
+    }
+
+    /// The survey's notes in words.
+    pub fn notes(&self) -> Vec<String> {
+        self.survey
+            .notes
+            .iter()
+            .map(|n| crate::text::note_words(n, &self.hints))
+            .collect()
     }
 
     /// The value to cite and why (see [`Survey::cited`]).
@@ -157,12 +234,12 @@ impl<'a> Writeup<'a> {
             }
             CitedReason::MonteCarloExtrapolated => {
                 let (m, form) = match (&s.sampled, &s.extrapolated) {
-                    (Some(m), Some(x)) => (m, x.fit.form()),
+                    (Some(m), Some(x)) => (m, x.details.form()),
                     _ => return "Monte Carlo thermodynamic integration".into(),
                 };
                 format!(
                     "Monte Carlo thermodynamic integration on the cells {} (up to {} {unit}; {} replicas per cell, seed {}), extrapolated to the infinite crystal by the weighted fit {}",
-                    crate::survey::cell_list(&s.sampled_sizes),
+                    crate::estimate::cell_list(&s.sampled_sizes),
                     amount(m.sampled.estimate.formula_units),
                     m.sampled.replicas,
                     m.sampled.seed,
@@ -210,7 +287,7 @@ impl<'a> Writeup<'a> {
                     format!(
                         "{} against the {} (W = {} against {} per {unit})",
                         method_label_of(k.method),
-                        crate::report::route_words(&k.route),
+                        crate::text::route_words(&k.route),
                         sig(k.value.exp(), 8),
                         sig(k.reference.exp(), 8)
                     )
@@ -227,7 +304,7 @@ impl<'a> Writeup<'a> {
             let why: Vec<String> = cited
                 .passed_over
                 .iter()
-                .map(|p| crate::report::refusal_words(p, unit))
+                .map(|p| crate::text::refusal_words(p, unit))
                 .collect();
             return Sentence::Refused(format!(
                 "no sentence to paste: no value of this run can be cited ({})",
@@ -236,7 +313,7 @@ impl<'a> Writeup<'a> {
         };
         let b = v.estimate;
         let p = &self.survey.pauling;
-        let local = match (pauling::caveat(p), &self.survey.bethe) {
+        let local = match (local::caveat(p), &self.survey.bethe) {
             (None, _) => format!(
                 "Pauling's estimate: W = {}, S0 = {} J/(mol K)",
                 sig(p.w_per_unit(), 8),
@@ -269,132 +346,10 @@ impl<'a> Writeup<'a> {
         ))
     }
 
-    /// The report as one JSON document.
-    pub fn json(&self) -> Value {
-        let c = &self.lattice.crystal;
-        let s = self.survey;
-        let p = &s.pauling;
-        let cited = self.cited();
-        let unit = &c.formula_unit.name;
-        let strips = s.strips.as_ref().map(|t| {
-            json!({
-                "estimate": estimate_json(c, &t.estimate, Some(p)),
-                "widths": t.widths.iter().map(|r| json!({
-                    "width": r.width,
-                    "ln_lambda": r.ln_lambda,
-                    "ln_lambda_bracket": [r.ln_bracket.0, r.ln_bracket.1],
-                    "w_per_unit": r.ln_w_per_unit.exp(),
-                    "states": r.states,
-                    "iterations": r.iterations,
-                })).collect::<Vec<_>>(),
-                "scaling": format!("{:?}", t.extrapolation.scaling).to_lowercase(),
-                "fits": t.extrapolation.fits.len(),
-                "central_charge": t.central_charge,
-            })
-        });
-        let sampled = s.sampled.as_ref().map(|m| {
-            let x = &m.sampled;
-            json!({
-                "estimate": estimate_json(c, &x.estimate, Some(p)),
-                "cells": m.cells,
-                "seed": x.seed,
-                "replicas": x.replicas,
-                "samples": x.samples,
-                "updates": x.updates,
-                "sigma_statistical": x.sigma_statistical,
-                "sigma_quadrature": x.sigma_quadrature,
-                "sigma_tail": x.sigma_tail,
-                "beta": x.betas,
-                "mean_energy": x.mean_energy,
-                "reference_energy": x.reference_energy,
-            })
-        });
-        let sizes = s.extrapolated.as_ref().map(|x| {
-            json!({
-                "estimate": estimate_json(c, &x.estimate, Some(p)),
-                "cells": s.sampled_sizes.iter().map(|m| json!({
-                    "cells": m.cells,
-                    "estimate": estimate_json(c, &m.sampled.estimate, Some(p)),
-                })).collect::<Vec<_>>(),
-                "form": x.fit.form(),
-                "coefficients": x.fit.coefficients,
-                "chi2": x.fit.chi2,
-                "dof": x.fit.dof,
-            })
-        });
-        let comparison = self.comparison.as_ref().map(|k| {
-            let (r, dr) = k.residual();
-            let (w, dw) = k.w_per_unit();
-            json!({
-                "file": k.file,
-                "temperature_k": k.temperature_k,
-                "s_cal_j_per_mol_k": k.s_cal.0,
-                "s_cal_uncertainty": k.s_cal.1,
-                "s_stat_j_per_mol_k": k.s_stat.0,
-                "s_stat_uncertainty": k.s_stat.1,
-                "extrapolated_j_per_mol_k": k.extrapolated,
-                "debye_temperature_k": k.debye_temperature_k,
-                "residual_j_per_mol_k": r,
-                "residual_uncertainty": dr,
-                "w_per_unit": w,
-                "w_uncertainty": dw,
-                "s_stat_uncertainty_given": k.s_stat_sigma_given,
-                "low_t_form": k.low_t_words,
-                "notes": k.notes,
-                "formula_unit_unchecked": k.unchecked_unit,
-                "magnetic": k.magnetic.as_ref().map(|m| json!({
-                    "states_per_ion": m.q,
-                    "ions_per_formula_unit": m.ions_per_unit,
-                    "free_ion_entropy_j_per_mol_k": k.s_stat.0,
-                    "lattice_term": m.lattice_term,
-                })),
-                "computed_minus_measured_sigmas": cited.value.as_ref().map(|v| {
-                    let b = v.estimate;
-                    (b.s_j_per_mol_k() - r) / b.sigma_s_j_per_mol_k().unwrap_or(0.0).hypot(dr)
-                }),
-            })
-        });
-        json!({
-            "groundcount_version": self.meta.version,
-            "date": self.meta.date,
-            "lattice": c.name,
-            "file": self.meta.file,
-            "content_hash": self.lattice.content_hash,
-            "dimensions": c.dimensions,
-            "formula_unit": {
-                "name": c.formula_unit.name,
-                "basis": c.formula_unit.describe(),
-                "per_cell": c.formula_unit.per_cell(c),
-            },
-            "budget_seconds": s.budget,
-            "cited": cited.value.as_ref().map(|v| json!({
-                "method": v.estimate.method.name(),
-                "label": method_label(v.estimate),
-                "reason": v.reason,
-                "why": crate::report::reason_words(s, v),
-                "infinite_crystal": v.reason.is_infinite_crystal(),
-                "estimate": estimate_json(c, v.estimate, Some(p)),
-            })),
-            "passed_over": crate::report::passed_over_json(&cited, unit),
-            "checks": crate::report::checks_json(&s.checks),
-            "pauling": estimate_json(c, p, None),
-            "bethe": s.bethe.as_ref().map(|e| estimate_json(c, e, Some(p))),
-            "exact": s.exact.iter().map(|e| estimate_json(c, e, Some(p))).collect::<Vec<_>>(),
-            "exact_stopped": s.stopped,
-            "transfer_matrix": strips,
-            "monte_carlo": sampled,
-            "monte_carlo_infinite": sizes,
-            "calorimetry": comparison,
-            "notes": s.notes,
-            "sentence": match self.sentence() {
-                Sentence::Cite(t) => Value::from(t),
-                Sentence::Refused(_) => Value::Null,
-            },
-            "sentence_refused": match self.sentence() {
-                Sentence::Cite(_) => Value::Null,
-                Sentence::Refused(why) => Value::from(why),
-            },
-        })
+    /// The report as one JSON document (report.json; docs/json.md). Serialise it with
+    /// [`crate::json::to_string`], which adds the `schema_version`.
+    pub fn json(&self) -> json::ReportDocument {
+        json::document(self)
     }
 
     /// The report as Markdown; figures are referred to by file name.

@@ -1,4 +1,5 @@
-//! Turning estimates into text: aligned tables, CSV, Markdown and JSON values.
+//! Turning estimates into text: aligned tables, CSV and Markdown (the JSON documents are
+//! in [`crate::json`]).
 //!
 //! Reports read only [`Estimate`]s, a [`Survey`]'s choices and cross-checks (and the
 //! crystal's name and formula unit); they never compute. Nothing here prints: the binary
@@ -9,13 +10,14 @@
 //! without decimals ([`amount`]); CSV cells hold plain numbers ([`number`]: a value and its
 //! uncertainty in separate columns, empty where there is none).
 
-use serde_json::{Value, json};
-
-use crate::counters::pauling;
+use crate::counters::extrapolate::Scaling;
+use crate::counters::local;
 use crate::crosscheck::{CrossCheck, Route};
-use crate::crystal::Crystal;
 use crate::estimate::Estimate;
-use crate::survey::{Cited, CitedReason, CitedValue, PassedOver, Refusal, Survey};
+use crate::estimate::{
+    CitedReason, CitedValue, ExactStop, Hint, Note, PassedOver, Refusal, SectorWidths, Stage,
+    Survey,
+};
 
 /// A plain-text table with a header row; columns are left-aligned and padded.
 ///
@@ -410,7 +412,7 @@ pub fn survey_table(s: &Survey, unit: &str, columns: Columns) -> Table {
                     .as_ref()
                     .is_some_and(|v| same_estimate(v.estimate, e)),
                 checked: (!checks.is_empty()).then(|| checks.iter().all(|c| c.agrees())),
-                not_meaningful: local && pauling::caveat(e).is_some(),
+                not_meaningful: local && local::caveat(e).is_some(),
             }
         })
         .collect();
@@ -536,9 +538,9 @@ pub fn reason_words(s: &Survey, v: &CitedValue<'_>) -> String {
             format!(
                 "{} Monte Carlo cells extrapolated to the infinite crystal ({}, χ² = {} for {} degrees of freedom)",
                 s.sampled_sizes.len(),
-                x.map_or("", |x| x.fit.form()),
-                x.map_or("".into(), |x| sig(x.fit.chi2, 3)),
-                x.map_or(0, |x| x.fit.dof)
+                x.map_or("", |x| x.details.form()),
+                x.map_or("".into(), |x| sig(x.details.chi2, 3)),
+                x.map_or(0, |x| x.details.dof)
             )
         }
         CitedReason::MonteCarloCell => "the largest Monte Carlo cell, not extrapolated: a finite \
@@ -612,111 +614,275 @@ pub fn cited_line(s: &Survey, unit: &str) -> String {
     }
 }
 
-/// The JSON of the cross-checks: each with its method, route, values, difference,
-/// tolerance and verdict.
-pub fn checks_json(checks: &[CrossCheck]) -> Value {
-    Value::Array(
-        checks
-            .iter()
-            .map(|c| {
-                json!({
-                    "method": c.method.name(),
-                    "route": c.route,
-                    "route_words": route_words(&c.route),
-                    "ln_w_per_unit": finite(c.value),
-                    "reference_ln_w_per_unit": finite(c.reference),
-                    "difference": finite(c.value - c.reference),
-                    "tolerance": finite(c.tolerance),
-                    "agrees": c.agrees(),
-                })
-            })
-            .collect(),
-    )
-}
-
-/// The JSON of the cited value: the estimate's keys plus `reason` (its rank, a word),
-/// `why` (in words) and `passed_over`; `null` when nothing can be cited.
-pub fn cited_json(crystal: &Crystal, s: &Survey) -> Value {
-    let unit = &crystal.formula_unit.name;
-    let c = s.cited();
-    c.value.as_ref().map_or(Value::Null, |v| {
-        let mut j = estimate_json(crystal, v.estimate, Some(&s.pauling));
-        j["reason"] = json!(v.reason);
-        j["why"] = json!(reason_words(s, v));
-        j["infinite_crystal"] = json!(v.reason.is_infinite_crystal());
-        j["passed_over"] = passed_over_json(&c, unit);
-        j
-    })
-}
-
-/// Candidates passed over by [`Survey::cited`], as JSON.
-pub fn passed_over_json(c: &Cited<'_>, unit: &str) -> Value {
-    Value::Array(
-        c.passed_over
-            .iter()
-            .map(|p| {
-                json!({
-                    "method": p.estimate.method.name(),
-                    "cells": p.estimate.cells,
-                    "w_per_unit": finite(p.estimate.w_per_unit()),
-                    "why": refusal_words(p, unit),
-                    "refusal": match &p.why {
-                        Refusal::CheckFailed(_) => "check-failed",
-                        Refusal::NoDegreesOfFreedom => "no-degrees-of-freedom",
-                        Refusal::NotMeaningful(_) => "not-meaningful",
-                    },
-                })
-            })
-            .collect(),
-    )
-}
-
-/// The JSON object of one estimate, with the keys documented in README.
-pub fn estimate_json(crystal: &Crystal, e: &Estimate, pauling: Option<&Estimate>) -> Value {
-    let mut v = json!({
-        "lattice": crystal.name,
-        "file": crystal.path.display().to_string(),
-        "formula_unit": crystal.formula_unit.name,
-        "method": e.method.name(),
-        "cells": e.cells,
-        "count": e.count.as_ref().map(|c| c.to_string()),
-        "ln_count": finite(e.ln_count),
-        "formula_units": e.formula_units,
-        "w_per_unit": finite(e.w_per_unit()),
-        "s_over_r": finite(e.s_over_r()),
-        "s_j_per_mol_k": finite(e.s_j_per_mol_k()),
-        "uncertainty": e.sigma_w(),
-        "s_uncertainty": e.sigma_s_j_per_mol_k(),
-        "seconds": e.seconds,
-        "peak_states": e.peak_states,
-    });
-    if matches!(
-        e.method,
-        crate::estimate::Method::Pauling | crate::estimate::Method::Bethe
-    ) {
-        v["not_meaningful"] = caveat_json(crystal, e);
+/// Advice on what to run next, in words that name no command (a library user's reading);
+/// the binary words it with its commands.
+pub fn hint_words(h: Hint) -> String {
+    match h {
+        Hint::StripShowsEveryWidth => "a run of strips alone shows every width".into(),
+        Hint::RaiseBudgetOrStrip => "raise the budget or run the strips alone".into(),
+        Hint::SampleRunsLonger => "a Monte Carlo run alone samples larger cells and longer".into(),
     }
-    if let Some(p) = pauling {
-        v["pauling"] = json!({
-            "w_per_unit": finite(p.w_per_unit()),
-            "s_over_r": finite(p.s_over_r()),
-            "s_j_per_mol_k": finite(p.s_j_per_mol_k()),
-            "not_meaningful": caveat_json(crystal, p),
-        });
+}
+
+/// Why the exact counts of a survey stopped, in words.
+pub fn stop_words(stop: &ExactStop) -> String {
+    match stop {
+        ExactStop::Interrupted => "interrupted".into(),
+        ExactStop::CellSizeLimit => "cell size limit reached".into(),
+        ExactStop::NothingRestricted => {
+            "no rule restricts any variable (every variable is free), so \
+                                         larger cells give the same W per formula unit"
+                .into()
+        }
+        ExactStop::Deadline { budget, cells } => format!(
+            "the exact counts' share (40 %) of the {budget} s budget ran out while counting {cells}"
+        ),
+        ExactStop::States { cells, max_states } => {
+            format!("{cells} needs more than {max_states} frontier states")
+        }
+        ExactStop::InterruptedWhile { cells } => format!("interrupted while counting {cells}"),
+        ExactStop::BudgetSpent { budget } => {
+            format!("the exact counts' share of the {budget} s budget is spent")
+        }
     }
-    v
 }
 
-/// Why a local estimate is not meaningful, in words, or `null`.
-fn caveat_json(crystal: &Crystal, e: &Estimate) -> Value {
-    pauling::caveat(e).map_or(Value::Null, |c| {
-        json!(c.explain(&crystal.formula_unit.name))
-    })
+/// A stage of a survey in words.
+fn stage_words(stage: Stage) -> &'static str {
+    match stage {
+        Stage::TransferMatrix => "transfer matrix",
+        Stage::MonteCarlo => "Monte Carlo",
+    }
 }
 
-/// JSON has no infinities: a zero count has ln = −∞, reported as null.
-fn finite(x: f64) -> Value {
-    if x.is_finite() { json!(x) } else { Value::Null }
+/// How the kept charge sectors were established, in words ("" when no sector was kept).
+fn sector_words(s: &SectorWidths) -> String {
+    if s.full_space.is_empty() && s.neighbours.is_empty() && s.predicted.is_empty() {
+        return String::new();
+    }
+    let list = |v: &[usize]| match v {
+        [] => String::new(),
+        [a] => a.to_string(),
+        [a, .., b] => format!("{a}..{b}"),
+    };
+    let mut parts = Vec::new();
+    if !s.full_space.is_empty() {
+        parts.push(format!(
+            "checked against the full space at widths {}",
+            list(&s.full_space)
+        ));
+    }
+    if !s.neighbours.is_empty() {
+        parts.push(format!(
+            "against the neighbouring charges at {}",
+            list(&s.neighbours)
+        ));
+    }
+    if !s.predicted.is_empty() {
+        parts.push(format!("predicted from those at {}", list(&s.predicted)));
+    }
+    format!("; the charge sector of each width {}", parts.join(", "))
+}
+
+/// A survey's note in words, with the advice on what to run next worded by `hint`
+/// ([`hint_words`], or the binary's words that name its commands).
+pub fn note_words(note: &Note, hint: &dyn Fn(Hint) -> String) -> String {
+    match note {
+        Note::BetheLeftOut { error } => format!("Bethe approximation left out: {error}"),
+        Note::StageNotRun { stage } => format!("{}: not run (interrupted)", stage_words(*stage)),
+        Note::StageInterrupted { stage } => {
+            format!("{}: stopped (interrupted)", stage_words(*stage))
+        }
+        Note::Interrupted => {
+            "interrupted (Ctrl-C): the values given are those finished before the interrupt".into()
+        }
+        Note::StripBudgetRanOut { budget, width } => {
+            format!("transfer matrix: the {budget} s budget ran out at width {width}")
+        }
+        Note::StripInterrupted { width } => format!(
+            "transfer matrix: interrupted at width {width}; the widths before it are kept"
+        ),
+        Note::StripStopped { width, error } => {
+            format!("transfer matrix: stopped at width {width}: {error}")
+        }
+        Note::StripCheckFailed { check } => format!(
+            "transfer matrix: a cross-check FAILED ({}: ln W per unit {} against {}); its value must not be cited",
+            route_words(&check.route),
+            check.value,
+            check.reference
+        ),
+        Note::StripTooFewWidths { done, hint: h } => format!(
+            "transfer matrix: only {done} widths within the budget; {}",
+            hint(*h)
+        ),
+        Note::StripSeries {
+            first,
+            largest,
+            step,
+            scaling,
+            fits,
+            sectors,
+            hint: h,
+        } => format!(
+            "transfer matrix: cylinders of width {first}..{largest}{} along a, extrapolated to infinite width \
+             ({}){}; {}",
+            if *step > 1 {
+                format!(" in steps of {step} (the period with the smallest spread)")
+            } else {
+                String::new()
+            },
+            match scaling {
+                Scaling::Gapped => "gapped: Aitken's Δ² on the last widths of each family, error from the window before".to_string(),
+                _ => format!("critical: fits in 1/W², error from their spread over {fits} fits"),
+            },
+            sector_words(sectors),
+            hint(*h)
+        ),
+        Note::StripNoExtrapolation { why } => {
+            format!("transfer matrix: no extrapolation ({why})")
+        }
+        Note::MonteCarloInterrupted { done } => format!(
+            "Monte Carlo: INTERRUPTED; {done} cell{} finished",
+            if *done == 1 { "" } else { "s" }
+        ),
+        Note::MonteCarloNoCell => {
+            "Monte Carlo: not run (no periodic cell of a sensible size)".into()
+        }
+        Note::MonteCarloNotRun { error } => format!("Monte Carlo: not run ({error})"),
+        Note::MonteCarloRan {
+            cells,
+            formula_units,
+            seed,
+            settings,
+            raised_from,
+            failed,
+            extended,
+            hint: h,
+        } => format!(
+            "Monte Carlo: thermodynamic integration on {cells} ({} formula units), seed {seed}, replicas × sweeps per node {}{}; equilibration check (passes up and down) {}{}; {}",
+            formula_units
+                .iter()
+                .map(|u| format!("{u}"))
+                .collect::<Vec<_>>()
+                .join(", "),
+            settings
+                .iter()
+                .map(|(r, s)| format!("{r} × {s}"))
+                .collect::<Vec<_>>()
+                .join(", "),
+            match raised_from {
+                Some((r, s)) => format!(" (raised from the default {r} × {s} to fill the budget)"),
+                None => String::new(),
+            },
+            if failed.is_empty() {
+                "passed".to_string()
+            } else {
+                format!(
+                    "FAILED on {} (an allowance for the lag is in their σ)",
+                    failed.join(", ")
+                )
+            },
+            if extended.is_empty() {
+                String::new()
+            } else {
+                format!(
+                    "; {} repeated with more sweeps after a first failed check",
+                    extended.join(", ")
+                )
+            },
+            hint(*h)
+        ),
+        Note::MonteCarloLeftOut { cells } => format!(
+            "Monte Carlo: {} left out: the budget ran out",
+            cells.join(", ")
+        ),
+        Note::MonteCarloTooFewCells { cells, needed } => format!(
+            "Monte Carlo: {cells} cell{} only, not extrapolated (a fit needs {needed} so that one degree of freedom tests its form); every Monte Carlo row is a finite torus, whose W is larger than the infinite crystal's; raise the budget",
+            if *cells == 1 { "" } else { "s" },
+        ),
+        Note::MonteCarloExtrapolated {
+            cells,
+            form,
+            chi2,
+            dof,
+            systematic,
+            alternative_form,
+            alternative,
+        } => format!(
+            "Monte Carlo: {cells} cells extrapolated to the infinite crystal by the weighted fit {form} (χ² = {chi2:.3} for {dof} degrees of freedom{}); the other form {alternative_form} gives ln W = {} per formula unit",
+            if *systematic > 0.0 {
+                format!(
+                    "; the ln N/N term left out, its effect {} in ln W added to σ",
+                    sig(*systematic, 2)
+                )
+            } else {
+                String::new()
+            },
+            alternative.map_or("—".to_string(), |(v, s)| format!(
+                "{} ± {}",
+                sig(v, 6),
+                sig(s, 2)
+            ))
+        ),
+        Note::MonteCarloNoExtrapolation { error } => {
+            format!("Monte Carlo: no extrapolation ({error})")
+        }
+        Note::NoCrossCheckTooLarge { cells, variables } => format!(
+            "Monte Carlo: no cross-check (no exact count in this run, and {cells} has {variables} variables, too many for the Wang–Landau check)"
+        ),
+        Note::NoCrossCheck { cells: None, error } => {
+            format!("Monte Carlo: no cross-check ({error})")
+        }
+        Note::NoCrossCheck {
+            cells: Some(cells),
+            error,
+        } => format!("Monte Carlo: no cross-check on {cells} ({error})"),
+        Note::WangLandauFailed { cells, error } => format!(
+            "Monte Carlo: no cross-check (no exact count in this run, and the Wang–Landau walk on {cells} failed: {error})"
+        ),
+        Note::WangLandauCheck {
+            cells,
+            integrated: (a, sa),
+            walk: (b, sb),
+            agrees,
+            sigmas,
+        } => format!(
+            "Monte Carlo cross-check on {cells} (no exact count in this run): thermodynamic integration ln W = {} ± {} per formula unit against a Wang–Landau walk {} ± {}; {}. It tests the sampler on a small cell, not the extrapolation to larger cells",
+            sig(*a, 6),
+            sig(*sa, 2),
+            sig(*b, 6),
+            sig(*sb, 2),
+            if *agrees {
+                format!("agreement within {sigmas} combined σ")
+            } else {
+                format!(
+                    "DISAGREEMENT beyond {sigmas} combined σ: the Monte Carlo values of this run are not to be trusted"
+                )
+            }
+        ),
+        Note::ExactCheck {
+            cells,
+            seconds,
+            sampled: (v, sigma),
+            exact,
+            agrees,
+            sigmas,
+        } => format!(
+            "Monte Carlo cross-check on {cells} (sampled with the default settings, {} s): ln W = {} ± {} per formula unit against the exact {}; {}. It tests the sampler (integration, tail, equilibration) on a cell the exact counter reaches, not the extrapolation to larger cells",
+            sig(*seconds, 2),
+            sig(*v, 6),
+            sig(*sigma, 2),
+            sig(*exact, 6),
+            if *agrees {
+                format!("agreement within {sigmas}σ")
+            } else {
+                format!(
+                    "DISAGREEMENT beyond {sigmas}σ ({:.1}σ): the Monte Carlo values of this run are not to be trusted",
+                    (v - exact) / sigma.max(f64::MIN_POSITIVE)
+                )
+            }
+        ),
+    }
 }
 
 #[cfg(test)]
@@ -769,16 +935,12 @@ mod tests {
     #[test]
     fn issue11_comparison_tables_fit_and_split_uncertainties() {
         use crate::estimate::Method;
-        let e = |method: Method, cells: Option<&str>, units: f64, sigma: Option<f64>| Estimate {
-            method,
-            cells: cells.map(String::from),
-            count: (method == Method::Exact).then(|| num_bigint::BigUint::from(10u32).pow(40)),
-            ln_count: 0.4 * units,
-            formula_units: units,
-            ln_w_per_unit: 0.41,
-            sigma_ln_w: sigma,
-            seconds: 123.456,
-            peak_states: None,
+        let e = |method: Method, cells: Option<&str>, units: f64, sigma: Option<f64>| match cells {
+            Some(c) if method == Method::Exact => {
+                Estimate::exact(c, num_bigint::BigUint::from(10u32).pow(40), units, 123.456)
+            }
+            Some(c) => Estimate::finite(method, c, units, 0.41, sigma, 123.456),
+            None => Estimate::infinite(method, 0.41, sigma, 123.456),
         };
         let rows = vec![
             e(Method::Pauling, None, 4.0, None),

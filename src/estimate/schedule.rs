@@ -26,343 +26,25 @@
 //! interrupt ([`SurveyConfig::interrupt`]): the exact counts stop between steps, stages not
 //! yet begun are skipped, and the survey returns what it finished with
 //! [`Survey::interrupted`] set.
+//!
+//! This file is the schedule: what runs, in which order, within the time budget.
 
-use std::sync::Arc;
 use std::time::{Duration, Instant};
 
+use super::{SampledCell, SizeExtrapolation, Survey, SurveyConfig, cell_list};
 use crate::cluster::{Cells, Cluster};
+use crate::context::{Context, Progress};
+use crate::counters::bethe::BetheConfig;
 use crate::counters::extrapolate::Scaling;
-use crate::counters::sampling::size::{self, SizeFit};
-use crate::counters::sampling::{self, SampleConfig, Sampled};
+use crate::counters::sampling::size;
+use crate::counters::sampling::{self, SampleConfig};
 use crate::counters::transfer::{self, StripConfig, StripSeries};
-use crate::counters::{bethe, exact, pauling};
+use crate::counters::{Counted, bethe, exact, pauling};
 use crate::crosscheck::{CrossCheck, Route};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
-use crate::estimate::{Estimate, Method};
+use crate::estimate::{Estimate, ExactStop, Hint, Method, Note, SectorWidths, Stage};
 use crate::model::Model;
-
-/// What the survey is doing, for progress displays.
-#[derive(Clone, Debug)]
-pub enum Stage {
-    /// An exact count of this cell begins.
-    Exact(String),
-    /// A step of the current exact count: (steps done, steps in all, frontier states).
-    ExactStep(usize, usize, usize),
-    /// The current exact count ended (counted or stopped).
-    ExactDone,
-    /// The transfer operator of this width is being built and iterated.
-    Strip(usize),
-    /// A Monte Carlo count of this cell with this many variables begins.
-    Sampling(String, usize),
-}
-
-/// A callback told every [`Stage`].
-#[derive(Clone)]
-pub struct Observer(pub Arc<dyn Fn(Stage) + Send + Sync>);
-
-impl std::fmt::Debug for Observer {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str("Observer")
-    }
-}
-
-/// Settings of a survey.
-#[derive(Clone, Debug)]
-pub struct SurveyConfig {
-    /// Time budget in seconds for everything.
-    pub budget: f64,
-    /// Largest number of partial states an exact count may hold.
-    pub max_states: usize,
-    /// Count no exact cell with more formula units than this.
-    pub max_exact_units: Option<f64>,
-    /// Strip widths to compute (2D); `None` grows the width from 2 until the budget ends.
-    pub widths: Option<Vec<usize>>,
-    /// The Monte Carlo cell (3D); `None` samples up to four cubes, the largest of about
-    /// 1000 formula units, and extrapolates them to the infinite crystal.
-    pub sample_cells: Option<Cells>,
-    /// Monte Carlo settings.
-    pub sample: SampleConfig,
-    /// Told what is being computed.
-    pub observer: Option<Observer>,
-    /// Once raised, the survey stops what it is doing and returns what it has.
-    pub interrupt: crate::context::Interrupt,
-}
-
-impl Default for SurveyConfig {
-    fn default() -> Self {
-        SurveyConfig {
-            budget: 20.0,
-            max_states: exact::DEFAULT_MAX_STATES,
-            max_exact_units: None,
-            widths: None,
-            sample_cells: None,
-            sample: SampleConfig::default(),
-            observer: None,
-            interrupt: Default::default(),
-        }
-    }
-}
-
-/// A Monte Carlo run with the cell it sampled.
-#[derive(Clone, Debug)]
-pub struct SampledCell {
-    /// The cell, as written ("10x10x10 periodic").
-    pub cells: String,
-    /// The run.
-    pub sampled: Sampled,
-}
-
-/// The sampled cells in words: "3x3x3, 4x4x4 and 5x5x5 periodic".
-pub fn cell_list(cells: &[SampledCell]) -> String {
-    let names: Vec<&str> = cells
-        .iter()
-        .map(|c| c.cells.strip_suffix(" periodic").unwrap_or(&c.cells))
-        .collect();
-    let joined = match names.split_last() {
-        Some((last, rest)) if !rest.is_empty() => format!("{} and {last}", rest.join(", ")),
-        _ => names.join(""),
-    };
-    let all_periodic = cells.iter().all(|c| c.cells.ends_with(" periodic"));
-    if all_periodic {
-        format!("{joined} periodic")
-    } else {
-        joined
-    }
-}
-
-/// Monte Carlo values of several cells extrapolated to the infinite crystal.
-#[derive(Clone, Debug)]
-pub struct SizeExtrapolation {
-    /// The fit s(N) = s∞ + a/N (+ b ln N/N).
-    pub fit: SizeFit,
-    /// s∞ as an estimate of the infinite crystal.
-    pub estimate: Estimate,
-}
-
-/// Why a value is the one to cite: its rank in [`Survey::cited`]'s order.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
-#[serde(rename_all = "kebab-case")]
-#[non_exhaustive]
-pub enum CitedReason {
-    /// Strips extrapolated to infinite width: the infinite crystal.
-    TransferMatrix,
-    /// Monte Carlo cells extrapolated to the infinite crystal.
-    MonteCarloExtrapolated,
-    /// The largest Monte Carlo cell: a finite cell, not the infinite crystal.
-    MonteCarloCell,
-    /// The largest exact cell with an arrangement: exact for that finite cell only.
-    ExactCell,
-    /// No count ran: the Bethe approximation.
-    Bethe,
-    /// No count ran: Pauling's estimate.
-    Pauling,
-}
-
-impl CitedReason {
-    /// Whether the value is for the infinite crystal (not a finite cell).
-    pub fn is_infinite_crystal(self) -> bool {
-        !matches!(self, CitedReason::MonteCarloCell | CitedReason::ExactCell)
-    }
-
-    /// Whether the value is an approximation with no count behind it.
-    pub fn is_local_estimate(self) -> bool {
-        matches!(self, CitedReason::Bethe | CitedReason::Pauling)
-    }
-}
-
-/// Why a candidate for citing was passed over.
-#[derive(Clone, Debug, PartialEq)]
-#[non_exhaustive]
-pub enum Refusal<'a> {
-    /// Its method disagreed with a second route computed in the same run.
-    CheckFailed(Vec<&'a CrossCheck>),
-    /// A Monte Carlo extrapolation with as many fit parameters as cells: χ² = 0 for zero
-    /// degrees of freedom says nothing about the fit, so the value is not presented.
-    NoDegreesOfFreedom,
-    /// A local estimate that cannot be a value of W for this rule.
-    NotMeaningful(pauling::Caveat),
-}
-
-/// A candidate for citing that was passed over, and why.
-#[derive(Clone, Debug)]
-pub struct PassedOver<'a> {
-    /// The estimate not cited.
-    pub estimate: &'a Estimate,
-    /// Why.
-    pub why: Refusal<'a>,
-}
-
-/// The value to cite.
-#[derive(Clone, Debug)]
-pub struct CitedValue<'a> {
-    /// The estimate.
-    pub estimate: &'a Estimate,
-    /// Why it is the one.
-    pub reason: CitedReason,
-    /// The cross-checks of its method (all agree; none when the run had no second route).
-    pub checks: Vec<&'a CrossCheck>,
-}
-
-/// The choice of [`Survey::cited`]: the value (none when every candidate was refused) and
-/// the better-ranked candidates passed over.
-#[derive(Clone, Debug)]
-pub struct Cited<'a> {
-    /// The value to cite, if any.
-    pub value: Option<CitedValue<'a>>,
-    /// Better-ranked candidates that were not cited, and why, in rank order.
-    pub passed_over: Vec<PassedOver<'a>>,
-}
-
-impl Cited<'_> {
-    /// Whether a candidate was passed over because a cross-check failed.
-    pub fn check_failed(&self) -> bool {
-        self.passed_over
-            .iter()
-            .any(|p| matches!(p.why, Refusal::CheckFailed(_)))
-    }
-}
-
-/// Every estimate a survey made, with its diagnostics.
-#[derive(Clone, Debug)]
-pub struct Survey {
-    /// Pauling's independent-constraint estimate.
-    pub pauling: Estimate,
-    /// The Bethe approximation (belief propagation), when its messages settled.
-    pub bethe: Option<Estimate>,
-    /// Exact counts, smallest cell first.
-    pub exact: Vec<Estimate>,
-    /// Why the exact counts stopped (empty when they ran to the requested limit).
-    pub stopped: String,
-    /// Transfer matrices on strips, when they ran and extrapolated.
-    pub strips: Option<StripSeries>,
-    /// The Monte Carlo count of the largest cell sampled, when it ran.
-    pub sampled: Option<SampledCell>,
-    /// Every cell sampled, smallest first (the largest is also `sampled`).
-    pub sampled_sizes: Vec<SampledCell>,
-    /// The Monte Carlo values extrapolated to the infinite crystal (two or more cells).
-    pub extrapolated: Option<SizeExtrapolation>,
-    /// Cited values compared with a second route computed in the same run.
-    pub checks: Vec<CrossCheck>,
-    /// Plain sentences on what ran, what stopped and why.
-    pub notes: Vec<String>,
-    /// The budget in seconds.
-    pub budget: f64,
-    /// Whether the interrupt stopped the survey before it ran everything: the estimates
-    /// are what was finished.
-    pub interrupted: bool,
-}
-
-impl Survey {
-    /// Every estimate, Pauling and Bethe first, then exact counts, then the
-    /// infinite-crystal methods.
-    pub fn estimates(&self) -> Vec<Estimate> {
-        let mut v = vec![self.pauling.clone()];
-        v.extend(self.bethe.iter().cloned());
-        v.extend(self.exact.iter().cloned());
-        if let Some(s) = &self.strips {
-            v.push(s.estimate.clone());
-        }
-        v.extend(
-            self.sampled_sizes
-                .iter()
-                .map(|s| s.sampled.estimate.clone()),
-        );
-        if let Some(x) = &self.extrapolated {
-            v.push(x.estimate.clone());
-        }
-        v
-    }
-
-    /// The value a user should cite, why, and what was passed over on the way; see
-    /// [`Cited`]. Every report (table, JSON, Markdown, the sentence to paste) takes its cited
-    /// value from here, so that there is one priority order:
-    ///
-    /// 1. the transfer-matrix extrapolation to infinite width (2D): the infinite crystal;
-    /// 2. the Monte Carlo extrapolation to the infinite crystal (3D), if its fit has at least
-    ///    one degree of freedom left;
-    /// 3. the Monte Carlo count of the largest cell sampled: a finite cell;
-    /// 4. the largest exact cell with an arrangement: exact for that finite cell only;
-    /// 5. the Bethe approximation, then Pauling's estimate, when no count ran, unless the
-    ///    value is not meaningful ([`pauling::caveat`]: W below 1).
-    ///
-    /// A candidate whose method failed a cross-check of this run ([`Survey::checks`]) is
-    /// passed over, whatever its rank.
-    pub fn cited(&self) -> Cited<'_> {
-        let mut candidates: Vec<(&Estimate, CitedReason)> = Vec::new();
-        if let Some(t) = &self.strips {
-            candidates.push((&t.estimate, CitedReason::TransferMatrix));
-        }
-        if let Some(x) = &self.extrapolated {
-            candidates.push((&x.estimate, CitedReason::MonteCarloExtrapolated));
-        }
-        if let Some(m) = &self.sampled {
-            candidates.push((&m.sampled.estimate, CitedReason::MonteCarloCell));
-        }
-        if let Some(e) = self.largest_exact() {
-            candidates.push((e, CitedReason::ExactCell));
-        }
-        if let Some(b) = &self.bethe {
-            candidates.push((b, CitedReason::Bethe));
-        }
-        candidates.push((&self.pauling, CitedReason::Pauling));
-        let mut passed_over = Vec::new();
-        for (estimate, reason) in candidates {
-            let failed: Vec<&CrossCheck> = self
-                .checks
-                .iter()
-                .filter(|c| c.method == estimate.method && !c.agrees())
-                .collect();
-            let refusal = if !failed.is_empty() {
-                Some(Refusal::CheckFailed(failed))
-            } else if reason == CitedReason::MonteCarloExtrapolated
-                && self.extrapolated.as_ref().is_some_and(|x| x.fit.dof == 0)
-            {
-                Some(Refusal::NoDegreesOfFreedom)
-            } else if matches!(reason, CitedReason::Bethe | CitedReason::Pauling) {
-                pauling::caveat(estimate).map(Refusal::NotMeaningful)
-            } else {
-                None
-            };
-            match refusal {
-                Some(why) => passed_over.push(PassedOver { estimate, why }),
-                None => {
-                    let checks = self
-                        .checks
-                        .iter()
-                        .filter(|c| c.method == estimate.method)
-                        .collect();
-                    return Cited {
-                        value: Some(CitedValue {
-                            estimate,
-                            reason,
-                            checks,
-                        }),
-                        passed_over,
-                    };
-                }
-            }
-        }
-        Cited {
-            value: None,
-            passed_over,
-        }
-    }
-
-    /// The cross-checks whose two routes disagree.
-    pub fn failed_checks(&self) -> Vec<&CrossCheck> {
-        self.checks.iter().filter(|c| !c.agrees()).collect()
-    }
-
-    /// The largest exact cell that has at least one arrangement (cells of the wrong parity,
-    /// such as odd tori for dimers, have none and say nothing about W).
-    pub fn largest_exact(&self) -> Option<&Estimate> {
-        self.exact
-            .iter()
-            .rev()
-            .find(|e| e.ln_w_per_unit.is_finite())
-    }
-}
 
 /// Periodic cells of growing size: L×L in 2D; in 3D n×n×n, then (n+1)×n×n, (n+1)×(n+1)×n.
 pub fn cell_sequence(dimensions: usize) -> impl Iterator<Item = Cells> {
@@ -381,24 +63,22 @@ pub fn cell_sequence(dimensions: usize) -> impl Iterator<Item = Cells> {
 }
 
 /// Run every counter that suits the crystal; see the module documentation.
-pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
+pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<Survey> {
     if !(config.budget.is_finite() && config.budget > 0.0 && config.budget <= 1e7) {
         return Err(Error::Setting(format!(
             "the budget must be a positive number of seconds (at most 1e7), found {}",
             config.budget
         )));
     }
-    let tell = |s: Stage| {
-        if let Some(o) = &config.observer {
-            (o.0)(s)
-        }
-    };
-    let pauling = pauling::estimate(c)?;
+    let tell = |p: Progress| context.tell(p);
+    let pauling = pauling::count(c, &(), context)?.estimate;
     let mut notes = Vec::new();
-    let bethe = match bethe::estimate(c) {
-        Ok(b) => Some(b),
+    let bethe = match bethe::count(c, &BetheConfig::default(), context) {
+        Ok(b) => Some(b.estimate),
         Err(e) => {
-            notes.push(format!("Bethe approximation left out: {e}"));
+            notes.push(Note::BetheLeftOut {
+                error: e.to_string(),
+            });
             None
         }
     };
@@ -408,14 +88,14 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
     let deadline = start + Duration::from_secs_f64(0.4 * config.budget);
     let end = start + Duration::from_secs_f64(config.budget);
     let mut exact_counts = Vec::new();
-    let mut stopped = String::new();
+    let mut stopped = None;
     let largest = 1usize << 20; // never build absurdly large clusters
     let per_cell = c.formula_unit.per_cell(c);
     let mut interrupted = false;
     for cells in cell_sequence(c.dimensions) {
-        if config.interrupt.raised() {
+        if context.interrupt.raised() {
             interrupted = true;
-            stopped = "interrupted".into();
+            stopped = Some(ExactStop::Interrupted);
             break;
         }
         if config
@@ -425,65 +105,58 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
             break;
         }
         if cells.total() * c.sites.len().max(c.bonds.len()) > largest {
-            stopped = "cell size limit reached".into();
+            stopped = Some(ExactStop::CellSizeLimit);
             break;
         }
         let cluster = Cluster::new(c, cells.clone())?;
         let model = Model::new(&cluster)?;
-        tell(Stage::Exact(cells.to_string()));
-        let progress = config.observer.as_ref().map(|o| {
-            let o = o.clone();
-            exact::ProgressHook(Arc::new(move |done, all, states| {
-                (o.0)(Stage::ExactStep(done, all, states))
-            }))
+        tell(Progress::Counting {
+            cells: cells.to_string(),
         });
         let exact_config = exact::ExactConfig {
             max_states: config.max_states,
-            deadline: Some(deadline),
-            progress,
-            interrupt: config.interrupt.clone(),
+            ..Default::default()
         };
-        let outcome = exact::count(&model, &exact_config);
-        tell(Stage::ExactDone);
+        let outcome = exact::count(&model, &exact_config, &context.until(deadline));
+        tell(Progress::Counted);
         match outcome {
             Ok(e) => {
-                exact_counts.push(e);
+                exact_counts.push((cells.clone(), e.estimate));
                 // No constraint left on a cell too large for repeats: every variable is free
                 // (no rule, or rules that allow everything), and every larger cell gives the
                 // same W per formula unit.
                 if !model.has_repeats && model.constraints.is_empty() {
-                    stopped = "no rule restricts any variable (every variable is free), so \
-                               larger cells give the same W per formula unit"
-                        .into();
+                    stopped = Some(ExactStop::NothingRestricted);
                     break;
                 }
             }
             Err(Error::Deadline { cells }) => {
-                stopped = format!(
-                    "the exact counts' share (40 %) of the {} s budget ran out while counting {cells}",
-                    config.budget
-                );
+                stopped = Some(ExactStop::Deadline {
+                    budget: config.budget,
+                    cells,
+                });
                 break;
             }
             Err(Error::Budget { cells, .. }) => {
-                stopped = format!(
-                    "{cells} needs more than {} frontier states",
-                    config.max_states
-                );
+                stopped = Some(ExactStop::States {
+                    cells,
+                    max_states: config.max_states,
+                });
                 break;
             }
             Err(Error::Interrupted { .. }) => {
                 interrupted = true;
-                stopped = format!("interrupted while counting {cells}");
+                stopped = Some(ExactStop::InterruptedWhile {
+                    cells: cells.to_string(),
+                });
                 break;
             }
             Err(e) => return Err(e),
         }
         if Instant::now() > deadline {
-            stopped = format!(
-                "the exact counts' share of the {} s budget is spent",
-                config.budget
-            );
+            stopped = Some(ExactStop::BudgetSpent {
+                budget: config.budget,
+            });
             break;
         }
     }
@@ -494,23 +167,22 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
     // Stage boundary: an interrupt skips what has not begun; a stage that stops on it
     // keeps what it finished.
     let stage = match c.dimensions {
-        2 => "transfer matrix",
-        3 => "Monte Carlo",
-        _ => "",
+        2 => Some(Stage::TransferMatrix),
+        3 => Some(Stage::MonteCarlo),
+        _ => None,
     };
-    if interrupted || config.interrupt.raised() {
+    if interrupted || context.interrupt.raised() {
         interrupted = true;
-        if !stage.is_empty() {
-            notes.push(format!("{stage}: not run (interrupted)"));
+        if let Some(stage) = stage {
+            notes.push(Note::StageNotRun { stage });
         }
     } else {
         let outcome = match c.dimensions {
             2 => strip_series(
                 c,
-                end,
                 config,
+                &context.until(end),
                 &exact_counts,
-                &tell,
                 &mut notes,
                 &mut checks,
             )
@@ -518,9 +190,9 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
             3 => monte_carlo(
                 c,
                 config,
+                context,
                 end,
                 &exact_counts,
-                &tell,
                 &mut notes,
                 &mut checks,
             )
@@ -530,23 +202,23 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
         match outcome {
             Ok(()) => {}
             Err(Error::Interrupted { .. }) => {
-                notes.push(format!("{stage}: stopped (interrupted)"));
+                if let Some(stage) = stage {
+                    notes.push(Note::StageInterrupted { stage });
+                }
                 interrupted = true;
             }
             Err(e) => return Err(e),
         }
-        interrupted |= config.interrupt.raised();
+        interrupted |= context.interrupt.raised();
     }
     if interrupted {
-        notes.push(
-            "interrupted (Ctrl-C): the values given are those finished before the interrupt".into(),
-        );
+        notes.push(Note::Interrupted);
     }
     let sampled = sampled_sizes.last().cloned();
     Ok(Survey {
         pauling,
         bethe,
-        exact: exact_counts,
+        exact: exact_counts.into_iter().map(|(_, e)| e).collect(),
         stopped,
         strips,
         sampled,
@@ -565,48 +237,44 @@ pub fn survey(c: &Crystal, config: &SurveyConfig) -> Result<Survey> {
 /// that agreed).
 fn strip_series(
     c: &Crystal,
-    end: Instant,
     config: &SurveyConfig,
-    exact_counts: &[Estimate],
-    tell: &dyn Fn(Stage),
-    notes: &mut Vec<String>,
+    context: &Context,
+    exact_counts: &[(Cells, Estimate)],
+    notes: &mut Vec<Note>,
     checks: &mut Vec<CrossCheck>,
-) -> Result<Option<StripSeries>> {
-    let strip_config = StripConfig {
-        deadline: Some(end),
-        interrupt: config.interrupt.clone(),
-        ..StripConfig::default()
-    };
+) -> Result<Option<Counted<StripSeries>>> {
+    let strip_config = StripConfig::default().with_context(context);
     let widths: Box<dyn Iterator<Item = usize>> = match &config.widths {
         Some(w) => Box::new(w.clone().into_iter()),
         None => Box::new(2..),
     };
     let mut runner = transfer::Runner::new(c, &strip_config);
     for width in widths {
-        tell(Stage::Strip(width));
+        context.tell(Progress::Width { width });
         match runner.width(width) {
             Ok(_) => {}
             Err(Error::Deadline { .. }) => {
                 if config.widths.is_some() {
-                    notes.push(format!(
-                        "transfer matrix: the {} s budget ran out at width {width}",
-                        config.budget
-                    ));
+                    notes.push(Note::StripBudgetRanOut {
+                        budget: config.budget,
+                        width,
+                    });
                 }
                 break;
             }
             Err(Error::Interrupted { .. }) => {
-                notes.push(format!(
-                    "transfer matrix: interrupted at width {width}; the widths before it are kept"
-                ));
+                notes.push(Note::StripInterrupted { width });
                 break;
             }
             Err(e) => {
-                notes.push(format!("transfer matrix: stopped at width {width}: {e}"));
+                notes.push(Note::StripStopped {
+                    width,
+                    error: e.to_string(),
+                });
                 break;
             }
         }
-        if Instant::now() > end || config.interrupt.raised() {
+        if context.should_stop() {
             break;
         }
     }
@@ -616,17 +284,15 @@ fn strip_series(
     all.extend(torus_bounds(&run.widths, exact_counts));
     checks.extend(condensed(&all));
     if let Some(failed) = all.iter().find(|x| !x.agrees()) {
-        notes.push(format!(
-            "transfer matrix: a cross-check FAILED ({}: ln W per unit {} against {}); its value must not be cited",
-            crate::report::route_words(&failed.route),
-            failed.value,
-            failed.reference
-        ));
+        notes.push(Note::StripCheckFailed {
+            check: failed.clone(),
+        });
     }
     if done < 4 {
-        notes.push(format!(
-            "transfer matrix: only {done} widths within the budget; raise the budget or run `groundcount strip`"
-        ));
+        notes.push(Note::StripTooFewWidths {
+            done,
+            hint: Hint::RaiseBudgetOrStrip,
+        });
         return Ok(None);
     }
     match run.series {
@@ -634,35 +300,29 @@ fn strip_series(
             let first = series.widths.first().map_or(0, |r| r.width);
             let largest = series.widths.last().map_or(0, |r| r.width);
             let step = series.step;
-            notes.push(format!(
-                "transfer matrix: cylinders of width {first}..{largest}{} along a, extrapolated to infinite width \
-                 ({}){}; `groundcount strip` shows every width",
-                if step > 1 { format!(" in steps of {step} (the period with the smallest spread)") } else { String::new() },
-                match series.extrapolation.scaling {
-                    Scaling::Gapped => {
-                        "gapped: Aitken's Δ² on the last widths of each family, error from the window before".to_string()
-                    }
-                    _ => format!(
-                        "critical: fits in 1/W², error from their spread over {} fits",
-                        series.extrapolation.fits.len()
-                    ),
-                },
-                sector_words(&series.widths)
-            ));
+            notes.push(Note::StripSeries {
+                first,
+                largest,
+                step,
+                scaling: series.extrapolation.scaling,
+                fits: series.extrapolation.fits.len(),
+                sectors: sector_widths(&series.widths),
+                hint: Hint::StripShowsEveryWidth,
+            });
             Ok(Some(series))
         }
         None => {
             let why = run
                 .no_series
                 .unwrap_or_else(|| "too few widths".to_string());
-            notes.push(format!("transfer matrix: no extrapolation ({why})"));
+            notes.push(Note::StripNoExtrapolation { why });
             Ok(None)
         }
     }
 }
 
-/// How the kept charge sectors were established, in words ("" when no sector was kept).
-fn sector_words(widths: &[transfer::StripResult]) -> String {
+/// The widths whose charge sector was established each way.
+fn sector_widths(widths: &[transfer::StripResult]) -> SectorWidths {
     use transfer::SectorBasis;
     let of = |f: &dyn Fn(&SectorBasis) -> bool| -> Vec<usize> {
         widths
@@ -671,44 +331,24 @@ fn sector_words(widths: &[transfer::StripResult]) -> String {
             .map(|r| r.width)
             .collect()
     };
-    let full = of(&|b| *b == SectorBasis::FullSpace);
-    let local = of(&|b| *b == SectorBasis::LocalMaximum);
-    let predicted = of(&|b| matches!(b, SectorBasis::Predicted { .. }));
-    if full.is_empty() && local.is_empty() && predicted.is_empty() {
-        return String::new();
+    SectorWidths {
+        full_space: of(&|b| *b == SectorBasis::FullSpace),
+        neighbours: of(&|b| *b == SectorBasis::LocalMaximum),
+        predicted: of(&|b| matches!(b, SectorBasis::Predicted { .. })),
     }
-    let list = |v: &[usize]| match v {
-        [] => String::new(),
-        [a] => a.to_string(),
-        [a, .., b] => format!("{a}..{b}"),
-    };
-    let mut parts = Vec::new();
-    if !full.is_empty() {
-        parts.push(format!(
-            "checked against the full space at widths {}",
-            list(&full)
-        ));
-    }
-    if !local.is_empty() {
-        parts.push(format!(
-            "against the neighbouring charges at {}",
-            list(&local)
-        ));
-    }
-    if !predicted.is_empty() {
-        parts.push(format!("predicted from those at {}", list(&predicted)));
-    }
-    format!("; the charge sector of each width {}", parts.join(", "))
 }
 
 /// The lower bounds the exact counts of periodic L×L cells put on the largest eigenvalue
 /// of the width-L cylinder along a: Z = Tr T^L ≤ N λ^L, N the assignments of the boundary
 /// fields (a cell longer than the deepest constraint along the strip, so that Z is the
 /// trace).
-fn torus_bounds(widths: &[transfer::StripResult], exact_counts: &[Estimate]) -> Vec<CrossCheck> {
+fn torus_bounds(
+    widths: &[transfer::StripResult],
+    exact_counts: &[(Cells, Estimate)],
+) -> Vec<CrossCheck> {
     let mut out = Vec::new();
-    for e in exact_counts {
-        let Some(size) = e.cells.as_deref().and_then(square_side) else {
+    for (cells, e) in exact_counts {
+        let Some(size) = square_side(cells) else {
             continue;
         };
         let Some(r) = widths.iter().find(|r| r.width == size) else {
@@ -732,12 +372,10 @@ fn torus_bounds(widths: &[transfer::StripResult], exact_counts: &[Estimate]) -> 
     out
 }
 
-/// L for a cell written "LxL periodic" (two dimensions).
-fn square_side(cells: &str) -> Option<usize> {
-    let dims = cells.strip_suffix(" periodic")?;
-    let (a, b) = dims.split_once('x')?;
-    let (a, b): (usize, usize) = (a.parse().ok()?, b.parse().ok()?);
-    (a == b).then_some(a)
+/// L for a periodic L×L cell (two dimensions).
+fn square_side(cells: &Cells) -> Option<usize> {
+    let [a, b, c] = cells.counts;
+    (a == b && c == 1 && cells.periodic[..2] == [true, true]).then_some(a)
 }
 
 /// Every failed check, and of each route the agreeing check of the largest width.
@@ -840,34 +478,50 @@ fn spread(candidates: &[f64], last: usize, most: usize) -> Vec<usize> {
 fn monte_carlo(
     c: &Crystal,
     config: &SurveyConfig,
+    context: &Context,
     end: Instant,
-    exact_counts: &[Estimate],
-    tell: &dyn Fn(Stage),
-    notes: &mut Vec<String>,
+    exact_counts: &[(Cells, Estimate)],
+    notes: &mut Vec<Note>,
     checks: &mut Vec<CrossCheck>,
 ) -> Result<(Vec<SampledCell>, Option<SizeExtrapolation>)> {
-    let interrupt = &config.interrupt;
-    let mut sample = config.sample.clone();
-    sample.interrupt = interrupt.clone();
+    let interrupt = &context.interrupt;
+    let sample = config.sample.clone();
     let build = |cells: &Cells| -> Result<Model> { Model::new(&Cluster::new(c, cells.clone())?) };
-    let run = |cells: &Cells, model: &Model, sample: &SampleConfig| -> Result<SampledCell> {
-        tell(Stage::Sampling(cells.to_string(), model.variables.len()));
+    let run_in = |cells: &Cells,
+                  model: &Model,
+                  sample: &SampleConfig,
+                  context: &Context|
+     -> Result<SampledCell> {
+        context.tell(Progress::Sampling {
+            cells: cells.to_string(),
+            variables: model.variables.len(),
+        });
         Ok(SampledCell {
             cells: cells.to_string(),
-            sampled: sampling::sample(model, sample)?,
+            sampled: sampling::count(model, sample, context)?,
         })
     };
-    let interrupted_note = |notes: &mut Vec<String>, done: usize| {
-        notes.push(format!(
-            "Monte Carlo: INTERRUPTED; {done} cell{} finished",
-            if done == 1 { "" } else { "s" }
-        ))
+    // The cross-check and the first cell run to the end; the later cells' repetitions
+    // (equilibration extensions) stop at the end of the budget.
+    let run = |cells: &Cells, model: &Model, sample: &SampleConfig| -> Result<SampledCell> {
+        run_in(cells, model, sample, context)
     };
+    let bounded = context.until(end);
+    let interrupted_note =
+        |notes: &mut Vec<Note>, done: usize| notes.push(Note::MonteCarloInterrupted { done });
     if interrupt.raised() {
         interrupted_note(notes, 0);
         return Ok((Vec::new(), None));
     }
-    cross_check(c, &sample, exact_counts, &build, &run, notes, checks);
+    cross_check(
+        c,
+        &sample,
+        context,
+        exact_counts,
+        &build,
+        &run,
+        (notes, checks),
+    );
 
     let per_cell = c.formula_unit.per_cell(c);
     let units = |cells: &Cells| cells.total() as f64 * per_cell;
@@ -876,7 +530,7 @@ fn monte_carlo(
         None => sample_candidates(per_cell),
     };
     let Some(first_cells) = candidates.first() else {
-        notes.push("Monte Carlo: not run (no periodic cell of a sensible size)".into());
+        notes.push(Note::MonteCarloNoCell);
         return Ok((Vec::new(), None));
     };
     let mut results = Vec::new();
@@ -887,7 +541,9 @@ fn monte_carlo(
             return Ok((Vec::new(), None));
         }
         Err(e) => {
-            notes.push(format!("Monte Carlo: not run ({e})"));
+            notes.push(Note::MonteCarloNotRun {
+                error: e.to_string(),
+            });
             return Ok((Vec::new(), None));
         }
     };
@@ -933,7 +589,6 @@ fn monte_carlo(
         chosen = largest(1.0);
     }
     results.push(first);
-    sample.deadline = Some(end);
     // Each cell still to run gets a share of the time left in proportion to its size; its
     // replicas (up to 8 times the configured number), then its sweeps, are raised to fill
     // that share. The pace is measured again after every cell.
@@ -975,7 +630,7 @@ fn monte_carlo(
             this.sweeps = (base.1 as f64 * longer) as usize;
             this.equilibration = (sample.equilibration as f64 * longer) as usize;
         }
-        match build(cells).and_then(|m| run(cells, &m, &this)) {
+        match build(cells).and_then(|m| run_in(cells, &m, &this, &bounded)) {
             Ok(s) => {
                 let e = &s.sampled;
                 let pace = e.estimate.seconds
@@ -997,10 +652,7 @@ fn monte_carlo(
     }
     describe(&results, base, notes);
     if !skipped.is_empty() {
-        notes.push(format!(
-            "Monte Carlo: {} left out: the budget ran out",
-            skipped.join(", ")
-        ));
+        notes.push(Note::MonteCarloLeftOut { cells: skipped });
     }
     if interrupt.raised() {
         interrupted_note(notes, results.len());
@@ -1010,7 +662,7 @@ fn monte_carlo(
 }
 
 /// The note on what the Monte Carlo ran.
-fn describe(results: &[SampledCell], base: (usize, usize), notes: &mut Vec<String>) {
+fn describe(results: &[SampledCell], base: (usize, usize), notes: &mut Vec<Note>) {
     let Some(s0) = results.first().map(|r| &r.sampled) else {
         return;
     };
@@ -1024,100 +676,54 @@ fn describe(results: &[SampledCell], base: (usize, usize), notes: &mut Vec<Strin
         .filter(|r| !r.sampled.equilibrated)
         .map(|r| r.cells.as_str())
         .collect();
-    let settings: Vec<String> = results
+    let settings: Vec<(usize, usize)> = results
         .iter()
-        .map(|r| format!("{} × {}", r.sampled.replicas, r.sampled.sweeps))
+        .map(|r| (r.sampled.replicas, r.sampled.sweeps))
         .collect();
-    let raised = results
-        .iter()
-        .any(|r| (r.sampled.replicas, r.sampled.sweeps) != base);
-    notes.push(format!(
-        "Monte Carlo: thermodynamic integration on {} ({} formula units), seed {}, replicas × sweeps per node {}{}; equilibration check (passes up and down) {}{}; `groundcount sample` runs larger cells and longer",
-        cell_list(results),
-        results
+    let raised = settings.iter().any(|&x| x != base);
+    notes.push(Note::MonteCarloRan {
+        cells: cell_list(results),
+        formula_units: results
             .iter()
-            .map(|r| format!("{}", r.sampled.estimate.formula_units))
-            .collect::<Vec<_>>()
-            .join(", "),
-        s0.seed,
-        settings.join(", "),
-        if raised {
-            format!(
-                " (raised from the default {} × {} to fill the budget)",
-                base.0, base.1
-            )
-        } else {
-            String::new()
-        },
-        if failed.is_empty() {
-            "passed".to_string()
-        } else {
-            format!(
-                "FAILED on {} (an allowance for the lag is in their σ)",
-                failed.join(", ")
-            )
-        },
-        if extended.is_empty() {
-            String::new()
-        } else {
-            format!(
-                "; {} repeated with more sweeps after a first failed check",
-                extended.join(", ")
-            )
-        }
-    ));
+            .map(|r| r.sampled.estimate.formula_units)
+            .collect(),
+        seed: s0.seed,
+        settings,
+        raised_from: raised.then_some(base),
+        failed: failed.into_iter().map(String::from).collect(),
+        extended: extended.into_iter().map(String::from).collect(),
+        hint: Hint::SampleRunsLonger,
+    });
 }
 
 /// The extrapolation of the sampled cells, with a note.
-fn extrapolate_cells(
-    results: &[SampledCell],
-    notes: &mut Vec<String>,
-) -> Option<SizeExtrapolation> {
+fn extrapolate_cells(results: &[SampledCell], notes: &mut Vec<Note>) -> Option<SizeExtrapolation> {
     if results.len() < size::MIN_CELLS {
-        notes.push(format!(
-            "Monte Carlo: {} cell{} only, not extrapolated (a fit needs {} so that one degree of freedom tests its form); every Monte Carlo row is a finite torus, whose W is larger than the infinite crystal's; raise the budget",
-            results.len(),
-            if results.len() == 1 { "" } else { "s" },
-            size::MIN_CELLS
-        ));
+        notes.push(Note::MonteCarloTooFewCells {
+            cells: results.len(),
+            needed: size::MIN_CELLS,
+        });
         return None;
     }
-    let points: Vec<size::SizePoint> = results
-        .iter()
-        .map(|r| size::SizePoint {
-            units: r.sampled.estimate.formula_units,
-            value: r.sampled.estimate.ln_w_per_unit,
-            sigma: r.sampled.estimate.sigma_ln_w.unwrap_or(0.0),
-        })
-        .collect();
-    match size::extrapolate(&points) {
-        Ok(fit) => {
-            notes.push(format!(
-                "Monte Carlo: {} cells extrapolated to the infinite crystal by the weighted fit {} (χ² = {:.3} for {} degrees of freedom{}); the other form {} gives ln W = {} per formula unit",
-                results.len(),
-                fit.form(),
-                fit.chi2,
-                fit.dof,
-                if fit.systematic > 0.0 {
-                    format!(
-                        "; the ln N/N term left out, its effect {} in ln W added to σ",
-                        crate::report::sig(fit.systematic, 2)
-                    )
-                } else {
-                    String::new()
-                },
-                fit.alternative_form(),
-                fit.alternative.map_or("—".to_string(), |(v, s)| format!(
-                    "{} ± {}",
-                    crate::report::sig(v, 6),
-                    crate::report::sig(s, 2)
-                ))
-            ));
-            let estimate = fit.estimate(results.iter().map(|r| r.sampled.estimate.seconds).sum());
-            Some(SizeExtrapolation { fit, estimate })
+    let cells: Vec<Estimate> = results.iter().map(|r| r.sampled.estimate.clone()).collect();
+    match size::count(&cells, &(), &Context::new()) {
+        Ok(x) => {
+            let fit = &x.details;
+            notes.push(Note::MonteCarloExtrapolated {
+                cells: results.len(),
+                form: fit.form(),
+                chi2: fit.chi2,
+                dof: fit.dof,
+                systematic: fit.systematic,
+                alternative_form: fit.alternative_form(),
+                alternative: fit.alternative,
+            });
+            Some(x)
         }
         Err(e) => {
-            notes.push(format!("Monte Carlo: no extrapolation ({e})"));
+            notes.push(Note::MonteCarloNoExtrapolation {
+                error: e.to_string(),
+            });
             None
         }
     }
@@ -1133,9 +739,10 @@ const WANG_LANDAU_MAX_VARIABLES: usize = 600;
 fn wang_landau_check(
     c: &Crystal,
     sample: &SampleConfig,
+    context: &Context,
     build: &dyn Fn(&Cells) -> Result<Model>,
     run: &dyn Fn(&Cells, &Model, &SampleConfig) -> Result<SampledCell>,
-    notes: &mut Vec<String>,
+    notes: &mut Vec<Note>,
     checks: &mut Vec<CrossCheck>,
 ) {
     let cells = Cells::cube(1, c.dimensions);
@@ -1143,14 +750,17 @@ fn wang_landau_check(
     let model = match build(&cells) {
         Ok(m) if m.variables.len() <= WANG_LANDAU_MAX_VARIABLES => m,
         Ok(m) => {
-            notes.push(format!(
-                "Monte Carlo: no cross-check (no exact count in this run, and {name} has {} variables, too many for the Wang–Landau check)",
-                m.variables.len()
-            ));
+            notes.push(Note::NoCrossCheckTooLarge {
+                cells: name,
+                variables: m.variables.len(),
+            });
             return;
         }
         Err(e) => {
-            notes.push(format!("Monte Carlo: no cross-check ({e})"));
+            notes.push(Note::NoCrossCheck {
+                cells: None,
+                error: e.to_string(),
+            });
             return;
         }
     };
@@ -1159,15 +769,15 @@ fn wang_landau_check(
         replicas: sample.replicas,
         sweeps: 20_000,
         uniform: 20_000,
-        interrupt: sample.interrupt.clone(),
     };
-    let walk = match sampling::wang_landau::wang_landau(&model, &walk_config) {
+    let walk = match sampling::wang_landau::count(&model, &walk_config, context) {
         Ok(w) => w,
         Err(Error::Interrupted { .. }) => return,
         Err(e) => {
-            notes.push(format!(
-                "Monte Carlo: no cross-check (no exact count in this run, and the Wang–Landau walk on {name} failed: {e})"
-            ));
+            notes.push(Note::WangLandauFailed {
+                cells: name,
+                error: e.to_string(),
+            });
             return;
         }
     };
@@ -1175,7 +785,10 @@ fn wang_landau_check(
         Ok(s) => s,
         Err(Error::Interrupted { .. }) => return,
         Err(e) => {
-            notes.push(format!("Monte Carlo: no cross-check on {name} ({e})"));
+            notes.push(Note::NoCrossCheck {
+                cells: Some(name),
+                error: e.to_string(),
+            });
             return;
         }
     };
@@ -1190,20 +803,13 @@ fn wang_landau_check(
         reference: b.ln_w_per_unit,
         tolerance: CROSS_CHECK_SIGMAS * sa.hypot(sb),
     };
-    notes.push(format!(
-        "Monte Carlo cross-check on {name} (no exact count in this run): thermodynamic integration ln W = {} ± {} per formula unit against a Wang–Landau walk {} ± {}; {}. It tests the sampler on a small cell, not the extrapolation to larger cells",
-        crate::report::sig(a.ln_w_per_unit, 6),
-        crate::report::sig(sa, 2),
-        crate::report::sig(b.ln_w_per_unit, 6),
-        crate::report::sig(sb, 2),
-        if check.agrees() {
-            format!("agreement within {CROSS_CHECK_SIGMAS} combined σ")
-        } else {
-            format!(
-                "DISAGREEMENT beyond {CROSS_CHECK_SIGMAS} combined σ: the Monte Carlo values of this run are not to be trusted"
-            )
-        }
-    ));
+    notes.push(Note::WangLandauCheck {
+        cells: name,
+        integrated: (a.ln_w_per_unit, sa),
+        walk: (b.ln_w_per_unit, sb),
+        agrees: check.agrees(),
+        sigmas: CROSS_CHECK_SIGMAS,
+    });
     checks.push(check);
 }
 
@@ -1217,25 +823,22 @@ pub const CROSS_CHECK_SIGMAS: f64 = 4.0;
 fn cross_check(
     c: &Crystal,
     sample: &SampleConfig,
-    exact_counts: &[Estimate],
+    context: &Context,
+    exact_counts: &[(Cells, Estimate)],
     build: &dyn Fn(&Cells) -> Result<Model>,
     run: &dyn Fn(&Cells, &Model, &SampleConfig) -> Result<SampledCell>,
-    notes: &mut Vec<String>,
-    checks: &mut Vec<CrossCheck>,
+    (notes, checks): (&mut Vec<Note>, &mut Vec<CrossCheck>),
 ) {
-    let Some(exact) = exact_counts
+    let Some((cells, exact)) = exact_counts
         .iter()
         .rev()
-        .find(|e| e.ln_w_per_unit.is_finite() && e.formula_units >= 2.0)
+        .find(|(_, e)| e.ln_w_per_unit.is_finite() && e.formula_units >= 2.0)
     else {
-        wang_landau_check(c, sample, build, run, notes, checks);
+        wang_landau_check(c, sample, context, build, run, notes, checks);
         return;
     };
-    let name = exact.cells.clone().unwrap_or_default();
-    let spelled = name.strip_suffix(" periodic").unwrap_or(&name);
-    let outcome = Cells::parse(spelled, None, c.dimensions)
-        .and_then(|cells| build(&cells).map(|m| (cells, m)))
-        .and_then(|(cells, m)| run(&cells, &m, sample));
+    let name = cells.to_string();
+    let outcome = build(cells).and_then(|m| run(cells, &m, sample));
     match outcome {
         Ok(s) => {
             let e = &s.sampled.estimate;
@@ -1249,25 +852,21 @@ fn cross_check(
                 reference: exact.ln_w_per_unit,
                 tolerance: CROSS_CHECK_SIGMAS * sigma,
             };
-            notes.push(format!(
-                "Monte Carlo cross-check on {name} (sampled with the default settings, {} s): ln W = {} ± {} per formula unit against the exact {}; {}. It tests the sampler (integration, tail, equilibration) on a cell the exact counter reaches, not the extrapolation to larger cells",
-                crate::report::sig(e.seconds, 2),
-                crate::report::sig(e.ln_w_per_unit, 6),
-                crate::report::sig(sigma, 2),
-                crate::report::sig(exact.ln_w_per_unit, 6),
-                if check.agrees() {
-                    format!("agreement within {CROSS_CHECK_SIGMAS}σ")
-                } else {
-                    format!(
-                        "DISAGREEMENT beyond {CROSS_CHECK_SIGMAS}σ ({:.1}σ): the Monte Carlo values of this run are not to be trusted",
-                        (e.ln_w_per_unit - exact.ln_w_per_unit) / sigma.max(f64::MIN_POSITIVE)
-                    )
-                }
-            ));
+            notes.push(Note::ExactCheck {
+                cells: name,
+                seconds: e.seconds,
+                sampled: (e.ln_w_per_unit, sigma),
+                exact: exact.ln_w_per_unit,
+                agrees: check.agrees(),
+                sigmas: CROSS_CHECK_SIGMAS,
+            });
             checks.push(check);
         }
         Err(Error::Interrupted { .. }) => {}
-        Err(e) => notes.push(format!("Monte Carlo: no cross-check on {name} ({e})")),
+        Err(e) => notes.push(Note::NoCrossCheck {
+            cells: Some(name),
+            error: e.to_string(),
+        }),
     }
 }
 

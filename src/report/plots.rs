@@ -7,7 +7,7 @@
 
 use plotters::prelude::*;
 
-use super::Writeup;
+use super::Report;
 use crate::estimate::Method;
 
 /// One SVG figure and the file name it should be written to.
@@ -176,7 +176,7 @@ fn level(label: &str, color: RGBColor, y: f64, x0: f64, x1: f64) -> Series {
 }
 
 /// Every figure that applies to the report's data.
-pub fn figures(w: &Writeup<'_>) -> Vec<Figure> {
+pub fn figures(w: &Report<'_>) -> Vec<Figure> {
     let mut out = Vec::new();
     let s = w.survey;
     let unit = &w.lattice.crystal.formula_unit.name;
@@ -232,7 +232,7 @@ pub fn figures(w: &Writeup<'_>) -> Vec<Figure> {
             ));
         }
         if let Some(e) = infinite {
-            let label = format!("{} (infinite crystal)", crate::report::method_label(e));
+            let label = format!("{} (infinite crystal)", crate::text::method_label(e));
             series.push(Series::new(
                 &label,
                 Style::Points,
@@ -341,7 +341,7 @@ pub fn figures(w: &Writeup<'_>) -> Vec<Figure> {
                 "Heat capacity data of {}: Cp/T against T, the interpolant whose integral gives the entropy, and the {} extrapolation below {} K.",
                 k.file,
                 k.low_t_words,
-                crate::report::sig(k.lowest_k, 4)
+                crate::text::sig(k.lowest_k, 4)
             ),
             svg: chart(
                 "Cp/T against temperature",
