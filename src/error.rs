@@ -68,6 +68,24 @@ pub enum Error {
         /// What is wrong and what was expected.
         message: String,
     },
+    /// Heat capacities per mole of one formula unit compared with a value per mole of
+    /// another, with no conversion factor given.
+    #[error(
+        "{}: the heat capacities are per mole of {data_unit} but the comparison is per mole of \
+         {target_unit}; the two formula units differ and no conversion factor (how many \
+         {target_unit} one {data_unit} holds) was given",
+        data_located(path, *line)
+    )]
+    FormulaUnitMismatch {
+        /// The data file.
+        path: PathBuf,
+        /// The line of its `formula-unit` header.
+        line: u64,
+        /// The data's formula unit.
+        data_unit: String,
+        /// The formula unit of the comparison (the lattice's).
+        target_unit: String,
+    },
     /// A finite cell that cannot be used: its notation, a size, an axis, its size against
     /// the limits.
     #[error("{0}")]

@@ -260,9 +260,11 @@ fn issue11_statistical_entropy_without_an_uncertainty() {
             .contains("without an uncertainty")
     );
 
+    // The hydrate's lattice: its data are per Qn(H2O)2, and square ice's count per H2O
+    // would be refused (issue 16).
     let dir = out_dir("report-statistical-without-sigma");
     report(&[
-        lattice("square-ice.yaml").to_str().unwrap(),
+        lattice("demo-hydrate.yaml").to_str().unwrap(),
         "-o",
         dir.to_str().unwrap(),
         "--widths",

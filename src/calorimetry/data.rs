@@ -15,6 +15,31 @@
 //! 12.5, 0.183, 0.003
 //! ```
 //!
+//! # Header lines
+//!
+//! Before the row of column names, lines that begin with `#@` state what the numbers are
+//! ([`DataHeader`]); each holds one `key: value`, each key at most once:
+//!
+//! | key | values | default |
+//! | --- | --- | --- |
+//! | `formula-unit` | the formula unit the molar quantities are per, e.g. `Dy2Ti2O7` | not stated |
+//! | `cp-unit` | `J/(mol K)`, `mJ/(mol K)` or `cal/(mol K)` (the thermochemical calorie, 4.184 J exactly) | `J/(mol K)` |
+//! | `temperature-unit` | `K` or `mK` | `K` |
+//!
+//! ```text
+//! #@ formula-unit: Dy2Ti2O7
+//! #@ cp-unit: cal/(mol K)
+//! #@ temperature-unit: K
+//! T, Cp, sigma
+//! ```
+//!
+//! The σ column has the unit of Cp. Values are converted on reading (Cp to J/(mol K),
+//! temperatures to K; [`Point`] holds the converted values). Spaces, `·` and `*` inside a
+//! unit are ignored, and `J/mol/K` is read as `J/(mol K)`. An unknown key, a repeated key, an
+//! unknown unit or a `#@` line after the column names is refused with its line. An ordinary
+//! comment that reads like a header line (`# formula-unit: …`) is refused too, since the user
+//! meant a header line and would otherwise be silently ignored.
+//!
 //! # Checks
 //!
 //! Every value must be a finite number; temperatures positive and strictly increasing; Cp
@@ -28,6 +53,7 @@
 use std::path::{Path, PathBuf};
 
 use crate::error::{Error, Result};
+use crate::thermo::CALORIE;
 
 /// The fewest points a data file may hold (a T³ fit and a cubic interpolant need them).
 pub const MIN_POINTS: usize = 4;
@@ -45,6 +71,106 @@ pub struct Point {
     pub line: u64,
 }
 
+/// The unit of Cp (and of its σ) in a data file.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+pub enum CpUnit {
+    /// J/(mol K).
+    #[default]
+    Joule,
+    /// mJ/(mol K).
+    Millijoule,
+    /// cal/(mol K), the thermochemical calorie (4.184 J exactly).
+    Calorie,
+}
+
+impl CpUnit {
+    /// J/(mol K) per unit.
+    pub fn to_joule(self) -> f64 {
+        match self {
+            CpUnit::Joule => 1.0,
+            CpUnit::Millijoule => 1e-3,
+            CpUnit::Calorie => CALORIE,
+        }
+    }
+
+    /// The unit as written in messages.
+    pub fn name(self) -> &'static str {
+        match self {
+            CpUnit::Joule => "J/(mol K)",
+            CpUnit::Millijoule => "mJ/(mol K)",
+            CpUnit::Calorie => "cal/(mol K)",
+        }
+    }
+}
+
+/// The unit of temperature in a data file.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+pub enum TemperatureUnit {
+    /// Kelvin.
+    #[default]
+    Kelvin,
+    /// Millikelvin.
+    Millikelvin,
+}
+
+impl TemperatureUnit {
+    /// K per unit.
+    pub fn to_kelvin(self) -> f64 {
+        match self {
+            TemperatureUnit::Kelvin => 1.0,
+            TemperatureUnit::Millikelvin => 1e-3,
+        }
+    }
+
+    /// The unit as written in messages.
+    pub fn name(self) -> &'static str {
+        match self {
+            TemperatureUnit::Kelvin => "K",
+            TemperatureUnit::Millikelvin => "mK",
+        }
+    }
+}
+
+/// What the `#@` header lines of a data file state.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct DataHeader {
+    /// The formula unit the molar quantities are per, when stated, and its line.
+    pub formula_unit: Option<(String, u64)>,
+    /// The unit of Cp and σ in the file (values are converted to J/(mol K) on reading).
+    pub cp_unit: CpUnit,
+    /// The unit of temperature in the file (converted to K on reading).
+    pub temperature_unit: TemperatureUnit,
+}
+
+/// The header keys, in the order of the documentation.
+pub const HEADER_KEYS: [&str; 3] = ["formula-unit", "cp-unit", "temperature-unit"];
+
+/// A unit written by a user, without spaces, `·` or `*`, in lower case.
+fn unit_key(s: &str) -> String {
+    s.chars()
+        .filter(|c| !c.is_whitespace() && *c != '·' && *c != '*')
+        .collect::<String>()
+        .to_lowercase()
+}
+
+fn parse_cp_unit(s: &str) -> Option<CpUnit> {
+    match unit_key(s).as_str() {
+        "j/(molk)" | "j/mol/k" | "jmol-1k-1" | "jmol⁻¹k⁻¹" => Some(CpUnit::Joule),
+        "mj/(molk)" | "mj/mol/k" | "mjmol-1k-1" | "mjmol⁻¹k⁻¹" => Some(CpUnit::Millijoule),
+        "cal/(molk)" | "cal/mol/k" | "calmol-1k-1" | "calmol⁻¹k⁻¹" => Some(CpUnit::Calorie),
+        _ => None,
+    }
+}
+
+fn parse_temperature_unit(s: &str) -> Option<TemperatureUnit> {
+    // Case matters here: mK is not MK.
+    match s.trim() {
+        "K" => Some(TemperatureUnit::Kelvin),
+        "mK" => Some(TemperatureUnit::Millikelvin),
+        _ => None,
+    }
+}
+
 /// A checked heat-capacity table, sorted by temperature.
 #[derive(Clone, Debug)]
 pub struct HeatCapacityData {
@@ -52,7 +178,9 @@ pub struct HeatCapacityData {
     pub path: PathBuf,
     /// The header's column names.
     pub columns: Vec<String>,
-    /// The points, temperatures strictly increasing.
+    /// What the `#@` lines state (units, formula unit).
+    pub header: DataHeader,
+    /// The points, temperatures strictly increasing, in K and J/(mol K).
     pub points: Vec<Point>,
 }
 
@@ -95,10 +223,95 @@ impl HeatCapacityData {
         let text = text.strip_prefix('\u{feff}').unwrap_or(text);
         let mut columns: Option<Vec<String>> = None;
         let mut points: Vec<Point> = Vec::new();
+        let mut head = DataHeader::default();
+        let mut seen: Vec<(&str, u64)> = Vec::new();
         // Lines end in LF, CR LF or (old spreadsheets) CR alone.
         let lines = text.split("\r\n").flat_map(|l| l.split(['\n', '\r']));
         for (i, raw) in lines.enumerate() {
             let line = i as u64 + 1;
+            let trimmed = raw.trim_start();
+            if let Some(rest) = trimmed.strip_prefix("#@") {
+                if columns.is_some() {
+                    return Err(fail(
+                        line,
+                        "a `#@` header line after the column names; header lines belong above \
+                         the row of column names"
+                            .into(),
+                    ));
+                }
+                let (key, value) = rest.split_once(':').ok_or_else(|| {
+                    fail(
+                        line,
+                        format!(
+                            "expected `#@ key: value` with a key among {}, found `{}`",
+                            HEADER_KEYS.join(", "),
+                            trimmed
+                        ),
+                    )
+                })?;
+                let (key, value) = (key.trim(), value.trim());
+                let Some(&known) = HEADER_KEYS.iter().find(|k| **k == key) else {
+                    return Err(fail(
+                        line,
+                        format!(
+                            "unknown header key `{key}`; expected one of {}",
+                            HEADER_KEYS.join(", ")
+                        ),
+                    ));
+                };
+                if let Some((_, first)) = seen.iter().find(|(k, _)| *k == known) {
+                    return Err(fail(
+                        line,
+                        format!("the header key `{known}` is given twice (first on line {first})"),
+                    ));
+                }
+                seen.push((known, line));
+                match known {
+                    "formula-unit" => {
+                        if value.is_empty() {
+                            return Err(fail(
+                                line,
+                                "expected a formula unit after `formula-unit:`, e.g. Dy2Ti2O7"
+                                    .into(),
+                            ));
+                        }
+                        head.formula_unit = Some((value.to_string(), line));
+                    }
+                    "cp-unit" => {
+                        head.cp_unit = parse_cp_unit(value).ok_or_else(|| {
+                            fail(
+                                line,
+                                format!(
+                                    "unknown unit of Cp `{value}`; expected J/(mol K), mJ/(mol K) \
+                                     or cal/(mol K)"
+                                ),
+                            )
+                        })?;
+                    }
+                    _ => {
+                        head.temperature_unit = parse_temperature_unit(value).ok_or_else(|| {
+                            fail(
+                                line,
+                                format!("unknown unit of temperature `{value}`; expected K or mK"),
+                            )
+                        })?;
+                    }
+                }
+                continue;
+            }
+            if let Some(rest) = trimmed.strip_prefix('#')
+                && let Some((key, _)) = rest.split_once(':')
+                && HEADER_KEYS.contains(&key.trim())
+            {
+                return Err(fail(
+                    line,
+                    format!(
+                        "a comment that reads like a header line; write `#@ {}` to state it, \
+                         or reword the comment",
+                        rest.trim()
+                    ),
+                ));
+            }
             let content = raw.split('#').next().unwrap_or("").trim();
             if content.is_empty() {
                 continue;
@@ -151,33 +364,37 @@ impl HeatCapacityData {
                     )),
                 }
             };
-            let t_k = number(0, "a temperature in K")?;
-            let cp = number(1, "a heat capacity in J/(mol K)")?;
-            let sigma = if want == 3 {
-                Some(number(2, "the 1σ of Cp in J/(mol K)")?)
+            let (tu, cu) = (head.temperature_unit.name(), head.cp_unit.name());
+            let t_file = number(0, &format!("a temperature in {tu}"))?;
+            let cp_file = number(1, &format!("a heat capacity in {cu}"))?;
+            let sigma_file = if want == 3 {
+                Some(number(2, &format!("the 1σ of Cp in {cu}"))?)
             } else {
                 None
             };
-            if t_k <= 0.0 {
+            if t_file <= 0.0 {
                 return Err(fail(
                     line,
-                    format!("expected a positive temperature in K, found {t_k}"),
+                    format!("expected a positive temperature in {tu}, found {t_file}"),
                 ));
             }
-            if cp < 0.0 {
+            if cp_file < 0.0 {
                 return Err(fail(
                     line,
-                    format!("expected a heat capacity of at least 0 J/(mol K), found {cp}"),
+                    format!("expected a heat capacity of at least 0 {cu}, found {cp_file}"),
                 ));
             }
-            if let Some(s) = sigma
+            if let Some(s) = sigma_file
                 && s <= 0.0
             {
                 return Err(fail(
                     line,
-                    format!("expected a positive 1σ of Cp in J/(mol K), found {s}"),
+                    format!("expected a positive 1σ of Cp in {cu}, found {s}"),
                 ));
             }
+            let t_k = t_file * head.temperature_unit.to_kelvin();
+            let cp = cp_file * head.cp_unit.to_joule();
+            let sigma = sigma_file.map(|s| s * head.cp_unit.to_joule());
             if let Some(prev) = points.last()
                 && t_k <= prev.t_k
             {
@@ -186,11 +403,13 @@ impl HeatCapacityData {
                 } else {
                     "is below"
                 };
+                let back = head.temperature_unit.to_kelvin();
                 return Err(fail(
                     line,
                     format!(
-                        "temperatures must increase strictly: {t_k} K {how} {} K of line {}",
-                        prev.t_k, prev.line
+                        "temperatures must increase strictly: {t_file} {tu} {how} {} {tu} of line {}",
+                        prev.t_k / back,
+                        prev.line
                     ),
                 ));
             }
@@ -219,6 +438,7 @@ impl HeatCapacityData {
         Ok(HeatCapacityData {
             path,
             columns,
+            header: head,
             points,
         })
     }
@@ -226,6 +446,11 @@ impl HeatCapacityData {
     /// Whether every point carries a 1σ of Cp.
     pub fn has_sigma(&self) -> bool {
         self.points.iter().all(|p| p.sigma.is_some())
+    }
+
+    /// The formula unit the file states, if any.
+    pub fn formula_unit(&self) -> Option<&str> {
+        self.header.formula_unit.as_ref().map(|(n, _)| n.as_str())
     }
 
     /// The lowest and highest temperatures, K.

@@ -148,10 +148,43 @@ pub fn entropy(t_k: f64, theta_k: f64) -> f64 {
     3.0 * R * entropy_reduced(theta_k / t_k)
 }
 
-/// The Debye temperature θ_D = (12π⁴R/(5a))^(1/3) in K of a low-temperature law
-/// Cp = a T³ (a in J/(mol K⁴)), for one oscillator group ("atom") per formula unit.
-pub fn debye_temperature(a: f64) -> f64 {
-    (12.0 * PI.powi(4) * R / (5.0 * a)).cbrt()
+/// The Debye temperature θ_D = (12π⁴ n R/(5a))^(1/3) in K of a low-temperature law
+/// Cp = a T³ (a in J/(mol K⁴) per formula unit) for n atoms (oscillator groups) per formula
+/// unit.
+pub fn debye_temperature(a: f64, atoms: f64) -> f64 {
+    (12.0 * PI.powi(4) * atoms * R / (5.0 * a)).cbrt()
+}
+
+/// Einstein heat capacity in J/(mol K) per mole of oscillator groups (three modes each) of
+/// frequency k_B θ_E/h: 3R x² eˣ/(eˣ − 1)², x = θ_E/T (Einstein 1907, Ann. Phys. 327, 180).
+pub fn einstein_heat_capacity(t_k: f64, theta_k: f64) -> f64 {
+    if t_k <= 0.0 {
+        return 0.0;
+    }
+    let x = theta_k / t_k;
+    if x > 700.0 {
+        return 0.0;
+    }
+    // x² eˣ/(eˣ − 1)² = x² e⁻ˣ/(1 − e⁻ˣ)², written so that large x does not overflow.
+    let e = (-x).exp();
+    let d = -(-x).exp_m1();
+    if x < 1e-8 {
+        return 3.0 * R;
+    }
+    3.0 * R * x * x * e / (d * d)
+}
+
+/// Einstein entropy in J/(mol K) per mole of oscillator groups:
+/// 3R [x/(eˣ − 1) − ln(1 − e⁻ˣ)].
+pub fn einstein_entropy(t_k: f64, theta_k: f64) -> f64 {
+    if t_k <= 0.0 {
+        return 0.0;
+    }
+    let x = theta_k / t_k;
+    if x > 700.0 {
+        return 0.0;
+    }
+    3.0 * R * (planck(x) - (-(-x).exp_m1()).ln())
 }
 
 #[cfg(test)]

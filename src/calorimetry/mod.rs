@@ -3,10 +3,11 @@
 //!
 //! # What it computes
 //!
-//! S_cal(T) = a T₀³/3 + ∫_T₀^T Cp d(ln T) + Σ ΔH_tr/T_tr, the third-law entropy at T from
+//! S_cal(T) = S(T₀) + ∫_T₀^T Cp d(ln T) + Σ ΔH_tr/T_tr, the third-law entropy at T from
 //! heat capacities measured between T₀ and T_max ([`analyse`]):
 //!
-//! * below the lowest point T₀, Debye's T³ law fitted to the lowest N points (`lowt.rs`);
+//! * below the lowest point T₀, S(T₀) from Debye's T³ law or γT + βT³ fitted to the lowest
+//!   N points, zero, or a given value ([`lowt`]);
 //! * from T₀ on, the exact integral of a monotone cubic (Fritsch–Carlson) interpolant of Cp
 //!   against ln T (`integrate.rs`);
 //! * ΔH/T at each first-order transition; the interpolant is not continued across a
@@ -16,6 +17,10 @@
 //! Given a statistical entropy S_stat ± σ at the same temperature, the measured residual
 //! entropy is S0 = S_stat − S_cal and W = exp(S0/R) per formula unit ([`Residual`]).
 //!
+//! The magnetic route ([`magnetic`]) integrates Cp − C_lat instead of Cp, up to the top of
+//! the magnetic range, and takes m R ln q (m magnetic ions of q states per formula unit) in
+//! the place of S_stat. [`units`] matches the data's formula unit against the comparison's.
+//!
 //! # Uncertainty
 //!
 //! Reported in three parts ([`Uncertainty`]), added in quadrature for the total:
@@ -24,7 +29,7 @@
 //!   the sensitivities ∂S/∂Cpᵢ taken by central finite differences of the whole
 //!   interpolation (the monotone interpolant is not linear in the Cp values); absent when
 //!   the file has no σ column;
-//! * extrapolation: the 1σ of a T₀³/3 from the T³ fit;
+//! * extrapolation: the 1σ of the entropy below T₀ (from the fit, or as given);
 //! * quadrature: the difference between the monotone cubic and the trapezoid rule on the
 //!   same points (an estimate of the interpolation error, not a standard error).
 //!
@@ -52,14 +57,18 @@
 
 mod data;
 pub mod debye;
-mod integrate;
-mod lowt;
+pub mod integrate;
+pub mod lowt;
+pub mod magnetic;
+pub mod units;
 
 use crate::error::{Error, Result};
 use crate::thermo::R;
 
-pub use data::{HeatCapacityData, Point};
-pub use lowt::{DEFAULT_POINTS, LowTemperatureFit};
+pub use data::{CpUnit, DataHeader, HeatCapacityData, Point, TemperatureUnit};
+pub use lowt::{DEFAULT_POINTS, LowTemperatureFit, LowTemperatureForm};
+pub use magnetic::{MagneticConfig, MagneticResult, PhononModel, Phonons};
+pub use units::{UnitMatch, reconcile};
 
 use integrate::Interpolant;
 
@@ -76,28 +85,21 @@ pub struct Transition {
 }
 
 /// What to compute.
-#[derive(Clone, Debug)]
+#[derive(Clone, Debug, Default)]
 pub struct CalorimetryConfig {
     /// Temperature of the result, K; `None`: 298.15 K if inside the data, otherwise the
     /// highest measured temperature.
     pub target_k: Option<f64>,
     /// First-order transitions inside the data range.
     pub transitions: Vec<Transition>,
-    /// Number of lowest points of the T³ fit.
-    pub low_t_points: usize,
+    /// The entropy below the lowest point.
+    pub low_t: LowTemperatureForm,
+    /// Atoms per formula unit, for θ_D and a lattice term (1 when not given).
+    pub atoms: Option<f64>,
     /// A statistical entropy at the target temperature, J/(mol K), and its 1σ.
     pub statistical: Option<(f64, f64)>,
-}
-
-impl Default for CalorimetryConfig {
-    fn default() -> Self {
-        CalorimetryConfig {
-            target_k: None,
-            transitions: Vec::new(),
-            low_t_points: DEFAULT_POINTS,
-            statistical: None,
-        }
-    }
+    /// The magnetic route instead of a statistical entropy.
+    pub magnetic: Option<MagneticConfig>,
 }
 
 /// The parts of the uncertainty of S_cal at the target, J/(mol K).
@@ -105,10 +107,13 @@ impl Default for CalorimetryConfig {
 pub struct Uncertainty {
     /// The Cp 1σ propagated through the integral; `None` without a σ column.
     pub data: Option<f64>,
-    /// The 1σ of the T³ extrapolation.
+    /// The 1σ of the entropy below the lowest point.
     pub extrapolation: f64,
     /// |monotone cubic − trapezoid| of the integral.
     pub quadrature: f64,
+    /// The magnetic route's lattice term: the 1σ of its θ carried into the entropy
+    /// (`None` without a lattice term with a 1σ).
+    pub lattice: Option<f64>,
     /// All parts in quadrature.
     pub total: f64,
 }
@@ -161,9 +166,11 @@ impl Residual {
 pub struct ThirdLaw {
     /// The data file.
     pub path: std::path::PathBuf,
-    /// The measured points.
+    /// What its `#@` lines state (units, formula unit).
+    pub header: DataHeader,
+    /// The measured points (for the magnetic route: Cp − C_lat, the magnetic part).
     pub points: Vec<Point>,
-    /// The T³ fit below the data.
+    /// The extrapolation below the data.
     pub low_t: LowTemperatureFit,
     /// The transitions, in order of temperature.
     pub transitions: Vec<TransitionEntropy>,
@@ -183,8 +190,13 @@ pub struct ThirdLaw {
     pub s_cal: f64,
     /// Its uncertainty.
     pub uncertainty: Uncertainty,
-    /// Against a statistical entropy, when one was given.
+    /// Against a statistical entropy, when one was given, or against m R ln q for the
+    /// magnetic route.
     pub residual: Option<Residual>,
+    /// ∂S_cal/∂Cpᵢ at the target for every point (dimensionless), as used for the data part.
+    pub sensitivities: Vec<f64>,
+    /// The magnetic route, when asked for.
+    pub magnetic: Option<MagneticResult>,
 }
 
 impl ThirdLaw {
@@ -206,13 +218,18 @@ impl ThirdLaw {
         out
     }
 
-    /// The T³ law below the data for a figure: (T in K, a T² in J/(mol K²)), n points.
+    /// The fitted law below the data for a figure: (T in K, Cp/T = γ + a T² in
+    /// J/(mol K²)), n points; empty for the forms without a fit.
     pub fn debye_curve(&self, n: usize) -> Vec<(f64, f64)> {
+        if !self.low_t.is_fitted() {
+            return Vec::new();
+        }
         let n = n.max(2);
+        let gamma = self.low_t.gamma.map_or(0.0, |g| g.0);
         (0..n)
             .map(|i| {
                 let t = self.low_t.lowest_k * i as f64 / (n - 1) as f64;
-                (t, self.low_t.a * t * t)
+                (t, gamma + self.low_t.a * t * t)
             })
             .collect()
     }
@@ -301,8 +318,243 @@ impl Pieces {
     }
 }
 
-/// The third-law entropy of a data file.
+/// The third-law entropy of a data file, or with `config.magnetic` the magnetic entropy
+/// released and the residual it leaves.
 pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<ThirdLaw> {
+    if let Some(atoms) = config.atoms
+        && !(atoms.is_finite() && atoms > 0.0)
+    {
+        return Err(Error::Setting(format!(
+            "the number of atoms per formula unit must be a positive number, found {atoms}"
+        )));
+    }
+    match config.magnetic {
+        Some(m) => magnetic_route(data, config, m),
+        None => third_law(data, config, false),
+    }
+}
+
+/// The magnetic route (see [`magnetic`]).
+fn magnetic_route(
+    data: &HeatCapacityData,
+    config: &CalorimetryConfig,
+    m: MagneticConfig,
+) -> Result<ThirdLaw> {
+    if config.statistical.is_some() {
+        return Err(Error::Setting(
+            "a statistical entropy and the magnetic route both set the entropy the residual is \
+             taken from; give one of them"
+                .into(),
+        ));
+    }
+    if m.q < 2 {
+        return Err(Error::Setting(format!(
+            "a magnetic ion needs at least 2 states, found q = {}",
+            m.q
+        )));
+    }
+    if !(m.ions.is_finite() && m.ions > 0.0) {
+        return Err(Error::Setting(format!(
+            "the number of magnetic ions per formula unit must be a positive number, found {}",
+            m.ions
+        )));
+    }
+    let atoms = config.atoms.unwrap_or(1.0);
+    let (lo, hi) = data.range();
+    let measured_cp: Vec<f64> = data.points.iter().map(|p| p.cp).collect();
+    let term = match m.phonons {
+        None => None,
+        Some(Phonons::Given(model, theta, sigma)) => {
+            if !(theta.is_finite() && theta > 0.0 && sigma.is_finite() && sigma >= 0.0) {
+                return Err(Error::Setting(format!(
+                    "the lattice term's {} temperature must be a positive number of K with a 1σ \
+                     of at least 0, found {theta} ± {sigma}",
+                    model.name()
+                )));
+            }
+            Some(magnetic::PhononTerm {
+                model,
+                atoms,
+                theta_k: theta,
+                theta_sigma: sigma,
+                fit: None,
+            })
+        }
+        Some(Phonons::FittedAbove(model, above)) => {
+            let first = data.points.partition_point(|p| p.t_k <= above);
+            let n = data.points.len() - first;
+            if !(above.is_finite() && above >= lo) || n < 2 {
+                return Err(Error::Setting(format!(
+                    "the lattice term is fitted to the points above {above} K, which leaves {n} of \
+                     the data of {} ({lo}..{hi} K); the fit needs at least 2 (one degree of freedom)",
+                    data.path.display()
+                )));
+            }
+            let t: Vec<f64> = data.points[first..].iter().map(|p| p.t_k).collect();
+            let sigma: Option<Vec<f64>> = data.has_sigma().then(|| {
+                data.points[first..]
+                    .iter()
+                    .map(|p| p.sigma.unwrap_or(1.0))
+                    .collect()
+            });
+            let (theta, theta_sigma, chi2) =
+                magnetic::fit_theta(model, atoms, &t, &measured_cp[first..], sigma.as_deref());
+            if !theta_sigma.is_finite() || theta <= 0.11 || theta >= 0.99e5 {
+                return Err(Error::Setting(format!(
+                    "the {} temperature of the lattice term cannot be fitted to the {n} points \
+                     above {above} K (best θ = {theta} K, at the end of the range searched or with \
+                     a flat χ²); give θ instead",
+                    model.name()
+                )));
+            }
+            Some(magnetic::PhononTerm {
+                model,
+                atoms,
+                theta_k: theta,
+                theta_sigma,
+                fit: Some(magnetic::PhononFit {
+                    above_k: above,
+                    points: n,
+                    chi2,
+                    dof: n - 1,
+                    check: None,
+                }),
+            })
+        }
+    };
+    let with_theta = |theta: Option<f64>| -> Result<(ThirdLaw, usize)> {
+        let mut d = data.clone();
+        let mut negative = 0;
+        if let (Some(x), Some(th)) = (&term, theta) {
+            for p in &mut d.points {
+                p.cp -= x.atoms * x.model.heat_capacity(p.t_k, th);
+                if p.cp < 0.0 {
+                    negative += 1;
+                }
+            }
+        }
+        Ok((third_law(&d, config, true)?, negative))
+    };
+    let (mut main, negative_points) = with_theta(term.as_ref().map(|x| x.theta_k))?;
+    // The lattice term's θ in the uncertainty. Given θ ± σ: |∂ΔS/∂θ| σ, independent of the
+    // data. Fitted θ: the same Cp noise moves θ and the integral, in opposite directions (a
+    // point that raises the lattice term lowers C_mag), so the data part is propagated
+    // through both at once, √Σᵢ ((∂ΔS/∂Cpᵢ + ∂ΔS/∂θ ∂θ/∂Cpᵢ) σᵢ)², with ∂θ/∂Cpᵢ =
+    // wᵢJᵢ/Σ wⱼJⱼ² (J = ∂C_lat/∂θ, the linearised least squares), and the lattice part holds
+    // only the misfit beyond the σ (the Birge ratio's excess), or all of σ_θ without σ.
+    let mut lattice = None;
+    if let Some(x) = &term
+        && x.theta_sigma > 0.0
+    {
+        let h = 1e-4 * x.theta_k;
+        let up = with_theta(Some(x.theta_k + h))?.0.s_cal;
+        let down = with_theta(Some(x.theta_k - h))?.0.s_cal;
+        let slope = (up - down) / (2.0 * h);
+        match (&x.fit, data.has_sigma()) {
+            (Some(fit), true) => {
+                let first = data.points.len() - fit.points;
+                let jac: Vec<f64> = data.points[first..]
+                    .iter()
+                    .map(|p| {
+                        x.atoms
+                            * (x.model.heat_capacity(p.t_k, x.theta_k + h)
+                                - x.model.heat_capacity(p.t_k, x.theta_k - h))
+                            / (2.0 * h)
+                    })
+                    .collect();
+                let w: Vec<f64> = data.points[first..]
+                    .iter()
+                    .map(|p| p.sigma.map_or(1.0, |s| 1.0 / (s * s)))
+                    .collect();
+                let norm: f64 = jac.iter().zip(&w).map(|(j, w)| w * j * j).sum();
+                let mut joint = 0.0;
+                for (i, p) in data.points.iter().enumerate() {
+                    let dtheta = if i >= first {
+                        w[i - first] * jac[i - first] / norm
+                    } else {
+                        0.0
+                    };
+                    let g = main.sensitivities[i] + slope * dtheta;
+                    joint += (g * p.sigma.unwrap_or(0.0)).powi(2);
+                }
+                main.uncertainty.data = Some(joint.sqrt());
+                let birge = fit.chi2 / fit.dof.max(1) as f64;
+                lattice = Some((slope / norm.sqrt() * (birge - 1.0).max(0.0).sqrt()).abs());
+            }
+            _ => lattice = Some((slope * x.theta_sigma).abs()),
+        }
+    }
+    let u = &mut main.uncertainty;
+    u.lattice = lattice;
+    u.total = (u.data.unwrap_or(0.0).powi(2)
+        + u.extrapolation.powi(2)
+        + u.quadrature.powi(2)
+        + lattice.unwrap_or(0.0).powi(2))
+    .sqrt();
+    // The second threshold: the upper half of the fitted points.
+    let mut check = None;
+    if let Some(x) = &term
+        && let Some(fit) = &x.fit
+        && fit.points >= 4
+    {
+        let k = fit.points / 2;
+        let first = data.points.len() - k;
+        let t: Vec<f64> = data.points[first..].iter().map(|p| p.t_k).collect();
+        let sigma: Option<Vec<f64>> = data.has_sigma().then(|| {
+            data.points[first..]
+                .iter()
+                .map(|p| p.sigma.unwrap_or(1.0))
+                .collect()
+        });
+        let (theta2, _, _) = magnetic::fit_theta(
+            x.model,
+            x.atoms,
+            &t,
+            &measured_cp[first..],
+            sigma.as_deref(),
+        );
+        let released2 = with_theta(Some(theta2))?.0.s_cal;
+        check = Some(magnetic::ThresholdCheck {
+            // Halfway between the last point left out and the first kept.
+            above_k: 0.5 * (data.points[first - 1].t_k + data.points[first].t_k),
+            points: k,
+            theta_k: theta2,
+            released: released2,
+            disagrees: (released2 - main.s_cal).abs() > 2.0 * main.uncertainty.total,
+        });
+    }
+    let mut term = term;
+    if let Some(fit) = term.as_mut().and_then(|x| x.fit.as_mut()) {
+        fit.check = check;
+    }
+    let released = main.s_cal;
+    let released_sigma = main.uncertainty.total;
+    let full = m.ions * R * f64::from(m.q).ln();
+    let per_unit = (full - released, released_sigma);
+    main.residual = Some(Residual::new((full, 0.0), (released, released_sigma)));
+    main.magnetic = Some(MagneticResult {
+        q: m.q,
+        ions: m.ions,
+        phonons: term,
+        measured_cp,
+        full,
+        released,
+        released_sigma,
+        phonon_sigma: lattice.unwrap_or(0.0),
+        residual_per_unit: per_unit,
+        residual_per_ion: (per_unit.0 / m.ions, per_unit.1 / m.ions),
+        negative_points,
+    });
+    Ok(main)
+}
+
+/// The third-law analysis of the points of `data` as they stand; `default_top`: without a
+/// target, integrate to the highest point (the magnetic route) rather than 298.15 K.
+fn third_law(
+    data: &HeatCapacityData,
+    config: &CalorimetryConfig,
+    default_top: bool,
+) -> Result<ThirdLaw> {
     let path = &data.path;
     let whole = |message: String| Error::Data {
         path: path.clone(),
@@ -358,24 +610,40 @@ pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<Th
             )));
         }
     }
-    let n_fit = config.low_t_points;
+    let form = config.low_t;
+    let n_fit = form.points();
     let below_first = transitions
         .first()
         .map_or(t.len(), |x| t.partition_point(|&v| v < x.t_k));
-    if n_fit < 2 || n_fit > below_first {
+    let least = form.min_points();
+    if least > 0 && (n_fit < least || n_fit > below_first) {
+        let what = match form {
+            LowTemperatureForm::LinearCubic(_) => "the γT + βT³ fit (two coefficients)",
+            _ => "the T³ fit",
+        };
         return Err(Error::Setting(format!(
-            "the T³ fit needs between 2 and {below_first} of the lowest points (those below the first \
-             transition), asked for {n_fit}"
+            "{what} needs between {least} and {below_first} of the lowest points (those below the \
+             first transition), asked for {n_fit}"
+        )));
+    }
+    if let LowTemperatureForm::Given(s, ds) = form
+        && !(s.is_finite() && s >= 0.0 && ds.is_finite() && ds >= 0.0)
+    {
+        return Err(Error::Setting(format!(
+            "the entropy at the lowest point must be a number of at least 0 J/(mol K) with a 1σ \
+             of at least 0, found {s} ± {ds}"
         )));
     }
     let sigma: Option<Vec<f64>> = data
         .has_sigma()
         .then(|| data.points.iter().map(|p| p.sigma.unwrap_or(0.0)).collect());
-    let low_t = lowt::fit(
-        0,
+    let low_t = lowt::extrapolate(
+        form,
+        lo,
         &t[..n_fit],
         &cp[..n_fit],
         sigma.as_ref().map(|s| &s[..n_fit]),
+        config.atoms,
     );
 
     let (target_k, target_note) = match config.target_k {
@@ -388,6 +656,7 @@ pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<Th
             }
             (x, None)
         }
+        None if default_top => (hi, None),
         None if (lo..=hi).contains(&STANDARD_TEMPERATURE_K) => (STANDARD_TEMPERATURE_K, None),
         None => (
             hi,
@@ -410,9 +679,15 @@ pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<Th
     let (integral_trapezoid, _) = Pieces::new(&t, &cp, &transitions, true).entropy_to(target_k);
     let s_cal = low_t.entropy + integral + transition_entropy;
 
-    let data_part = sigma
-        .as_ref()
-        .map(|s| data_uncertainty(&t, &cp, s, &pieces, target_k));
+    let sensitivities = data_sensitivities(&t, &cp, &pieces, target_k);
+    let data_part = sigma.as_ref().map(|s| {
+        sensitivities
+            .iter()
+            .zip(s)
+            .map(|(g, s)| (g * s).powi(2))
+            .sum::<f64>()
+            .sqrt()
+    });
     let quadrature = (integral - integral_trapezoid).abs();
     let extrapolation = low_t.entropy_sigma;
     let total =
@@ -421,6 +696,7 @@ pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<Th
         data: data_part,
         extrapolation,
         quadrature,
+        lattice: None,
         total,
     };
     let residual = config
@@ -428,6 +704,7 @@ pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<Th
         .map(|s| Residual::new(s, (s_cal, uncertainty.total)));
     Ok(ThirdLaw {
         path: path.clone(),
+        header: data.header.clone(),
         points: data.points.clone(),
         low_t,
         transitions: transitions
@@ -446,16 +723,19 @@ pub fn analyse(data: &HeatCapacityData, config: &CalorimetryConfig) -> Result<Th
         s_cal,
         uncertainty,
         residual,
+        sensitivities,
+        magnetic: None,
     })
 }
 
-/// The 1σ of Cp propagated through ∫ Cp d(ln T) up to the target: Σᵢ (∂S/∂Cpᵢ σᵢ)², the
-/// sensitivities by central finite differences of the monotone interpolant of each point's
-/// stretch. A point moves the interpolant only near itself, so each sensitivity is computed
-/// on a few intervals ([`integrate::monotone_sensitivity`]): O(n) in all.
-fn data_uncertainty(t: &[f64], cp: &[f64], sigma: &[f64], pieces: &Pieces, target_k: f64) -> f64 {
+/// The sensitivities ∂S/∂Cpᵢ of ∫ Cp d(ln T) up to the target (the data part of the
+/// uncertainty is √Σᵢ (∂S/∂Cpᵢ σᵢ)²), by central finite differences of the monotone
+/// interpolant of each point's stretch. A point moves the interpolant only near itself, so
+/// each sensitivity is computed on a few intervals ([`integrate::monotone_sensitivity`]):
+/// O(n) in all.
+fn data_sensitivities(t: &[f64], cp: &[f64], pieces: &Pieces, target_k: f64) -> Vec<f64> {
     let scale = cp.iter().fold(0.0f64, |m, &c| m.max(c.abs())).max(1e-300);
-    let mut sum = 0.0;
+    let mut out = vec![0.0; t.len()];
     let mut start = 0;
     for stretch in &pieces.stretches {
         let end = start + stretch.points;
@@ -473,12 +753,12 @@ fn data_uncertainty(t: &[f64], cp: &[f64], sigma: &[f64], pieces: &Pieces, targe
                     stretch.lower,
                     top,
                 );
-                sum += (g * sigma[i]).powi(2);
+                out[i] = g;
             }
         }
         start = end;
     }
-    sum.sqrt()
+    out
 }
 
 /// A stretch bound in words.
@@ -533,7 +813,7 @@ mod tests {
                 t_k,
                 dh_j_per_mol: 10.0,
             }],
-            low_t_points: 2,
+            low_t: LowTemperatureForm::Debye(2),
             ..Default::default()
         };
         assert!(with(tr(9.0)).contains("outside the data"));
@@ -541,10 +821,17 @@ mod tests {
         assert!(with(tr(1.5)).contains("holds 1 point"));
         assert!(
             with(CalorimetryConfig {
-                low_t_points: 9,
+                low_t: LowTemperatureForm::Debye(9),
                 ..Default::default()
             })
             .contains("between 2 and 8")
+        );
+        assert!(
+            with(CalorimetryConfig {
+                low_t: LowTemperatureForm::LinearCubic(2),
+                ..Default::default()
+            })
+            .contains("between 3 and 8")
         );
         assert!(
             with(CalorimetryConfig {

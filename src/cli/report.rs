@@ -64,7 +64,8 @@ pub struct Args {
     #[arg(long)]
     sweeps: Option<usize>,
     /// Heat-capacity data (CSV, as for `groundcount calorimetry`) for the calorimetric
-    /// comparison; needs --statistical.
+    /// comparison; needs --statistical or --magnetic. Its `#@ formula-unit` must be the
+    /// lattice's, or --unit-ratio convert.
     #[arg(long, value_name = "DATA.csv")]
     calorimetry: Option<PathBuf>,
     #[command(flatten)]
@@ -135,23 +136,44 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     }
     let comparison = match &args.calorimetry {
         Some(data) => {
-            if !args.calorimetric.has_statistical() {
+            if !args.calorimetric.has_statistical() && !args.calorimetric.is_magnetic() {
                 anyhow::bail!(
                     "--calorimetry needs --statistical S±σ or S (the statistical entropy in \
-                     J/(mol K) at the comparison temperature)"
+                     J/(mol K) at the comparison temperature) or --magnetic Q (the magnetic route)"
                 );
             }
-            let r = super::calorimetry::analyse(data, &args.calorimetric)?;
+            let (r, matched) =
+                super::calorimetry::analyse(data, &args.calorimetric, Some(&c.formula_unit.name))?;
+            let matched = matched.expect("a target formula unit was given");
+            if matched.unchecked && !args.common.quiet {
+                eprintln!("warning: {}", matched.note.clone().unwrap_or_default());
+            }
+            let mut notes: Vec<String> = matched
+                .note
+                .iter()
+                .map(|n| {
+                    if matched.unchecked {
+                        format!("WARNING: {n}")
+                    } else {
+                        n.clone()
+                    }
+                })
+                .collect();
+            notes.extend(super::calorimetry::unit_notes(&r));
+            notes.extend(super::calorimetry::threshold_note(&r));
             Some(Comparison::new(
                 &r,
                 &data.display().to_string(),
                 args.calorimetric.statistical_sigma_given(),
+                &matched,
+                notes,
             ))
         }
         None => {
             if args.calorimetric.is_used() {
                 anyhow::bail!(
-                    "--statistical, --transition, --low-t and --to need --calorimetry DATA.csv"
+                    "--statistical, --magnetic, --transition, --low-t, --atoms, --unit-ratio and \
+                     --to need --calorimetry DATA.csv"
                 );
             }
             None

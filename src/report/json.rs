@@ -103,14 +103,30 @@ struct ComparisonRecord {
     s_stat_j_per_mol_k: f64,
     s_stat_uncertainty: f64,
     extrapolated_j_per_mol_k: f64,
-    debye_temperature_k: f64,
+    /// `null` when no cubic term was fitted below the data.
+    debye_temperature_k: Option<f64>,
     residual_j_per_mol_k: f64,
     residual_uncertainty: f64,
     w_per_unit: f64,
     w_uncertainty: f64,
     s_stat_uncertainty_given: bool,
+    /// How the entropy below the lowest point was found, in words.
+    low_t_form: String,
+    notes: Vec<String>,
+    formula_unit_unchecked: bool,
+    /// The magnetic route, or `null`.
+    magnetic: Option<MagneticComparisonRecord>,
     /// (computed − measured residual entropy) / their combined 1σ.
     computed_minus_measured_sigmas: Option<f64>,
+}
+
+/// The magnetic route of a report's comparison.
+#[derive(Clone, Debug, Serialize)]
+struct MagneticComparisonRecord {
+    states_per_ion: u32,
+    ions_per_formula_unit: f64,
+    free_ion_entropy_j_per_mol_k: f64,
+    lattice_term: Option<String>,
 }
 
 /// The document of a report.
@@ -168,6 +184,15 @@ pub(super) fn document(r: &Report<'_>) -> ReportDocument {
             w_per_unit: w,
             w_uncertainty: dw,
             s_stat_uncertainty_given: k.s_stat_sigma_given,
+            low_t_form: k.low_t_words.clone(),
+            notes: k.notes.clone(),
+            formula_unit_unchecked: k.unchecked_unit,
+            magnetic: k.magnetic.as_ref().map(|m| MagneticComparisonRecord {
+                states_per_ion: m.q,
+                ions_per_formula_unit: m.ions_per_unit,
+                free_ion_entropy_j_per_mol_k: k.s_stat.0,
+                lattice_term: m.lattice_term.clone(),
+            }),
             computed_minus_measured_sigmas: cited.value.as_ref().map(|v| {
                 let b = v.estimate;
                 (b.s_j_per_mol_k() - res) / b.sigma_s_j_per_mol_k().unwrap_or(0.0).hypot(dres)

@@ -270,20 +270,43 @@ fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
         let mut t = Table::new(&["quantity", "value"]);
         t.row(vec!["heat-capacity data".into(), format!("`{}`", k.file)]);
         t.row(vec![
-            format!("third-law entropy S_cal({} K)", sig(k.temperature_k, 5)),
+            if k.magnetic.is_some() {
+                format!(
+                    "magnetic entropy released ΔS_mag(0..{} K) per {unit}",
+                    sig(k.temperature_k, 5)
+                )
+            } else {
+                format!("third-law entropy S_cal({} K)", sig(k.temperature_k, 5))
+            },
             format!("{} J/(mol K)", pm(k.s_cal.0, Some(k.s_cal.1), 6)),
         ]);
         t.row(vec![
             format!(
-                "of which Debye T³ below {} K (θ_D = {} K)",
+                "of which {} below {} K{}",
+                k.low_t_words,
                 sig(k.lowest_k, 4),
-                sig(k.debye_temperature_k, 4)
+                k.debye_temperature_k
+                    .map_or(String::new(), |d| format!(" (θ_D = {} K)", sig(d, 4)))
             ),
             format!("{} J/(mol K)", sig(k.extrapolated, 4)),
         ]);
+        if let Some(m) = &k.magnetic
+            && let Some(l) = &m.lattice_term
+        {
+            t.row(vec!["lattice term subtracted".into(), l.clone()]);
+        }
         t.row(vec![
-            "statistical entropy S_stat (given)".into(),
-            if k.s_stat_sigma_given {
+            match &k.magnetic {
+                Some(m) => format!(
+                    "free-ion entropy m R ln {} (m = {} magnetic ions per {unit})",
+                    m.q,
+                    crate::text::trimmed(m.ions_per_unit, 6)
+                ),
+                None => "statistical entropy S_stat (given)".into(),
+            },
+            if k.magnetic.is_some() {
+                format!("{} J/(mol K)", sig(k.s_stat.0, 6))
+            } else if k.s_stat_sigma_given {
                 format!("{} J/(mol K)", pm(k.s_stat.0, Some(k.s_stat.1), 6))
             } else {
                 format!(
@@ -293,7 +316,11 @@ fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
             },
         ]);
         t.row(vec![
-            "residual S_stat − S_cal".into(),
+            if k.magnetic.is_some() {
+                "residual m R ln q − ΔS_mag".into()
+            } else {
+                "residual S_stat − S_cal".into()
+            },
             format!("{} J/(mol K)", pm(r, Some(dr), 4)),
         ]);
         t.row(vec![
@@ -319,6 +346,15 @@ fn body(w: &Report<'_>, o: &mut String) -> std::fmt::Result {
             format!("{} J/(mol K)", sig(p.s_j_per_mol_k(), 6)),
         ]);
         writeln!(o, "{}", t.render_markdown())?;
+        for n in &k.notes {
+            if let Some(rest) = n.strip_prefix("WARNING: ") {
+                writeln!(o, "**Warning:** {rest}.\n")?;
+            } else {
+                let mut c = n.chars();
+                let first: String = c.next().into_iter().flat_map(char::to_uppercase).collect();
+                writeln!(o, "{first}{}.\n", c.as_str())?;
+            }
+        }
         if !k.s_stat_sigma_given {
             writeln!(
                 o,

@@ -55,41 +55,97 @@ pub struct Comparison {
     pub s_stat: (f64, f64),
     /// Whether the statistical entropy came with a 1σ (without one, σ = 0 is used).
     pub s_stat_sigma_given: bool,
-    /// Entropy added below the lowest measured temperature (Debye T³), J/(mol K).
+    /// Entropy added below the lowest measured temperature, J/(mol K).
     pub extrapolated: f64,
-    /// Debye temperature of the low-temperature fit, K.
-    pub debye_temperature_k: f64,
+    /// How it was obtained, in words ("Debye T³", "γT + βT³", …).
+    pub low_t_words: String,
+    /// Debye temperature of the low-temperature fit, K, when a cubic term was fitted.
+    pub debye_temperature_k: Option<f64>,
     /// Measured points: (T in K, Cp in J/(mol K)).
     pub points: Vec<(f64, f64)>,
     /// Lowest temperature of the data, K (the Debye extrapolation covers 0..this).
     pub lowest_k: f64,
     /// The interpolant of Cp/T used for the integral: (T in K, Cp/T in J/(mol K²)).
     pub curve: Vec<(f64, f64)>,
-    /// The Debye T³ extrapolation below the data: (T in K, Cp/T in J/(mol K²)).
+    /// The fitted law below the data: (T in K, Cp/T in J/(mol K²)); empty without a fit.
     pub debye_curve: Vec<(f64, f64)>,
+    /// The magnetic route: `s_cal` is then the magnetic entropy released and `s_stat` the
+    /// free-ion entropy m R ln q (σ 0).
+    pub magnetic: Option<MagneticComparison>,
+    /// Notes on formula units and units of the data (conversions, assumptions) and the
+    /// magnetic route's threshold check; a note that begins `WARNING: ` is shown as one.
+    pub notes: Vec<String>,
+    /// Whether the data's formula unit could not be checked (the file states none).
+    pub unchecked_unit: bool,
+}
+
+/// The magnetic route of a calorimetric comparison.
+#[derive(Clone, Debug)]
+pub struct MagneticComparison {
+    /// States per magnetic ion.
+    pub q: u32,
+    /// Magnetic ions per formula unit of the lattice.
+    pub ions_per_unit: f64,
+    /// The lattice term subtracted, in words, if any.
+    pub lattice_term: Option<String>,
 }
 
 impl Comparison {
-    /// The comparison of a third-law analysis that was given a statistical entropy
-    /// ([`ThirdLaw::residual`]; without one, S_stat = 0 ± 0): the data file `file` as the
-    /// user named it, and whether the statistical entropy came with its 1σ.
-    pub fn new(r: &ThirdLaw, file: &str, s_stat_sigma_given: bool) -> Comparison {
+    /// The comparison of a third-law analysis ([`ThirdLaw`]) with a statistical entropy
+    /// ([`ThirdLaw::residual`]; without one, S_stat = 0 ± 0), or of the magnetic route: the
+    /// data file `file` as the user named it, whether the statistical entropy came with its
+    /// 1σ, how the data's formula unit matches the lattice's (`matched`: every molar value
+    /// is divided by its factor), and the notes to show (worded by the caller; one that
+    /// begins `WARNING: ` is shown as a warning).
+    pub fn new(
+        r: &ThirdLaw,
+        file: &str,
+        s_stat_sigma_given: bool,
+        matched: &crate::calorimetry::UnitMatch,
+        notes: Vec<String>,
+    ) -> Comparison {
+        use crate::calorimetry::LowTemperatureForm;
+        let k = matched.factor;
         let s_stat = r
             .residual
             .as_ref()
-            .map_or((0.0, 0.0), |x| (x.s_stat, x.s_stat_sigma));
+            .map_or((0.0, 0.0), |x| (x.s_stat / k, x.s_stat_sigma / k));
         Comparison {
             file: file.to_string(),
             temperature_k: r.target_k,
-            s_cal: (r.s_cal, r.uncertainty.total),
+            s_cal: (r.s_cal / k, r.uncertainty.total / k),
             s_stat,
-            s_stat_sigma_given,
-            extrapolated: r.low_t.entropy,
+            s_stat_sigma_given: s_stat_sigma_given || r.magnetic.is_some(),
+            extrapolated: r.low_t.entropy / k,
+            low_t_words: match r.low_t.form {
+                LowTemperatureForm::Debye(_) => "Debye T³".into(),
+                LowTemperatureForm::LinearCubic(_) => "γT + βT³".into(),
+                LowTemperatureForm::Zero => "nothing (taken as 0)".into(),
+                LowTemperatureForm::Given(..) => "the entropy given".into(),
+            },
             debye_temperature_k: r.low_t.debye_temperature_k,
             points: r.points.iter().map(|p| (p.t_k, p.cp)).collect(),
             lowest_k: r.low_t.lowest_k,
             curve: r.curve(200),
             debye_curve: r.debye_curve(50),
+            magnetic: r.magnetic.as_ref().map(|m| MagneticComparison {
+                q: m.q,
+                ions_per_unit: m.ions / k,
+                lattice_term: m.phonons.as_ref().map(|p| {
+                    format!(
+                        "{} × {} C(T; θ = {} K){}",
+                        crate::text::trimmed(p.atoms, 6),
+                        p.model.name(),
+                        sig(p.theta_k, 5),
+                        p.fit.map_or(" (given)".into(), |f| format!(
+                            " fitted above {} K",
+                            crate::text::trimmed(f.above_k, 6)
+                        ))
+                    )
+                }),
+            }),
+            notes,
+            unchecked_unit: matched.unchecked,
         }
     }
 

@@ -328,13 +328,19 @@ pub fn figures(w: &Report<'_>) -> Vec<Figure> {
         let series = vec![
             Series::new("measured", Style::Points, BLUE_, data),
             Series::new("interpolant integrated", Style::Line, GREEN_, curve),
-            Series::new("Debye T³ extrapolation", Style::Dashed, ORANGE_, debye),
+            Series::new(
+                &format!("{} extrapolation", k.low_t_words),
+                Style::Dashed,
+                ORANGE_,
+                debye,
+            ),
         ];
         out.push(Figure {
             file: "calorimetry.svg".into(),
             caption: format!(
-                "Heat capacity data of {}: Cp/T against T, the interpolant whose integral gives the third-law entropy, and the Debye T³ extrapolation below {} K.",
+                "Heat capacity data of {}: Cp/T against T, the interpolant whose integral gives the entropy, and the {} extrapolation below {} K.",
                 k.file,
+                k.low_t_words,
                 crate::text::sig(k.lowest_k, 4)
             ),
             svg: chart(
