@@ -580,7 +580,7 @@ fn summary_table(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -
             q.label,
             q.value.map_or_else(|_| String::new(), text::number),
             text::optional(q.sigma),
-            q.unit.into(),
+            q.unit,
         ]);
     }
     t
@@ -1034,7 +1034,10 @@ fn document(r: &ThirdLaw, sigma_given: bool, matched: Option<&UnitMatch>) -> Doc
             data_formula_unit: m.data_unit.clone(),
             factor: m.factor,
             unchecked: m.unchecked,
-            residual_per_target_unit_j_per_mol_k: r.residual.as_ref().map(|s| s.residual / m.factor),
+            residual_per_target_unit_j_per_mol_k: r
+                .residual
+                .as_ref()
+                .map(|s| s.residual / m.factor),
             residual_per_target_unit_uncertainty: r
                 .residual
                 .as_ref()
@@ -1055,7 +1058,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let sigma_given = args.options.statistical_sigma_given();
     let t = summary_table(&r, sigma_given, matched);
     match args.format {
-        Format::Json => Ok(groundcount::json::to_string(&document(&r, sigma_given, matched))?),
+        Format::Json => Ok(groundcount::json::to_string(&document(
+            &r,
+            sigma_given,
+            matched,
+        ))?),
         Format::Csv => Ok(t.render_csv()),
         fmt => {
             let mut out = String::new();
