@@ -126,7 +126,7 @@ enum Failure {
 /// assert_eq!(e.estimate.count.unwrap().to_string(), "114");
 /// ```
 pub fn count(model: &Model, config: &ExactConfig, context: &Context) -> Result<Counted<()>> {
-    count_with(model, &filled(config, context)).map(Counted::plain)
+    count_with(model, &filled(config, context), None).map(Counted::plain)
 }
 
 /// `config` with the context's deadline, interrupt and observer in its hidden fields.
@@ -143,8 +143,9 @@ fn filled(config: &ExactConfig, context: &Context) -> ExactConfig {
     }
 }
 
-/// [`count`] with the context's parts already in the configuration.
-fn count_with(model: &Model, config: &ExactConfig) -> Result<Estimate> {
+/// [`count`] with the context's parts already in the configuration, following `plan` when
+/// the caller has chosen it already (`None`: choose it here).
+fn count_with(model: &Model, config: &ExactConfig, plan: Option<Plan>) -> Result<Estimate> {
     let start = Instant::now();
     let finish = |count: BigUint, peak: usize| {
         Estimate::exact(
@@ -158,13 +159,15 @@ fn count_with(model: &Model, config: &ExactConfig) -> Result<Estimate> {
     if model.contradiction.is_some() {
         return Ok(finish(BigUint::from(0u32), 0));
     }
-    let plan = order::choose(model).ok_or_else(|| Error::Budget {
-        cells: model.cells.clone(),
-        detail: format!(
-            "its frontier would need more than 64 bits (up to 2^{:.0} states)",
-            order::smallest_frontier_log2(model)
-        ),
-    })?;
+    let plan = plan
+        .or_else(|| order::choose(model))
+        .ok_or_else(|| Error::Budget {
+            cells: model.cells.clone(),
+            detail: format!(
+                "its frontier would need more than 64 bits (up to 2^{:.0} states)",
+                order::smallest_frontier_log2(model)
+            ),
+        })?;
     if plan.max_log2_states > (config.max_states as f64).log2() + 30.0 {
         // Even heavily constrained frontiers rarely beat the bound by 2^30: refuse early.
         return Err(Error::Budget {
@@ -250,8 +253,10 @@ pub fn count_cell(
     context: &Context,
 ) -> Result<Counted<CellRoute>> {
     let config = &filled(config, context);
+    let mut plan = None;
     if model.contradiction.is_none() {
-        let frontier_work = plan_for(model).map_or(f64::INFINITY, |p| p.cost);
+        plan = plan_for(model);
+        let frontier_work = plan.as_ref().map_or(f64::INFINITY, |p| p.cost);
         let max_states = config.max_states.min(TRACE_MAX_STATES);
         if let Some(trace) = super::transfer::torus::route(crystal, cells, max_states)
             && TRACE_WEIGHT * trace.work() < frontier_work
@@ -263,7 +268,7 @@ pub fn count_cell(
         }
     }
     Ok(Counted::new(
-        count_with(model, config)?,
+        count_with(model, config, plan)?,
         CellRoute::Frontier,
     ))
 }
