@@ -383,18 +383,11 @@ fn plain_message(first: &str, found: &str) -> String {
             format!("unknown key {key}; expected one of {expected}")
         };
     }
-    if let Some(rest) = first.strip_prefix("invalid type: ") {
-        // "invalid type: string \"x\", expected a sequence"
-        let (got, expected) = rest
-            .split_once(", expected ")
-            .unwrap_or((rest, "another value"));
-        return format!(
-            "expected {}, found {}",
-            expected_words(expected),
-            found_words(got)
-        );
-    }
-    if let Some(rest) = first.strip_prefix("invalid value: ") {
+    // "invalid type: string \"x\", expected a sequence", and the same for a value.
+    if let Some(rest) = first
+        .strip_prefix("invalid type: ")
+        .or_else(|| first.strip_prefix("invalid value: "))
+    {
         let (got, expected) = rest
             .split_once(", expected ")
             .unwrap_or((rest, "another value"));

@@ -11,7 +11,7 @@ use groundcount::calorimetry::{
 use groundcount::thermo::{CALORIE, R};
 use serde_json::Value;
 
-use crate::util::{lattice, run};
+use crate::util::{lattice, run, run_json};
 
 /// Composite Simpson's rule with `n` (even) intervals.
 fn simpson(f: impl Fn(f64) -> f64, a: f64, b: f64, n: usize) -> f64 {
@@ -268,7 +268,7 @@ fn ice_residual_of_giauque_and_stout_gives_paulings_w() {
     let residual = (0.82 * CALORIE, 0.05 * CALORIE);
     let s_stat = 3.0 * R * s_quadrature(273.0, theta) + residual.0;
     let stat = format!("{s_stat:.12}±{:.12}", residual.1);
-    let out = run(&[
+    let v = run_json(&[
         "calorimetry",
         data.to_str().unwrap(),
         "--statistical",
@@ -276,12 +276,6 @@ fn ice_residual_of_giauque_and_stout_gives_paulings_w() {
         "--format",
         "json",
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     let f = |k: &str| v[k].as_f64().unwrap_or_else(|| panic!("{k} missing"));
     assert_eq!(f("temperature_k"), 273.0);
     // The arithmetic, by hand from the printed parts.
@@ -807,7 +801,7 @@ fn issue16_formula_unit_mismatch_is_refused_naming_both() {
         "{stderr}"
     );
     // With a conversion factor, the residual per target unit is the data's divided by it.
-    let out = run(&[
+    let v = run_json(&[
         "calorimetry",
         lattice("quillonite-dihydrate-cp.csv").to_str().unwrap(),
         "--statistical",
@@ -819,12 +813,6 @@ fn issue16_formula_unit_mismatch_is_refused_naming_both() {
         "--format",
         "json",
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     let per = v["unit_match"]["residual_per_target_unit_j_per_mol_k"]
         .as_f64()
         .unwrap();
@@ -846,7 +834,7 @@ fn issue16_magnetic_route_through_the_binary_and_the_report() {
             .collect::<Vec<_>>())
     );
     let data = write("issue16-magnet.csv", &text);
-    let out = run(&[
+    let c = run_json(&[
         "calorimetry",
         data.to_str().unwrap(),
         "--magnetic",
@@ -858,12 +846,6 @@ fn issue16_magnetic_route_through_the_binary_and_the_report() {
         "--format",
         "json",
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let c: Value = serde_json::from_slice(&out.stdout).unwrap();
     let per_ion = c["magnetic"]["residual_per_ion_j_per_mol_k"]
         .as_f64()
         .unwrap();
