@@ -132,6 +132,15 @@ pub enum Error {
         /// What is wrong with it.
         message: String,
     },
+    /// A counter that cannot yet take the weights, occupancies or compositions of the file
+    /// (it would count every arrangement once, which is a different number).
+    #[error(
+        "{method} cannot yet take weights, occupancies or compositions; this file has some, and counting every arrangement once would give a different number"
+    )]
+    Unweighted {
+        /// The method, in words ("the Bethe estimate").
+        method: &'static str,
+    },
     /// The user asked the computation to stop (Ctrl-C) before it finished.
     #[error("interrupted while {what}")]
     Interrupted {

@@ -17,7 +17,7 @@
 use std::collections::HashMap;
 
 use crate::cluster::{Cluster, ClusterEntity};
-use crate::crystal::{Target, WhenCut};
+use crate::crystal::{MeanKind, Target, WhenCut};
 use crate::error::{Error, Result};
 
 /// Largest local table, in assignments, a rule may compile to.
@@ -43,6 +43,9 @@ pub struct Variable {
     pub states: u32,
     /// The state a pinned variable is held at (`pinned:` in the lattice file).
     pub held: Option<u32>,
+    /// Relative weights of its states (`weights:` in the lattice file); `None` when every
+    /// state weighs 1 (and always for a pinned variable).
+    pub weights: Option<Vec<f64>>,
     /// Position in cell units, used to order sweeps.
     pub position: [f64; 3],
     /// The site or bond of the crystal it lives on, and the cell.
@@ -116,6 +119,22 @@ pub struct Constraint {
     pub cell: [usize; 3],
 }
 
+/// A mean imposed on one state of some variables of the cluster (`occupancy:` or
+/// `composition:`), with one conjugate field.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ImposedMean {
+    /// Occupancy (maximum entropy at that mean) or composition (fixed exactly).
+    pub kind: MeanKind,
+    /// The entry as the file names it.
+    pub label: String,
+    /// The variables it averages over, increasing.
+    pub variables: Vec<usize>,
+    /// The state whose mean is imposed.
+    pub state: u32,
+    /// The target mean (fraction of `variables` in `state`).
+    pub mean: f64,
+}
+
 /// Variables and constraints of a finite cluster.
 #[derive(Clone, Debug)]
 pub struct Model {
@@ -134,6 +153,8 @@ pub struct Model {
     pub has_repeats: bool,
     /// "4x4 periodic", for reports.
     pub cells: String,
+    /// Means imposed on states, in the crystal's order (`Crystal::means`).
+    pub means: Vec<ImposedMean>,
 }
 
 impl Model {
@@ -152,6 +173,13 @@ impl Model {
                 .find(|p| p.target == target && p.index == index)
                 .map(|p| p.state)
         };
+        let weights = |target: Target, index: usize, h: Option<u32>| {
+            crystal
+                .weights
+                .iter()
+                .find(|w| w.target == target && w.index == index && h.is_none())
+                .map(|w| w.states.clone())
+        };
         if let Some(q) = site_var {
             site_offset = Some(variables.len());
             for (i, s) in cluster.sites.iter().enumerate() {
@@ -159,6 +187,7 @@ impl Model {
                 variables.push(Variable {
                     states: if h.is_some() { 1 } else { q },
                     held: h,
+                    weights: weights(Target::Sites, s.site, h),
                     position: cluster.site_position(i),
                     origin: Origin::Site {
                         site: s.site,
@@ -174,6 +203,7 @@ impl Model {
                 variables.push(Variable {
                     states: if h.is_some() { 1 } else { q },
                     held: h,
+                    weights: weights(Target::Bonds, b.bond, h),
                     position: cluster.bond_position(i),
                     origin: Origin::Bond {
                         bond: b.bond,
@@ -273,6 +303,26 @@ impl Model {
                 }
             }
         }
+        let means = crystal
+            .means
+            .iter()
+            .map(|m| ImposedMean {
+                kind: m.kind,
+                label: m.label.clone(),
+                variables: (0..variables.len())
+                    .filter(|&v| match variables[v].origin {
+                        Origin::Site { site, .. } => {
+                            m.target == Target::Sites && m.members.binary_search(&site).is_ok()
+                        }
+                        Origin::Bond { bond, .. } => {
+                            m.target == Target::Bonds && m.members.binary_search(&bond).is_ok()
+                        }
+                    })
+                    .collect(),
+                state: m.state,
+                mean: m.mean,
+            })
+            .collect();
         Ok(Model {
             variables,
             constraints,
@@ -281,7 +331,23 @@ impl Model {
             contradiction,
             has_repeats,
             cells: cluster.cells.to_string(),
+            means,
         })
+    }
+
+    /// Whether some variable carries weights or some mean is imposed: the count is then a
+    /// weighted sum, not a number of arrangements.
+    pub fn is_weighted(&self) -> bool {
+        !self.means.is_empty() || self.variables.iter().any(|v| v.weights.is_some())
+    }
+
+    /// The relative weight of state `s` of variable `v` (1 without `weights:`); imposed
+    /// means are not included (their fields are the counter's unknowns).
+    pub fn weight(&self, v: usize, s: u32) -> f64 {
+        self.variables[v]
+            .weights
+            .as_ref()
+            .map_or(1.0, |w| w[s as usize])
     }
 
     /// ln of the number of assignments with no constraint at all.

@@ -53,6 +53,65 @@ pub struct LatticeSpec {
     /// Variables held at one state (a strong field, a known ordered sublattice).
     #[serde(default)]
     pub pinned: Vec<PinSpec>,
+    /// Relative weights (activities) of the states of some variables.
+    #[serde(default)]
+    pub weights: Vec<WeightSpec>,
+    /// Measured means of a state on some sites or bonds (partial order): the counters solve
+    /// for the conjugate fields.
+    #[serde(default)]
+    pub occupancy: Vec<OccupancySpec>,
+    /// Fixed global fractions of a state over sets of sites or bonds (canonical).
+    #[serde(default)]
+    pub composition: Vec<CompositionSpec>,
+}
+
+/// One entry of `weights:`: the relative weights of the states of every variable on a site
+/// (by id or species) or a bond (by id or family).
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct WeightSpec {
+    /// Site id or species.
+    #[serde(default)]
+    pub site: Option<Located<String>>,
+    /// Bond id, or the id of a `between`/`distance` family.
+    #[serde(default)]
+    pub bond: Option<Located<String>>,
+    /// One non-negative weight per state, in the order the variable kind numbers them.
+    pub states: Located<Vec<f64>>,
+}
+
+/// One entry of `occupancy:`: the measured mean of one state of the variables on a site
+/// (by id or species) or a bond (by id or family), between 0 and 1 exclusive.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct OccupancySpec {
+    /// Site id or species.
+    #[serde(default)]
+    pub site: Option<Located<String>>,
+    /// Bond id, or the id of a `between`/`distance` family.
+    #[serde(default)]
+    pub bond: Option<Located<String>>,
+    /// The state whose mean is given.
+    pub state: Located<u32>,
+    /// Its mean (a refined occupancy).
+    pub mean: Located<f64>,
+}
+
+/// One entry of `composition:`: the fraction of the variables on a set of sites (or bonds)
+/// that are in one state, fixed exactly.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CompositionSpec {
+    /// Site ids or species.
+    #[serde(default)]
+    pub sites: Option<Located<Vec<String>>>,
+    /// Bond ids or families.
+    #[serde(default)]
+    pub bonds: Option<Located<Vec<String>>>,
+    /// The state whose fraction is fixed.
+    pub state: Located<u32>,
+    /// The fraction, between 0 and 1 exclusive.
+    pub fraction: Located<f64>,
 }
 
 /// One entry of `pinned:`: every variable on a site (by id or species) or on a bond (by id,

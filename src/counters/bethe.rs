@@ -205,6 +205,7 @@ pub fn for_model(model: &Model, config: &BetheConfig) -> Result<f64> {
 /// ([`super::local::tree_free_model`]). The context is not watched (a few hundred
 /// iterations on a small cluster).
 pub fn count(crystal: &Crystal, config: &BetheConfig, _context: &Context) -> Result<Counted<()>> {
+    super::refuse_weighted(crystal.is_weighted(), "the Bethe estimate")?;
     let start = Instant::now();
     let model = super::local::tree_free_model(crystal)?;
     let ln_w = for_model(&model, config)?;

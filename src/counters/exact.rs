@@ -126,6 +126,7 @@ enum Failure {
 /// assert_eq!(e.estimate.count.unwrap().to_string(), "114");
 /// ```
 pub fn count(model: &Model, config: &ExactConfig, context: &Context) -> Result<Counted<()>> {
+    super::refuse_weighted(model.is_weighted(), "the exact count")?;
     count_with(model, &filled(config, context), None).map(Counted::plain)
 }
 
@@ -252,6 +253,7 @@ pub fn count_cell(
     config: &ExactConfig,
     context: &Context,
 ) -> Result<Counted<CellRoute>> {
+    super::refuse_weighted(model.is_weighted(), "the exact count")?;
     let config = &filled(config, context);
     let mut plan = None;
     if model.contradiction.is_none() {

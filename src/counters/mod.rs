@@ -44,6 +44,15 @@ pub mod transfer;
 pub use crate::context::Context;
 use crate::estimate::Estimate;
 
+/// Refuse a weighted input (weights, imposed means) in a counter that counts every
+/// arrangement once: its number would be confidently wrong.
+pub(crate) fn refuse_weighted(weighted: bool, method: &'static str) -> crate::error::Result<()> {
+    if weighted {
+        return Err(crate::error::Error::Unweighted { method });
+    }
+    Ok(())
+}
+
 /// What every counter returns: the [`Estimate`], and beside it what only this method has.
 ///
 /// `Counted<D>` dereferences to its details, so that `sampled.seed` reads

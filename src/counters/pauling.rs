@@ -49,6 +49,7 @@ use crate::estimate::{Estimate, Method};
 /// assert!((p.estimate.w_per_unit() - 1.5).abs() < 1e-12); // Pauling 1935
 /// ```
 pub fn count(crystal: &Crystal, _config: &(), _context: &Context) -> Result<Counted<()>> {
+    super::refuse_weighted(crystal.is_weighted(), "Pauling's estimate")?;
     let start = Instant::now();
     let model = tree_free_model(crystal)?;
     Ok(Counted::plain(Estimate::infinite(

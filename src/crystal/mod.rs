@@ -10,13 +10,15 @@
 //! ([`Crystal::from_spec`]) and the range limits it enforces; `geometry.rs` the cell's
 //! geometry (positions, distances, the bonds of a distance window, the largest shift in
 //! use); `rules.rs` the meaning of every rule kind ([`Rule::allows`]) and the expansion of a
-//! rule into its instances; `pins.rs` the variables held at one state (`pinned:`).
+//! rule into its instances; `pins.rs` the variables held at one state (`pinned:`); `weights.rs` the
+//! weights of states and the means imposed on them (`weights:`, `occupancy:`, `composition:`).
 
 mod geometry;
 mod pins;
 mod rules;
 mod types;
 mod validate;
+mod weights;
 
 pub use rules::Rule;
 pub use types::*;
@@ -56,4 +58,16 @@ pub struct Crystal {
     pub formula_unit: FormulaUnit,
     /// Variables held at one state, sorted by target and index, at most one per entity.
     pub pinned: Vec<Pin>,
+    /// Relative weights of states, sorted by target and index, at most one per entity.
+    pub weights: Vec<Weight>,
+    /// Means imposed on states (`occupancy:` and `composition:`), in file order.
+    pub means: Vec<MeanTarget>,
+}
+
+impl Crystal {
+    /// Whether the file gives weights of states or imposes means: the counts are then
+    /// weighted sums, and a counter that cannot weigh must refuse.
+    pub fn is_weighted(&self) -> bool {
+        !self.weights.is_empty() || !self.means.is_empty()
+    }
 }

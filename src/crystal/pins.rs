@@ -15,25 +15,8 @@ impl Crystal {
     pub(super) fn validate_pins(&self, specs: &[PinSpec], ck: &Checker) -> Result<Vec<Pin>> {
         let mut pins: BTreeMap<(u8, usize), u32> = BTreeMap::new();
         for p in specs {
-            let (target, name, kind) = match (&p.site, &p.bond) {
-                (Some(s), None) => (Target::Sites, s, self.site_variables),
-                (None, Some(b)) => (Target::Bonds, b, self.bond_variables),
-                (Some(s), Some(_)) => {
-                    return ck.at(s, "a `pinned` entry names a `site` or a `bond`, not both");
-                }
-                (None, None) => {
-                    return ck.at(&p.state, "a `pinned` entry needs `site: ID` or `bond: ID`");
-                }
-            };
-            let Some(kind) = kind else {
-                return ck.at(
-                    name,
-                    format!(
-                        "`pinned` holds a variable on {}, but the file declares no variables there",
-                        target.word()
-                    ),
-                );
-            };
+            let (target, name) = super::weights::one_of(&p.site, &p.bond, "pinned", &p.state, ck)?;
+            let kind = self.kind_on(target, name, "pinned", ck)?;
             let q = kind.states();
             if p.state.value >= q {
                 return ck.at(
@@ -46,26 +29,7 @@ impl Crystal {
                     ),
                 );
             }
-            let indices: Vec<usize> = match target {
-                Target::Sites => (0..self.sites.len())
-                    .filter(|&i| self.sites[i].matches(&name.value))
-                    .collect(),
-                Target::Bonds => (0..self.bonds.len())
-                    .filter(|&i| {
-                        self.bonds[i].id == name.value || self.bonds[i].family == name.value
-                    })
-                    .collect(),
-            };
-            if indices.is_empty() {
-                let what = match target {
-                    Target::Sites => "site id or species",
-                    Target::Bonds => "bond id or bond family",
-                };
-                return ck.at(
-                    name,
-                    format!("`pinned` names '{}', which is no {what}", name.value),
-                );
-            }
+            let indices = self.entities_named(target, name, "pinned", ck)?;
             let key_kind = match target {
                 Target::Sites => 0,
                 Target::Bonds => 1,

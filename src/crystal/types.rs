@@ -174,6 +174,50 @@ pub struct Bond {
     pub length: f64,
 }
 
+/// Relative weights (activities) of the states of the variable on one site or bond of the
+/// unit cell (`weights:` in the lattice file). The weight of an arrangement is the product
+/// of its variables' weights; with every weight 1 it counts once.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Weight {
+    /// Sites or bonds.
+    pub target: Target,
+    /// Index into `Crystal::sites` or `Crystal::bonds`.
+    pub index: usize,
+    /// One finite non-negative weight per state, not all zero.
+    pub states: Vec<f64>,
+}
+
+/// How a mean is imposed.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum MeanKind {
+    /// `occupancy:` a measured mean: the maximum-entropy ensemble with that mean, by a
+    /// conjugate field.
+    Occupancy,
+    /// `composition:` a fraction fixed exactly (canonical); in the infinite crystal the
+    /// Legendre transform of the weighted count, in a finite cell an exact coefficient.
+    Composition,
+}
+
+/// A mean imposed on one state over a set of sites or bonds of the unit cell: one
+/// `occupancy:` or `composition:` entry, with one conjugate field.
+#[derive(Clone, Debug, PartialEq)]
+pub struct MeanTarget {
+    /// Occupancy or composition.
+    pub kind: MeanKind,
+    /// The entry as the file names it, for reports ("O-H1 state 1").
+    pub label: String,
+    /// Sites or bonds.
+    pub target: Target,
+    /// Indices into `Crystal::sites` or `Crystal::bonds`, sorted and distinct.
+    pub members: Vec<usize>,
+    /// The state whose mean is imposed.
+    pub state: u32,
+    /// The mean (a fraction of the members), strictly between 0 and 1.
+    pub mean: f64,
+    /// Where the entry sits in the file.
+    pub position: crate::error::Position,
+}
+
 /// Variables held at one state (`pinned:` in the lattice file): every variable on this
 /// site or bond of the unit cell, in every cell.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]

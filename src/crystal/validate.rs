@@ -259,6 +259,8 @@ impl Crystal {
                 basis: UnitBasis::Cell(1.0),
             },
             pinned: Vec::new(),
+            weights: Vec::new(),
+            means: Vec::new(),
         };
         let site_index = |name: &Located<String>| -> Result<usize> {
             crystal
@@ -635,6 +637,8 @@ impl Crystal {
         }
         crystal.formula_unit.basis = basis;
         crystal.pinned = crystal.validate_pins(&spec.pinned, &ck)?;
+        crystal.weights = crystal.validate_weights(&spec.weights, &ck)?;
+        crystal.means = crystal.validate_means(&spec.occupancy, &spec.composition, &ck)?;
         crystal.check_probe_size(&spec, &ck)?;
         Ok(crystal)
     }

@@ -358,6 +358,7 @@ pub fn stream(seed: u64, r: usize) -> rand_pcg::Pcg64Mcg {
 /// assert_eq!(s.replicas, 4);
 /// ```
 pub fn count(model: &Model, config: &SampleConfig, context: &Context) -> Result<Counted<Sampled>> {
+    crate::counters::refuse_weighted(model.is_weighted(), "the Monte Carlo sampler")?;
     let start = Instant::now();
     let mut config = config.clone();
     let mut extensions = 0;

@@ -126,6 +126,7 @@ pub fn count(
     config: &WangLandauConfig,
     context: &Context,
 ) -> Result<Counted<WangLandau>> {
+    crate::counters::refuse_weighted(model.is_weighted(), "Wang–Landau sampling")?;
     let start = Instant::now();
     if config.replicas < 2 {
         return Err(Error::Model(

@@ -168,6 +168,7 @@ pub fn count(
 /// Errors only when the first width fails for a reason other than a budget, a deadline,
 /// an interrupt or a non-converging iteration (a lattice that has no strip, say).
 pub fn run(crystal: &Crystal, config: &StripConfig, context: &Context) -> Result<StripRun> {
+    crate::counters::refuse_weighted(crystal.is_weighted(), "the transfer matrix")?;
     let config = &config.with_context(context);
     let mut runner = Runner::new(crystal, config);
     let mut stopped = None;
