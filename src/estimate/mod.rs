@@ -7,15 +7,18 @@
 //!   budget.
 //! - `note.rs`: [`Note`] and [`ExactStop`], what a survey says about its run, as data.
 //! - `cite.rs`: [`Survey::cited`], the one priority order of the value to cite.
+//! - `weighing.rs`: [`Weighing`], ln Z and the fields of a weighted estimate.
 
 mod cite;
 mod note;
 mod schedule;
 mod survey;
 mod value;
+mod weighing;
 
 pub use cite::*;
 pub use note::*;
 pub use schedule::*;
 pub use survey::*;
 pub use value::*;
+pub use weighing::*;

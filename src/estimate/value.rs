@@ -75,6 +75,9 @@ pub struct Estimate {
     pub seconds: f64,
     /// Largest number of partial states held at once (exact counts and transfer matrices).
     pub peak_states: Option<usize>,
+    /// For a weighted count (weights, imposed means): ln Z and the fields. `ln_w_per_unit`
+    /// is then the entropy of the weighted ensemble ([`super::Weighing`]).
+    pub weighing: Option<super::Weighing>,
 }
 
 impl Estimate {
@@ -104,6 +107,7 @@ impl Estimate {
             sigma_ln_w: None,
             seconds,
             peak_states: None,
+            weighing: None,
         }
     }
 
@@ -127,6 +131,7 @@ impl Estimate {
             sigma_ln_w,
             seconds,
             peak_states: None,
+            weighing: None,
         }
     }
 
@@ -148,12 +153,19 @@ impl Estimate {
             sigma_ln_w,
             seconds,
             peak_states: None,
+            weighing: None,
         }
     }
 
     /// The same estimate, recording the largest number of partial states held at once.
     pub fn with_peak_states(mut self, peak_states: Option<usize>) -> Self {
         self.peak_states = peak_states;
+        self
+    }
+
+    /// The same estimate of a weighted count, with its ln Z and fields.
+    pub fn with_weighing(mut self, weighing: super::Weighing) -> Self {
+        self.weighing = Some(weighing);
         self
     }
 
@@ -217,6 +229,12 @@ pub struct EstimateRecord {
     pub seconds: f64,
     /// Largest number of partial states held at once.
     pub peak_states: Option<usize>,
+    /// A weighted count: ln Z per formula unit (absent for an ordinary count).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ln_z_per_unit: Option<f64>,
+    /// A weighted count: the imposed means, fields and means reached (absent when none).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub fields: Vec<super::FieldValue>,
 }
 
 impl From<&Estimate> for EstimateRecord {
@@ -234,6 +252,12 @@ impl From<&Estimate> for EstimateRecord {
             s_uncertainty: e.sigma_s_j_per_mol_k(),
             seconds: e.seconds,
             peak_states: e.peak_states,
+            ln_z_per_unit: e.weighing.as_ref().map(|w| w.ln_z_per_unit),
+            fields: e
+                .weighing
+                .as_ref()
+                .map(|w| w.fields.clone())
+                .unwrap_or_default(),
         }
     }
 }
