@@ -10,8 +10,9 @@
 //!   list of the input states that lead to it — the rows of the transfer operator;
 //! * nothing ([`Keys`]): only the set of reachable keys — the transfer operator's closure.
 //!
-//! A weighted count (a float activity, a polynomial in a fugacity) is one more [`Count`]
-//! or one more pair of these traits.
+//! A weighted count (a float activity, a polynomial in a fugacity) is one more pair of
+//! these traits: its [`Payload::item_at`] multiplies by the weights of the values a step
+//! adds (the step's patterns, [`super::step::Step::patterns`]).
 
 use num_bigint::BigUint;
 
@@ -25,6 +26,14 @@ pub(crate) trait Payload: Send + Sync {
     type Item: Send + Sync;
     /// The item state `i` of the piece hands on.
     fn item(&self, i: usize) -> Self::Item;
+    /// The item state `i` hands to its successor by the added values of pattern `pattern`
+    /// (an index into [`super::step::Step::patterns`]): a weighted payload multiplies by
+    /// the weights of those values here. The default hands on [`Payload::item`] unchanged.
+    #[inline(always)]
+    fn item_at(&self, i: usize, pattern: usize) -> Self::Item {
+        let _ = pattern;
+        self.item(i)
+    }
 }
 
 /// Where a merge collects the items of the keys it writes, in increasing key order.

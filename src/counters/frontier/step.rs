@@ -174,6 +174,14 @@ impl Step {
         }
     }
 
+    /// Every assignment of the added variables, as bits of the shifted key (the value of
+    /// the variable added at offset `o` with `q` states is `(pattern >> o) & mask(width(q))`),
+    /// in the order whose index [`Payload::item_at`] receives.
+    #[allow(dead_code)] // read by the weighted payloads being built
+    pub fn patterns(&self) -> &[u64] {
+        &self.patterns
+    }
+
     /// Number of streams (without reversal).
     pub fn streams(&self) -> usize {
         self.streams
@@ -296,7 +304,7 @@ impl Step {
                 }
                 let st = &mut out[s];
                 st.keys.push(o);
-                st.items.push(payload.item(i));
+                st.items.push(payload.item_at(i, p));
             }
         }
     }
