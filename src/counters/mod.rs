@@ -27,6 +27,9 @@
 //! | Wang–Landau | [`sampling::wang_landau::count`] | model | [`sampling::wang_landau::WangLandauConfig`] | [`sampling::wang_landau::WangLandau`] |
 //! | size extrapolation | [`sampling::size::count`] | sampled estimates | `()` | [`sampling::size::SizeFit`] |
 //!
+//! The conjugate fields of imposed means (`occupancy:`, `composition:`) are solved by
+//! [`fields::solve`] around whichever counter evaluates ln Z(h) deterministically.
+//!
 //! Helpers that several counters use live in [`local`] (the independent-constraint sum and
 //! the cluster on which local estimates are evaluated), not in a sibling counter.
 
@@ -34,6 +37,7 @@ pub mod bethe;
 pub mod brute;
 pub mod exact;
 pub mod extrapolate;
+pub mod fields;
 pub(crate) mod frontier;
 pub mod local;
 pub mod order;
