@@ -100,8 +100,8 @@ pub fn solve(
             let mut hk = h.clone();
             hk[k] += config.step;
             let ak = eval(&hk)?;
-            for j in 0..m {
-                jac[j][k] = (ak.means[j] - at.means[j]) / config.step;
+            for (row, (a1, a0)) in jac.iter_mut().zip(ak.means.iter().zip(&at.means)) {
+                row[k] = (a1 - a0) / config.step;
             }
         }
         let delta = match solve_linear(jac, residual.clone()) {
@@ -166,12 +166,14 @@ fn solve_linear(mut a: Vec<Vec<f64>>, mut b: Vec<f64>) -> Option<Vec<f64>> {
         }
         a.swap(c, p);
         b.swap(c, p);
-        for r in c + 1..n {
-            let f = a[r][c] / a[c][c];
-            for k in c..n {
-                a[r][k] -= f * a[c][k];
+        let (top, rest) = a.split_at_mut(c + 1);
+        let pivot = &top[c];
+        for (r, row) in rest.iter_mut().enumerate() {
+            let f = row[c] / pivot[c];
+            for (x, p) in row[c..].iter_mut().zip(&pivot[c..]) {
+                *x -= f * p;
             }
-            b[r] -= f * b[c];
+            b[c + 1 + r] -= f * b[c];
         }
     }
     let mut x = vec![0.0; n];
