@@ -55,7 +55,13 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let cells = super::words::cells("--cells", &args.cells, args.open.as_deref(), c.dimensions)?;
     // A cell too wide for the frontier is refused before it is built.
     exact::check_cell(c, &cells)?;
-    let p = super::pauling(c)?;
+    // Pauling's estimate beside the count; a Pauling counter that cannot yet weigh is left
+    // out of a weighted file's output rather than compared with a different quantity.
+    let p = match super::pauling(c) {
+        Ok(p) => Some(p),
+        Err(groundcount::Error::Unweighted { .. }) => None,
+        Err(e) => return Err(e.into()),
+    };
     let cluster = Cluster::new(c, cells.clone())?;
     let model = Model::new(&cluster)?;
     let (context, bar) = args
@@ -80,7 +86,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let unit = &c.formula_unit.name;
     match args.common.format {
         Format::Json => Ok(groundcount::json::to_string(&Document {
-            estimate: EstimateOf::new(c, &e, Some(&p)),
+            estimate: EstimateOf::new(c, &e, p.as_ref()),
             variables: model.variables.len(),
             constraints: model.constraints.len(),
             content_hash: lattice.content_hash.clone(),
@@ -89,15 +95,27 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 CellRoute::Frontier => "frontier",
             },
         })?),
-        Format::Csv => Ok(text::comparison_table(&[p, e], unit).render_csv()),
-        Format::Markdown => Ok(text::comparison_table(&[p, e], unit).render_markdown()),
+        Format::Csv => Ok(text::comparison_table(
+            &p.into_iter().chain([e]).collect::<Vec<_>>(),
+            unit,
+        )
+        .render_csv()),
+        Format::Markdown => Ok(text::comparison_table(
+            &p.into_iter().chain([e]).collect::<Vec<_>>(),
+            unit,
+        )
+        .render_markdown()),
         Format::Table => {
             let mut out = String::new();
             out += &cell_header(c, &args.file, &e, &model);
             writeln!(out)?;
-            let count = e.count.as_ref().map(|c| c.to_string()).unwrap_or_default();
-            writeln!(out, "arrangements          {count}")?;
-            writeln!(out, "ln(arrangements)      {}", sig(e.ln_count, 12))?;
+            if let Some(w) = &e.weighing {
+                out += &weighted_lines(&e, w, &model, unit)?;
+            } else {
+                let count = e.count.as_ref().map(|c| c.to_string()).unwrap_or_default();
+                writeln!(out, "arrangements          {count}")?;
+                writeln!(out, "ln(arrangements)      {}", sig(e.ln_count, 12))?;
+            }
             writeln!(out, "W per {unit:<15} {}", sig(e.w_per_unit(), 12))?;
             writeln!(out, "S0/R per {unit:<12} {}", sig(e.s_over_r(), 12))?;
             writeln!(
@@ -105,7 +123,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 "S0                    {} J/(mol K) per mole of {unit}",
                 sig(e.s_j_per_mol_k(), 8)
             )?;
-            out += &pauling_line(&p, unit);
+            if let Some(p) = &p {
+                out += &pauling_line(p, unit);
+            } else {
+                writeln!(
+                    out,
+                    "Pauling (infinite)    not shown: Pauling's estimate does not yet take weights"
+                )?;
+            }
             writeln!(out)?;
             match route {
                 CellRoute::Trace { column_states } => writeln!(
@@ -131,4 +156,49 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             Ok(out)
         }
     }
+}
+
+/// The lines of a weighted count: what the entropy is, ln Z, and every imposed mean.
+fn weighted_lines(
+    e: &groundcount::Estimate,
+    w: &groundcount::estimate::Weighing,
+    model: &Model,
+    unit: &str,
+) -> anyhow::Result<String> {
+    use groundcount::crystal::MeanKind;
+    let mut out = String::new();
+    let canonical = w.fields.iter().any(|f| f.kind == MeanKind::Composition);
+    if canonical {
+        let count = e.count.as_ref().map(|c| c.to_string()).unwrap_or_default();
+        writeln!(
+            out,
+            "arrangements at the composition  {count} (exact; W and S0 below are from this count)"
+        )?;
+        writeln!(out, "ln(arrangements)      {}", sig(e.ln_count, 12))?;
+    } else {
+        writeln!(
+            out,
+            "weighted ensemble     S/R = ln Z - <ln w> (w: the state weights times exp(field) for every imposed mean); W and S0 below are exp and R times it"
+        )?;
+        writeln!(
+            out,
+            "ln Z of the cell      {}  ({} per {unit})",
+            sig(w.ln_z_per_unit * e.formula_units, 12),
+            sig(w.ln_z_per_unit, 12)
+        )?;
+        writeln!(out, "S/R of the cell       {}", sig(e.ln_count, 12))?;
+    }
+    for (f, m) in w.fields.iter().zip(&model.means) {
+        writeln!(
+            out,
+            "{} {:<24} target {}  field h = {}  achieved {}  ({} variables)",
+            f.kind.word(),
+            f.label,
+            sig(f.target, 8),
+            sig(f.field, 8),
+            sig(f.achieved, 10),
+            m.variables.len()
+        )?;
+    }
+    Ok(out)
 }

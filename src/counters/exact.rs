@@ -126,12 +126,15 @@ enum Failure {
 /// assert_eq!(e.estimate.count.unwrap().to_string(), "114");
 /// ```
 pub fn count(model: &Model, config: &ExactConfig, context: &Context) -> Result<Counted<()>> {
-    super::refuse_weighted(model.is_weighted(), "the exact count")?;
-    count_with(model, &filled(config, context), None).map(Counted::plain)
+    let config = &filled(config, context);
+    if model.is_weighted() {
+        return super::exact_weighted::count(model, config).map(Counted::plain);
+    }
+    count_with(model, config, None).map(Counted::plain)
 }
 
 /// `config` with the context's deadline, interrupt and observer in its hidden fields.
-fn filled(config: &ExactConfig, context: &Context) -> ExactConfig {
+pub(super) fn filled(config: &ExactConfig, context: &Context) -> ExactConfig {
     ExactConfig {
         max_states: config.max_states,
         deadline: context.deadline,
@@ -160,25 +163,7 @@ fn count_with(model: &Model, config: &ExactConfig, plan: Option<Plan>) -> Result
     if model.contradiction.is_some() {
         return Ok(finish(BigUint::from(0u32), 0));
     }
-    let plan = plan
-        .or_else(|| order::choose(model))
-        .ok_or_else(|| Error::Budget {
-            cells: model.cells.clone(),
-            detail: format!(
-                "its frontier would need more than 64 bits (up to 2^{:.0} states)",
-                order::smallest_frontier_log2(model)
-            ),
-        })?;
-    if plan.max_log2_states > (config.max_states as f64).log2() + 30.0 {
-        // Even heavily constrained frontiers rarely beat the bound by 2^30: refuse early.
-        return Err(Error::Budget {
-            cells: model.cells.clone(),
-            detail: format!(
-                "its frontier could hold up to 2^{:.0} states (budget {})",
-                plan.max_log2_states, config.max_states
-            ),
-        });
-    }
+    let plan = checked_plan(model, config, plan)?;
     // Start in u128 unless the count will surely not fit: the Pauling sum is a good guide
     // (overflow is detected exactly in any case, and then the count restarts in big integers).
     let guess_bits =
@@ -212,6 +197,35 @@ fn count_with(model: &Model, config: &ExactConfig, plan: Option<Plan>) -> Result
         count *= model.variables[v].states;
     }
     Ok(finish(count, peak))
+}
+
+/// The plan given, or the one chosen here; [`Error::Budget`] when no order fits the key or
+/// its frontier could far exceed the budget.
+pub(super) fn checked_plan(
+    model: &Model,
+    config: &ExactConfig,
+    plan: Option<Plan>,
+) -> Result<Plan> {
+    let plan = plan
+        .or_else(|| order::choose(model))
+        .ok_or_else(|| Error::Budget {
+            cells: model.cells.clone(),
+            detail: format!(
+                "its frontier would need more than 64 bits (up to 2^{:.0} states)",
+                order::smallest_frontier_log2(model)
+            ),
+        })?;
+    if plan.max_log2_states > (config.max_states as f64).log2() + 30.0 {
+        // Even heavily constrained frontiers rarely beat the bound by 2^30: refuse early.
+        return Err(Error::Budget {
+            cells: model.cells.clone(),
+            detail: format!(
+                "its frontier could hold up to 2^{:.0} states (budget {})",
+                plan.max_log2_states, config.max_states
+            ),
+        });
+    }
+    Ok(plan)
 }
 
 /// Largest column state space tried for the trace route of a torus ([`count_cell`]).
@@ -253,8 +267,14 @@ pub fn count_cell(
     config: &ExactConfig,
     context: &Context,
 ) -> Result<Counted<CellRoute>> {
-    super::refuse_weighted(model.is_weighted(), "the exact count")?;
     let config = &filled(config, context);
+    if model.is_weighted() {
+        // The torus trace carries plain counts: a weighted cell takes the frontier.
+        return Ok(Counted::new(
+            super::exact_weighted::count(model, config)?,
+            CellRoute::Frontier,
+        ));
+    }
     let mut plan = None;
     if model.contradiction.is_none() {
         plan = plan_for(model);
@@ -313,6 +333,12 @@ pub fn plan_for(model: &Model) -> Option<Plan> {
 
 /// The steps of a plan, compiled with the newest variable in the lowest bits.
 fn steps(model: &Model, plan: &Plan) -> Vec<Step> {
+    steps_at(model, plan).0
+}
+
+/// [`steps`], with the offset at which each step writes its variable (in the shifted key).
+pub(super) fn steps_at(model: &Model, plan: &Plan) -> (Vec<Step>, Vec<u32>) {
+    let mut offsets = Vec::with_capacity(plan.order.len());
     let tables: Vec<Arc<[u64]>> = model
         .tables
         .iter()
@@ -327,6 +353,7 @@ fn steps(model: &Model, plan: &Plan) -> Vec<Step> {
         let at = layout
             .add(v, width(q))
             .expect("the plan fits its frontier in 63 bits");
+        offsets.push(at);
         let completed: Vec<Completed> = plan.completes[t]
             .iter()
             .map(|&c| {
@@ -356,7 +383,7 @@ fn steps(model: &Model, plan: &Plan) -> Vec<Step> {
             layout.occupied(),
         ));
     }
-    steps
+    (steps, offsets)
 }
 
 fn run<C: Count>(

@@ -36,6 +36,7 @@
 pub mod bethe;
 pub mod brute;
 pub mod exact;
+mod exact_weighted;
 pub mod extrapolate;
 pub mod fields;
 pub(crate) mod frontier;

@@ -449,9 +449,8 @@ mod tests {
         ));
         let cluster = Cluster::new(&l.crystal, Cells::parse("3x3", None, 2).unwrap()).unwrap();
         let m = Model::new(&cluster).unwrap();
-        assert!(refused(
-            exact::count(&m, &Default::default(), &ctx).map(|_| ())
-        ));
+        // The exact counter weighs (counters/exact_weighted.rs).
+        assert!(exact::count(&m, &Default::default(), &ctx).is_ok());
     }
 
     #[test]

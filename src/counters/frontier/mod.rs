@@ -38,6 +38,7 @@ pub(crate) mod layout;
 pub(crate) mod merge;
 pub(crate) mod payload;
 pub(crate) mod step;
+pub(crate) mod weighted;
 
 use rayon::prelude::*;
 
