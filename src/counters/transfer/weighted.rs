@@ -59,7 +59,7 @@ use crate::model::Model;
 pub const STEP: f64 = 1e-3;
 
 /// What a weighted width reports beside its entropy.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
 pub struct WidthWeighing {
     /// ln Z per formula unit (ln λ at the fields found, per formula unit).
     pub ln_z_per_unit: f64,
