@@ -264,6 +264,10 @@ pub struct WidthRecord {
     pub reversal_pairs: bool,
     /// Wall time in seconds.
     pub seconds: f64,
+    /// A weighted crystal: ln Z and ⟨ln w⟩ per formula unit, the fields and the means
+    /// reached at this width, and the error bound of the derivatives (absent otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub weighing: Option<crate::counters::transfer::WidthWeighing>,
 }
 
 impl From<&StripResult> for WidthRecord {
@@ -283,6 +287,7 @@ impl From<&StripResult> for WidthRecord {
             sector_basis: basis_word(&r.basis),
             reversal_pairs: r.reversal,
             seconds: r.seconds,
+            weighing: r.weighing.clone(),
         }
     }
 }

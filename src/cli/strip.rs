@@ -139,6 +139,12 @@ struct Document {
     s_j_per_mol_k: Option<f64>,
     s_uncertainty: Option<f64>,
     seconds: Option<f64>,
+    /// A weighted crystal: ln Z per formula unit, extrapolated (absent otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    ln_z_per_unit: Option<f64>,
+    /// A weighted crystal: the imposed means, their fields and the means reached.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    fields: Vec<groundcount::estimate::FieldValue>,
 }
 
 /// Why a run stopped.
@@ -631,6 +637,8 @@ fn render(
                 s_j_per_mol_k: e.as_ref().map(|e| e.s_j_per_mol_k),
                 s_uncertainty: e.as_ref().and_then(|e| e.s_uncertainty),
                 seconds: e.as_ref().map(|e| e.seconds),
+                ln_z_per_unit: e.as_ref().and_then(|e| e.ln_z_per_unit),
+                fields: e.as_ref().map(|e| e.fields.clone()).unwrap_or_default(),
             })?)
         }
         format => {
@@ -705,6 +713,9 @@ fn render(
             writeln!(out)?;
             out += &t.render();
             writeln!(out)?;
+            if c.is_weighted() {
+                out += &weighted_words(c, run, unit)?;
+            }
             match series {
                 Some(s) if !failed => {
                     let e = &s.estimate;
@@ -728,6 +739,23 @@ fn render(
                         sig(e.s_j_per_mol_k(), 10),
                         sig(e.sigma_s_j_per_mol_k().unwrap_or(0.0), 2)
                     )?;
+                    if let Some(w) = &e.weighing {
+                        writeln!(
+                            out,
+                            "ln Z per {unit}        {} (weighted sum over arrangements, W → ∞)",
+                            sig(w.ln_z_per_unit, 13)
+                        )?;
+                        for f in &w.fields {
+                            writeln!(
+                                out,
+                                "field                {}: h = {} (W → ∞), {} asked, {} reached",
+                                f.label,
+                                sig(f.field, 10),
+                                sig(f.target, 10),
+                                sig(f.achieved, 10)
+                            )?;
+                        }
+                    }
                     writeln!(out, "extrapolation        {}", extrapolation_words(s, run))?;
                     writeln!(
                         out,
@@ -883,4 +911,51 @@ mod tests {
             false
         );
     }
+}
+
+/// The weighted widths: what `W per unit` means there, and ln Z, ⟨ln w⟩, the fields and the
+/// means reached per width.
+fn weighted_words(
+    c: &groundcount::crystal::Crystal,
+    run: &transfer::StripRun,
+    unit: &str,
+) -> anyhow::Result<String> {
+    let mut out = String::new();
+    writeln!(
+        out,
+        "weighted: W per {unit} is exp(S/R), S/R = ln Z − ⟨ln w⟩ per {unit}, the entropy of the \
+         weighted ensemble (w includes the fields of the imposed means)"
+    )?;
+    let labels: Vec<String> = c.means.iter().map(|m| format!("h {}", m.label)).collect();
+    let reached: Vec<String> = c
+        .means
+        .iter()
+        .map(|m| format!("mean {}", m.label))
+        .collect();
+    let ln_z = format!("ln Z per {unit}");
+    let ln_w = format!("⟨ln w⟩ per {unit}");
+    let mut head: Vec<&str> = vec!["width", &ln_z, &ln_w, "difference error"];
+    for (h, m) in labels.iter().zip(&reached) {
+        head.push(h);
+        head.push(m);
+    }
+    let mut t = Table::new(&head);
+    for r in &run.widths {
+        let Some(w) = &r.weighing else { continue };
+        let mut row = vec![
+            r.width.to_string(),
+            sig(w.ln_z_per_unit, 13),
+            sig(w.mean_ln_w_per_unit, 13),
+            sig(w.derivative_error, 2),
+        ];
+        for (h, m) in w.fields.iter().zip(&w.achieved) {
+            row.push(sig(*h, 10));
+            row.push(sig(*m, 10));
+        }
+        t.row(row);
+    }
+    writeln!(out)?;
+    out += &t.render();
+    writeln!(out)?;
+    Ok(out)
 }

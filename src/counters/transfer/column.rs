@@ -85,6 +85,12 @@ pub struct Column {
     /// ln of the number of assignments of the boundary fields (an upper bound on the
     /// states of the full space).
     pub(super) ln_boundary_space: f64,
+    /// The weights of the values every step adds, when the crystal is weighted
+    /// ([`super::weighted`]).
+    pub(super) weighting: Option<Arc<super::weighted::Weighting>>,
+    /// Per step, the factor of every value pattern at the current point (scale and fields;
+    /// empty when unweighted).
+    pub(super) factors: Vec<Vec<f64>>,
 }
 
 /// Largest number of value patterns of one step when variables that complete no
@@ -95,6 +101,8 @@ const MERGE_MAX: usize = 64;
 struct Raw {
     before: u64,
     added: Vec<(u32, u32)>,
+    /// The kinds of the added variables, in the order of `added`.
+    kinds: Vec<usize>,
     completed: Vec<Completed>,
     depths: Vec<usize>,
     gone: Vec<Field>,
@@ -270,6 +278,7 @@ impl Column {
             let mut step = Raw {
                 before,
                 added: vec![(at, states[k])],
+                kinds: vec![k],
                 completed,
                 depths,
                 gone,
@@ -285,11 +294,16 @@ impl Column {
                 let prev = raw.pop().expect("a previous step");
                 step.before = prev.before;
                 step.added = prev.added.into_iter().chain(step.added).collect();
+                step.kinds = prev.kinds.into_iter().chain(step.kinds).collect();
             }
             raw.push(step);
         }
         const { assert!(MERGE_MAX <= MAX_PATTERNS) };
-        let steps = raw
+        let added: Vec<(Vec<(u32, u32)>, Vec<usize>)> = raw
+            .iter()
+            .map(|r| (r.added.clone(), r.kinds.clone()))
+            .collect();
+        let steps: Vec<ColumnStep> = raw
             .into_iter()
             .map(|r| ColumnStep {
                 step: Step::new(
@@ -327,7 +341,16 @@ impl Column {
             let t = &model.tables[c.table];
             (0..t.size).all(|i| t.allows(i) == t.allows(t.size - 1 - i))
         });
-        let reversible = binary && closed && next_bit > 0;
+        let weighting = model.is_weighted().then(|| {
+            let free: Vec<usize> = (0..m).filter(|&k| last_use[k].is_none()).collect();
+            Arc::new(super::weighted::Weighting::new(
+                &model, &kinds, &states, &steps, &added, free, n,
+            ))
+        });
+        // Weights break the reversal unless they are the same for both states of every
+        // variable and no mean is imposed.
+        let weights_reversible = weighting.as_ref().is_none_or(|w| w.reversal_invariant());
+        let reversible = binary && closed && next_bit > 0 && weights_reversible;
         let ln_boundary_space: f64 = (0..m)
             .filter_map(|k| last_use[k].map(|(age, _)| age as f64 * (states[k] as f64).ln()))
             .sum();
@@ -353,7 +376,10 @@ impl Column {
             reversible,
             filters,
             ln_boundary_space,
+            weighting,
+            factors: Vec::new(),
         };
+        column.set_point(1.0, &[]);
         column.build_seconds = start.elapsed().as_secs_f64();
         Ok(column)
     }

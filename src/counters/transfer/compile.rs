@@ -229,6 +229,9 @@ impl Column {
 
     /// The rows of every step of the column, from the boundary states `keys`.
     fn compile_rows(&mut self, keys: Vec<u64>, config: &StripConfig) -> Result<()> {
+        if self.weighting.is_some() {
+            return self.compile_weighted_rows(keys, config);
+        }
         let mut all_rows = Vec::with_capacity(self.steps.len());
         let mut sizes = Vec::with_capacity(self.steps.len());
         let last = self.steps.len().saturating_sub(1);

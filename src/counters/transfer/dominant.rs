@@ -98,6 +98,9 @@ pub(super) struct Finder<'a> {
     pub calibration: Vec<usize>,
     /// Why sectors are no longer trusted (a full-space check failed).
     broken: Option<String>,
+    /// A weighted crystal: the fields of the imposed means at which every operator is
+    /// built (`None`: zero fields).
+    pub point: Option<Vec<f64>>,
 }
 
 impl<'a> Finder<'a> {
@@ -109,13 +112,23 @@ impl<'a> Finder<'a> {
             checks: Vec::new(),
             calibration: Vec::new(),
             broken: None,
+            point: None,
         }
+    }
+
+    /// The layout of a width, at the fields of [`Finder::point`].
+    pub fn layout(&self, width: usize) -> Result<Column> {
+        let mut layout = Column::layout(self.crystal, width, self.config)?;
+        if let Some(h) = &self.point {
+            layout.set_point(1.0, h);
+        }
+        Ok(layout)
     }
 
     /// The largest eigenvalue of a strip `width` cells wide, from the states
     /// `config.sectors` asks for (for [`super::Sectors::Largest`], the sector found here).
     pub fn width(&mut self, width: usize) -> Result<StripResult> {
-        let layout = Column::layout(self.crystal, width, self.config)?;
+        let layout = self.layout(width)?;
         match self.config.sectors {
             super::Sectors::Full => eigen(&layout.compiled(Kept::Full, self.config)?, self.config),
             super::Sectors::Charge(q) => {
@@ -180,7 +193,7 @@ impl<'a> Finder<'a> {
             if self.checked.iter().any(|c| c.width == w) {
                 continue;
             }
-            let layout = Column::layout(self.crystal, w, self.config)?;
+            let layout = self.layout(w)?;
             if layout.charge.is_empty() {
                 continue;
             }

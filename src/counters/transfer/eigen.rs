@@ -30,7 +30,17 @@ impl Column {
             let rows = &self.rows[s];
             debug_assert_eq!(rows.outputs(), self.sizes[s]);
             let input: &[f64] = y;
-            if scratch.len() >= PARALLEL_MIN {
+            if rows.is_weighted() {
+                let factors = &self.factors[s];
+                if scratch.len() >= PARALLEL_MIN {
+                    scratch
+                        .par_chunks_mut(CHUNK)
+                        .enumerate()
+                        .for_each(|(c, out)| rows.gather_weighted(c * CHUNK, out, input, factors));
+                } else {
+                    rows.gather_weighted(0, scratch, input, factors);
+                }
+            } else if scratch.len() >= PARALLEL_MIN {
                 scratch
                     .par_chunks_mut(CHUNK)
                     .enumerate()
@@ -122,6 +132,7 @@ impl Column {
                     },
                     ln_boundary_space: self.ln_boundary_space,
                     depth: self.depth,
+                    weighing: None,
                 };
                 return Ok(Some((result, x)));
             }

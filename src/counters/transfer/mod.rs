@@ -117,6 +117,7 @@ pub(crate) mod sector;
 mod series;
 mod symmetry;
 pub mod torus;
+mod weighted;
 
 use std::time::Instant;
 
@@ -249,7 +250,12 @@ pub struct StripResult {
     /// Columns the deepest constraint spans beyond its first: a periodic cell longer than
     /// this along the strip is counted exactly by the trace of Tᴸ.
     pub depth: usize,
+    /// A weighted crystal: ln Z, ⟨ln w⟩, the fields and the means reached at this width
+    /// (`ln_w_per_unit` is then the entropy of the weighted ensemble, ln Z − ⟨ln w⟩).
+    pub weighing: Option<WidthWeighing>,
 }
+
+pub use weighted::WidthWeighing;
 
 /// Why the states a width kept carry its largest eigenvalue.
 #[derive(Clone, Debug, PartialEq)]

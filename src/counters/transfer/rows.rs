@@ -31,6 +31,9 @@ pub const MAX_INPUT: usize = (END - 1) as usize;
 #[derive(Debug, Default)]
 pub struct Rows {
     entries: Vec<u32>,
+    /// Weighted rows ([`super::weighted`]): per entry, the index of the value pattern the
+    /// transition adds (its factor is looked up per application); empty when unweighted.
+    patterns: Vec<u8>,
     /// Entry position of the first entry of rows 0, CHUNK, 2·CHUNK, …
     chunks: Vec<usize>,
     outputs: usize,
@@ -46,6 +49,63 @@ impl Rows {
             outputs,
             sources.len(),
         )
+    }
+
+    /// Weighted compressed rows: `patterns[e]` is the value pattern of entry `e`.
+    pub fn from_compressed_weighted(sources: &[u32], patterns: &[u8], starts: &[u32]) -> Rows {
+        let outputs = starts.len().saturating_sub(1);
+        let mut rows = Rows::from_compressed(sources, starts);
+        rows.patterns = weighted_patterns(
+            (0..outputs).map(|j| &patterns[starts[j] as usize..starts[j + 1] as usize]),
+            rows.entries.len(),
+        );
+        rows
+    }
+
+    /// [`Rows::from_pieces`] with a value pattern per entry: each piece is (sources,
+    /// patterns, starts).
+    pub fn from_pieces_weighted<'a>(
+        pieces: impl Iterator<Item = (&'a [u32], &'a [u8], &'a [u32])> + Clone,
+    ) -> Rows {
+        let mut rows = Rows::from_pieces(pieces.clone().map(|p| (p.0, p.2)));
+        let each = pieces.flat_map(|(_, patterns, starts)| {
+            (0..starts.len()).map(move |j| {
+                let end = starts.get(j + 1).map_or(patterns.len(), |&e| e as usize);
+                &patterns[starts[j] as usize..end]
+            })
+        });
+        rows.patterns = weighted_patterns(each, rows.entries.len());
+        rows
+    }
+
+    /// Whether the entries carry value patterns (a weighted operator).
+    pub fn is_weighted(&self) -> bool {
+        !self.patterns.is_empty()
+    }
+
+    /// out[k] = Σ factors[pattern] · input over the row `first + k` (a weighted operator);
+    /// `first` is a multiple of [`CHUNK`].
+    #[inline]
+    pub fn gather_weighted(&self, first: usize, out: &mut [f64], input: &[f64], factors: &[f64]) {
+        debug_assert_eq!(first % CHUNK, 0);
+        if out.is_empty() {
+            return;
+        }
+        let mut p = self.chunks[first / CHUNK];
+        for o in out.iter_mut() {
+            let mut acc = 0.0;
+            loop {
+                let e = self.entries[p];
+                if e != EMPTY {
+                    acc += factors[self.patterns[p] as usize] * input[(e & !END) as usize];
+                }
+                p += 1;
+                if e & END != 0 {
+                    break;
+                }
+            }
+            *o = acc;
+        }
     }
 
     /// From compressed rows in pieces, one after the other: each piece is (sources, starts)
@@ -86,6 +146,7 @@ impl Rows {
         entries.shrink_to_fit();
         Rows {
             entries,
+            patterns: Vec::new(),
             chunks,
             outputs,
             transitions,
@@ -142,6 +203,21 @@ impl Rows {
             f(j, &mut inputs);
         }
     }
+}
+
+/// The patterns of rows laid out like their entries (an empty row holds one entry, whose
+/// pattern is never read).
+fn weighted_patterns<'a>(rows: impl Iterator<Item = &'a [u8]>, entries: usize) -> Vec<u8> {
+    let mut out = Vec::with_capacity(entries);
+    for row in rows {
+        if row.is_empty() {
+            out.push(0);
+        } else {
+            out.extend_from_slice(row);
+        }
+    }
+    debug_assert_eq!(out.len(), entries);
+    out
 }
 
 #[cfg(test)]

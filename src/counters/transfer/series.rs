@@ -38,7 +38,7 @@ use crate::counters::{Counted, exact};
 use crate::crosscheck::{CrossCheck, Route};
 use crate::crystal::Crystal;
 use crate::error::{Error, Result};
-use crate::estimate::{Estimate, Method, ln_big};
+use crate::estimate::{Estimate, FieldValue, Method, Weighing, ln_big};
 use crate::model::Model;
 
 /// Torus traces compared with the frontier counter per run.
@@ -168,7 +168,6 @@ pub fn count(
 /// Errors only when the first width fails for a reason other than a budget, a deadline,
 /// an interrupt or a non-converging iteration (a lattice that has no strip, say).
 pub fn run(crystal: &Crystal, config: &StripConfig, context: &Context) -> Result<StripRun> {
-    crate::counters::refuse_weighted(crystal.is_weighted(), "the transfer matrix")?;
     let config = &config.with_context(context);
     let mut runner = Runner::new(crystal, config);
     let mut stopped = None;
@@ -218,7 +217,11 @@ impl<'a> Runner<'a> {
     /// Compute one more width (widths should grow: the sector of a width is predicted
     /// from the smaller ones).
     pub fn width(&mut self, width: usize) -> Result<&StripResult> {
-        let r = self.finder.width(width)?;
+        let r = if self.crystal.is_weighted() {
+            super::weighted::width(&mut self.finder, width, self.config)?
+        } else {
+            self.finder.width(width)?
+        };
         self.results.push(r);
         Ok(self.results.last().expect("just pushed"))
     }
@@ -343,6 +346,10 @@ fn torus_checks(
     config: &StripConfig,
 ) -> Vec<CrossCheck> {
     let mut out = Vec::new();
+    if crystal.is_weighted() {
+        // The trace of Tᴸ is an integer count; a weighted torus is not compared here.
+        return out;
+    }
     let mut small = config.clone();
     small.max_states = TORUS_STATES;
     small.sectors = super::Sectors::Full;
@@ -533,12 +540,17 @@ fn extrapolate_widths(
         (true, 3, None) => 3,
         _ => 2,
     };
-    // Each width's ln λ is converged to the iteration tolerance (relative in λ).
+    // Each width's ln λ is converged to the iteration tolerance (relative in λ); a
+    // weighted width adds the error bound of its derivatives.
     let errors: Vec<f64> = results
         .iter()
-        .map(|r| config.tolerance / r.units_per_column)
+        .map(|r| {
+            config.tolerance / r.units_per_column
+                + r.weighing.as_ref().map_or(0.0, |w| w.derivative_error)
+        })
         .collect();
     let extrapolation = extrapolate_in(&points, &errors, step, scaling, exponent)?;
+    let weighing = weighing_of(crystal, &results, &errors, step, scaling, exponent);
     let two_dimensional = crystal.dimensions == 2 && config.periodic;
     let central_charge = extrapolation.a1.filter(|_| two_dimensional).map(|a1| {
         let v = crystal.vectors;
@@ -556,6 +568,10 @@ fn extrapolate_widths(
         results.iter().map(|r| r.seconds).sum(),
     )
     .with_peak_states(results.iter().map(|r| r.peak_states).max());
+    let estimate = match weighing {
+        Some(w) => estimate.with_weighing(w),
+        None => estimate,
+    };
     Ok(Counted::new(
         estimate,
         StripSeries {
@@ -566,4 +582,42 @@ fn extrapolate_widths(
             step,
         },
     ))
+}
+
+/// The [`Weighing`] of weighted widths: ln Z per formula unit and every field extrapolated
+/// like the entropy (the widest width's value when a series does not extrapolate), and the
+/// mean reached at the widest width (every width solves its means to the same targets).
+fn weighing_of(
+    crystal: &Crystal,
+    results: &[StripResult],
+    errors: &[f64],
+    step: usize,
+    scaling: Scaling,
+    exponent: i32,
+) -> Option<Weighing> {
+    let widest = results.iter().max_by_key(|r| r.width)?;
+    let w = widest.weighing.as_ref()?;
+    let limit = |value: &dyn Fn(&StripResult) -> f64| -> f64 {
+        let points: Vec<(usize, f64)> = results.iter().map(|r| (r.width, value(r))).collect();
+        extrapolate_in(&points, errors, step, scaling, exponent).map_or(value(widest), |x| x.value)
+    };
+    let ln_z_per_unit =
+        limit(&|r: &StripResult| r.weighing.as_ref().map_or(f64::NAN, |w| w.ln_z_per_unit));
+    let fields = crystal
+        .means
+        .iter()
+        .enumerate()
+        .map(|(j, m)| FieldValue {
+            label: m.label.clone(),
+            kind: m.kind,
+            target: m.mean,
+            field: limit(&|r: &StripResult| r.weighing.as_ref().map_or(f64::NAN, |w| w.fields[j])),
+            achieved: w.achieved[j],
+            achieved_sigma: None,
+        })
+        .collect();
+    Some(Weighing {
+        ln_z_per_unit,
+        fields,
+    })
 }

@@ -159,6 +159,8 @@ impl Column {
             reversible: self.reversible,
             filters: self.filters.clone(),
             ln_boundary_space: self.ln_boundary_space,
+            weighting: self.weighting.clone(),
+            factors: self.factors.clone(),
         };
         let total = self.total_charge();
         match kept {
