@@ -33,7 +33,10 @@
 
 use std::time::Instant;
 
-use super::local::{pauling_ln_w, tree_free_model};
+use super::fields::FieldsConfig;
+use super::local::{
+    independent, pauling_ln_w, pauling_weighted, tree_free_model, weighted_estimate,
+};
 use super::{Context, Counted};
 use crate::crystal::Crystal;
 use crate::error::Result;
@@ -49,9 +52,27 @@ use crate::estimate::{Estimate, Method};
 /// assert!((p.estimate.w_per_unit() - 1.5).abs() < 1e-12); // Pauling 1935
 /// ```
 pub fn count(crystal: &Crystal, _config: &(), _context: &Context) -> Result<Counted<()>> {
-    super::refuse_weighted(crystal.is_weighted(), "Pauling's estimate")?;
     let start = Instant::now();
     let model = tree_free_model(crystal)?;
+    if model.is_weighted() {
+        // The fields put every variable independently at its target means; Pauling's form is
+        // then evaluated at those single-variable distributions.
+        let (entropy, weighing) = weighted_estimate(
+            &model,
+            &FieldsConfig::default(),
+            |lp| Ok(independent(lp)),
+            |lp| Ok(pauling_weighted(&model, lp)),
+        )?;
+        return Ok(Counted::plain(
+            Estimate::infinite(
+                Method::Pauling,
+                entropy,
+                None,
+                start.elapsed().as_secs_f64(),
+            )
+            .with_weighing(weighing),
+        ));
+    }
     Ok(Counted::plain(Estimate::infinite(
         Method::Pauling,
         pauling_ln_w(&model),
@@ -61,7 +82,7 @@ pub fn count(crystal: &Crystal, _config: &(), _context: &Context) -> Result<Coun
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::Lattice;
     use crate::counters::local::{Caveat, caveat};
@@ -125,4 +146,195 @@ mod tests {
         let e = l.count_exact(&cells, &Default::default()).unwrap();
         assert_eq!(e.count.unwrap(), num_bigint::BigUint::from(16u32));
     }
+
+    /// Ideal mixing: a two-state variable under no rule with mean x has the entropy
+    /// −x ln x − (1 − x) ln(1 − x) per variable (closed form), R ln 2 at x = 1/2.
+    #[test]
+    fn issue13_no_rule_gives_ideal_mixing() {
+        for x in [0.5, 0.3, 0.05] {
+            let yaml = format!(
+                "name: free\ndimensions: 1\ncell: {{vectors: [[1.0]]}}\n\
+                 sites: [{{id: A, at: [0.0]}}]\nvariables: [{{on: sites, kind: spin}}]\n\
+                 formula_unit: {{name: site, per: sites}}\n\
+                 occupancy:\n  - {{site: A, state: 1, mean: {x}}}\n"
+            );
+            let l = Lattice::from_yaml(&yaml, "free.yaml").unwrap();
+            let p = estimate(&l.crystal).unwrap();
+            let mix = -x * f64::ln(x) - (1.0 - x) * f64::ln(1.0 - x);
+            assert!(
+                (p.ln_w_per_unit - mix).abs() < 1e-9,
+                "{x}: {}",
+                p.ln_w_per_unit
+            );
+            let w = p.weighing.as_ref().unwrap();
+            assert!((w.fields[0].field - (x / (1.0 - x)).ln()).abs() < 1e-7);
+            assert!((w.fields[0].achieved - x).abs() < 1e-9);
+            // ln Z = ln(1 + e^h) per site.
+            assert!((w.ln_z_per_unit - (1.0 / (1.0 - x)).ln()).abs() < 1e-7);
+        }
+    }
+
+    /// Every bond of ice Ih at mean 1/2: the fields vanish and the value is Pauling's 3/2
+    /// per H2O (Pauling 1935, J. Am. Chem. Soc. 57, 2680).
+    #[test]
+    fn issue13_ice_at_one_half_is_paulings_value() {
+        let yaml = format!(
+            "{}occupancy:\n  - {{bond: hb, state: 1, mean: 0.5}}\n",
+            crate::ICE_IH_YAML
+        );
+        let l = Lattice::from_yaml(&yaml, "ice.yaml").unwrap();
+        let p = estimate(&l.crystal).unwrap();
+        assert!((p.w_per_unit() - 1.5).abs() < 1e-9, "{}", p.w_per_unit());
+        let w = p.weighing.unwrap();
+        assert!(w.fields[0].field.abs() < 1e-9);
+        // ln Z = S: the fields vanish and every weight is 1.
+        assert!((w.ln_z_per_unit - 1.5f64.ln()).abs() < 1e-9);
+    }
+
+    /// The form of MacDowell, Sanz, Vega & Abascal 2004 (J. Chem. Phys. 121, 10145) for
+    /// partially ordered ice, written here from its structure (from memory: bond entropies
+    /// plus, for every oxygen, ln of the probability that independent occupancies put
+    /// exactly two protons near it): S/R per molecule = (bonds per molecule) H(α)
+    /// + (1/N) Σ_O ln P_O. Square ice with P(proton near `to`) = a on h bonds and b on v
+    /// bonds: every oxygen is the `to` end of one h and one v bond, so
+    /// P_O = 2a(1−a)b(1−b) + (a² + (1−a)²)(b² + (1−b)²) (6/16 at a = b = 1/2); ice Ih with one
+    /// α on every bond: an oxygen that is the `to` end of k bonds keeps the rule with
+    /// P_O = Σ_j C(k, j) C(4−k, 2−j) α^j (1−α)^(k−j) (1−α)^(2−j) α^(2−k+j).
+    #[test]
+    fn issue13_partially_ordered_ice_follows_macdowell() {
+        let h = |x: f64| -x * x.ln() - (1.0 - x) * (1.0 - x).ln();
+        for (a, b) in [(0.6f64, 0.8f64), (0.8, 0.8), (0.55, 0.3)] {
+            let yaml = format!(
+                "{}occupancy:\n  - {{bond: h, state: 1, mean: {a}}}\n  - {{bond: v, state: 1, mean: {b}}}\n",
+                include_str!("../../lattices/square-ice.yaml")
+            );
+            let l = Lattice::from_yaml(&yaml, "square.yaml").unwrap();
+            let p = estimate(&l.crystal).unwrap();
+            let po = 2.0 * a * (1.0 - a) * b * (1.0 - b)
+                + (a * a + (1.0 - a).powi(2)) * (b * b + (1.0 - b).powi(2));
+            let s = h(a) + h(b) + po.ln();
+            assert!(
+                (p.ln_w_per_unit - s).abs() < 1e-9,
+                "{a} {b}: {} against {s}",
+                p.ln_w_per_unit
+            );
+        }
+        let choose = |n: i32, k: i32| -> f64 {
+            if k < 0 || k > n {
+                return 0.0;
+            }
+            (0..k).map(|i| (n - i) as f64 / (i + 1) as f64).product()
+        };
+        let ice = Lattice::from_yaml(crate::ICE_IH_YAML, "ice.yaml").unwrap();
+        let c = &ice.crystal;
+        let ks: Vec<i32> = (0..c.sites.len())
+            .map(|o| c.bonds.iter().filter(|b| b.to == o).count() as i32)
+            .collect();
+        for alpha in [0.6f64, 0.8, 0.95] {
+            let yaml = format!(
+                "{}occupancy:\n  - {{bond: hb, state: 1, mean: {alpha}}}\n",
+                crate::ICE_IH_YAML
+            );
+            let l = Lattice::from_yaml(&yaml, "ice.yaml").unwrap();
+            let p = estimate(&l.crystal).unwrap();
+            let ln_po: f64 = ks
+                .iter()
+                .map(|&k| {
+                    (0..=2)
+                        .map(|j| {
+                            choose(k, j)
+                                * choose(4 - k, 2 - j)
+                                * alpha.powi(j)
+                                * (1.0 - alpha).powi(k - j)
+                                * (1.0 - alpha).powi(2 - j)
+                                * alpha.powi(2 - k + j)
+                        })
+                        .sum::<f64>()
+                        .ln()
+                })
+                .sum();
+            let per_o = c.sites.len() as f64;
+            let s = (c.bonds.len() as f64 * h(alpha) + ln_po) / per_o;
+            assert!(
+                (p.ln_w_per_unit - s).abs() < 1e-9,
+                "{alpha}: {} against {s}",
+                p.ln_w_per_unit
+            );
+        }
+    }
+
+    /// Full order: occupancies of square ice going to 1 on h and v (every oxygen keeps two
+    /// protons) drive the entropy to 0 (the limit of the closed form above).
+    #[test]
+    fn issue13_full_order_gives_zero() {
+        let mut last = f64::INFINITY;
+        for eps in [1e-2, 1e-4, 1e-7] {
+            let x = 1.0 - eps;
+            let yaml = format!(
+                "{}occupancy:\n  - {{bond: h, state: 1, mean: {x}}}\n  - {{bond: v, state: 1, mean: {x}}}\n",
+                include_str!("../../lattices/square-ice.yaml")
+            );
+            let l = Lattice::from_yaml(&yaml, "square.yaml").unwrap();
+            let s = estimate(&l.crystal).unwrap().ln_w_per_unit;
+            assert!(s > 0.0 && s < last, "{eps}: {s}");
+            last = s;
+        }
+        assert!(last < 1e-5, "{last}");
+    }
+
+    /// Weights only on one tetrahedron (four spins, two up; weights of the up state 2, 1/2,
+    /// 3, 1): one constraint, so Pauling's ln Z = Σ_v ln z_v + ln P_w(rule) is exact:
+    /// ln Z = ln Σ over the six allowed states of the product of weights (brute force
+    /// here). Pauling's entropy ln Z − ⟨ln w⟩ uses the independent marginals.
+    #[test]
+    fn issue13_weighted_pauling_ln_z_is_exact_for_one_constraint() {
+        let l = Lattice::from_yaml(TETRAHEDRON, "tet.yaml").unwrap();
+        let p = estimate(&l.crystal).unwrap();
+        let up = [2.0, 0.5, 3.0, 1.0];
+        let mut z = 0.0;
+        for s in 0..16u32 {
+            if s.count_ones() == 2 {
+                z += (0..4)
+                    .filter(|&i| s >> i & 1 == 1)
+                    .map(|i| up[i])
+                    .product::<f64>();
+            }
+        }
+        let w = p.weighing.as_ref().unwrap();
+        assert!(
+            (w.ln_z_per_unit - z.ln()).abs() < 1e-12,
+            "{} {}",
+            w.ln_z_per_unit,
+            z.ln()
+        );
+        assert!(w.fields.is_empty());
+        // The entropy under independent marginals p_i = w_i / (1 + w_i).
+        let marg: Vec<f64> = up.iter().map(|w| w / (1.0 + w)).collect();
+        let mean_ln_w: f64 = marg.iter().zip(up).map(|(p, w)| p * f64::ln(w)).sum();
+        assert!((p.ln_w_per_unit - (z.ln() - mean_ln_w)).abs() < 1e-12);
+        // Weights and the occupancies they imply give the same Pauling value.
+        let occ = format!(
+            "{}occupancy:\n{}",
+            TETRAHEDRON.split("weights:").next().unwrap(),
+            ["a", "b", "c", "d"]
+                .iter()
+                .zip(&marg)
+                .map(|(id, m)| format!("  - {{site: {id}, state: 1, mean: {m}}}\n"))
+                .collect::<String>()
+        );
+        let o = estimate(&Lattice::from_yaml(&occ, "tet.yaml").unwrap().crystal).unwrap();
+        assert!((o.ln_w_per_unit - p.ln_w_per_unit).abs() < 1e-8);
+    }
+
+    /// One tetrahedron of four spins with the rule "two up" and weights of the up state;
+    /// each cell holds its own tetrahedron, so the crystal is a row of independent ones.
+    pub(crate) const TETRAHEDRON: &str = "name: one tetrahedron\ndimensions: 1\n\
+        cell: {vectors: [[10.0]]}\n\
+        sites: [{id: a, at: [0.0]}, {id: b, at: [0.1]}, {id: c, at: [0.2]}, {id: d, at: [0.3]}]\n\
+        groups: [{id: t, members: [{site: a}, {site: b}, {site: c}, {site: d}]}]\n\
+        variables: [{on: sites, kind: spin}]\n\
+        rules:\n  - {kind: table, at: t, allowed: [[1, 1, 0, 0], [1, 0, 1, 0], [1, 0, 0, 1], \
+        [0, 1, 1, 0], [0, 1, 0, 1], [0, 0, 1, 1]]}\n\
+        formula_unit: {name: tetrahedron, per: cell, count: 1}\n\
+        weights:\n  - {site: a, states: [1, 2]}\n  - {site: b, states: [1, 0.5]}\n  - {site: c, states: [1, 3]}\n";
 }
