@@ -550,8 +550,10 @@ mod tests {
         Model::new(&cluster).unwrap()
     }
 
-    /// Exact Boltzmann probabilities of every assignment of a tiny model, by enumeration.
-    fn boltzmann(m: &Model, beta: f64) -> Vec<f64> {
+    /// Exact Boltzmann probabilities of every assignment of a tiny model, by enumeration,
+    /// with the weights w(σ) = ∏ weight(v, σ_v) · e^{Σ_j h_j n_j(σ)} taken from the model
+    /// directly (not from the kernel).
+    fn boltzmann_weighted(m: &Model, beta: f64, fields: &[f64]) -> Vec<f64> {
         let q: Vec<u64> = m.variables.iter().map(|v| v.states as u64).collect();
         let total: u64 = q.iter().product();
         let mut w = Vec::with_capacity(total as usize);
@@ -578,7 +580,15 @@ mod tests {
                     e += 1;
                 }
             }
-            w.push((-beta * e as f64).exp());
+            let mut lw: f64 = (0..q.len()).map(|v| m.weight(v, vals[v] as u32).ln()).sum();
+            for (mean, h) in m.means.iter().zip(fields) {
+                lw += h * mean
+                    .variables
+                    .iter()
+                    .filter(|&&v| vals[v] == mean.state as u64)
+                    .count() as f64;
+            }
+            w.push((lw - beta * e as f64).exp());
         }
         let z: f64 = w.iter().sum();
         w.iter().map(|x| x / z).collect()
@@ -589,11 +599,22 @@ mod tests {
     /// a chi-square statistic on thinned samples must stay near its number of degrees of
     /// freedom.
     fn check_balance(m: &Model, beta: f64, samples: usize, thin: usize, with_loops: bool) {
-        let k = Kernel::new(m).unwrap();
+        check_weighted_balance(m, &[], beta, samples, thin, with_loops);
+    }
+
+    fn check_weighted_balance(
+        m: &Model,
+        fields: &[f64],
+        beta: f64,
+        samples: usize,
+        thin: usize,
+        with_loops: bool,
+    ) {
+        let k = Kernel::with_fields(m, fields).unwrap();
         let loops = with_loops.then(|| super::super::loops::Loops::new(m).expect("loops apply"));
         let mut walk = loops.as_ref().map(|l| l.walk());
         let mut flipped = 0;
-        let exact = boltzmann(m, beta);
+        let exact = boltzmann_weighted(m, beta, fields);
         let mut chain = k.chain(Pcg64Mcg::new(12345));
         let q: Vec<u64> = m.variables.iter().map(|v| v.states as u64).collect();
         let mut counts = vec![0u64; exact.len()];
@@ -623,15 +644,22 @@ mod tests {
         let mut check = chain.clone();
         check.recompute(&k);
         assert_eq!(check.energy(), chain.energy(), "incremental energy drifted");
+        // Assignments of weight 0 are never visited; the others enter the statistic.
+        assert!(
+            counts.iter().zip(&exact).all(|(&c, &p)| p > 0.0 || c == 0),
+            "an assignment of weight 0 was visited"
+        );
+        let live = exact.iter().filter(|&&p| p > 0.0).count();
         let chi2: f64 = counts
             .iter()
             .zip(&exact)
+            .filter(|&(_, &p)| p > 0.0)
             .map(|(&c, &p)| {
                 let e = p * samples as f64;
                 (c as f64 - e).powi(2) / e
             })
             .sum();
-        let dof = (exact.len() - 1) as f64;
+        let dof = (live - 1) as f64;
         // Mean dof, standard deviation sqrt(2 dof); allow 6 of them plus some slack for
         // the residual correlation between thinned samples.
         assert!(
@@ -665,6 +693,47 @@ mod tests {
         );
         check_balance(&m, 1.3, 200_000, 3, true);
         check_balance(&m, 3.0, 200_000, 3, true);
+    }
+
+    /// Issue 13: the heat-bath and the loop moves with weights on the states and a field
+    /// on an imposed mean sample w(σ) e^{−βE}: square ice on the 2×2 torus with the
+    /// horizontal arrows weighing [1, 3] and a field 0.7 on the vertical ones' state 1.
+    #[test]
+    fn issue13_weighted_moves_satisfy_detailed_balance() {
+        let yaml = format!(
+            "{}weights: [{{bond: h, states: [1.0, 3.0]}}]\noccupancy: [{{bond: v, state: 1, mean: 0.6}}]\n",
+            include_str!("../../../lattices/square-ice.yaml")
+        );
+        let m = model(&yaml, "w.yaml", "2x2", 2);
+        check_weighted_balance(&m, &[0.7], 1.3, 200_000, 3, false);
+        check_weighted_balance(&m, &[0.7], 1.3, 200_000, 3, true);
+        check_weighted_balance(&m, &[-0.4], 3.0, 200_000, 3, true);
+        // A state of weight 0 is never entered, by single flips or by loops.
+        let zero = yaml.replace("[1.0, 3.0]", "[1.0, 0.0]");
+        let m = model(&zero, "w.yaml", "2x2", 2);
+        check_weighted_balance(&m, &[0.7], 1.3, 100_000, 3, true);
+    }
+
+    /// Issue 13: the many-state heat-bath with weights (three colours, the first weighing
+    /// 2.5 and the last 0 on one site).
+    #[test]
+    fn issue13_weighted_many_states_satisfy_detailed_balance() {
+        let yaml = r#"
+name: triangle colourings
+dimensions: 1
+cell: {vectors: [[1.0]]}
+sites: [{id: A, at: [0.0]}]
+bonds: [{id: n, from: A, to: A, shift: [1]}]
+variables: [{on: sites, kind: color, states: 3}]
+rules: [{kind: distinct, at: bonds}]
+weights: [{site: A, states: [2.5, 1.0, 0.5]}]
+formula_unit: {name: site, per: sites}
+"#;
+        let m = model(yaml, "colour.yaml", "3", 1);
+        check_weighted_balance(&m, &[], 0.9, 100_000, 2, false);
+        let zero = yaml.replace("[2.5, 1.0, 0.5]", "[2.5, 1.0, 0.0]");
+        let m = model(&zero, "colour.yaml", "3", 1);
+        check_weighted_balance(&m, &[], 0.9, 100_000, 2, false);
     }
 
     #[test]
