@@ -542,9 +542,9 @@ fn render_weighted(
                     "{} '{}': field h = {}, mean reached {} (target {}){}",
                     m.kind.word(),
                     m.label,
-                    sig(w.fields[j], 6),
+                    w.fields[j],
                     pm(a, Some(sa)),
-                    sig(m.mean, 6),
+                    m.mean,
                     if pull.abs() > 3.0 {
                         format!(
                             " — MISSES the target by {}σ: the entropy above is that of the ensemble at the mean reached, not at the target; adjust the field",
