@@ -662,7 +662,8 @@ fn diagnostics(s: &Counted<Sampled>, shown: &Shown) -> String {
 /// what was done about a difference.
 pub(super) fn equilibration_line(s: &Sampled) -> String {
     let versus = format!(
-        "ln W per formula unit up minus down {} ± {} ({}σ)",
+        "{} per formula unit up minus down {} ± {} ({}σ)",
+        if s.weighing.is_some() { "ln Z" } else { "ln W" },
         sig(s.hysteresis, 2),
         sig(s.sigma_hysteresis, 2),
         sig(s.hysteresis / s.sigma_hysteresis.max(f64::MIN_POSITIVE), 2)
