@@ -356,6 +356,27 @@ pub struct SampledRecord {
     pub target_reached: Option<bool>,
     /// Mean number of violated constraints left at β_max.
     pub violations_at_beta_max: f64,
+    /// A weighted lattice only (absent otherwise): what the run measured beside the
+    /// entropy.
+    #[serde(flatten, skip_serializing_if = "Option::is_none")]
+    pub weighted: Option<SampledWeighingRecord>,
+}
+
+/// The measurements of a weighted Monte Carlo run beside its entropy (docs/json.md).
+#[derive(Clone, Debug, Serialize)]
+pub struct SampledWeighingRecord {
+    /// 1σ of `ln_z_per_unit` (statistical, quadrature, tail, equilibration).
+    pub sigma_ln_z: f64,
+    /// ⟨ln w⟩ per formula unit in the defect-free ensemble.
+    pub mean_ln_weight_per_unit: f64,
+    /// Its 1σ.
+    pub sigma_mean_ln_weight: f64,
+    /// Measured sweeps at β_max with no violated constraint (the defect-free samples).
+    pub defect_free_samples: u64,
+    /// Their fraction of the measured sweeps at β_max.
+    pub defect_free_fraction: f64,
+    /// Cov(n_j, n_k) of the imposed means' counts in the defect-free ensemble, row-major.
+    pub count_covariance: Vec<f64>,
 }
 
 impl From<&Sampled> for SampledRecord {
@@ -381,6 +402,14 @@ impl From<&Sampled> for SampledRecord {
             loop_acceptance: s.loop_acceptance,
             target_reached: s.target_reached,
             violations_at_beta_max: s.mean_energy.last().copied().unwrap_or(f64::NAN),
+            weighted: s.weighing.as_ref().map(|w| SampledWeighingRecord {
+                sigma_ln_z: w.sigma_ln_z,
+                mean_ln_weight_per_unit: w.mean_ln_w_per_unit,
+                sigma_mean_ln_weight: w.sigma_mean_ln_w,
+                defect_free_samples: w.ground_samples,
+                defect_free_fraction: w.ground_fraction,
+                count_covariance: w.covariance.clone(),
+            }),
         }
     }
 }

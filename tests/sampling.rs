@@ -837,3 +837,107 @@ fn issue11_survey_samples_by_formula_units_and_cross_checks() {
         ),
     }
 }
+
+/// Issue 13: `sample` on a weighted lattice file prints the entropy of the weighted
+/// ensemble with its label, ln Z, ⟨ln w⟩ and every field with the mean it reached; JSON
+/// carries them; an occupancy without --fields, a composition and several cells are
+/// refused with words; shards of a weighted run merge.
+#[test]
+fn issue13_sample_takes_a_weighted_lattice_file() {
+    let dir = std::env::temp_dir().join(format!("groundcount-weighted-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let ice = std::fs::read_to_string(lattice("square-ice.yaml")).unwrap();
+    let file = dir.join("weighted.yaml");
+    std::fs::write(
+        &file,
+        format!(
+            "{ice}weights: [{{bond: h, states: [1.0, 2.5]}}]\noccupancy: [{{bond: v, state: 1, mean: 0.6}}]\n"
+        ),
+    )
+    .unwrap();
+    let f = file.to_str().unwrap();
+    let base = [
+        "sample",
+        f,
+        "--cells",
+        "4x4",
+        "--replicas",
+        "4",
+        "--sweeps",
+        "40",
+    ];
+    // No fields: refused, naming the entry and the option.
+    let o = crate::util::run(&base);
+    assert_eq!(o.status.code(), Some(1));
+    let e = String::from_utf8_lossy(&o.stderr);
+    assert!(e.contains("v state 1") && e.contains("--fields"), "{e}");
+    let o = crate::util::run(&[&base[..], &["--fields", "0.4,0.1"]].concat());
+    assert_eq!(o.status.code(), Some(1));
+    // The table.
+    let o = crate::util::run(&[&base[..], &["--fields", "0.4"]].concat());
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let t = String::from_utf8_lossy(&o.stdout);
+    for words in [
+        "S/R per H2O",
+        "entropy of the weighted ensemble",
+        "ln Z per H2O",
+        "⟨ln w⟩ per H2O",
+        "occupancy 'v state 1': field h = 0.4",
+        "mean reached",
+        "(target 0.6)",
+    ] {
+        assert!(t.contains(words), "{words}: {t}");
+    }
+    // JSON: the entropy, ln Z and ⟨ln w⟩ fit together; the field and its mean.
+    let j = crate::util::run_json(&[&base[..], &["--fields", "-0.2", "--format", "json"]].concat());
+    let num = |k: &str| j[k].as_f64().unwrap_or_else(|| panic!("{k}: {j}"));
+    let s = num("s_over_r");
+    assert!((s + num("mean_ln_weight_per_unit") - num("ln_z_per_unit")).abs() < 1e-12);
+    assert!(num("sigma_ln_z") > 0.0 && num("defect_free_samples") > 0.0);
+    assert_eq!(j["fields"][0]["field"].as_f64(), Some(-0.2));
+    assert_eq!(j["fields"][0]["kind"].as_str(), Some("occupancy"));
+    assert!(j["fields"][0]["achieved_sigma"].as_f64().unwrap() > 0.0);
+    // Two shards merge into the run of their replicas together.
+    let mut parts = Vec::new();
+    for k in 1..=2 {
+        let out = dir.join(format!("part{k}.json"));
+        let spec = format!("{k}/2");
+        let o = crate::util::run(
+            &[
+                &base[..4],
+                &["--replicas", "2", "--sweeps", "40", "--fields", "-0.2"],
+                &["--shard", &spec, "--out", out.to_str().unwrap()],
+            ]
+            .concat(),
+        );
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        parts.push(out);
+    }
+    let m = crate::util::run_json(&[
+        "merge",
+        parts[0].to_str().unwrap(),
+        parts[1].to_str().unwrap(),
+        "--format",
+        "json",
+    ]);
+    assert_eq!(m["s_over_r"].as_f64(), Some(s));
+    assert_eq!(m["fields"], j["fields"]);
+    // A composition (canonical) and several cells are refused.
+    std::fs::write(
+        &file,
+        format!("{ice}composition: [{{bonds: [h], state: 1, fraction: 0.5}}]\n"),
+    )
+    .unwrap();
+    let o = crate::util::run(&[&base[..], &["--fields", "0"]].concat());
+    assert_eq!(o.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("canonical"));
+    std::fs::write(
+        &file,
+        format!("{ice}weights: [{{bond: h, states: [1.0, 2.5]}}]\n"),
+    )
+    .unwrap();
+    let o = crate::util::run(&["sample", f, "--cells", "4x4,6x6"]);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("one --cells size"));
+    std::fs::remove_dir_all(&dir).ok();
+}

@@ -178,7 +178,7 @@ fn merge_command_combines_and_refuses() {
     // a shard of the earlier format (one pass per replica)
     let old = dir.join("old.json");
     let text = std::fs::read_to_string(&p2).unwrap().replace(
-        "Monte Carlo shard, version 2",
+        "Monte Carlo shard, version 3",
         "Monte Carlo shard, version 1",
     );
     std::fs::write(&old, text).unwrap();

@@ -60,6 +60,16 @@ pub struct Args {
     /// Single-variable moves only (no loop moves).
     #[arg(long)]
     no_loops: bool,
+    /// The conjugate field of every `occupancy:` entry of the file, in the file's order,
+    /// separated by commas (the natural log of each state's activity, e.g. 0.4,-0.25).
+    /// The sampler does not solve for them; it reports the mean each field reaches.
+    #[arg(
+        long,
+        value_name = "H1,H2,...",
+        value_delimiter = ',',
+        allow_hyphen_values = true
+    )]
+    fields: Option<Vec<f64>>,
     /// Add batches of --replicas replicas until the 1σ error of ln W per formula unit
     /// (the relative error of W) is at most this.
     #[arg(long)]
@@ -101,6 +111,13 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     if args.method == Sampler::WangLandau {
         return run_wang_landau(&args, &lattice, &sizes);
     }
+    let fields = fields_for(&args, c)?;
+    if c.is_weighted() && sizes.len() > 1 {
+        anyhow::bail!(
+            "{} carries weights: the extrapolation of a weighted entropy over several cells is not available yet; give one --cells size",
+            args.file.display()
+        );
+    }
     let sweeps = args.sweeps.unwrap_or(200);
     let config = sampling::SampleConfig {
         seed: args.seed,
@@ -113,6 +130,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         target_error: args.target_error,
         max_replicas: args.max_replicas,
         max_extensions: args.max_extensions,
+        fields,
     };
     let shown = Shown {
         file: args.file.display().to_string(),
@@ -284,6 +302,41 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
     }
 }
 
+/// The conjugate fields of the file's imposed means from --fields: required, one per
+/// `occupancy:` entry, when the file has some; refused otherwise.
+fn fields_for(args: &Args, c: &groundcount::crystal::Crystal) -> anyhow::Result<Vec<f64>> {
+    let labels: Vec<&str> = c.means.iter().map(|m| m.label.as_str()).collect();
+    match &args.fields {
+        None if labels.is_empty() => Ok(Vec::new()),
+        None => anyhow::bail!(
+            "{} imposes {} mean{} ({}); the Monte Carlo samples the ensemble of given conjugate fields and does not solve for them (the exact count of a small cell will provide them): give one field per entry with --fields H1,H2,... in the file's order, and compare the means reached with the targets",
+            args.file.display(),
+            labels.len(),
+            if labels.len() == 1 { "" } else { "s" },
+            labels.join(", ")
+        ),
+        Some(_) if labels.is_empty() => anyhow::bail!(
+            "--fields gives the conjugate fields of imposed means (`occupancy:`), but {} imposes none",
+            args.file.display()
+        ),
+        Some(h) if h.len() != labels.len() => anyhow::bail!(
+            "--fields gives {} field{}, but {} imposes {} mean{} ({}): give one per entry, in the file's order",
+            h.len(),
+            if h.len() == 1 { "" } else { "s" },
+            args.file.display(),
+            labels.len(),
+            if labels.len() == 1 { "" } else { "s" },
+            labels.join(", ")
+        ),
+        Some(h) => {
+            if let Some(bad) = h.iter().find(|x| !x.is_finite()) {
+                anyhow::bail!("--fields must be finite numbers, found {bad}");
+            }
+            Ok(h.clone())
+        }
+    }
+}
+
 /// `K/N` with 1 ≤ K ≤ N.
 fn parse_shard(spec: &str) -> anyhow::Result<(usize, usize)> {
     let parsed = spec
@@ -370,9 +423,12 @@ pub(super) fn render(
     merged: Option<(&[usize], usize)>,
 ) -> anyhow::Result<String> {
     let c = &lattice.crystal;
-    let p = super::pauling(c)?;
     let e = &s.estimate;
     let unit = &c.formula_unit.name;
+    if let Some(w) = &s.weighing {
+        return render_weighted(format, lattice, shown, model, s, w, merged);
+    }
+    let p = super::pauling(c)?;
     match format {
         Format::Json => {
             let mut d = SampledDocument::new(lattice, model, s, shown);
@@ -426,6 +482,102 @@ pub(super) fn render(
     }
 }
 
+/// The output of one sampled cell of a weighted lattice: the entropy of the weighted
+/// ensemble, ln Z, ⟨ln w⟩, and every field with the mean it reached.
+fn render_weighted(
+    format: Format,
+    lattice: &Lattice,
+    shown: &Shown,
+    model: &Model,
+    s: &Counted<Sampled>,
+    w: &sampling::SampledWeighing,
+    merged: Option<(&[usize], usize)>,
+) -> anyhow::Result<String> {
+    let c = &lattice.crystal;
+    let e = &s.estimate;
+    let unit = &c.formula_unit.name;
+    // Pauling's estimate beside it only where it takes the weights.
+    let p = super::pauling(c).ok();
+    let rows: Vec<groundcount::Estimate> = p.iter().cloned().chain([e.clone()]).collect();
+    match format {
+        Format::Json => {
+            let mut d = SampledDocument::new(lattice, model, s, shown);
+            if let Some((present, n)) = merged {
+                d.shards = Some(n);
+                d.shards_merged = Some(present.to_vec());
+            }
+            Ok(groundcount::json::to_string(&d)?)
+        }
+        Format::Csv => Ok(text::comparison_table(&rows, unit).render_csv()),
+        Format::Markdown => Ok(text::comparison_table(&rows, unit).render_markdown()),
+        Format::Table => {
+            let mut out = String::new();
+            out += &cell_header(c, std::path::Path::new(&shown.file), e, model);
+            writeln!(out)?;
+            writeln!(
+                out,
+                "S/R per {unit:<13} {}   entropy of the weighted ensemble, ln Z − ⟨ln w⟩",
+                pm(e.s_over_r(), e.sigma_ln_w)
+            )?;
+            writeln!(
+                out,
+                "S                     {} J/(mol K) per mole of {unit}",
+                pm(e.s_j_per_mol_k(), e.sigma_s_j_per_mol_k())
+            )?;
+            writeln!(
+                out,
+                "ln Z per {unit:<12} {}   weighted sum over the arrangements that keep every rule, fields included",
+                pm(w.ln_z_per_unit, Some(w.sigma_ln_z))
+            )?;
+            writeln!(
+                out,
+                "⟨ln w⟩ per {unit:<10} {}   mean ln-weight of an arrangement, fields included",
+                pm(w.mean_ln_w_per_unit, Some(w.sigma_mean_ln_w))
+            )?;
+            for (j, m) in model.means.iter().enumerate() {
+                let (a, sa) = (w.achieved[j], w.sigma_achieved[j]);
+                let pull = (a - m.mean) / sa.max(f64::MIN_POSITIVE);
+                writeln!(
+                    out,
+                    "{} '{}': field h = {}, mean reached {} (target {}){}",
+                    m.kind.word(),
+                    m.label,
+                    w.fields[j],
+                    pm(a, Some(sa)),
+                    m.mean,
+                    if pull.abs() > 3.0 {
+                        format!(
+                            " — MISSES the target by {}σ: the entropy above is that of the ensemble at the mean reached, not at the target; adjust the field",
+                            sig(pull, 2)
+                        )
+                    } else {
+                        String::new()
+                    }
+                )?;
+            }
+            match &p {
+                Some(p) => out += &pauling_line(p, unit),
+                None => writeln!(
+                    out,
+                    "Pauling (infinite)    not available for this weighted lattice"
+                )?,
+            }
+            writeln!(out)?;
+            out += &diagnostics(s, shown);
+            writeln!(
+                out,
+                "⟨ln w⟩ and the means from {} defect-free sweeps at β_max ({} % of the sweeps there, a quarter of the measured sweeps added at the turn); σ of S/R propagates ln Z and ⟨ln w⟩ together from the replicas",
+                w.ground_samples,
+                sig(100.0 * w.ground_fraction, 3)
+            )?;
+            if let Some((present, n)) = merged {
+                writeln!(out, "merged {} of {n} shards", present.len())?;
+            }
+            Ok(out)
+        }
+    }
+}
+
 /// `x ± σ` with 8 and 2 significant digits.
 fn pm(x: f64, s: Option<f64>) -> String {
     match s {
@@ -440,7 +592,8 @@ fn diagnostics(s: &Counted<Sampled>, shown: &Shown) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "σ of ln W per formula unit: statistical {} (standard error of {} replicas × {} for their number), quadrature {}, tail {}{} (root sum of squares reported)",
+        "σ of {} per formula unit: statistical {} (standard error of {} replicas × {} for their number), quadrature {}, tail {}{} (root sum of squares reported)",
+        if s.weighing.is_some() { "S/R" } else { "ln W" },
         unit_free(s.sigma_statistical),
         s.replicas,
         sig(sampling::student_factor(s.replicas), 3),
@@ -509,7 +662,8 @@ fn diagnostics(s: &Counted<Sampled>, shown: &Shown) -> String {
 /// what was done about a difference.
 pub(super) fn equilibration_line(s: &Sampled) -> String {
     let versus = format!(
-        "ln W per formula unit up minus down {} ± {} ({}σ)",
+        "{} per formula unit up minus down {} ± {} ({}σ)",
+        if s.weighing.is_some() { "ln Z" } else { "ln W" },
         sig(s.hysteresis, 2),
         sig(s.sigma_hysteresis, 2),
         sig(s.hysteresis / s.sigma_hysteresis.max(f64::MIN_POSITIVE), 2)

@@ -28,7 +28,12 @@
 //! configuration, and the tail of the walk is untouched, so proposals are symmetric and the
 //! move satisfies detailed balance with respect to any function of the energy; a walk that
 //! finds no choice, leaves through a variable in only one constraint, or grows beyond
-//! 64 steps is refused (equally in both directions).
+//! 64 steps is refused (equally in both directions). With weights on the states
+//! (`weights:`, fields of imposed means) the closed loop is flipped with the Metropolis
+//! probability min(1, ∏_loop w_v(new)/w_v(old)): the proposal is symmetric and the energy
+//! unchanged, so this is detailed balance for w(σ) e^{−βE} (Metropolis et al. 1953,
+//! J. Chem. Phys. 21, 1087; Hastings 1970, Biometrika 57, 97). A loop that would put a
+//! variable into a state of weight 0 is never flipped.
 //!
 //! # Complexity
 //!
@@ -162,6 +167,23 @@ impl Loops {
                 let (zi, li) = (self.position(c, z), self.position(c, leave));
                 if self.status(chain, c, zi) == self.status(chain, c, li) {
                     return false;
+                }
+                if kernel.is_weighted() {
+                    // Metropolis on the weights: the proposal is symmetric and the
+                    // energy unchanged, so accept with min(1, ∏ w(new)/w(old)).
+                    let gain: f64 = work.path[at as usize..]
+                        .iter()
+                        .map(|&v| {
+                            let x = chain.values[v as usize];
+                            kernel.ln_weight(v as usize, 1 - x) - kernel.ln_weight(v as usize, x)
+                        })
+                        .sum();
+                    if gain < 0.0 {
+                        let u = (chain.next_u64() >> 11) as f64 * (1.0 / 9007199254740992.0);
+                        if u >= gain.exp() {
+                            return false;
+                        }
+                    }
                 }
                 let before = chain.energy();
                 for i in at as usize..work.path.len() {

@@ -74,12 +74,15 @@
 //! q_v states in d_v constraints; memory O(threads · (variables + constraints)) plus the
 //! shared tables.
 
+pub mod ground;
 pub(crate) mod integrate;
 pub mod loops;
 pub mod moves;
 pub mod shard;
 pub mod size;
 pub mod wang_landau;
+#[cfg(test)]
+mod weighted_tests;
 
 use std::time::Instant;
 
@@ -120,6 +123,11 @@ pub struct SampleConfig {
     /// repetition starts that would, at the pace of the run before it, end after the
     /// context's deadline.
     pub max_extensions: usize,
+    /// The conjugate field h_j of every imposed mean of the model (`Model::means`, in
+    /// order), added to the ln-weight of its state on its variables; empty when the model
+    /// imposes no mean. The sampler does not solve for them: a model with imposed means
+    /// is refused without one field per mean.
+    pub fields: Vec<f64>,
 }
 
 impl Default for SampleConfig {
@@ -135,6 +143,7 @@ impl Default for SampleConfig {
             target_error: None,
             max_replicas: 1024,
             max_extensions: 3,
+            fields: Vec::new(),
         }
     }
 }
@@ -198,6 +207,41 @@ pub struct Sampled {
     pub loop_acceptance: f64,
     /// With a `target_error`: whether the σ reached it.
     pub target_reached: Option<bool>,
+    /// For a weighted model (weights, imposed means): ln Z, ⟨ln w⟩ and the means reached,
+    /// measured in the defect-free ensemble ([`ground`]). The estimate's ln W is then the
+    /// entropy of the weighted ensemble, ln Z − ⟨ln w⟩ per formula unit, and the σ parts
+    /// above are those of that entropy (statistical: ln Z and ⟨ln w⟩ propagated together
+    /// from the replicas; quadrature, tail and equilibration: those of ln Z).
+    pub weighing: Option<SampledWeighing>,
+}
+
+/// What a weighted run measures beside its entropy.
+#[derive(Clone, Debug)]
+pub struct SampledWeighing {
+    /// ln Z per formula unit: the weighted sum over the arrangements that keep every
+    /// rule, fields included (the replica mean of the integration).
+    pub ln_z_per_unit: f64,
+    /// Its 1σ: statistical, quadrature, tail and equilibration parts in quadrature.
+    pub sigma_ln_z: f64,
+    /// ⟨ln w⟩ per formula unit in the defect-free ensemble.
+    pub mean_ln_w_per_unit: f64,
+    /// Its 1σ (statistical, widened for the number of replicas).
+    pub sigma_mean_ln_w: f64,
+    /// The field of every imposed mean (as given).
+    pub fields: Vec<f64>,
+    /// The mean reached by every imposed mean: ⟨n_j⟩ / |j|, the fraction of its variables
+    /// in its state.
+    pub achieved: Vec<f64>,
+    /// 1σ of every `achieved`.
+    pub sigma_achieved: Vec<f64>,
+    /// The covariance of the counts, Cov(n_j, n_k) in the defect-free ensemble, row-major
+    /// (the susceptibility d⟨n_j⟩/dh_k), for a solver of the fields.
+    pub covariance: Vec<f64>,
+    /// Measured sweeps at β_max with no violated constraint, in all replicas: the samples
+    /// of the defect-free ensemble.
+    pub ground_samples: u64,
+    /// Their fraction of the measured sweeps at β_max.
+    pub ground_fraction: f64,
 }
 
 /// The equilibration check fails when the passes up and down differ by more than this
@@ -228,6 +272,25 @@ struct Combined {
     sigma_hysteresis: f64,
     per_replica: Vec<f64>,
     mean_energy: Vec<f64>,
+    /// For a weighted model: the defect-free measurements; `None` when too few replicas
+    /// saw a defect-free arrangement.
+    ground: Option<GroundStats>,
+}
+
+/// The defect-free measurements of a weighted run, combined over the replicas.
+struct GroundStats {
+    /// Entropy per formula unit, ln Z − ⟨ln w⟩.
+    entropy: f64,
+    /// Its statistical σ (ln Z and ⟨ln w⟩ propagated together, widened).
+    sigma_entropy: f64,
+    /// ⟨ln w⟩ per formula unit and its σ.
+    mean_ln_w: f64,
+    sigma_ln_w: f64,
+    achieved: Vec<f64>,
+    sigma_achieved: Vec<f64>,
+    covariance: Vec<f64>,
+    samples: u64,
+    fraction: f64,
 }
 
 impl Combined {
@@ -255,9 +318,27 @@ impl Combined {
         }
     }
 
-    fn total(&self) -> f64 {
+    /// The statistical σ of the value reported: ln W, or for a weighted model the entropy.
+    fn statistical(&self) -> f64 {
+        self.ground
+            .as_ref()
+            .map_or(self.sigma_statistical, |g| g.sigma_entropy)
+    }
+
+    /// The σ of ln Z alone (of ln W unweighted).
+    fn total_ln_z(&self) -> f64 {
         let parts = [
             self.sigma_statistical,
+            self.sigma_quadrature,
+            self.sigma_tail,
+            self.sigma_equilibration(),
+        ];
+        parts.iter().map(|x| x * x).sum::<f64>().sqrt()
+    }
+
+    fn total(&self) -> f64 {
+        let parts = [
+            self.statistical(),
             self.sigma_quadrature,
             self.sigma_tail,
             self.sigma_equilibration(),
@@ -296,6 +377,9 @@ pub struct Run {
     pub flipped: u64,
     /// Loop moves attempted.
     pub attempted: u64,
+    /// For a weighted model: the sums over the defect-free samples at β_max ([`ground`]).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ground: Option<ground::Ground>,
 }
 
 impl Run {
@@ -358,7 +442,6 @@ pub fn stream(seed: u64, r: usize) -> rand_pcg::Pcg64Mcg {
 /// assert_eq!(s.replicas, 4);
 /// ```
 pub fn count(model: &Model, config: &SampleConfig, context: &Context) -> Result<Counted<Sampled>> {
-    crate::counters::refuse_weighted(model.is_weighted(), "the Monte Carlo sampler")?;
     let start = Instant::now();
     let mut config = config.clone();
     let mut extensions = 0;
@@ -397,7 +480,7 @@ pub fn count(model: &Model, config: &SampleConfig, context: &Context) -> Result<
             || late
             || config.sweeps > usize::MAX / 4;
         if done {
-            let mut s = plan.finish(&runs, start.elapsed().as_secs_f64());
+            let mut s = plan.finish(&runs, start.elapsed().as_secs_f64())?;
             s.extensions = extensions;
             s.updates = updates;
             // Cut short: a batch left incomplete, or a target abandoned for the interrupt.
@@ -428,6 +511,8 @@ pub struct Plan<'m> {
     ref_tail: f64,
     beta_max: f64,
     impossible: bool,
+    /// For a weighted model: what is measured in the defect-free ensemble.
+    observables: Option<ground::Observables>,
 }
 
 impl<'m> Plan<'m> {
@@ -486,7 +571,8 @@ impl<'m> Plan<'m> {
                 bytes_in_words(MAX_MEMORY)
             )));
         }
-        let kernel = Kernel::new(model)?;
+        check_fields(model, &config.fields)?;
+        let kernel = Kernel::with_fields(model, &config.fields)?;
         let loops = if config.loops {
             loops::Loops::new(model)
         } else {
@@ -495,14 +581,18 @@ impl<'m> Plan<'m> {
         let attempts = loops
             .as_ref()
             .map_or(0, |_| (model.constraints.len() / 64).max(1));
-        let fractions: Vec<f64> = model
-            .constraints
-            .iter()
-            .map(|c| {
-                let t = &model.tables[c.table];
-                t.allowed as f64 / t.size as f64
-            })
-            .collect();
+        let fractions: Vec<f64> = if kernel.is_weighted() {
+            weighted_fractions(model, &kernel)
+        } else {
+            model
+                .constraints
+                .iter()
+                .map(|c| {
+                    let t = &model.tables[c.table];
+                    t.allowed as f64 / t.size as f64
+                })
+                .collect()
+        };
         let impossible = model.contradiction.is_some() || fractions.contains(&0.0);
         let betas = integrate::nodes(beta_max, config.nodes);
         let reference: Vec<f64> = betas
@@ -515,8 +605,12 @@ impl<'m> Plan<'m> {
                     .sum()
             })
             .collect();
-        let ln_pauling: f64 =
-            model.ln_unconstrained() + fractions.iter().map(|p| p.ln()).sum::<f64>();
+        let ln_free = if kernel.is_weighted() {
+            kernel.ln_free()
+        } else {
+            model.ln_unconstrained()
+        };
+        let ln_pauling: f64 = ln_free + fractions.iter().map(|p| p.ln()).sum::<f64>();
         let ref_tail: f64 = fractions
             .iter()
             .map(|&p| (p + (1.0 - p) * (-beta_max).exp()).ln() - p.ln())
@@ -533,6 +627,7 @@ impl<'m> Plan<'m> {
             ref_tail,
             beta_max,
             impossible,
+            observables: model.is_weighted().then(|| ground::Observables::new(model)),
         })
     }
 
@@ -556,6 +651,7 @@ impl<'m> Plan<'m> {
                 let run = replica(
                     &self.kernel,
                     self.loops.as_ref(),
+                    self.observables.as_ref(),
                     self.attempts,
                     &self.config,
                     &self.betas,
@@ -572,10 +668,19 @@ impl<'m> Plan<'m> {
     /// Single-variable updates of `replicas` replicas.
     fn updates(&self, replicas: usize) -> u64 {
         let sampled_nodes = (self.config.nodes - 1) as u64;
+        let extra = if self.observables.is_some() {
+            ground_sweeps(&self.config) as u64
+        } else {
+            0
+        };
         (replicas as u64)
-            .saturating_mul(sampled_nodes)
             .saturating_mul(
-                (self.config.sweeps as u64).saturating_add(2 * self.config.equilibration as u64),
+                sampled_nodes
+                    .saturating_mul(
+                        (self.config.sweeps as u64)
+                            .saturating_add(2 * self.config.equilibration as u64),
+                    )
+                    .saturating_add(extra),
             )
             .saturating_mul(self.kernel.variables() as u64)
     }
@@ -618,6 +723,10 @@ impl<'m> Plan<'m> {
             .map(|i| runs.iter().map(|run| run.energy(sweeps)[i]).sum::<f64>() / r)
             .collect();
         let h = self.integrand(&mean_energy);
+        let ground = self
+            .observables
+            .as_ref()
+            .and_then(|_| self.ground_stats(runs, &per_replica, mean));
         Combined {
             mean,
             sigma_statistical: se * student_factor(runs.len()),
@@ -630,41 +739,122 @@ impl<'m> Plan<'m> {
             sigma_hysteresis,
             per_replica,
             mean_energy,
+            ground,
         }
     }
 
+    /// The defect-free measurements of a weighted run combined over the replicas
+    /// ([`ground`]), given each replica's ln Z per formula unit and their mean; `None` when
+    /// fewer than two replicas saw a defect-free arrangement at β_max.
+    fn ground_stats(&self, runs: &[Run], per_replica: &[f64], mean: f64) -> Option<GroundStats> {
+        let units = self.model.formula_units;
+        let grounds: Vec<&ground::Ground> = runs
+            .iter()
+            .map(|r| r.ground.as_ref())
+            .collect::<Option<_>>()?;
+        if grounds.iter().filter(|g| g.samples > 0).count() < 2 {
+            return None;
+        }
+        let widen = student_factor(runs.len());
+        let n: Vec<f64> = grounds.iter().map(|g| g.samples as f64).collect();
+        let sums: Vec<f64> = grounds.iter().map(|g| g.ln_w).collect();
+        let (ln_w, se_ln_w, influence) = ground::ratio(&sums, &n);
+        // ln Z − ⟨ln w⟩ per replica, linearised: the spread carries their correlation.
+        let y: Vec<f64> = per_replica
+            .iter()
+            .zip(&influence)
+            .map(|(x, u)| x - u / units)
+            .collect();
+        let (_, se_entropy) = mean_and_error(&y);
+        let k = self.model.means.len();
+        let total: f64 = n.iter().sum();
+        let mut achieved = Vec::with_capacity(k);
+        let mut sigma_achieved = Vec::with_capacity(k);
+        let mut mean_counts = Vec::with_capacity(k);
+        for (j, m) in self.model.means.iter().enumerate() {
+            let c: Vec<f64> = grounds.iter().map(|g| g.counts[j]).collect();
+            let (mc, se, _) = ground::ratio(&c, &n);
+            let size = m.variables.len() as f64;
+            mean_counts.push(mc);
+            achieved.push(mc / size);
+            sigma_achieved.push(se * widen / size);
+        }
+        let mut covariance = vec![0.0; k * k];
+        let mut p = 0;
+        for j in 0..k {
+            for l in j..k {
+                let product: f64 = grounds.iter().map(|g| g.products[p]).sum::<f64>() / total;
+                let c = product - mean_counts[j] * mean_counts[l];
+                covariance[j * k + l] = c;
+                covariance[l * k + j] = c;
+                p += 1;
+            }
+        }
+        let measured =
+            runs.len() as f64 * (self.config.sweeps + ground_sweeps(&self.config)) as f64;
+        Some(GroundStats {
+            entropy: mean - ln_w / units,
+            sigma_entropy: se_entropy * widen,
+            mean_ln_w: ln_w / units,
+            sigma_ln_w: se_ln_w * widen / units,
+            achieved,
+            sigma_achieved,
+            covariance,
+            samples: total as u64,
+            fraction: total / measured,
+        })
+    }
+
     /// The estimate from the replicas run (at least 2, in replica order), which took
-    /// `seconds` of wall time.
-    pub fn finish(&self, runs: &[Run], seconds: f64) -> Counted<Sampled> {
+    /// `seconds` of wall time. For a weighted model, refused when fewer than two replicas
+    /// saw an arrangement that keeps every rule at β_max (nothing to measure ⟨ln w⟩ on).
+    pub fn finish(&self, runs: &[Run], seconds: f64) -> Result<Counted<Sampled>> {
         let config = &self.config;
         let c = self.combine(runs);
+        if self.observables.is_some() && !self.impossible && c.ground.is_none() {
+            let seen = runs
+                .iter()
+                .filter(|r| r.ground.as_ref().is_some_and(|g| g.samples > 0))
+                .count();
+            return Err(Error::Setting(format!(
+                "the entropy of a weighted ensemble needs ⟨ln w⟩ over the arrangements that keep every rule, measured at the largest β ({}); only {seen} of the {} replicas saw one there (at least 2 are needed), with {} violated constraints left on average: sample to a larger β, or with more sweeps",
+                crate::text::sig(self.beta_max, 3),
+                runs.len(),
+                crate::text::sig(c.mean_energy[c.mean_energy.len() - 1], 3)
+            )));
+        }
         let target_reached = config.target_error.map(|t| c.total() <= t);
         let equilibrated = c.equilibrated();
         let sigma_equilibration = c.sigma_equilibration();
         let total = c.total();
+        let total_ln_z = c.total_ln_z();
+        let sigma_statistical = c.statistical();
         let Combined {
             mean,
-            sigma_statistical,
             sigma_quadrature,
             sigma_tail,
             hysteresis,
             sigma_hysteresis,
             per_replica,
             mean_energy,
+            ground,
+            ..
         } = c;
+        let units = self.model.formula_units;
         let (ln_w, sigma) = if self.impossible {
             (f64::NEG_INFINITY, 0.0)
+        } else if let Some(g) = &ground {
+            (g.entropy, total)
         } else {
             (mean, total)
         };
-        let units = self.model.formula_units;
         let replicas = runs.len();
         let sampled_nodes = (config.nodes - 1) as u64;
         let samples = (replicas as u64)
             .saturating_mul(sampled_nodes)
             .saturating_mul(config.sweeps as u64);
         let attempted: u64 = runs.iter().map(|r| r.attempted).sum();
-        let estimate = Estimate::finite(
+        let mut estimate = Estimate::finite(
             Method::MonteCarlo,
             self.model.cells.clone(),
             units,
@@ -672,6 +862,62 @@ impl<'m> Plan<'m> {
             Some(sigma),
             seconds,
         );
+        let weighing = self.observables.as_ref().map(|_| {
+            let k = self.model.means.len();
+            let (ln_z, sigma_ln_z) = if self.impossible {
+                (f64::NEG_INFINITY, 0.0)
+            } else {
+                (mean, total_ln_z)
+            };
+            match &ground {
+                Some(g) => SampledWeighing {
+                    ln_z_per_unit: ln_z,
+                    sigma_ln_z,
+                    mean_ln_w_per_unit: g.mean_ln_w,
+                    sigma_mean_ln_w: g.sigma_ln_w,
+                    fields: config.fields.clone(),
+                    achieved: g.achieved.clone(),
+                    sigma_achieved: g.sigma_achieved.clone(),
+                    covariance: g.covariance.clone(),
+                    ground_samples: g.samples,
+                    ground_fraction: g.fraction,
+                },
+                // No arrangement keeps every rule: nothing was measured.
+                None => SampledWeighing {
+                    ln_z_per_unit: ln_z,
+                    sigma_ln_z,
+                    mean_ln_w_per_unit: f64::NAN,
+                    sigma_mean_ln_w: f64::NAN,
+                    fields: config.fields.clone(),
+                    achieved: vec![f64::NAN; k],
+                    sigma_achieved: vec![f64::NAN; k],
+                    covariance: vec![f64::NAN; k * k],
+                    ground_samples: 0,
+                    ground_fraction: 0.0,
+                },
+            }
+        });
+        if let Some(w) = &weighing {
+            estimate = estimate.with_weighing(crate::estimate::Weighing {
+                ln_z_per_unit: w.ln_z_per_unit,
+                fields: self
+                    .model
+                    .means
+                    .iter()
+                    .enumerate()
+                    .map(|(j, m)| crate::estimate::FieldValue {
+                        label: m.label.clone(),
+                        kind: m.kind,
+                        target: m.mean,
+                        field: w.fields[j],
+                        achieved: w.achieved[j],
+                        achieved_sigma: w.sigma_achieved[j]
+                            .is_finite()
+                            .then_some(w.sigma_achieved[j]),
+                    })
+                    .collect(),
+            });
+        }
         let details = Sampled {
             sigma_statistical,
             sigma_quadrature,
@@ -700,9 +946,88 @@ impl<'m> Plan<'m> {
             } else {
                 runs.iter().map(|r| r.flipped).sum::<u64>() as f64 / attempted.max(1) as f64
             },
+            weighing,
         };
-        Counted::new(estimate, details)
+        Ok(Counted::new(estimate, details))
     }
+}
+
+/// Mixed into the seed of the copy of a chain that samples the defect-free ensemble.
+const GROUND_SALT: u64 = 0x6A09_E667_F3BC_C908;
+
+/// The extra sweeps a weighted replica spends at β_max between its two passes, measuring
+/// the defect-free ensemble only: a quarter of its measured sweeps over all nodes, so that
+/// ⟨ln w⟩ is measured about as precisely as ln Z is integrated (a choice, common practice).
+fn ground_sweeps(config: &SampleConfig) -> usize {
+    (config.nodes - 1).saturating_mul(config.sweeps) / 4
+}
+
+/// Refuse fields that do not fit the model's imposed means: one finite field per mean, and
+/// no `composition:` (a fraction fixed exactly, which a field does not sample).
+fn check_fields(model: &Model, fields: &[f64]) -> Result<()> {
+    if let Some(m) = model
+        .means
+        .iter()
+        .find(|m| m.kind == crate::crystal::MeanKind::Composition)
+    {
+        return Err(Error::Setting(format!(
+            "the composition '{}' fixes a fraction exactly (canonical), but the Monte Carlo sampler holds a mean only on average, by a conjugate field (grand canonical), which in a finite cell is a different ensemble with a different entropy; count the cell exactly, or write the entry as an occupancy (the maximum-entropy ensemble at that mean)",
+            m.label
+        )));
+    }
+    if fields.len() != model.means.len() {
+        let labels: Vec<&str> = model.means.iter().map(|m| m.label.as_str()).collect();
+        return Err(Error::Setting(if model.means.is_empty() {
+            format!(
+                "{} conjugate fields given, but the lattice imposes no mean (no occupancy)",
+                fields.len()
+            )
+        } else {
+            format!(
+                "the Monte Carlo sampler needs the conjugate field of every imposed mean ({} given, {} imposed: {}); it does not solve for them: the exact solver of a small cell provides them, or give them",
+                fields.len(),
+                labels.len(),
+                labels.join(", ")
+            )
+        }));
+    }
+    if let Some(h) = fields.iter().find(|h| !h.is_finite()) {
+        return Err(Error::Setting(format!(
+            "a conjugate field must be a finite number, not {h}"
+        )));
+    }
+    Ok(())
+}
+
+/// The probability that each constraint holds when every variable is drawn from its
+/// weights alone (the β = 0 distribution): Σ over allowed assignments of ∏ w/Σw. Computed
+/// once per table and pattern of weight profiles.
+fn weighted_fractions(model: &Model, kernel: &Kernel) -> Vec<f64> {
+    let mut cache: std::collections::HashMap<(usize, Vec<u32>), f64> = Default::default();
+    model
+        .constraints
+        .iter()
+        .map(|c| {
+            let profiles: Vec<u32> = c.scope.iter().map(|&v| kernel.profile(v)).collect();
+            *cache.entry((c.table, profiles)).or_insert_with(|| {
+                let t = &model.tables[c.table];
+                let mut p = 0.0;
+                for index in 0..t.size {
+                    if !t.allows(index) {
+                        continue;
+                    }
+                    let mut rest = index;
+                    let mut w = 1.0;
+                    for (&v, &q) in c.scope.iter().zip(&t.radices) {
+                        w *= kernel.probability(v, (rest % q as u64) as u8);
+                        rest /= q as u64;
+                    }
+                    p += w;
+                }
+                p
+            })
+        })
+        .collect()
 }
 
 /// Mean and standard error of the mean (plain, n − 1 in the variance).
@@ -760,10 +1085,13 @@ pub(crate) fn default_beta_max(constraints: usize) -> f64 {
 
 /// One replica: anneal from β = 0 up through the nodes, then back down, measuring ⟨E⟩ at
 /// each node on both passes. Every sweep is followed by `attempts` loop moves when `loops`
-/// applies.
+/// applies. With `observe` (a weighted model), every measured sweep at β_max that leaves
+/// no violated constraint is also a sample of the defect-free ensemble ([`ground`]).
+#[allow(clippy::too_many_arguments)]
 fn replica(
     kernel: &Kernel,
     loops: Option<&loops::Loops>,
+    observe: Option<&ground::Observables>,
     attempts: usize,
     config: &SampleConfig,
     betas: &[f64],
@@ -791,7 +1119,9 @@ fn replica(
             attempted += attempts as u64;
         }
     };
-    let mut node = |chain: &mut moves::Chain, beta: f64, equilibrate: bool, sweeps: usize| {
+    let mut ground = observe.map(|o| o.start());
+    let mut node = |chain: &mut moves::Chain, i: usize, equilibrate: bool, sweeps: usize| {
+        let beta = betas[i];
         if equilibrate {
             for _ in 0..config.equilibration {
                 step(chain, beta);
@@ -801,15 +1131,59 @@ fn replica(
         for _ in 0..sweeps {
             step(chain, beta);
             sum += chain.energy();
+            if let (Some(o), Some(g), true) = (observe, ground.as_mut(), i == n - 1)
+                && chain.energy() == 0
+            {
+                o.add(kernel, chain, g);
+            }
         }
         sum as f64 / sweeps as f64
     };
     for i in 1..n {
-        up[i] = node(&mut chain, betas[i], true, measure_up);
+        up[i] = node(&mut chain, i, true, measure_up);
     }
+    drop(node);
+    // A weighted run samples the defect-free ensemble longer at the turn, on a copy of
+    // the chain with a stream of its own: the chain that goes on down, and with it ⟨E⟩
+    // and ln Z, is the same as without the copy.
+    if let (Some(o), Some(g)) = (observe, ground.as_mut()) {
+        let mut side = chain.clone();
+        side.reseed(stream(config.seed ^ GROUND_SALT, r));
+        let mut side_walk = loops.map(|l| l.walk());
+        for _ in 0..ground_sweeps(config) {
+            side.sweep(kernel, betas[n - 1]);
+            if let (Some(l), Some(w)) = (loops, side_walk.as_mut()) {
+                for _ in 0..attempts {
+                    l.attempt(kernel, &mut side, w);
+                }
+            }
+            if side.energy() == 0 {
+                o.add(kernel, &side, g);
+            }
+        }
+    }
+    let mut node = |chain: &mut moves::Chain, i: usize, equilibrate: bool, sweeps: usize| {
+        let beta = betas[i];
+        if equilibrate {
+            for _ in 0..config.equilibration {
+                step(chain, beta);
+            }
+        }
+        let mut sum = 0u64;
+        for _ in 0..sweeps {
+            step(chain, beta);
+            sum += chain.energy();
+            if let (Some(o), Some(g), true) = (observe, ground.as_mut(), i == n - 1)
+                && chain.energy() == 0
+            {
+                o.add(kernel, chain, g);
+            }
+        }
+        sum as f64 / sweeps as f64
+    };
     // The chain is in equilibrium at β_max already: no equilibration at the turn.
     for i in (1..n).rev() {
-        down[i] = node(&mut chain, betas[i], i != n - 1, measure_down);
+        down[i] = node(&mut chain, i, i != n - 1, measure_down);
     }
     Run {
         replica: r,
@@ -817,5 +1191,6 @@ fn replica(
         down,
         flipped,
         attempted,
+        ground,
     }
 }

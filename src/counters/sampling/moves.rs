@@ -3,8 +3,9 @@
 //! # What it computes
 //!
 //! A Markov chain over the assignments of the model's variables whose stationary
-//! distribution is the Boltzmann weight exp(−β E), where E is the number of violated
-//! constraints. [`Kernel`] is the immutable part shared by every replica (for each variable
+//! distribution is the Boltzmann weight w(σ) exp(−β E), where E is the number of violated
+//! constraints and w(σ) = ∏_v w_v(σ_v) the product of the states' weights (`weights:`,
+//! with the conjugate fields of imposed means added to their logarithms; 1 without them). [`Kernel`] is the immutable part shared by every replica (for each variable
 //! the constraints it touches with the stride of the variable in that constraint's table
 //! index; the tables concatenated into one bit set); [`Chain`] is one replica's state (the
 //! values, the current table index of every constraint, the energy and the random stream).
@@ -13,7 +14,7 @@
 //!
 //! Heat-bath (Gibbs) update of one variable at a time: the energy change of every value
 //! x of variable v is read from the tables by shifting each touched constraint's index by
-//! (x − value)·stride, and x is drawn with probability ∝ exp(−β ΔE_x). Each update
+//! (x − value)·stride, and x is drawn with probability ∝ w_v(x) exp(−β ΔE_x). Each update
 //! satisfies detailed balance; a sweep visits the variables in order (Glauber 1963,
 //! J. Math. Phys. 4, 294; Newman & Barkema 1999, *Monte Carlo Methods in Statistical
 //! Physics*, ch. 3 — from memory).
@@ -45,11 +46,125 @@ pub struct Kernel {
     max_degree: usize,
     /// Whether every variable has two states (the fast path).
     binary: bool,
+    /// The states' weights, when some state weighs other than 1 (`None`: every state
+    /// weighs 1, and the chain runs exactly as an unweighted one).
+    weights: Option<StateWeights>,
+}
+
+/// The weights of the variables' states, fields included, grouped into profiles (the
+/// distinct weight vectors; a few per unit cell).
+#[derive(Clone, Debug)]
+struct StateWeights {
+    /// Per variable: its profile.
+    profile: Vec<u32>,
+    /// Per profile: ln w of every state (−∞ for a state of weight 0).
+    ln: Vec<Vec<f64>>,
+    /// Per profile: w / Σ w, the distribution of the variable alone (β = 0).
+    prob: Vec<Vec<f64>>,
+    /// Per profile: w / max w, the heat-bath factors.
+    rel: Vec<Vec<f64>>,
+}
+
+impl StateWeights {
+    /// Group per-variable ln-weights into profiles.
+    fn new(ln_weights: &[Vec<f64>]) -> StateWeights {
+        let mut index: std::collections::HashMap<Vec<u64>, u32> = Default::default();
+        let mut profile = Vec::with_capacity(ln_weights.len());
+        let mut ln: Vec<Vec<f64>> = Vec::new();
+        for lw in ln_weights {
+            let key: Vec<u64> = lw.iter().map(|x| x.to_bits()).collect();
+            let id = *index.entry(key).or_insert_with(|| {
+                ln.push(lw.clone());
+                (ln.len() - 1) as u32
+            });
+            profile.push(id);
+        }
+        let rel: Vec<Vec<f64>> = ln
+            .iter()
+            .map(|lw| {
+                let top = lw.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                lw.iter().map(|&x| (x - top).exp()).collect()
+            })
+            .collect();
+        let prob = rel
+            .iter()
+            .map(|r| {
+                let total: f64 = r.iter().sum();
+                r.iter().map(|x| x / total).collect()
+            })
+            .collect();
+        StateWeights {
+            profile,
+            ln,
+            prob,
+            rel,
+        }
+    }
+}
+
+/// ln w of every state of every variable: ln of its `weights:` (−∞ for weight 0), plus
+/// `fields[j]` on the imposed state of every variable of mean j (`Model::means`; an
+/// empty `fields` adds nothing).
+pub(crate) fn ln_weights(model: &Model, fields: &[f64]) -> Vec<Vec<f64>> {
+    let mut out: Vec<Vec<f64>> = (0..model.variables.len())
+        .map(|v| {
+            (0..model.variables[v].states)
+                .map(|s| match &model.variables[v].weights {
+                    None => 0.0,
+                    Some(w) => w[s as usize].ln(),
+                })
+                .collect()
+        })
+        .collect();
+    for (mean, &h) in model.means.iter().zip(fields) {
+        for &v in &mean.variables {
+            // A held variable has one state (index 0), the state it is held at.
+            let index = match model.variables[v].held {
+                Some(held) if held == mean.state => Some(0),
+                Some(_) => None,
+                None => Some(mean.state as usize),
+            };
+            if let Some(x) = index.and_then(|i| out[v].get_mut(i)) {
+                *x += h;
+            }
+        }
+    }
+    out
+}
+
+/// A uniform number in [0, 1) from 53 random bits.
+#[inline(always)]
+fn unit(x: u64) -> f64 {
+    (x >> 11) as f64 * (1.0 / 9007199254740992.0)
+}
+
+/// A state drawn from the probabilities `p` with the uniform number `u` (the last state of
+/// non-zero probability when rounding leaves `u` past the end).
+fn draw(p: &[f64], mut u: f64) -> u8 {
+    let mut last = 0;
+    for (x, &px) in p.iter().enumerate() {
+        if px > 0.0 {
+            if u < px {
+                return x as u8;
+            }
+            last = x;
+        }
+        u -= px;
+    }
+    last as u8
 }
 
 impl Kernel {
-    /// Precompute the lookups of a model. Variables may have at most 255 states.
+    /// Precompute the lookups of a model, with the weights of its states (`weights:`) and
+    /// no fields on its imposed means. Variables may have at most 255 states.
     pub fn new(model: &Model) -> Result<Kernel> {
+        Kernel::with_fields(model, &[])
+    }
+
+    /// Precompute the lookups of a model with the conjugate field `fields[j]` added to the
+    /// ln-weight of the imposed state of every variable of mean j (`Model::means`; an
+    /// empty slice means no fields). Variables may have at most 255 states.
+    pub fn with_fields(model: &Model, fields: &[f64]) -> Result<Kernel> {
         let n = model.variables.len();
         let mut states = Vec::with_capacity(n);
         for (i, v) in model.variables.iter().enumerate() {
@@ -92,6 +207,11 @@ impl Kernel {
                 "the rule tables are too large for the sampler (more than 2^32 bits)".into(),
             ));
         }
+        let ln_weights = ln_weights(model, fields);
+        let weights = ln_weights
+            .iter()
+            .any(|lw| lw.iter().any(|&x| x != 0.0))
+            .then(|| StateWeights::new(&ln_weights));
         Ok(Kernel {
             states,
             start,
@@ -100,7 +220,62 @@ impl Kernel {
             bits,
             max_degree,
             binary,
+            weights,
         })
+    }
+
+    /// Whether some state weighs other than 1.
+    pub fn is_weighted(&self) -> bool {
+        self.weights.is_some()
+    }
+
+    /// ln w of state `x` of variable `v`, field included (0 unweighted, −∞ for weight 0).
+    #[inline]
+    pub fn ln_weight(&self, v: usize, x: u8) -> f64 {
+        match &self.weights {
+            None => 0.0,
+            Some(w) => w.ln[w.profile[v] as usize][x as usize],
+        }
+    }
+
+    /// The probability of state `x` of variable `v` alone (at β = 0): w_v(x) / Σ_s w_v(s).
+    pub fn probability(&self, v: usize, x: u8) -> f64 {
+        match &self.weights {
+            None => 1.0 / self.states[v] as f64,
+            Some(w) => w.prob[w.profile[v] as usize][x as usize],
+        }
+    }
+
+    /// ln Σ_s w_v(s) summed over the variables: ln Z at β = 0.
+    pub fn ln_free(&self) -> f64 {
+        match &self.weights {
+            None => self.states.iter().map(|&q| (q as f64).ln()).sum(),
+            Some(w) => {
+                let per: Vec<f64> =
+                    w.ln.iter()
+                        .map(|lw| {
+                            let top = lw.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                            top + lw.iter().map(|&x| (x - top).exp()).sum::<f64>().ln()
+                        })
+                        .collect();
+                w.profile.iter().map(|&p| per[p as usize]).sum()
+            }
+        }
+    }
+
+    /// The profile of variable `v` (the same number for variables whose states weigh
+    /// alike; 0 for every variable when unweighted).
+    pub fn profile(&self, v: usize) -> u32 {
+        self.weights.as_ref().map_or(0, |w| w.profile[v])
+    }
+
+    /// A value of variable `v` drawn from its distribution alone (β = 0).
+    #[inline]
+    fn draw(&self, v: usize, rng: &mut Pcg64Mcg) -> u8 {
+        match &self.weights {
+            None => (rng.next_u64() % self.states[v] as u64) as u8,
+            Some(w) => draw(&w.prob[w.profile[v] as usize], unit(rng.next_u64())),
+        }
     }
 
     /// Number of variables.
@@ -124,12 +299,11 @@ impl Kernel {
         &self.touches[self.start[v] as usize..self.start[v + 1] as usize]
     }
 
-    /// A chain in a uniformly random assignment (the exact β = 0 distribution).
+    /// A chain in a random assignment of the exact β = 0 distribution (uniform when
+    /// unweighted, each variable drawn from its weights otherwise).
     pub fn chain(&self, mut rng: Pcg64Mcg) -> Chain {
-        let values: Vec<u8> = self
-            .states
-            .iter()
-            .map(|&q| (rng.next_u64() % q as u64) as u8)
+        let values: Vec<u8> = (0..self.states.len())
+            .map(|v| self.draw(v, &mut rng))
             .collect();
         let mut chain = Chain {
             values,
@@ -159,6 +333,11 @@ impl Chain {
     /// Number of violated constraints now.
     pub fn energy(&self) -> u64 {
         self.energy
+    }
+
+    /// Replace the chain's random stream.
+    pub(crate) fn reseed(&mut self, rng: Pcg64Mcg) {
+        self.rng = rng;
     }
 
     /// The next number of the replica's random stream.
@@ -221,10 +400,10 @@ impl Chain {
         self.energy = (self.energy as i64 + de as i64) as u64;
     }
 
-    /// Draw a fresh uniformly random assignment (from the chain's own stream).
+    /// Draw a fresh assignment of the β = 0 distribution (from the chain's own stream).
     pub(crate) fn randomise(&mut self, k: &Kernel) {
         for v in 0..k.variables() {
-            self.values[v] = (self.rng.next_u64() % k.states[v] as u64) as u8;
+            self.values[v] = k.draw(v, &mut self.rng);
         }
         self.recompute(k);
     }
@@ -245,10 +424,39 @@ impl Chain {
 
     /// One heat-bath sweep over all variables at inverse temperature `beta`.
     pub fn sweep(&mut self, k: &Kernel, beta: f64) {
-        if k.binary {
-            self.sweep_binary(k, beta);
-        } else {
-            self.sweep_general(k, beta);
+        match (&k.weights, k.binary) {
+            (None, true) => self.sweep_binary(k, beta),
+            (None, false) => self.sweep_general(k, beta, None),
+            (Some(w), true) => self.sweep_binary_weighted(k, w, beta),
+            (Some(w), false) => self.sweep_general(k, beta, Some(w)),
+        }
+    }
+
+    /// The binary sweep with weights: variable v at value a flips with probability
+    /// 1/(1 + e^{βΔE − Δ}), Δ = ln w_v(1 − a) − ln w_v(a) (heat-bath).
+    fn sweep_binary_weighted(&mut self, k: &Kernel, w: &StateWeights, beta: f64) {
+        let m = k.max_degree as i32;
+        let span = (2 * m + 1) as usize;
+        let mut threshold = Vec::with_capacity(w.ln.len() * 2 * span);
+        for lw in &w.ln {
+            for a in 0..2 {
+                let gain = lw[1 - a] - lw[a];
+                for de in -m..=m {
+                    let p = 1.0 / (1.0 + (beta * de as f64 - gain).exp());
+                    threshold.push(if p >= 1.0 {
+                        u64::MAX
+                    } else {
+                        (p * 18446744073709551616.0) as u64
+                    });
+                }
+            }
+        }
+        for v in 0..k.variables() {
+            let de = self.flip_delta(k, v);
+            let row = (w.profile[v] as usize * 2 + self.values[v] as usize) * span;
+            if self.rng.next_u64() < threshold[row + (de + m) as usize] {
+                self.apply_flip(k, v, de);
+            }
         }
     }
 
@@ -273,7 +481,7 @@ impl Chain {
         }
     }
 
-    fn sweep_general(&mut self, k: &Kernel, beta: f64) {
+    fn sweep_general(&mut self, k: &Kernel, beta: f64, weights: Option<&StateWeights>) {
         let m = k.max_degree as i32;
         let boltzmann: Vec<f64> = (-m..=m).map(|de| (-beta * de as f64).exp()).collect();
         let mut de = [0i32; 256];
@@ -284,6 +492,7 @@ impl Chain {
                 continue;
             }
             let now = self.values[v] as i64;
+            let rel = weights.map(|w| &w.rel[w.profile[v] as usize]);
             let mut total = 0.0;
             for x in 0..q {
                 let mut d = 0i32;
@@ -295,18 +504,28 @@ impl Chain {
                     }
                 }
                 de[x] = d;
-                weight[x] = boltzmann[(d + m) as usize];
+                weight[x] = match rel {
+                    None => boltzmann[(d + m) as usize],
+                    Some(r) => boltzmann[(d + m) as usize] * r[x],
+                };
                 total += weight[x];
             }
-            let mut u = (self.rng.next_u64() >> 11) as f64 * (1.0 / 9007199254740992.0) * total;
-            let mut pick = q - 1;
-            for (x, &w) in weight[..q].iter().enumerate() {
-                if u < w {
-                    pick = x;
-                    break;
+            let mut u = unit(self.rng.next_u64()) * total;
+            let pick = match rel {
+                None => {
+                    let mut pick = q - 1;
+                    for (x, &w) in weight[..q].iter().enumerate() {
+                        if u < w {
+                            pick = x;
+                            break;
+                        }
+                        u -= w;
+                    }
+                    pick
                 }
-                u -= w;
-            }
+                // A state of weight 0 is never picked, whatever the rounding.
+                Some(_) => draw(&weight[..q], u) as usize,
+            };
             if pick as i64 != now {
                 for &(c, s) in k.touches(v) {
                     let i = &mut self.index[c as usize];
@@ -331,8 +550,10 @@ mod tests {
         Model::new(&cluster).unwrap()
     }
 
-    /// Exact Boltzmann probabilities of every assignment of a tiny model, by enumeration.
-    fn boltzmann(m: &Model, beta: f64) -> Vec<f64> {
+    /// Exact Boltzmann probabilities of every assignment of a tiny model, by enumeration,
+    /// with the weights w(σ) = ∏ weight(v, σ_v) · e^{Σ_j h_j n_j(σ)} taken from the model
+    /// directly (not from the kernel).
+    fn boltzmann_weighted(m: &Model, beta: f64, fields: &[f64]) -> Vec<f64> {
         let q: Vec<u64> = m.variables.iter().map(|v| v.states as u64).collect();
         let total: u64 = q.iter().product();
         let mut w = Vec::with_capacity(total as usize);
@@ -359,7 +580,15 @@ mod tests {
                     e += 1;
                 }
             }
-            w.push((-beta * e as f64).exp());
+            let mut lw: f64 = (0..q.len()).map(|v| m.weight(v, vals[v] as u32).ln()).sum();
+            for (mean, h) in m.means.iter().zip(fields) {
+                lw += h * mean
+                    .variables
+                    .iter()
+                    .filter(|&&v| vals[v] == mean.state as u64)
+                    .count() as f64;
+            }
+            w.push((lw - beta * e as f64).exp());
         }
         let z: f64 = w.iter().sum();
         w.iter().map(|x| x / z).collect()
@@ -370,11 +599,22 @@ mod tests {
     /// a chi-square statistic on thinned samples must stay near its number of degrees of
     /// freedom.
     fn check_balance(m: &Model, beta: f64, samples: usize, thin: usize, with_loops: bool) {
-        let k = Kernel::new(m).unwrap();
+        check_weighted_balance(m, &[], beta, samples, thin, with_loops);
+    }
+
+    fn check_weighted_balance(
+        m: &Model,
+        fields: &[f64],
+        beta: f64,
+        samples: usize,
+        thin: usize,
+        with_loops: bool,
+    ) {
+        let k = Kernel::with_fields(m, fields).unwrap();
         let loops = with_loops.then(|| super::super::loops::Loops::new(m).expect("loops apply"));
         let mut walk = loops.as_ref().map(|l| l.walk());
         let mut flipped = 0;
-        let exact = boltzmann(m, beta);
+        let exact = boltzmann_weighted(m, beta, fields);
         let mut chain = k.chain(Pcg64Mcg::new(12345));
         let q: Vec<u64> = m.variables.iter().map(|v| v.states as u64).collect();
         let mut counts = vec![0u64; exact.len()];
@@ -404,15 +644,22 @@ mod tests {
         let mut check = chain.clone();
         check.recompute(&k);
         assert_eq!(check.energy(), chain.energy(), "incremental energy drifted");
+        // Assignments of weight 0 are never visited; the others enter the statistic.
+        assert!(
+            counts.iter().zip(&exact).all(|(&c, &p)| p > 0.0 || c == 0),
+            "an assignment of weight 0 was visited"
+        );
+        let live = exact.iter().filter(|&&p| p > 0.0).count();
         let chi2: f64 = counts
             .iter()
             .zip(&exact)
+            .filter(|&(_, &p)| p > 0.0)
             .map(|(&c, &p)| {
                 let e = p * samples as f64;
                 (c as f64 - e).powi(2) / e
             })
             .sum();
-        let dof = (exact.len() - 1) as f64;
+        let dof = (live - 1) as f64;
         // Mean dof, standard deviation sqrt(2 dof); allow 6 of them plus some slack for
         // the residual correlation between thinned samples.
         assert!(
@@ -446,6 +693,47 @@ mod tests {
         );
         check_balance(&m, 1.3, 200_000, 3, true);
         check_balance(&m, 3.0, 200_000, 3, true);
+    }
+
+    /// Issue 13: the heat-bath and the loop moves with weights on the states and a field
+    /// on an imposed mean sample w(σ) e^{−βE}: square ice on the 2×2 torus with the
+    /// horizontal arrows weighing [1, 3] and a field 0.7 on the vertical ones' state 1.
+    #[test]
+    fn issue13_weighted_moves_satisfy_detailed_balance() {
+        let yaml = format!(
+            "{}weights: [{{bond: h, states: [1.0, 3.0]}}]\noccupancy: [{{bond: v, state: 1, mean: 0.6}}]\n",
+            include_str!("../../../lattices/square-ice.yaml")
+        );
+        let m = model(&yaml, "w.yaml", "2x2", 2);
+        check_weighted_balance(&m, &[0.7], 1.3, 200_000, 3, false);
+        check_weighted_balance(&m, &[0.7], 1.3, 200_000, 3, true);
+        check_weighted_balance(&m, &[-0.4], 3.0, 200_000, 3, true);
+        // A state of weight 0 is never entered, by single flips or by loops.
+        let zero = yaml.replace("[1.0, 3.0]", "[1.0, 0.0]");
+        let m = model(&zero, "w.yaml", "2x2", 2);
+        check_weighted_balance(&m, &[0.7], 1.3, 100_000, 3, true);
+    }
+
+    /// Issue 13: the many-state heat-bath with weights (three colours, the first weighing
+    /// 2.5 and the last 0 on one site).
+    #[test]
+    fn issue13_weighted_many_states_satisfy_detailed_balance() {
+        let yaml = r#"
+name: triangle colourings
+dimensions: 1
+cell: {vectors: [[1.0]]}
+sites: [{id: A, at: [0.0]}]
+bonds: [{id: n, from: A, to: A, shift: [1]}]
+variables: [{on: sites, kind: color, states: 3}]
+rules: [{kind: distinct, at: bonds}]
+weights: [{site: A, states: [2.5, 1.0, 0.5]}]
+formula_unit: {name: site, per: sites}
+"#;
+        let m = model(yaml, "colour.yaml", "3", 1);
+        check_weighted_balance(&m, &[], 0.9, 100_000, 2, false);
+        let zero = yaml.replace("[2.5, 1.0, 0.5]", "[2.5, 1.0, 0.0]");
+        let m = model(&zero, "colour.yaml", "3", 1);
+        check_weighted_balance(&m, &[], 0.9, 100_000, 2, false);
     }
 
     #[test]

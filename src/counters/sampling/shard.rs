@@ -40,8 +40,14 @@ use crate::counters::{Context, Counted};
 use crate::error::{Error, Result};
 use crate::model::Model;
 
-/// The `format` field of every shard file.
-pub const FORMAT: &str = "groundcount Monte Carlo shard, version 2";
+/// The `format` field of every shard file. Version 3 added the conjugate fields to the
+/// settings and, for a weighted lattice, each replica's defect-free sums (`ground`);
+/// version 2 files (unweighted lattices only) hold the same numbers and still merge.
+pub const FORMAT: &str = "groundcount Monte Carlo shard, version 3";
+
+/// The format before the weighted sums: read as before (unweighted runs are sampled
+/// exactly as in version 3).
+const COMPATIBLE_FORMAT: &str = "groundcount Monte Carlo shard, version 2";
 
 /// The `format` of the files earlier versions wrote (one pass per replica instead of two).
 const OLDER_FORMATS: [&str; 1] = ["groundcount Monte Carlo shard, version 1"];
@@ -66,6 +72,10 @@ pub struct Settings {
     pub beta_max: f64,
     /// Loop moves on.
     pub loops: bool,
+    /// The conjugate field of every imposed mean (empty without imposed means; absent in
+    /// version 2 files).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub fields: Vec<f64>,
 }
 
 /// One shard of a split run, as written to its file.
@@ -126,7 +136,7 @@ impl Shard {
             ))
         })?;
         match value.get("format").and_then(|f| f.as_str()) {
-            Some(FORMAT) => {}
+            Some(FORMAT | COMPATIBLE_FORMAT) => {}
             Some(old) if OLDER_FORMATS.contains(&old) => {
                 return Err(bad(format!(
                     "a shard file of an earlier groundcount (\"{old}\"), whose replicas were sampled differently: run its shards again with this version"
@@ -153,7 +163,7 @@ impl Shard {
 
 /// The first setting in which two shards differ: (name, this value, that value).
 fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String, String)> {
-    let pairs: [(&'static str, String, String); 7] = [
+    let pairs: [(&'static str, String, String); 8] = [
         ("the seed", a.seed.to_string(), b.seed.to_string()),
         (
             "the number of replicas per shard",
@@ -177,6 +187,11 @@ fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String,
         ),
         ("β_max", a.beta_max.to_string(), b.beta_max.to_string()),
         ("loop moves", a.loops.to_string(), b.loops.to_string()),
+        (
+            "the conjugate fields",
+            format!("{:?}", a.fields),
+            format!("{:?}", b.fields),
+        ),
     ];
     pairs.into_iter().find(|(_, x, y)| x != y)
 }
@@ -206,6 +221,7 @@ fn config_of(settings: &Settings) -> SampleConfig {
         target_error: None,
         max_replicas: settings.replicas_per_shard,
         max_extensions: 0,
+        fields: settings.fields.clone(),
     }
 }
 
@@ -257,7 +273,7 @@ pub fn run_shard(
         });
     }
     let seconds = start.elapsed().as_secs_f64();
-    let sampled = plan.finish(&runs, seconds);
+    let sampled = plan.finish(&runs, seconds)?;
     let settings = Settings {
         seed: config.seed,
         replicas_per_shard: r,
@@ -266,6 +282,7 @@ pub fn run_shard(
         nodes: config.nodes,
         beta_max: plan.beta_max(),
         loops: config.loops,
+        fields: config.fields.clone(),
     };
     let out = Shard {
         schema_version: Some(crate::json::SCHEMA_VERSION),
@@ -441,8 +458,49 @@ pub fn merge(parts: &[(PathBuf, Shard)]) -> Result<Merged> {
             "an error bar needs at least 2 replicas in all".into(),
         ));
     }
+    // The defect-free sums must fit the model: present exactly for a weighted lattice,
+    // one count per imposed mean.
+    let k = model.means.len();
+    for (path, s) in parts {
+        for run in &s.runs {
+            let fits = match &run.ground {
+                None => !model.is_weighted(),
+                Some(g) => {
+                    model.is_weighted()
+                        && g.counts.len() == k
+                        && g.products.len() == k * (k + 1) / 2
+                        && g.ln_w.is_finite()
+                        && g.counts.iter().chain(&g.products).all(|x| x.is_finite())
+                }
+            };
+            if !fits && s.format == COMPATIBLE_FORMAT {
+                return Err(bad(
+                    path,
+                    format!(
+                        "a shard file of an earlier groundcount (\"{COMPATIBLE_FORMAT}\"), which sampled this weighted lattice as if every state weighed 1: run its shards again with this version"
+                    ),
+                ));
+            }
+            if !fits {
+                return Err(bad(
+                    path,
+                    format!(
+                        "damaged shard file: replica {} {}",
+                        run.replica,
+                        if model.is_weighted() {
+                            format!(
+                                "needs the defect-free sums of a weighted lattice with {k} imposed means"
+                            )
+                        } else {
+                            "carries defect-free sums, but the lattice is not weighted".to_string()
+                        }
+                    ),
+                ));
+            }
+        }
+    }
     let seconds = parts.iter().map(|(_, s)| s.seconds).sum();
-    let sampled = plan.finish(&runs, seconds);
+    let sampled = plan.finish(&runs, seconds)?;
     let mut present: Vec<usize> = seen.iter().map(|(k, _)| *k).collect();
     present.sort_unstable();
     drop(plan);
@@ -481,6 +539,7 @@ mod tests {
                 nodes,
                 beta_max,
                 loops: true,
+                fields: Vec::new(),
             },
             shard: 1,
             shards: 1,
@@ -494,6 +553,7 @@ mod tests {
                     down: energy,
                     flipped: 3,
                     attempted: 7,
+                    ground: None,
                 })
                 .collect(),
             checksum: String::new(),
