@@ -25,6 +25,10 @@ struct Document {
     rules: Vec<RuleRecord>,
     /// Variables held at one state (`pinned:`); empty when none.
     held: Vec<HeldRecord>,
+    /// Relative weights of states (`weights:`); empty when none.
+    weights: Vec<WeightRecord>,
+    /// Imposed means (`occupancy:`, `composition:`); empty when none.
+    means: Vec<MeanRecord>,
     formula_unit: FormulaUnitRecord,
     pauling: PaulingSummary,
 }
@@ -36,6 +40,31 @@ struct HeldRecord {
     on: &'static str,
     id: String,
     state: u32,
+}
+
+/// A site or bond of the cell whose states carry relative weights.
+#[derive(serde::Serialize)]
+struct WeightRecord {
+    /// `site` or `bond`.
+    on: &'static str,
+    id: String,
+    /// One weight per state.
+    states: Vec<f64>,
+}
+
+/// A mean imposed on one state over sites or bonds of the cell.
+#[derive(serde::Serialize)]
+struct MeanRecord {
+    /// `occupancy` or `composition`.
+    kind: &'static str,
+    label: String,
+    /// `site` or `bond`.
+    on: &'static str,
+    /// The sites or bonds of the cell it averages over.
+    members: Vec<String>,
+    state: u32,
+    /// The mean (fraction of the members in `state`).
+    mean: f64,
 }
 
 /// A site of the cell.
@@ -149,6 +178,19 @@ pub fn run(args: Args) -> anyhow::Result<String> {
                 })
                 .collect(),
             held: c.pinned.iter().map(|p| held_record(c, p)).collect(),
+            weights: c
+                .weights
+                .iter()
+                .map(|w| {
+                    let (on, id) = entity(c, w.target, w.index);
+                    WeightRecord {
+                        on,
+                        id,
+                        states: w.states.clone(),
+                    }
+                })
+                .collect(),
+            means: c.means.iter().map(|m| mean_record(c, m)).collect(),
             formula_unit: FormulaUnitRecord {
                 name: unit.clone(),
                 per_cell: units_per_cell,
@@ -313,6 +355,31 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             h.on, h.id, h.state
         )?;
     }
+    for w in &c.weights {
+        let (on, id) = entity(c, w.target, w.index);
+        let states: Vec<String> = w.states.iter().map(|x| sig(*x, 6)).collect();
+        writeln!(
+            out,
+            "weights: {on} {id}, states {} (relative)",
+            states.join(", ")
+        )?;
+    }
+    for m in &c.means {
+        let r = mean_record(c, m);
+        let what = match m.kind {
+            groundcount::crystal::MeanKind::Occupancy => "mean",
+            groundcount::crystal::MeanKind::Composition => "fraction fixed at",
+        };
+        writeln!(
+            out,
+            "{}: state {} of {} ({} per cell), {what} {}",
+            r.kind,
+            r.state,
+            r.label.rsplit_once(" state ").map_or(&*r.label, |(l, _)| l),
+            plural(r.members.len(), r.on),
+            sig(r.mean, 6)
+        )?;
+    }
     writeln!(
         out,
         "formula unit: {unit}, {} ({} per cell)",
@@ -346,12 +413,40 @@ fn plural(n: usize, word: &str) -> String {
     }
 }
 
+/// `site` or `bond`, and the id the file gives, of an entity of the cell.
+fn entity(
+    c: &groundcount::crystal::Crystal,
+    target: Target,
+    index: usize,
+) -> (&'static str, String) {
+    match target {
+        Target::Sites => ("site", c.sites[index].id.clone()),
+        Target::Bonds => ("bond", c.bonds[index].id.clone()),
+    }
+}
+
+/// An `occupancy:` or `composition:` entry, by the ids the file gives.
+fn mean_record(
+    c: &groundcount::crystal::Crystal,
+    m: &groundcount::crystal::MeanTarget,
+) -> MeanRecord {
+    MeanRecord {
+        kind: m.kind.word(),
+        label: m.label.clone(),
+        on: entity(c, m.target, 0).0,
+        members: m
+            .members
+            .iter()
+            .map(|&i| entity(c, m.target, i).1)
+            .collect(),
+        state: m.state,
+        mean: m.mean,
+    }
+}
+
 /// What a `pinned:` entry holds, by the id the file gives.
 fn held_record(c: &groundcount::crystal::Crystal, p: &groundcount::crystal::Pin) -> HeldRecord {
-    let (on, id) = match p.target {
-        groundcount::crystal::Target::Sites => ("site", c.sites[p.index].id.clone()),
-        groundcount::crystal::Target::Bonds => ("bond", c.bonds[p.index].id.clone()),
-    };
+    let (on, id) = entity(c, p.target, p.index);
     HeldRecord {
         on,
         id,
