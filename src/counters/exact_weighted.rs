@@ -596,9 +596,9 @@ formula_unit: {name: site, per: sites}
         }
     }
 
-    /// Every weight 1: ln of the integer count (OEIS A054759: 2970 on the 4x4 torus), on
-    /// frontier and trace alike; and a long strip whose Z overflows a double without the
-    /// rescaling (square ice 4x400: ln Z ≈ 6.9·10² nats per 4 rows… far beyond 1e308).
+    /// Every weight 1: ln of the integer count (OEIS A054759: 2970 on the 4x4 torus); and on
+    /// a long torus whose Z is beyond the largest double (square ice 3x600, ln Z > 710) the
+    /// rescaled float count agrees with the exact integer.
     #[test]
     fn issue13_unit_weights_give_the_integer_count() {
         let m = model(
