@@ -3,7 +3,9 @@
 //! # What it computes
 //!
 //! The number of assignments of the model's variables that satisfy every constraint, as an
-//! exact integer.
+//! exact integer. A weighted model (`weights:`, `occupancy:`, `composition:`) is counted by
+//! the weighted frontier of `counters/exact_weighted.rs` instead: the entropy of the weighted
+//! ensemble with ln Z and the fields, or the exact count at a composition.
 //!
 //! # Method
 //!

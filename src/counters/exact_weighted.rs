@@ -411,7 +411,8 @@ fn composition(model: &Model, config: &ExactConfig, start: Instant) -> Result<Es
     // (0 at the ends of the polynomial, where it is unbounded).
     let ln = |d: usize| crate::estimate::ln_big(&coefficient(d));
     let field = if k > 0 && ln(k - 1).is_finite() && ln(k + 1).is_finite() {
-        -(ln(k + 1) - ln(k - 1)) / 2.0
+        // (+ 0.0: a symmetric polynomial gives 0, not −0)
+        (ln(k - 1) - ln(k + 1)) / 2.0 + 0.0
     } else {
         0.0
     };
@@ -595,9 +596,9 @@ formula_unit: {name: site, per: sites}
         }
     }
 
-    /// Every weight 1: ln of the integer count (OEIS A054759: 2970 on the 4x4 torus), on
-    /// frontier and trace alike; and a long strip whose Z overflows a double without the
-    /// rescaling (square ice 4x400: ln Z ≈ 6.9·10² nats per 4 rows… far beyond 1e308).
+    /// Every weight 1: ln of the integer count (OEIS A054759: 2970 on the 4x4 torus); and on
+    /// a long torus whose Z is beyond the largest double (square ice 3x600, ln Z > 710) the
+    /// rescaled float count agrees with the exact integer.
     #[test]
     fn issue13_unit_weights_give_the_integer_count() {
         let m = model(
@@ -694,6 +695,10 @@ formula_unit: {name: site, per: sites}
         for f in &e.weighing.as_ref().unwrap().fields {
             assert!(f.field.abs() < 1e-9);
         }
+        // The library's entry point takes the same route.
+        let l = Lattice::from_yaml(&format!("{SQUARE_ICE}\n{}", occ(0.5)), "t.yaml").unwrap();
+        let via = l.count_exact(&Cells::periodic(&[3, 3]).unwrap(), &ExactConfig::default());
+        assert_eq!(via.unwrap().ln_w_per_unit, e.ln_w_per_unit);
         let mut last = e.ln_w_per_unit;
         for x in [0.7, 0.9, 0.99] {
             let m = model(SQUARE_ICE, &occ(x), "3x3");
