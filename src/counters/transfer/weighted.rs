@@ -73,6 +73,9 @@ pub struct WidthWeighing {
     pub derivative_error: f64,
 }
 
+/// The variables one step adds: (offset, states) of each, and their kinds.
+pub(crate) type Added = (Vec<(u32, u32)>, Vec<usize>);
+
 /// The weights of a column's values, per kind (place within a column).
 #[derive(Debug)]
 pub(crate) struct Weighting {
@@ -100,7 +103,7 @@ impl Weighting {
         kinds: &[usize],
         states: &[u32],
         steps: &[ColumnStep],
-        added: &[(Vec<(u32, u32)>, Vec<usize>)],
+        added: &[Added],
         free: Vec<usize>,
         n: usize,
     ) -> Weighting {
