@@ -1135,3 +1135,41 @@ fn issue11_the_survey_records_its_strip_cross_checks() {
     );
     assert!(2f64.ln() / 12.0 < bound.reference, "{bound:?}");
 }
+
+#[test]
+fn issue13_strip_reports_a_weighted_ensemble() {
+    // Square-lattice dimers with a horizontal fraction 0.3 (a composition): the JSON carries
+    // ln Z, the field and the mean reached, per width and extrapolated; the table says
+    // what W means. The value itself is checked against the Legendre transform of the
+    // Kasteleyn–Fisher integral in the library's tests.
+    let text = std::fs::read_to_string(lattice("square-dimers.yaml")).unwrap()
+        + "composition:\n  - {bonds: [h], state: 1, fraction: 0.3}\n";
+    let path = std::env::temp_dir().join(format!("issue13-dimers-{}.yaml", std::process::id()));
+    std::fs::write(&path, text).unwrap();
+    let file = path.to_str().unwrap();
+    let v = run_json(&["strip", file, "--widths", "2..10", "--format", "json"]);
+    let widths = v["widths"].as_array().unwrap();
+    for w in widths {
+        let achieved = w["weighing"]["achieved"][0].as_f64().unwrap();
+        assert!((achieved - 0.3).abs() < 1e-7, "{w}");
+        let ln_z = w["weighing"]["ln_z_per_unit"].as_f64().unwrap();
+        let ln_w = w["weighing"]["mean_ln_w_per_unit"].as_f64().unwrap();
+        let entropy = w["w_per_unit"].as_f64().unwrap().ln();
+        assert!((ln_z - ln_w - entropy).abs() < 1e-12, "{w}");
+    }
+    let f = &v["fields"][0];
+    assert_eq!(f["kind"], "composition");
+    assert_eq!(f["target"].as_f64().unwrap(), 0.3);
+    assert!(v["ln_z_per_unit"].as_f64().unwrap() > v["s_over_r"].as_f64().unwrap());
+    let o = run(&["strip", file, "--widths", "2..8"]);
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        o.status.success() && out.contains("entropy of the weighted ensemble"),
+        "{out}"
+    );
+    assert!(
+        out.contains("ln Z per site") && out.contains("field "),
+        "{out}"
+    );
+    std::fs::remove_file(&path).ok();
+}

@@ -861,6 +861,53 @@ fn extrapolation_words(s: &transfer::StripSeries, run: &transfer::StripRun) -> S
     }
 }
 
+/// The weighted widths: what `W per unit` means there, and ln Z, ⟨ln w⟩, the fields and the
+/// means reached per width.
+fn weighted_words(
+    c: &groundcount::crystal::Crystal,
+    run: &transfer::StripRun,
+    unit: &str,
+) -> anyhow::Result<String> {
+    let mut out = String::new();
+    writeln!(
+        out,
+        "weighted: W per {unit} is exp(S/R), S/R = ln Z − ⟨ln w⟩ per {unit}, the entropy of the \
+         weighted ensemble (w includes the fields of the imposed means)"
+    )?;
+    let labels: Vec<String> = c.means.iter().map(|m| format!("h {}", m.label)).collect();
+    let reached: Vec<String> = c
+        .means
+        .iter()
+        .map(|m| format!("mean {}", m.label))
+        .collect();
+    let ln_z = format!("ln Z per {unit}");
+    let ln_w = format!("⟨ln w⟩ per {unit}");
+    let mut head: Vec<&str> = vec!["width", &ln_z, &ln_w, "difference error"];
+    for (h, m) in labels.iter().zip(&reached) {
+        head.push(h);
+        head.push(m);
+    }
+    let mut t = Table::new(&head);
+    for r in &run.widths {
+        let Some(w) = &r.weighing else { continue };
+        let mut row = vec![
+            r.width.to_string(),
+            sig(w.ln_z_per_unit, 13),
+            sig(w.mean_ln_w_per_unit, 13),
+            sig(w.derivative_error, 2),
+        ];
+        for (h, m) in w.fields.iter().zip(&w.achieved) {
+            row.push(sig(*h, 10));
+            row.push(sig(*m, 10));
+        }
+        t.row(row);
+    }
+    writeln!(out)?;
+    out += &t.render();
+    writeln!(out)?;
+    Ok(out)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -911,51 +958,4 @@ mod tests {
             false
         );
     }
-}
-
-/// The weighted widths: what `W per unit` means there, and ln Z, ⟨ln w⟩, the fields and the
-/// means reached per width.
-fn weighted_words(
-    c: &groundcount::crystal::Crystal,
-    run: &transfer::StripRun,
-    unit: &str,
-) -> anyhow::Result<String> {
-    let mut out = String::new();
-    writeln!(
-        out,
-        "weighted: W per {unit} is exp(S/R), S/R = ln Z − ⟨ln w⟩ per {unit}, the entropy of the \
-         weighted ensemble (w includes the fields of the imposed means)"
-    )?;
-    let labels: Vec<String> = c.means.iter().map(|m| format!("h {}", m.label)).collect();
-    let reached: Vec<String> = c
-        .means
-        .iter()
-        .map(|m| format!("mean {}", m.label))
-        .collect();
-    let ln_z = format!("ln Z per {unit}");
-    let ln_w = format!("⟨ln w⟩ per {unit}");
-    let mut head: Vec<&str> = vec!["width", &ln_z, &ln_w, "difference error"];
-    for (h, m) in labels.iter().zip(&reached) {
-        head.push(h);
-        head.push(m);
-    }
-    let mut t = Table::new(&head);
-    for r in &run.widths {
-        let Some(w) = &r.weighing else { continue };
-        let mut row = vec![
-            r.width.to_string(),
-            sig(w.ln_z_per_unit, 13),
-            sig(w.mean_ln_w_per_unit, 13),
-            sig(w.derivative_error, 2),
-        ];
-        for (h, m) in w.fields.iter().zip(&w.achieved) {
-            row.push(sig(*h, 10));
-            row.push(sig(*m, 10));
-        }
-        t.row(row);
-    }
-    writeln!(out)?;
-    out += &t.render();
-    writeln!(out)?;
-    Ok(out)
 }

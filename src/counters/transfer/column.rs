@@ -299,7 +299,7 @@ impl Column {
             raw.push(step);
         }
         const { assert!(MERGE_MAX <= MAX_PATTERNS) };
-        let added: Vec<(Vec<(u32, u32)>, Vec<usize>)> = raw
+        let added: Vec<super::weighted::Added> = raw
             .iter()
             .map(|r| (r.added.clone(), r.kinds.clone()))
             .collect();

@@ -53,6 +53,8 @@ impl Column {
     }
 
     /// Power iteration for the largest eigenvalue, certified by the Collatz–Wielandt bracket.
+    /// For a weighted crystal this is λ at zero fields, and `ln_w_per_unit` is then ln Z per
+    /// formula unit, not an entropy: [`super::strip`] gives the entropy.
     pub fn largest_eigenvalue(&self, config: &StripConfig) -> Result<StripResult> {
         match self.iterate(config)? {
             Some((r, _)) => Ok(r),

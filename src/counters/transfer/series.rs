@@ -121,8 +121,16 @@ pub const MIN_PARTIAL_WIDTHS: usize = 3;
 
 /// The largest eigenvalue of one width, from the sector found to hold it (see
 /// [`super::dominant`]).
+///
+/// For a weighted crystal, the entropy of the weighted ensemble with the fields of the
+/// imposed means solved at this width ([`StripResult::weighing`]).
 pub fn strip(crystal: &Crystal, width: usize, config: &StripConfig) -> Result<StripResult> {
-    Finder::new(crystal, config).width(width)
+    let mut finder = Finder::new(crystal, config);
+    if crystal.is_weighted() {
+        super::weighted::width(&mut finder, width, config)
+    } else {
+        finder.width(width)
+    }
 }
 
 /// Strips of every width of `config.widths`, extrapolated to the infinite crystal; an error

@@ -73,6 +73,9 @@ pub struct WidthWeighing {
     pub derivative_error: f64,
 }
 
+/// The variables one step adds: (offset, states) of each, and their kinds.
+pub(crate) type Added = (Vec<(u32, u32)>, Vec<usize>);
+
 /// The weights of a column's values, per kind (place within a column).
 #[derive(Debug)]
 pub(crate) struct Weighting {
@@ -100,7 +103,7 @@ impl Weighting {
         kinds: &[usize],
         states: &[u32],
         steps: &[ColumnStep],
-        added: &[(Vec<(u32, u32)>, Vec<usize>)],
+        added: &[Added],
         free: Vec<usize>,
         n: usize,
     ) -> Weighting {
@@ -568,4 +571,264 @@ pub(super) fn width(
         derivative_error: (e_t + field_error) / u,
     });
     Ok(r)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::Lattice;
+    use crate::context::Context;
+    use crate::counters::transfer::{count, strip};
+    use std::f64::consts::PI;
+
+    /// A shipped lattice with `extra` appended (weights, means).
+    fn lattice(name: &str, extra: &str) -> Lattice {
+        let path = format!("{}/lattices/{name}", env!("CARGO_MANIFEST_DIR"));
+        let text = std::fs::read_to_string(&path).unwrap() + extra;
+        Lattice::from_yaml(&text, name).unwrap()
+    }
+
+    /// (1/π) ∫₀^{π/2} f(θ) dθ by the midpoint rule (f smooth and periodic-like: the error is
+    /// far below the tolerances used).
+    fn quadrature(f: impl Fn(f64) -> f64) -> f64 {
+        let n = 20_000;
+        let h = 0.5 * PI / n as f64;
+        (0..n).map(|i| f((i as f64 + 0.5) * h)).sum::<f64>() * h / PI
+    }
+
+    /// Square-lattice dimers with activity z on horizontal dimers: ln Z per site =
+    /// (1/π) ∫₀^{π/2} asinh(z cos θ) dθ (Kasteleyn 1961, Physica 27, 1209; Fisher 1961,
+    /// Phys. Rev. 124, 1664: from the product over (θ, φ) of 4z² cos²θ + 4 cos²φ, the φ
+    /// integral done in closed form), and the fraction of horizontal bonds occupied
+    /// ρ = z ∂_z ln Z per site.
+    fn kasteleyn_fisher(z: f64) -> (f64, f64) {
+        (
+            quadrature(|t| (z * t.cos()).asinh()),
+            quadrature(|t| z * t.cos() / (1.0 + (z * t.cos()).powi(2)).sqrt()),
+        )
+    }
+
+    #[test]
+    fn issue13_kasteleyn_fisher_normalisation_gives_catalan_over_pi() {
+        // z = 1: G/π with G = 0.915965594177219 (Catalan's constant, from memory), and a
+        // quarter of the sites' bonds horizontal by symmetry.
+        let (ln_z, rho) = kasteleyn_fisher(1.0);
+        assert!((ln_z - 0.915965594177219 / PI).abs() < 1e-9, "{ln_z}");
+        assert!((rho - 0.25).abs() < 1e-9, "{rho}");
+    }
+
+    #[test]
+    fn issue13_weighted_dimers_match_kasteleyn_fisher() {
+        let z: f64 = 2.0;
+        let l = lattice(
+            "square-dimers.yaml",
+            "weights:\n  - {bond: h, states: [1, 2.0]}\n",
+        );
+        let config = StripConfig {
+            widths: (2..=12).collect(),
+            ..Default::default()
+        };
+        let s = count(&l.crystal, &config, &Context::new()).unwrap();
+        let (ln_z, rho) = kasteleyn_fisher(z);
+        let e = &s.estimate;
+        let w = e.weighing.as_ref().unwrap();
+        let sigma = e.sigma_ln_w.unwrap();
+        assert!(sigma < 1e-4, "{sigma}");
+        // The entropy of the weighted ensemble, S/R = ln Z − ρ ln z per site.
+        let entropy = ln_z - rho * z.ln();
+        assert!(
+            (e.ln_w_per_unit - entropy).abs() < 3.0 * sigma,
+            "{} ± {sigma} against {entropy}",
+            e.ln_w_per_unit
+        );
+        assert!(
+            (w.ln_z_per_unit - ln_z).abs() < 3.0 * sigma,
+            "{}",
+            w.ln_z_per_unit
+        );
+        assert!(s.details.checks_agree() && !s.details.checks.is_empty());
+        // Every width: S = ln Z − ⟨ln w⟩ with ⟨ln w⟩ = ρ_W ln z, ρ_W between 1/4 and 1/2.
+        for r in &s.details.widths {
+            let ww = r.weighing.as_ref().unwrap();
+            assert!(ww.derivative_error < 1e-7, "{}", ww.derivative_error);
+            let rho_w = ww.mean_ln_w_per_unit / z.ln();
+            assert!(rho_w > 0.25 && rho_w < 0.5, "{rho_w}");
+        }
+    }
+
+    #[test]
+    fn issue13_dimers_at_a_horizontal_fraction_are_the_legendre_transform() {
+        let x = 0.3;
+        let l = lattice(
+            "square-dimers.yaml",
+            "composition:\n  - {bonds: [h], state: 1, fraction: 0.3}\n",
+        );
+        let config = StripConfig {
+            widths: (2..=12).collect(),
+            ..Default::default()
+        };
+        let s = count(&l.crystal, &config, &Context::new()).unwrap();
+        // The activity with ρ(z) = x by bisection on the quadrature, then S = ln Z − x ln z.
+        let (mut lo, mut hi) = (1.0f64, 10.0f64);
+        for _ in 0..60 {
+            let mid = 0.5 * (lo + hi);
+            if kasteleyn_fisher(mid).1 < x {
+                lo = mid
+            } else {
+                hi = mid
+            }
+        }
+        let z = 0.5 * (lo + hi);
+        let entropy = kasteleyn_fisher(z).0 - x * z.ln();
+        let e = &s.estimate;
+        let sigma = e.sigma_ln_w.unwrap();
+        assert!(sigma < 1e-4, "{sigma}");
+        assert!(
+            (e.ln_w_per_unit - entropy).abs() < 3.0 * sigma,
+            "{} ± {sigma} against {entropy}",
+            e.ln_w_per_unit
+        );
+        let f = &e.weighing.as_ref().unwrap().fields[0];
+        assert!((f.achieved - x).abs() < 1e-7, "{}", f.achieved);
+        assert!(
+            (f.field - z.ln()).abs() < 1e-3,
+            "{} against ln z = {}",
+            f.field,
+            z.ln()
+        );
+        for r in &s.details.widths {
+            assert!((r.weighing.as_ref().unwrap().achieved[0] - x).abs() < 1e-7);
+        }
+    }
+
+    #[test]
+    fn issue13_unit_weights_give_the_unweighted_values_exactly() {
+        // Square ice keeps its sector and reversal pairs; hard squares keep neither.
+        for (name, extra) in [
+            (
+                "square-ice.yaml",
+                "weights:\n  - {bond: h, states: [1, 1]}\n",
+            ),
+            (
+                "hard-squares.yaml",
+                "weights:\n  - {site: P, states: [1, 1]}\n",
+            ),
+        ] {
+            let plain = lattice(name, "");
+            let weighted = lattice(name, extra);
+            assert!(weighted.crystal.is_weighted());
+            let config = StripConfig {
+                widths: (2..=8).collect(),
+                ..Default::default()
+            };
+            let a = count(&plain.crystal, &config, &Context::new()).unwrap();
+            let b = count(&weighted.crystal, &config, &Context::new()).unwrap();
+            for (x, y) in a.details.widths.iter().zip(&b.details.widths) {
+                assert_eq!(x.ln_lambda, y.ln_lambda, "{name} width {}", x.width);
+                assert_eq!(x.ln_w_per_unit, y.ln_w_per_unit, "{name} width {}", x.width);
+                assert_eq!(x.reversal, y.reversal, "{name}");
+                assert_eq!(x.sector, y.sector, "{name}");
+                let w = y.weighing.as_ref().unwrap();
+                assert_eq!(w.mean_ln_w_per_unit, 0.0);
+            }
+            assert_eq!(a.estimate.ln_w_per_unit, b.estimate.ln_w_per_unit, "{name}");
+        }
+    }
+
+    /// The density of hard squares at activity 1, per site, at one width: ∂ ln λ / ∂h at
+    /// h = 0 on the operator of a file with a composition entry.
+    fn free_density(l: &Lattice, width: usize, config: &StripConfig) -> f64 {
+        let layout = Column::layout(&l.crystal, width, config).unwrap();
+        let mut column = layout.compiled(Kept::Reduced, config).unwrap();
+        let (m, _) = means_at(&mut column, &[0.0], config).unwrap();
+        m[0] / column.mean_sizes()[0]
+    }
+
+    #[test]
+    fn issue13_hard_squares_at_their_free_density_give_baxters_constant() {
+        let config = StripConfig {
+            widths: (4..=14).collect(),
+            ..Default::default()
+        };
+        let probe = lattice(
+            "hard-squares.yaml",
+            "composition:\n  - {sites: [P], state: 1, fraction: 0.2}\n",
+        );
+        let rho = free_density(&probe, 14, &config);
+        assert!(rho > 0.2 && rho < 0.25, "{rho}");
+        let l = lattice(
+            "hard-squares.yaml",
+            &format!("composition:\n  - {{sites: [P], state: 1, fraction: {rho:.15}}}\n"),
+        );
+        let s = count(&l.crystal, &config, &Context::new()).unwrap();
+        // κ = 1.5030480824753323 per site: Baxter, Enting & Tsang 1980, J. Stat. Phys. 22,
+        // 465 (the unweighted hard-square constant); the field vanishes there.
+        let kappa = 1.5030480824753323f64.ln();
+        let e = &s.estimate;
+        assert!(
+            (e.ln_w_per_unit - kappa).abs() < 1e-7,
+            "{} against {kappa}",
+            e.ln_w_per_unit
+        );
+        let f = &e.weighing.as_ref().unwrap().fields[0];
+        // The field extrapolated from widths 4 to 14 (its own convergence is slower).
+        assert!(f.field.abs() < 1e-4, "{}", f.field);
+        // At the width the density came from, the unweighted eigenvalue itself.
+        let plain = strip(&lattice("hard-squares.yaml", "").crystal, 14, &config).unwrap();
+        let w14 = s.details.widths.iter().find(|r| r.width == 14).unwrap();
+        assert!(w14.weighing.as_ref().unwrap().fields[0].abs() < 1e-6);
+        assert!(
+            (w14.ln_w_per_unit - plain.ln_w_per_unit).abs() < 1e-8,
+            "{} against {}",
+            w14.ln_w_per_unit,
+            plain.ln_w_per_unit
+        );
+    }
+
+    #[test]
+    fn issue13_hard_squares_at_a_fixed_density_two_legendre_routes() {
+        // Route 1: the field solver at density 0.15. Route 2: the weights path at the
+        // activity z = e^h it found, ln Z(z) per site at z and z(1 ± δ), the density by the
+        // test's own difference z ∂_z ln Z, and S = ln Z − ρ ln z.
+        let width = 10;
+        let config = StripConfig::default();
+        let l = lattice(
+            "hard-squares.yaml",
+            "composition:\n  - {sites: [P], state: 1, fraction: 0.15}\n",
+        );
+        let solved = strip(&l.crystal, width, &config).unwrap();
+        let mut runner = super::super::Runner::new(&l.crystal, &config);
+        let r = runner.width(width).unwrap().clone();
+        let h = r.weighing.as_ref().unwrap().fields[0];
+        assert!(
+            h < 0.0,
+            "{h}: a density below the free one needs a negative field"
+        );
+        let ln_z = |z: f64| -> f64 {
+            let w = lattice(
+                "hard-squares.yaml",
+                &format!("weights:\n  - {{site: P, states: [1, {z:.17e}]}}\n"),
+            );
+            let mut runner = super::super::Runner::new(&w.crystal, &config);
+            runner
+                .width(width)
+                .unwrap()
+                .weighing
+                .clone()
+                .unwrap()
+                .ln_z_per_unit
+        };
+        let z = h.exp();
+        let d = 1e-4;
+        let rho = (ln_z(z * (1.0 + d)) - ln_z(z * (1.0 - d))) / (2.0 * d);
+        assert!((rho - 0.15).abs() < 1e-6, "{rho}");
+        let entropy = ln_z(z) - 0.15 * z.ln();
+        assert!(
+            (r.ln_w_per_unit - entropy).abs() < 1e-7,
+            "{} against {entropy}",
+            r.ln_w_per_unit
+        );
+        // `strip` solves the same width the same way.
+        assert_eq!(solved.ln_w_per_unit, r.ln_w_per_unit);
+    }
 }
