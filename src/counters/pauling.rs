@@ -230,8 +230,8 @@ pub(crate) mod tests {
     /// The form of MacDowell, Sanz, Vega & Abascal 2004 (J. Chem. Phys. 121, 10145) for
     /// partially ordered ice, written here from its structure (from memory: bond entropies
     /// plus, for every oxygen, ln of the probability that independent occupancies put
-    /// exactly two protons near it): S/R per molecule = (bonds per molecule) H(α)
-    /// + (1/N) Σ_O ln P_O. Square ice with P(proton near `to`) = a on h bonds and b on v
+    /// exactly two protons near it): S/R per molecule is (bonds per molecule) H(α) plus
+    /// (1/N) Σ_O ln P_O. Square ice with P(proton near `to`) = a on h bonds and b on v
     /// bonds: every oxygen is the `to` end of one h and one v bond, so
     /// P_O = 2a(1−a)b(1−b) + (a² + (1−a)²)(b² + (1−b)²) (6/16 at a = b = 1/2); ice Ih with one
     /// α on every bond: an oxygen that is the `to` end of k bonds keeps the rule with
