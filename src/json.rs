@@ -61,6 +61,12 @@ pub struct PaulingSummary {
     pub s_j_per_mol_k: f64,
     /// Why it is not a meaningful value of W for this rule, in words; `null` when it is.
     pub not_meaningful: Option<String>,
+    /// A weighted file: ln Z per formula unit (absent otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ln_z_per_unit: Option<f64>,
+    /// A weighted file: the imposed means, fields and means reached (absent when none).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub fields: Vec<crate::estimate::FieldValue>,
 }
 
 impl PaulingSummary {
@@ -71,6 +77,12 @@ impl PaulingSummary {
             s_over_r: p.s_over_r(),
             s_j_per_mol_k: p.s_j_per_mol_k(),
             not_meaningful: local::caveat(p).map(|c| c.explain(unit)),
+            ln_z_per_unit: p.weighing.as_ref().map(|w| w.ln_z_per_unit),
+            fields: p
+                .weighing
+                .as_ref()
+                .map(|w| w.fields.clone())
+                .unwrap_or_default(),
         }
     }
 }

@@ -222,6 +222,31 @@ pub fn plus_minus(x: f64, sigma: Option<f64>, digits: usize) -> String {
     }
 }
 
+/// The lines that say what a weighted estimate rests on: ln Z per formula unit, and for
+/// every imposed mean the target, the conjugate field and the mean reached (empty for an
+/// unweighted estimate).
+pub fn weighing_lines(e: &Estimate, unit: &str) -> Vec<String> {
+    let Some(w) = &e.weighing else {
+        return Vec::new();
+    };
+    let mut lines = vec![format!(
+        "{}: ln Z = {} per {unit} (weights and fields included); its S0/R = ln Z − ⟨ln weight⟩ per {unit}",
+        method_label(e),
+        sig(w.ln_z_per_unit, 10)
+    )];
+    for f in &w.fields {
+        lines.push(format!(
+            "  {} ({}): target mean {}, conjugate field h = {} (dimensionless, ln of the state's activity), mean reached {}",
+            f.label,
+            f.kind.word(),
+            sig(f.target, 10),
+            sig(f.field, 8),
+            sig(f.achieved, 10)
+        ));
+    }
+    lines
+}
+
 /// The method column of a table.
 pub fn method_label(e: &Estimate) -> String {
     match e.method {
@@ -689,6 +714,9 @@ fn sector_words(s: &SectorWidths) -> String {
 pub fn note_words(note: &Note, hint: &dyn Fn(Hint) -> String) -> String {
     match note {
         Note::BetheLeftOut { error } => format!("Bethe approximation left out: {error}"),
+        Note::Unweighted { method } => format!(
+            "{method} left out: it cannot yet take the weights, occupancies or compositions of this file"
+        ),
         Note::StageNotRun { stage } => format!("{}: not run (interrupted)", stage_words(*stage)),
         Note::StageInterrupted { stage } => {
             format!("{}: stopped (interrupted)", stage_words(*stage))

@@ -225,6 +225,7 @@ fn below_table(s: &Survey, unit: &str) -> Vec<String> {
         .map(|c| text::check_failure(c, unit))
         .collect();
     for e in [Some(&s.pauling), s.bethe.as_ref()].into_iter().flatten() {
+        lines.extend(text::weighing_lines(e, unit));
         if let Some(caveat) = local::caveat(e) {
             lines.push(format!(
                 "* {}: {}{}",

@@ -394,6 +394,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         sig(p.s_over_r(), 8),
         sig(p.s_j_per_mol_k(), 6)
     )?;
+    for line in text::weighing_lines(&p, unit) {
+        writeln!(out, "{line}")?;
+    }
     if let Some(caveat) = local::caveat(&p) {
         writeln!(
             out,

@@ -21,6 +21,26 @@
 //! messages into v, Z_vc the overlap of the two messages on the edge v–c); variables no
 //! constraint reads add ln q.
 //!
+//! # With weights, occupancies and compositions
+//!
+//! Every variable carries a prior ψ_v(s) = w_v(s) e^(Σ_j h_j [v ∈ j, s = s_j]) (its
+//! `weights:` and the fields of the imposed means it belongs to): the variable → constraint
+//! messages are ψ_v times the other incoming messages, Z_v = Σ_s ψ_v(s) Π messages, and a
+//! variable no constraint reads adds ln Σ_s ψ_v(s) ([`propagate`]). The beliefs
+//! b_v ∝ ψ_v Π messages are Bethe's marginals; the Bethe entropy at the fixed point is
+//! S_B = ln Z_B − Σ_v Σ_s b_v(s) ln ψ_v(s) (the constraints are 0/1, so they add no energy
+//! term; Yedidia, Freeman & Weiss 2005, from memory). With imposed means the fields are
+//! solved ([`super::fields::solve`]) so that the beliefs' means reach the targets, around the
+//! deterministic routine h ↦ (ln Z_B(h), means of the beliefs) — at a fixed point
+//! ∂ ln Z_B/∂h_j is the belief mean, so this is the Legendre transform of the Bethe ln Z.
+//! Occupancies and compositions are treated alike (the infinite crystal). On a tree (one
+//! constraint per cell) this is exact, which the tests check against brute force.
+//!
+//! Belief propagation can polarise completely at a finite field (square ice with fields on
+//! both bond families saturates at h ≈ 0.69): means within about 10⁻³ of 0 or 1 may then
+//! need a field within a hair of that point, and the field solver says it did not converge
+//! rather than return a value.
+//!
 //! # Arguments and returns
 //!
 //! [`count`] takes a crystal and a [`BetheConfig`] (iteration cap and tolerance) and returns

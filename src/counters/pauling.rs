@@ -8,6 +8,42 @@
 //! of local assignments that constraint c allows. For ice this gives 2² · (6/16) = 3/2 per
 //! H2O (Pauling 1935, J. Am. Chem. Soc. 57, 2680).
 //!
+//! # With weights, occupancies and compositions
+//!
+//! Pauling's hypothesis, stated so that it carries weights: the variables are independent,
+//! each with a single-variable distribution p_v, and the constraints are independent
+//! events under that product measure. The entropy of the constrained ensemble is then
+//! S_P(p) = Σ_v H(p_v) + Σ_c ln P_p(c), with P_p(c) = Σ_(allowed x) Π_i p_(v_i)(x_i) the
+//! probability that constraint c holds under independent variables (H(p) = −Σ p ln p). With
+//! every p_v uniform this is the count above.
+//!
+//! - **Imposed means** (`occupancy:`, `composition:`): p_v is the maximum-entropy
+//!   single-variable distribution with the variable's weights that puts every variable
+//!   independently at its target means: p_v(s) ∝ w_v(s) e^(Σ_j h_j [v ∈ j, s = s_j]), the
+//!   fields h solved ([`super::fields::solve`]) on the independent variables alone, so the
+//!   means reached are the targets. The constraint probabilities are thus evaluated at the
+//!   target means: this is its own approximation, not a Legendre transform of the Pauling
+//!   ln Z below (whose derivative in h would add the constraints' pull on the means). For
+//!   partially ordered ice it is the form of MacDowell, Sanz, Vega & Abascal 2004 (J. Chem.
+//!   Phys. 121, 10145): bond entropies plus, per oxygen, ln of the probability that
+//!   independent occupancies put exactly two protons near it (their form written from
+//!   memory — the abstract, read, says it is Pauling's at full disorder and 0 at full
+//!   order; the tests evaluate that form in closed form against this code). Occupancy and
+//!   composition are treated alike: in the infinite crystal a fixed fraction and a mean
+//!   held by a field give the same entropy per formula unit.
+//! - **Weights only** (`weights:`, activities): p_v ∝ w_v, and
+//!   ln Z_P = Σ_v ln Σ_s w_v(s) + Σ_c ln P_w(c), Pauling's product of the unconstrained
+//!   weighted sum and the constraints' independent probabilities (exact for a single
+//!   constraint). The entropy reported is S = ln Z_P − ⟨ln w⟩_p with the mean under the
+//!   same independent marginals p_v ∝ w_v: Σ_v [ln z_v − Σ_s p_v(s) ln w_v(s)] = Σ_v H(p_v),
+//!   so S = S_P(p_w). This is the maximum-entropy argument: the weights act as fields whose
+//!   independent marginals are p_w, and the same file written with occupancies at those
+//!   marginals gives the same value (tested).
+//!
+//! The estimate's [`crate::estimate::Weighing`] carries ln Z_P per formula unit (weights
+//! and fields included) and, per mean, the field and the mean reached (the target, up to
+//! the solver's tolerance).
+//!
 //! # Arguments and returns
 //!
 //! [`count`] takes a crystal (no settings) and returns an [`Estimate`] for the infinite
@@ -194,8 +230,8 @@ pub(crate) mod tests {
     /// The form of MacDowell, Sanz, Vega & Abascal 2004 (J. Chem. Phys. 121, 10145) for
     /// partially ordered ice, written here from its structure (from memory: bond entropies
     /// plus, for every oxygen, ln of the probability that independent occupancies put
-    /// exactly two protons near it): S/R per molecule = (bonds per molecule) H(α)
-    /// + (1/N) Σ_O ln P_O. Square ice with P(proton near `to`) = a on h bonds and b on v
+    /// exactly two protons near it): S/R per molecule is (bonds per molecule) H(α) plus
+    /// (1/N) Σ_O ln P_O. Square ice with P(proton near `to`) = a on h bonds and b on v
     /// bonds: every oxygen is the `to` end of one h and one v bond, so
     /// P_O = 2a(1−a)b(1−b) + (a² + (1−a)²)(b² + (1−b)²) (6/16 at a = b = 1/2); ice Ih with one
     /// α on every bond: an oxygen that is the `to` end of k bonds keeps the rule with

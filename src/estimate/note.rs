@@ -48,6 +48,12 @@ pub enum Note {
         /// Why.
         error: String,
     },
+    /// A method that cannot yet take the file's weights, occupancies or compositions was
+    /// left out (its row is missing; the other rows stand).
+    Unweighted {
+        /// The method, in words ("the exact count").
+        method: &'static str,
+    },
     /// An interrupt came before the stage began.
     StageNotRun {
         /// The stage.

@@ -144,6 +144,10 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
                 });
                 break;
             }
+            Err(Error::Unweighted { method }) => {
+                notes.push(Note::Unweighted { method });
+                break;
+            }
             Err(Error::Interrupted { .. }) => {
                 interrupted = true;
                 stopped = Some(ExactStop::InterruptedWhile {
@@ -207,6 +211,7 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
                 }
                 interrupted = true;
             }
+            Err(Error::Unweighted { method }) => notes.push(Note::Unweighted { method }),
             Err(e) => return Err(e),
         }
         interrupted |= context.interrupt.raised();
@@ -243,6 +248,9 @@ fn strip_series(
     notes: &mut Vec<Note>,
     checks: &mut Vec<CrossCheck>,
 ) -> Result<Option<Counted<StripSeries>>> {
+    // transfer::run refuses a weighted crystal but the Runner used here does not check:
+    // refuse here too until the strips weigh, or they would count every arrangement once.
+    crate::counters::refuse_weighted(c.is_weighted(), "the transfer matrix")?;
     let strip_config = StripConfig::default().with_context(context);
     let widths: Box<dyn Iterator<Item = usize>> = match &config.widths {
         Some(w) => Box::new(w.clone().into_iter()),
