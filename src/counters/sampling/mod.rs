@@ -80,6 +80,7 @@ pub mod loops;
 pub mod moves;
 pub mod shard;
 pub mod size;
+pub mod solve;
 pub mod wang_landau;
 #[cfg(test)]
 mod weighted_tests;
