@@ -62,7 +62,7 @@ pub struct Args {
     no_loops: bool,
     /// The conjugate field of every `occupancy:` entry of the file, in the file's order,
     /// separated by commas (the natural log of each state's activity, e.g. 0.4,-0.25).
-    /// The sampler does not solve for them; it reports the mean each field reaches.
+    /// The output reports the mean each field reaches.
     #[arg(
         long,
         value_name = "H1,H2,...",
@@ -612,9 +612,9 @@ fn render_weighted(
                     "{} '{}': field h = {}, mean reached {} (target {}){}",
                     m.kind.word(),
                     m.label,
-                    w.fields[j],
+                    short(w.fields[j]),
                     pm(a, Some(sa)),
-                    m.mean,
+                    short(m.mean),
                     if pull.abs() > 3.0 {
                         format!(
                             " — MISSES the target by {}σ: the entropy above is that of the ensemble at the mean reached, not at the target; adjust the field",
@@ -646,6 +646,13 @@ fn render_weighted(
             Ok(out)
         }
     }
+}
+
+/// A given number with at most six decimals and no trailing zeros ("0.4", "-0.210923").
+fn short(x: f64) -> String {
+    let t = format!("{x:.6}");
+    let t = t.trim_end_matches('0').trim_end_matches('.');
+    if t == "-0" { "0".into() } else { t.to_string() }
 }
 
 /// `x ± σ` with 8 and 2 significant digits.
