@@ -129,10 +129,12 @@ fn solve_linear(a: &[f64], b: &[f64]) -> Option<Vec<f64>> {
             return None;
         }
         m.swap(c, p);
-        for r in c + 1..k {
-            let f = m[r][c] / m[c][c];
-            for col in c..=k {
-                m[r][col] -= f * m[c][col];
+        let (top, bottom) = m.split_at_mut(c + 1);
+        let pivot = &top[c];
+        for row in bottom {
+            let f = row[c] / pivot[c];
+            for (x, y) in row[c..].iter_mut().zip(&pivot[c..]) {
+                *x -= f * y;
             }
         }
     }
