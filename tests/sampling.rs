@@ -897,6 +897,22 @@ fn issue13_sample_takes_a_weighted_lattice_file() {
     assert_eq!(j["fields"][0]["field"].as_f64(), Some(-0.2));
     assert_eq!(j["fields"][0]["kind"].as_str(), Some("occupancy"));
     assert!(j["fields"][0]["achieved_sigma"].as_f64().unwrap() > 0.0);
+    // The stochastic solver of the fields: its path and verdict are printed.
+    let o = crate::util::run(&[&base[..], &["--solve-fields", "6"]].concat());
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let t = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        t.contains("fields solved by Newton steps") && t.contains("fields [0] →"),
+        "{t}"
+    );
+    let o = crate::util::run(
+        &[
+            &base[..],
+            &["--solve-fields", "6", "--shard", "1/2", "--out", "x.json"],
+        ]
+        .concat(),
+    );
+    assert_eq!(o.status.code(), Some(1));
     // Two shards merge into the run of their replicas together.
     let mut parts = Vec::new();
     for k in 1..=2 {

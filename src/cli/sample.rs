@@ -62,7 +62,7 @@ pub struct Args {
     no_loops: bool,
     /// The conjugate field of every `occupancy:` entry of the file, in the file's order,
     /// separated by commas (the natural log of each state's activity, e.g. 0.4,-0.25).
-    /// The sampler does not solve for them; it reports the mean each field reaches.
+    /// The output reports the mean each field reaches.
     #[arg(
         long,
         value_name = "H1,H2,...",
@@ -70,6 +70,11 @@ pub struct Args {
         allow_hyphen_values = true
     )]
     fields: Option<Vec<f64>>,
+    /// Solve for the fields of the `occupancy:` entries by Newton steps on the sampled
+    /// means and their covariance, in at most STEPS runs (starting from --fields, or 0),
+    /// and report the run at the fields found.
+    #[arg(long, value_name = "STEPS")]
+    solve_fields: Option<usize>,
     /// Add batches of --replicas replicas until the 1σ error of ln W per formula unit
     /// (the relative error of W) is at most this.
     #[arg(long)]
@@ -147,6 +152,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         let (k, n) = parse_shard(spec)?;
         let out = args.out.as_ref().expect("clap requires --out with --shard");
         return run_shard(&args, &lattice, &sizes[0], &config, (k, n), out, &shown);
+    }
+    if let Some(steps) = args.solve_fields {
+        if args.shard.is_some() || steps == 0 {
+            anyhow::bail!(
+                "--solve-fields takes at least 1 step and runs the sampler several times on one machine: solve first, then run the shards with --fields"
+            );
+        }
+        return run_solve(&args, &lattice, &sizes[0], &config, steps, &shown);
     }
     let mut results = Vec::new();
     for cells in &sizes {
@@ -306,10 +319,16 @@ fn run_wang_landau(args: &Args, lattice: &Lattice, sizes: &[Cells]) -> anyhow::R
 /// `occupancy:` entry, when the file has some; refused otherwise.
 fn fields_for(args: &Args, c: &groundcount::crystal::Crystal) -> anyhow::Result<Vec<f64>> {
     let labels: Vec<&str> = c.means.iter().map(|m| m.label.as_str()).collect();
+    if args.solve_fields.is_some() && labels.is_empty() {
+        anyhow::bail!(
+            "--solve-fields solves for the fields of `occupancy:` entries, but {} has none",
+            args.file.display()
+        );
+    }
     match &args.fields {
-        None if labels.is_empty() => Ok(Vec::new()),
+        None if labels.is_empty() || args.solve_fields.is_some() => Ok(Vec::new()),
         None => anyhow::bail!(
-            "{} imposes {} mean{} ({}); the Monte Carlo samples the ensemble of given conjugate fields and does not solve for them (the exact count of a small cell will provide them): give one field per entry with --fields H1,H2,... in the file's order, and compare the means reached with the targets",
+            "{} imposes {} mean{} ({}); the Monte Carlo samples the ensemble of given conjugate fields: give one field per entry with --fields H1,H2,... in the file's order (the exact count of a small cell will provide them), or let it search for them with --solve-fields STEPS",
             args.file.display(),
             labels.len(),
             if labels.len() == 1 { "" } else { "s" },
@@ -348,6 +367,57 @@ fn parse_shard(spec: &str) -> anyhow::Result<(usize, usize)> {
             "--shard expects K/N with 1 <= K <= N (e.g. 3/16 for the third of sixteen parts), found '{spec}'"
         ),
     }
+}
+
+/// `sample --solve-fields`: the fields found by Newton steps on sampled means, and the
+/// run at those fields.
+fn run_solve(
+    args: &Args,
+    lattice: &Lattice,
+    cells: &Cells,
+    config: &sampling::SampleConfig,
+    steps: usize,
+    shown: &Shown,
+) -> anyhow::Result<String> {
+    let cluster = Cluster::new(&lattice.crystal, cells.clone())?;
+    let model = Model::new(&cluster)?;
+    let (context, bar) = args
+        .common
+        .replica_progress(&model, config.replicas * steps);
+    let (s, solve) = with_threads(args.common.threads, || {
+        sampling::solve::solve_fields(&model, config, steps, &context)
+    })??;
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let mut text = render(args.common.format, lattice, shown, &model, &s, None)?;
+    if args.common.format == Format::Table {
+        let path: Vec<String> = solve
+            .history
+            .iter()
+            .map(|h| {
+                let v: Vec<String> = h.iter().map(|x| sig(*x, 4)).collect();
+                format!("[{}]", v.join(", "))
+            })
+            .collect();
+        writeln!(
+            text,
+            "fields solved by Newton steps on the sampled means and their covariance (a stochastic solver; run s used seed {} + s): {} run{}, fields {}; {}",
+            config.seed,
+            solve.steps,
+            if solve.steps == 1 { "" } else { "s" },
+            path.join(" → "),
+            if solve.converged {
+                format!(
+                    "every mean reached lies within {}σ of its target",
+                    sampling::solve::TOLERANCE
+                )
+            } else {
+                "NOT CONVERGED: some mean is still off its target (see above); allow more steps or sweeps".to_string()
+            }
+        )?;
+    }
+    Ok(text)
 }
 
 /// Sample one model with a progress line.
@@ -542,9 +612,9 @@ fn render_weighted(
                     "{} '{}': field h = {}, mean reached {} (target {}){}",
                     m.kind.word(),
                     m.label,
-                    w.fields[j],
+                    short(w.fields[j]),
                     pm(a, Some(sa)),
-                    m.mean,
+                    short(m.mean),
                     if pull.abs() > 3.0 {
                         format!(
                             " — MISSES the target by {}σ: the entropy above is that of the ensemble at the mean reached, not at the target; adjust the field",
@@ -576,6 +646,13 @@ fn render_weighted(
             Ok(out)
         }
     }
+}
+
+/// A given number with at most six decimals and no trailing zeros ("0.4", "-0.210923").
+fn short(x: f64) -> String {
+    let t = format!("{x:.6}");
+    let t = t.trim_end_matches('0').trim_end_matches('.');
+    if t == "-0" { "0".into() } else { t.to_string() }
 }
 
 /// `x ± σ` with 8 and 2 significant digits.

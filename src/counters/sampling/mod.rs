@@ -80,6 +80,7 @@ pub mod loops;
 pub mod moves;
 pub mod shard;
 pub mod size;
+pub mod solve;
 pub mod wang_landau;
 #[cfg(test)]
 mod weighted_tests;
@@ -1120,7 +1121,11 @@ fn replica(
         }
     };
     let mut ground = observe.map(|o| o.start());
-    let mut node = |chain: &mut moves::Chain, i: usize, equilibrate: bool, sweeps: usize| {
+    let mut node = |chain: &mut moves::Chain,
+                    ground: &mut Option<ground::Ground>,
+                    i: usize,
+                    equilibrate: bool,
+                    sweeps: usize| {
         let beta = betas[i];
         if equilibrate {
             for _ in 0..config.equilibration {
@@ -1139,10 +1144,9 @@ fn replica(
         }
         sum as f64 / sweeps as f64
     };
-    for i in 1..n {
-        up[i] = node(&mut chain, i, true, measure_up);
+    for (i, u) in up.iter_mut().enumerate().skip(1) {
+        *u = node(&mut chain, &mut ground, i, true, measure_up);
     }
-    drop(node);
     // A weighted run samples the defect-free ensemble longer at the turn, on a copy of
     // the chain with a stream of its own: the chain that goes on down, and with it ⟨E⟩
     // and ln Z, is the same as without the copy.
@@ -1162,28 +1166,9 @@ fn replica(
             }
         }
     }
-    let mut node = |chain: &mut moves::Chain, i: usize, equilibrate: bool, sweeps: usize| {
-        let beta = betas[i];
-        if equilibrate {
-            for _ in 0..config.equilibration {
-                step(chain, beta);
-            }
-        }
-        let mut sum = 0u64;
-        for _ in 0..sweeps {
-            step(chain, beta);
-            sum += chain.energy();
-            if let (Some(o), Some(g), true) = (observe, ground.as_mut(), i == n - 1)
-                && chain.energy() == 0
-            {
-                o.add(kernel, chain, g);
-            }
-        }
-        sum as f64 / sweeps as f64
-    };
     // The chain is in equilibrium at β_max already: no equilibration at the turn.
     for i in (1..n).rev() {
-        down[i] = node(&mut chain, i, i != n - 1, measure_down);
+        down[i] = node(&mut chain, &mut ground, i, i != n - 1, measure_down);
     }
     Run {
         replica: r,

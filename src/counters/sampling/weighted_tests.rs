@@ -405,3 +405,26 @@ fn issue13_pulls_of_spin_ice_in_a_field_over_100_seeds() {
         );
     }
 }
+
+/// The stochastic field solver on the 3×3 square ice with a target occupancy of 0.6 on the
+/// vertical arrows: the weighted brute force at the field it found reaches 0.6 within the
+/// solver's tolerance (plus one σ for the error of the last run's mean).
+#[test]
+fn issue13_field_solver_reaches_the_target_of_a_weighted_cell() {
+    let yaml = format!(
+        "{SQUARE_ICE}weights: [{{bond: h, states: [1.0, 2.5]}}]\n\
+         occupancy: [{{bond: v, state: 1, mean: 0.6}}]\n"
+    );
+    let m = model(&yaml, "3x3", 2);
+    let (s, solve) = solve::solve_fields(&m, &config(77, vec![]), 10, &Context::new()).unwrap();
+    assert!(solve.converged, "{solve:?}");
+    let w = s.weighing.as_ref().unwrap();
+    let b = brute(&m, &w.fields);
+    assert!(
+        (b.means[0] - 0.6).abs() < (solve::TOLERANCE + 1.5) * w.sigma_achieved[0],
+        "brute-force mean {} at the field {:?} (σ {})",
+        b.means[0],
+        w.fields,
+        w.sigma_achieved[0]
+    );
+}
