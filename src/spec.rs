@@ -53,6 +53,21 @@ pub struct LatticeSpec {
     /// Variables held at one state (a strong field, a known ordered sublattice).
     #[serde(default)]
     pub pinned: Vec<PinSpec>,
+    /// Sites that may be vacant (a diluted crystal): each listed site independently empty
+    /// with the given probability in every realisation.
+    #[serde(default)]
+    pub vacancies: Vec<VacancySpec>,
+}
+
+/// One entry of `vacancies:`: every site of this id or species is vacant with probability
+/// `fraction` (0 ≤ fraction < 1), independently of every other site.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct VacancySpec {
+    /// Site id or species.
+    pub site: Located<String>,
+    /// Probability that such a site is vacant.
+    pub fraction: Located<f64>,
 }
 
 /// One entry of `pinned:`: every variable on a site (by id or species) or on a bond (by id,
@@ -179,6 +194,10 @@ pub struct RuleSpec {
     /// Restrict an `at: sites` rule to these site ids or species.
     #[serde(default)]
     pub only: Option<Located<Vec<String>>>,
+    /// With `vacancies:`, the allowed counts for each number of members that remain when
+    /// some are vacant (`{3: [1, 2], 2: [1], 1: [0, 1]}`); `allowed` holds the full scope's.
+    #[serde(default)]
+    pub remaining: Option<Located<std::collections::BTreeMap<u32, Vec<u32>>>>,
 }
 
 /// What one formula unit is.

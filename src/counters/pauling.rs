@@ -8,6 +8,10 @@
 //! of local assignments that constraint c allows. For ice this gives 2² · (6/16) = 3/2 per
 //! H2O (Pauling 1935, J. Am. Chem. Soc. 57, 2680).
 //!
+//! For a diluted crystal (`vacancies:`) the product is averaged over the vacancies: the
+//! generalized Pauling estimate of Ke et al. 2007 (Phys. Rev. Lett. 99, 137203), per
+//! formula unit present ([`super::dilution::generalized_pauling_ln_w`]).
+//!
 //! # Arguments and returns
 //!
 //! [`count`] takes a crystal (no settings) and returns an [`Estimate`] for the infinite
@@ -50,10 +54,15 @@ use crate::estimate::{Estimate, Method};
 /// ```
 pub fn count(crystal: &Crystal, _config: &(), _context: &Context) -> Result<Counted<()>> {
     let start = Instant::now();
-    let model = tree_free_model(crystal)?;
+    // A diluted crystal: the product averaged over the vacancies, per formula unit present.
+    let ln_w = if crystal.is_diluted() {
+        super::dilution::generalized_pauling_ln_w(crystal)
+    } else {
+        pauling_ln_w(&tree_free_model(crystal)?)
+    };
     Ok(Counted::plain(Estimate::infinite(
         Method::Pauling,
-        pauling_ln_w(&model),
+        ln_w,
         None,
         start.elapsed().as_secs_f64(),
     )))

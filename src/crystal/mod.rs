@@ -10,16 +10,20 @@
 //! ([`Crystal::from_spec`]) and the range limits it enforces; `geometry.rs` the cell's
 //! geometry (positions, distances, the bonds of a distance window, the largest shift in
 //! use); `rules.rs` the meaning of every rule kind ([`Rule::allows`]) and the expansion of a
-//! rule into its instances; `pins.rs` the variables held at one state (`pinned:`).
+//! rule into its instances; `pins.rs` the variables held at one state (`pinned:`);
+//! `vacancies.rs` the sites that may be vacant (`vacancies:`) and each rule's allowed counts
+//! for fewer remaining members (`remaining:`).
 
 mod geometry;
 mod pins;
 mod rules;
 mod types;
+mod vacancies;
 mod validate;
 
 pub use rules::Rule;
 pub use types::*;
+pub use vacancies::{MAX_VACANT_SLOTS, Vacancy};
 pub use validate::{
     LENGTH_RANGE, MAX_FRACTION, MAX_PROBE_ENTITIES, MAX_SHIFT, MAX_SITES, MAX_WINDOW_CANDIDATES,
     MAX_WINDOW_COORDINATION, UNITS_PER_CELL_RANGE, number_word,
@@ -56,4 +60,6 @@ pub struct Crystal {
     pub formula_unit: FormulaUnit,
     /// Variables held at one state, sorted by target and index, at most one per entity.
     pub pinned: Vec<Pin>,
+    /// Sites that may be vacant (`vacancies:`), sorted by site, at most one per site.
+    pub vacancies: Vec<Vacancy>,
 }

@@ -259,6 +259,7 @@ impl Crystal {
                 basis: UnitBasis::Cell(1.0),
             },
             pinned: Vec::new(),
+            vacancies: Vec::new(),
         };
         let site_index = |name: &Located<String>| -> Result<usize> {
             crystal
@@ -635,6 +636,7 @@ impl Crystal {
         }
         crystal.formula_unit.basis = basis;
         crystal.pinned = crystal.validate_pins(&spec.pinned, &ck)?;
+        crystal.validate_vacancies(&spec, &ck)?;
         crystal.check_probe_size(&spec, &ck)?;
         Ok(crystal)
     }
