@@ -410,3 +410,247 @@ pub fn generalized_pauling_ln_w(crystal: &Crystal) -> f64 {
     let per_unit = ln / units;
     if per_unit.abs() < 1e-12 { 0.0 } else { per_unit }
 }
+
+#[cfg(test)]
+mod tests {
+    use std::collections::{BTreeSet, HashMap};
+
+    use super::*;
+    use crate::Lattice;
+    use crate::cluster::Cells;
+
+    const DILUTED: &str = include_str!("../../lattices/diluted-spin-ice.yaml");
+    const SPIN_ICE: &str = include_str!("../../lattices/spin-ice.yaml");
+
+    /// The shipped diluted spin ice with vacancy fraction `x`.
+    fn diluted(x: f64) -> Lattice {
+        let text = DILUTED.replace("fraction: 0.1}", &format!("fraction: {x}}}"));
+        assert_ne!(text, DILUTED.replace("0.1}", "0.1 }"));
+        Lattice::from_yaml(&text, "diluted.yaml").unwrap()
+    }
+
+    fn cluster<'a>(l: &'a Lattice, cells: &str) -> Cluster<'a> {
+        Cluster::new(&l.crystal, Cells::parse(cells, None, 3).unwrap()).unwrap()
+    }
+
+    /// Independent brute force for diluted pyrochlore spin ice, sharing nothing with the
+    /// rule expansion or the model: the tetrahedra are written down from the cell's
+    /// geometry (the "up" one of a cell holds its four sites; the "down" one site 0 of the
+    /// cell and sites 1, 2, 3 of the cells one step back along a, b, c), state 1 points
+    /// into the up tetrahedron and state 0 into the down one (the file's axes), and every
+    /// assignment of the sites left is tried against the spin-ice counts for the members
+    /// left: 4 → [2], 3 → [1, 2], 2 → [1], 1 → [0, 1], 0 → anything.
+    fn brute(cluster: &Cluster, vacant: &[bool]) -> u64 {
+        let n = cluster.cells.counts;
+        let index: HashMap<(usize, [usize; 3]), usize> = cluster
+            .sites
+            .iter()
+            .enumerate()
+            .map(|(i, s)| ((s.site, s.cell), i))
+            .collect();
+        let cells: BTreeSet<[usize; 3]> = cluster.sites.iter().map(|s| s.cell).collect();
+        let back = |c: [usize; 3], axis: usize| {
+            let mut c = c;
+            c[axis] = (c[axis] + n[axis] - 1) % n[axis];
+            c
+        };
+        let mut tetrahedra: Vec<([usize; 4], u32)> = Vec::new();
+        for &cell in &cells {
+            tetrahedra.push(([0, 1, 2, 3].map(|k| index[&(k, cell)]), 1));
+            tetrahedra.push((
+                [
+                    index[&(0, cell)],
+                    index[&(1, back(cell, 0))],
+                    index[&(2, back(cell, 1))],
+                    index[&(3, back(cell, 2))],
+                ],
+                0,
+            ));
+        }
+        let allowed = |members: usize, inward: usize| match members {
+            4 => inward == 2,
+            3 => inward == 1 || inward == 2,
+            2 => inward == 1,
+            _ => true,
+        };
+        let free: Vec<usize> = (0..vacant.len()).filter(|&i| !vacant[i]).collect();
+        let mut total = 0;
+        let mut values = vec![0u32; vacant.len()];
+        for mask in 0u64..(1 << free.len()) {
+            for (b, &i) in free.iter().enumerate() {
+                values[i] = (mask >> b & 1) as u32;
+            }
+            let ok = tetrahedra.iter().all(|(m, state)| {
+                let left: Vec<usize> = m.iter().copied().filter(|&i| !vacant[i]).collect();
+                let inward = left.iter().filter(|&&i| values[i] == *state).count();
+                allowed(left.len(), inward)
+            });
+            total += ok as u64;
+        }
+        total
+    }
+
+    #[test]
+    fn issue13_realisation_counts_equal_brute_force_on_tiny_cells() {
+        let l = diluted(0.3);
+        let mut vacancies_seen = BTreeSet::new();
+        for cells in ["1x1x1", "2x1x1", "2x2x1"] {
+            let cl = cluster(&l, cells);
+            for seed in [1, 2, 3, 17] {
+                let config = DilutionConfig {
+                    realisations: 5,
+                    seed,
+                    ..Default::default()
+                };
+                let r = count(&cl, &config, &Context::new()).unwrap();
+                for x in &r.realisations {
+                    let vacant = vacancies(&cl, seed, x.index);
+                    assert_eq!(vacant.iter().filter(|v| **v).count(), x.vacant);
+                    vacancies_seen.insert(x.vacant);
+                    assert_eq!(
+                        x.count,
+                        BigUint::from(brute(&cl, &vacant)),
+                        "{cells}, seed {seed}, realisation {}",
+                        x.index
+                    );
+                }
+            }
+        }
+        // The realisations did test vacancies: none, one and several per cell.
+        assert!(vacancies_seen.contains(&0) && vacancies_seen.contains(&1));
+        assert!(vacancies_seen.iter().any(|&v| v >= 3), "{vacancies_seen:?}");
+    }
+
+    /// With fraction 0 nothing is vacant: every realisation is the undiluted cell, whose
+    /// count is the shipped spin ice's (2970 for 2x2x2, the frontier counter on the
+    /// undiluted file; the same as 2x2x2 ice Ic per bond), and the generalized Pauling
+    /// estimate is Pauling's (1/2) ln(3/2) per Dy (Pauling 1935).
+    #[test]
+    fn issue13_zero_fraction_is_the_undiluted_crystal() {
+        let l = diluted(0.0);
+        assert!(!l.crystal.is_diluted());
+        let cl = cluster(&l, "2x2x2");
+        let r = count(&cl, &DilutionConfig::default(), &Context::new()).unwrap();
+        let plain = Lattice::from_yaml(SPIN_ICE, "spin-ice.yaml").unwrap();
+        let undiluted = plain
+            .count_exact(&Cells::parse("2x2x2", None, 3).unwrap(), &Default::default())
+            .unwrap();
+        for x in &r.realisations {
+            assert_eq!(x.vacant, 0);
+            assert_eq!(Some(&x.count), undiluted.count.as_ref());
+        }
+        assert!(r.spread < 1e-12, "{}", r.spread);
+        let gp = generalized_pauling_ln_w(&l.crystal);
+        let p = plain.pauling().unwrap().ln_w_per_unit;
+        assert!((gp - p).abs() < 1e-12 && (gp - 0.5 * 1.5f64.ln()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn issue13_model_new_refuses_a_diluted_crystal() {
+        let l = diluted(0.1);
+        let e = Model::new(&cluster(&l, "2x2x2")).unwrap_err();
+        assert!(matches!(e, Error::Model(_)), "{e}");
+        assert!(e.to_string().contains("one realisation"), "{e}");
+    }
+
+    /// Realisation r depends on (seed, r) only: the same on 1 and 2 threads, and the same
+    /// whether 3 or 6 realisations are asked for.
+    #[test]
+    fn issue13_realisations_are_the_same_on_one_and_two_threads() {
+        let l = diluted(0.3);
+        let cl = cluster(&l, "3x3x2");
+        let config = DilutionConfig {
+            realisations: 6,
+            seed: 42,
+            ..Default::default()
+        };
+        let run = |threads: usize, config: &DilutionConfig| {
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap()
+                .install(|| count(&cl, config, &Context::new()).unwrap())
+        };
+        let one = run(1, &config);
+        let two = run(2, &config);
+        let key = |r: &Realisations| -> Vec<(usize, String, u64)> {
+            r.realisations
+                .iter()
+                .map(|x| (x.vacant, x.count.to_string(), x.ln_w_per_unit.to_bits()))
+                .collect()
+        };
+        assert_eq!(key(&one), key(&two));
+        assert_eq!(one.mean.to_bits(), two.mean.to_bits());
+        let three = run(
+            2,
+            &DilutionConfig {
+                realisations: 3,
+                ..config.clone()
+            },
+        );
+        assert_eq!(key(&three)[..], key(&one)[..3]);
+        // Different seeds give different realisations.
+        let other = run(1, &DilutionConfig { seed: 43, ..config });
+        assert_ne!(key(&other), key(&one));
+    }
+
+    /// The generalized Pauling estimate of Ke et al. 2007 (Phys. Rev. Lett. 99, 137203;
+    /// form reconstructed, see lattices/diluted-spin-ice.yaml) in closed form, computed
+    /// here: per Dy present, with p = 1 − x,
+    /// ln W = ln 2 + (1/(2p)) Σ_n C(4, n) pⁿ x⁴⁻ⁿ ln f_n, f = 6/16, 6/8, 2/4, 1, 1 for
+    /// n = 4 … 0 (two tetrahedra per site, 2p sites present per tetrahedron... per
+    /// tetrahedron 4p sites present, each in two tetrahedra).
+    #[test]
+    fn issue13_generalized_pauling_follows_the_closed_form() {
+        let f: [f64; 5] = [1.0, 1.0, 2.0 / 4.0, 6.0 / 8.0, 6.0 / 16.0];
+        let binomial = [1.0, 4.0, 6.0, 4.0, 1.0];
+        for x in [0.0f64, 0.05, 0.1, 0.3, 0.5, 0.9] {
+            let p = 1.0 - x;
+            let sum: f64 = (0..=4)
+                .map(|n| binomial[n] * p.powi(n as i32) * x.powi(4 - n as i32) * f[n].ln())
+                .sum();
+            let closed = 2f64.ln() + sum / (2.0 * p);
+            let l = diluted(x);
+            let estimate = l.pauling().unwrap();
+            assert!(
+                (estimate.ln_w_per_unit - closed).abs() < 1e-12,
+                "x = {x}: {} against {closed}",
+                estimate.ln_w_per_unit
+            );
+        }
+        // The limit of high dilution is a free moment per Dy, ln 2 (Ke et al. 2007,
+        // abstract: the entropy approaches R ln 2).
+        let l = diluted(0.999);
+        assert!((l.pauling().unwrap().ln_w_per_unit - 2f64.ln()).abs() < 0.01);
+    }
+
+    /// The realisation average against the generalized Pauling curve: Pauling-level
+    /// agreement, not an identity. Tolerance: 12 % of the Pauling value plus three
+    /// standard errors. Why: these cells are small (72 and 108 sites) and overshoot the
+    /// infinite crystal; undiluted, 3x3x2 lies 12 % and 3x3x3 8.6 % above Pauling's
+    /// (1/2) ln(3/2) (exact counts of spin-ice.yaml: 0.22734 and 0.22009 per Dy), while
+    /// the infinite crystal itself lies 1.4 % above it (Singh & Oitmaa 2012, Phys. Rev. B
+    /// 85, 144414, numerical linked clusters: 0.205507). Measured here: 0.1 on 3x3x2,
+    /// 0.3 and 0.5 on 3x3x3 agreed to within 1–6 %.
+    #[test]
+    fn issue13_realisation_average_is_close_to_the_generalized_pauling_curve() {
+        for (x, cells) in [(0.1, "3x3x2"), (0.3, "3x3x3"), (0.5, "3x3x3")] {
+            let l = diluted(x);
+            let cl = cluster(&l, cells);
+            let config = DilutionConfig {
+                realisations: 24,
+                seed: 5,
+                ..Default::default()
+            };
+            let r = count(&cl, &config, &Context::new()).unwrap();
+            let gp = l.pauling().unwrap().ln_w_per_unit;
+            let tolerance = 0.12 * gp + 3.0 * r.standard_error;
+            assert!(
+                (r.mean - gp).abs() < tolerance,
+                "x = {x}, {cells}: mean {} ± {} against {gp}",
+                r.mean,
+                r.standard_error
+            );
+        }
+    }
+}

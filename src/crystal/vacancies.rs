@@ -357,7 +357,7 @@ mod tests {
             if !ok {
                 let (l, c, m) = refusal(&text);
                 assert_eq!(l, text.lines().count(), "{m}");
-                assert_eq!(c, 30, "{m}"); // the fraction
+                assert_eq!(c, 26, "{m}"); // the fraction
                 assert!(m.contains("expected a probability from 0"), "{m}");
             }
         }
@@ -368,7 +368,7 @@ mod tests {
         let r = rules_with(REMAINING);
         let text = diluted([&r[0], &r[1]], "  - {site: Ti, fraction: 0.1}\n");
         let (l, c, m) = refusal(&text);
-        assert_eq!((l, c), (text.lines().count(), 13), "{m}");
+        assert_eq!((l, c), (text.lines().count(), 12), "{m}");
         assert!(m.contains("'Ti', which is no site id or species"), "{m}");
         let text = diluted(
             [&r[0], &r[1]],
