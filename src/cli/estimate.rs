@@ -128,6 +128,17 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     render(&args, &lattice, &s)
 }
 
+/// What the rows of a diluted crystal's survey are, under the header.
+fn diluted_words(unit: &str) -> String {
+    format!(
+        "with vacancies: per {unit} present (a vacant site is no formula unit, as in Ke et al. \
+         2007); Pauling = the generalized Pauling estimate averaged over the vacancies; each \
+         exact row = the mean of ln W over {} random realisations of the vacancies of that \
+         cell, 1σ = the standard error of that mean; units = formula units present, on average",
+        groundcount::counters::dilution::DEFAULT_REALISATIONS
+    )
+}
+
 /// The output of a finished (or interrupted) survey.
 fn render(
     args: &Args,
@@ -173,6 +184,9 @@ fn render(
         Format::Markdown => {
             let mut out = table.render_markdown();
             writeln!(out)?;
+            if c.is_diluted() {
+                writeln!(out, "{}\n", diluted_words(&unit))?;
+            }
             if s.checks.is_empty() {
                 writeln!(out, "cross-checks: none computed in this run\n")?;
             } else {
@@ -198,6 +212,9 @@ fn render(
                  W = arrangements per {unit}; S0 = R ln W per mole of {unit}",
                 c.formula_unit.describe()
             )?;
+            if c.is_diluted() {
+                writeln!(out, "{}", diluted_words(&unit))?;
+            }
             writeln!(out)?;
             out += &table.render();
             writeln!(out)?;

@@ -350,9 +350,7 @@ pub fn generalized_pauling_ln_w(crystal: &Crystal) -> f64 {
                     _ => 0.0,
                 })
                 .collect();
-            let may: Vec<usize> = (0..entities.len())
-                .filter(|&e| fraction[e] > 0.0)
-                .collect();
+            let may: Vec<usize> = (0..entities.len()).filter(|&e| fraction[e] > 0.0).collect();
             for pattern in 0u64..(1u64 << may.len()) {
                 let mut vacant = vec![false; entities.len()];
                 let mut p = 1.0;
@@ -408,7 +406,11 @@ pub fn generalized_pauling_ln_w(crystal: &Crystal) -> f64 {
         _ => crystal.formula_unit.per_cell(crystal),
     };
     let per_unit = ln / units;
-    if per_unit.abs() < 1e-12 { 0.0 } else { per_unit }
+    if per_unit.abs() < 1e-12 {
+        0.0
+    } else {
+        per_unit
+    }
 }
 
 #[cfg(test)]
@@ -533,7 +535,10 @@ mod tests {
         let r = count(&cl, &DilutionConfig::default(), &Context::new()).unwrap();
         let plain = Lattice::from_yaml(SPIN_ICE, "spin-ice.yaml").unwrap();
         let undiluted = plain
-            .count_exact(&Cells::parse("2x2x2", None, 3).unwrap(), &Default::default())
+            .count_exact(
+                &Cells::parse("2x2x2", None, 3).unwrap(),
+                &Default::default(),
+            )
             .unwrap();
         for x in &r.realisations {
             assert_eq!(x.vacant, 0);

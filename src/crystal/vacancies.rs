@@ -338,7 +338,12 @@ mod tests {
         assert_eq!(l.crystal.rules[0].remaining.len(), 3);
         // x = 0 is accepted and dilutes nothing.
         let text = diluted([&r[0], &r[1]], "  - {site: Dy, fraction: 0}\n");
-        assert!(!Lattice::from_yaml(&text, "d.yaml").unwrap().crystal.is_diluted());
+        assert!(
+            !Lattice::from_yaml(&text, "d.yaml")
+                .unwrap()
+                .crystal
+                .is_diluted()
+        );
     }
 
     #[test]
@@ -351,7 +356,10 @@ mod tests {
             ("1", false),
             (".nan", false),
         ] {
-            let text = diluted([&r[0], &r[1]], &format!("  - {{site: Dy, fraction: {x}}}\n"));
+            let text = diluted(
+                [&r[0], &r[1]],
+                &format!("  - {{site: Dy, fraction: {x}}}\n"),
+            );
             let result = Lattice::from_yaml(&text, "d.yaml");
             assert_eq!(result.is_ok(), ok, "{x}");
             if !ok {
@@ -401,9 +409,18 @@ mod tests {
         assert!(m.contains("no entry for 1 members"), "{m}");
         // Entries for 0 and for the full scope, an impossible count, an empty list.
         for (rem, words) in [
-            ("remaining: {4: [2], 3: [1, 2], 2: [1], 1: [0, 1]}", "full scope"),
-            ("remaining: {3: [1, 2], 2: [1], 1: [0, 1], 0: [0]}", "0 members"),
-            ("remaining: {3: [1, 4], 2: [1], 1: [0, 1]}", "count 4 with 3"),
+            (
+                "remaining: {4: [2], 3: [1, 2], 2: [1], 1: [0, 1]}",
+                "full scope",
+            ),
+            (
+                "remaining: {3: [1, 2], 2: [1], 1: [0, 1], 0: [0]}",
+                "0 members",
+            ),
+            (
+                "remaining: {3: [1, 4], 2: [1], 1: [0, 1]}",
+                "count 4 with 3",
+            ),
             ("remaining: {3: [], 2: [1], 1: [0, 1]}", "is empty"),
         ] {
             let r = rules_with(rem);
@@ -415,7 +432,10 @@ mod tests {
         let r = rules_with(REMAINING);
         let text = diluted([&r[0], &r[1]], "  - {site: M0, fraction: 0.1}\n");
         let (_, _, m) = refusal(&text);
-        assert!(m.contains("cannot occur") && m.contains("for 3 members"), "{m}");
+        assert!(
+            m.contains("cannot occur") && m.contains("for 3 members"),
+            "{m}"
+        );
         let r = [
             "{kind: inward, at: up, allowed: [2], remaining: {3: [1, 2]}}",
             "{kind: inward, at: down, allowed: [2], remaining: {3: [1, 2]}}",

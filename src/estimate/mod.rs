@@ -9,6 +9,7 @@
 //! - `cite.rs`: [`Survey::cited`], the one priority order of the value to cite.
 
 mod cite;
+mod dilution;
 mod note;
 mod schedule;
 mod survey;
