@@ -1,5 +1,6 @@
-//! `groundcount exact` on a diluted lattice (`vacancies:`): exact counts of random
-//! realisations of the vacancies, their mean, spread and standard error.
+//! `groundcount exact` and `groundcount sample` on a diluted lattice (`vacancies:`): exact
+//! counts or Monte Carlo estimates of random realisations of the vacancies, their mean,
+//! spread and standard error.
 
 use std::fmt::Write;
 use std::path::Path;
@@ -7,8 +8,9 @@ use std::path::Path;
 use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
 use groundcount::context::{Context, Progress};
-use groundcount::counters::dilution::{self, DilutionConfig, Realisations};
+use groundcount::counters::dilution::{self, DilutionConfig, DilutionSampleConfig, Realisations};
 use groundcount::counters::exact::ExactConfig;
+use groundcount::counters::sampling::SampleConfig;
 use groundcount::json::EstimateOf;
 use groundcount::text::{self, sig};
 use groundcount::thermo;
@@ -24,13 +26,25 @@ struct Document<'a> {
     estimate: EstimateOf,
     /// FNV-1a hash of the lattice file's text.
     content_hash: String,
-    /// Always `frontier`: every realisation is counted by the frontier counter.
+    /// `frontier` (every realisation counted exactly by the frontier counter) or
+    /// `monte-carlo` (thermodynamic integration).
     route: &'static str,
     /// What `mean`, `spread` and `standard_error` are per.
     per: String,
     /// Realisations, mean, spread, standard error, seed.
     #[serde(flatten)]
     realisations: &'a Realisations,
+}
+
+/// How every realisation is counted.
+pub enum Counter {
+    /// Exactly, with this state budget.
+    Exact {
+        /// The state budget.
+        max_states: usize,
+    },
+    /// By thermodynamic integration with these settings.
+    Sample(SampleConfig),
 }
 
 /// Count the realisations of a diluted lattice's cell and word the result.
@@ -40,7 +54,7 @@ pub fn run(
     cells: &Cells,
     realisations: usize,
     seed: u64,
-    max_states: usize,
+    counter: Counter,
     common: &Common,
 ) -> anyhow::Result<String> {
     let c = &lattice.crystal;
@@ -67,16 +81,36 @@ pub fn run(
     } else {
         (context, None)
     };
-    let config = DilutionConfig {
-        realisations,
-        seed,
-        exact: ExactConfig {
-            max_states,
-            ..Default::default()
-        },
+    let how = match &counter {
+        Counter::Exact { .. } => "each counted exactly".to_string(),
+        Counter::Sample(s) => format!(
+            "each sampled by thermodynamic integration ({} replicas, {} sweeps per node, its own seed from seed and realisation)",
+            s.replicas, s.sweeps
+        ),
     };
-    let counted = with_threads(common.threads, || {
-        dilution::count(&cluster, &config, &context)
+    let exact = matches!(counter, Counter::Exact { .. });
+    let counted = with_threads(common.threads, || match counter {
+        Counter::Exact { max_states } => dilution::count(
+            &cluster,
+            &DilutionConfig {
+                realisations,
+                seed,
+                exact: ExactConfig {
+                    max_states,
+                    ..Default::default()
+                },
+            },
+            &context,
+        ),
+        Counter::Sample(sample) => dilution::sample(
+            &cluster,
+            &DilutionSampleConfig {
+                realisations,
+                seed,
+                sample,
+            },
+            &context,
+        ),
     });
     if let Some(b) = bar {
         b.finish_and_clear();
@@ -89,7 +123,7 @@ pub fn run(
         Format::Json => groundcount::json::to_string(&Document {
             estimate: EstimateOf::new(c, e, Some(&p)),
             content_hash: lattice.content_hash.clone(),
-            route: "frontier",
+            route: if exact { "frontier" } else { "monte-carlo" },
             per: format!("ln W per {unit} {present}"),
             realisations: r,
         })?,
@@ -100,14 +134,16 @@ pub fn run(
                 &format!("{unit} {present}"),
                 "arrangements",
                 &format!("ln W per {unit} {present}"),
+                "1σ of ln W (Monte Carlo)",
             ]);
             for x in &r.realisations {
                 t.row(vec![
                     x.index.to_string(),
                     x.vacant.to_string(),
                     text::amount(x.formula_units),
-                    x.count.to_string(),
+                    x.count.as_ref().map(|c| c.to_string()).unwrap_or_default(),
                     sig(x.ln_w_per_unit, 10),
+                    x.sigma_ln_w.map(|s| sig(s, 3)).unwrap_or_default(),
                 ]);
             }
             if common.format == Format::Csv {
@@ -116,7 +152,7 @@ pub fn run(
                 t.render_markdown()
             }
         }
-        Format::Table => table(lattice, file, &cluster, e, r, &p, &present)?,
+        Format::Table => table(lattice, file, &cluster, e, r, &p, &present, &how)?,
     };
     if r.interrupted {
         return Err(super::Partial {
@@ -141,6 +177,7 @@ fn present_words(lattice: &Lattice) -> String {
     }
 }
 
+#[allow(clippy::too_many_arguments)]
 fn table(
     lattice: &Lattice,
     file: &Path,
@@ -149,6 +186,7 @@ fn table(
     r: &Realisations,
     p: &groundcount::Estimate,
     present: &str,
+    how: &str,
 ) -> anyhow::Result<String> {
     let c = &lattice.crystal;
     let unit = &c.formula_unit.name;
@@ -174,7 +212,7 @@ fn table(
     )?;
     writeln!(
         out,
-        "{} realisations of the vacancies from seed {}, each counted exactly",
+        "{} realisations of the vacancies from seed {}, {how}",
         r.realisations.len(),
         r.seed
     )?;
@@ -183,11 +221,17 @@ fn table(
         "W = arrangements per {unit} {present}; S0 = R ln W per mole of {unit} {present}"
     )?;
     writeln!(out)?;
+    let exact = r.realisations.iter().all(|x| x.count.is_some());
+    let fourth = if exact {
+        "arrangements".to_string()
+    } else {
+        format!("1σ of ln W per {unit}")
+    };
     let mut t = text::Table::new(&[
         "realisation",
         "vacant",
         &format!("{unit} {present}"),
-        "arrangements",
+        &fourth,
         &format!("ln W per {unit}"),
     ]);
     for x in &r.realisations {
@@ -195,12 +239,29 @@ fn table(
             x.index.to_string(),
             x.vacant.to_string(),
             text::amount(x.formula_units),
-            x.count.to_string(),
+            match (&x.count, x.sigma_ln_w) {
+                (Some(c), _) => c.to_string(),
+                (None, Some(s)) => sig(s, 3),
+                (None, None) => String::new(),
+            },
             sig(x.ln_w_per_unit, 8),
         ]);
     }
     out += &t.render();
     writeln!(out)?;
+    let failed: Vec<String> = r
+        .realisations
+        .iter()
+        .filter(|x| x.equilibrated == Some(false))
+        .map(|x| x.index.to_string())
+        .collect();
+    if !failed.is_empty() {
+        writeln!(
+            out,
+            "equilibration check FAILED for realisation {}: their 1σ carries the allowance; more --sweeps would help",
+            failed.join(", ")
+        )?;
+    }
     let n = r.realisations.len();
     writeln!(
         out,
@@ -239,7 +300,12 @@ fn table(
     )?;
     writeln!(
         out,
-        "the mean is over realisations of one finite cell; the spread is the cell's sample-to-sample variation, the ± the error of the mean"
+        "the mean is over realisations of one finite cell; the spread is the cell's sample-to-sample variation{}, the ± the error of the mean",
+        if exact {
+            ""
+        } else {
+            " and the Monte Carlo noise"
+        }
     )?;
     Ok(out)
 }

@@ -71,7 +71,9 @@ pub fn run(args: Args) -> anyhow::Result<String> {
             args.realisations
                 .unwrap_or(groundcount::counters::dilution::DEFAULT_REALISATIONS),
             args.seed,
-            args.max_states,
+            super::dilution::Counter::Exact {
+                max_states: args.max_states,
+            },
             &args.common,
         );
     }
