@@ -731,6 +731,12 @@ fn frontier_matches_brute_force_on_every_lattice() {
         .filter(|n| n.ends_with(".yaml"))
         .collect();
     for name in &shipped {
+        // A diluted lattice is counted one realisation at a time; its brute-force
+        // comparison, realisation by realisation, is the library's
+        // `issue13_realisation_counts_equal_brute_force_on_tiny_cells`.
+        if load(name).crystal.is_diluted() {
+            continue;
+        }
         assert!(
             BRUTE_CASES.iter().any(|(f, _)| f == name),
             "shipped lattice {name} has no brute-force comparison"

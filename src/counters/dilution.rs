@@ -732,6 +732,43 @@ mod tests {
         assert_ne!(key(&other), key(&one));
     }
 
+    /// Ctrl-C between realisations: the finished ones make the result, marked
+    /// interrupted; with fewer than two finished there is no spread, and the run is an
+    /// [`Error::Interrupted`].
+    #[test]
+    fn issue13_an_interrupt_keeps_the_finished_realisations() {
+        let l = diluted(0.1);
+        let cl = cluster(&l, "2x2x2");
+        let config = DilutionConfig {
+            realisations: 10,
+            ..Default::default()
+        };
+        for stop_after in [3, 1] {
+            let context = Context::new();
+            let flag = context.interrupt.clone();
+            let context = context.with_observer(move |p| {
+                if let Progress::Realisation { done, .. } = p
+                    && *done == stop_after
+                {
+                    flag.raise();
+                }
+            });
+            match count(&cl, &config, &context) {
+                Ok(r) => {
+                    assert_eq!(stop_after, 3);
+                    assert!(r.interrupted);
+                    assert_eq!(r.realisations.len(), 3);
+                    assert_eq!(r.requested, 10);
+                }
+                Err(e) => {
+                    assert_eq!(stop_after, 1);
+                    assert!(matches!(e, Error::Interrupted { .. }), "{e}");
+                    assert!(e.to_string().contains("1 of 10 finished"), "{e}");
+                }
+            }
+        }
+    }
+
     /// The Monte Carlo of every realisation against its exact count (the same vacancies
     /// for the same seed): each within 4σ of its own error bar, and the same numbers on 1
     /// and 2 threads.
