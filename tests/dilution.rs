@@ -124,6 +124,13 @@ fn issue13_the_pauling_row_of_a_diluted_crystal_is_the_generalized_one() {
     assert!(estimate["bethe"].is_null());
     let notes = estimate["notes"].to_string();
     assert!(notes.contains("does not take vacancies"), "{notes}");
+    assert!(notes.contains("per formula unit present"), "{notes}");
+    // The cited value, the largest exact cell's average, is checked against the Monte
+    // Carlo of the same realisations.
+    let checks = estimate["checks"].as_array().unwrap();
+    assert_eq!(checks.len(), 1, "{checks:?}");
+    assert_eq!(checks[0]["route"]["kind"], "monte-carlo-realisations");
+    assert_eq!(checks[0]["agrees"], true, "{checks:?}");
 }
 
 #[test]

@@ -128,14 +128,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     render(&args, &lattice, &s)
 }
 
-/// What the rows of a diluted crystal's survey are, under the header.
+/// The header line of a diluted crystal's survey (the note below the table says more).
 fn diluted_words(unit: &str) -> String {
     format!(
-        "with vacancies: per {unit} present (a vacant site is no formula unit, as in Ke et al. \
-         2007); Pauling = the generalized Pauling estimate averaged over the vacancies; each \
-         exact row = the mean of ln W over {} random realisations of the vacancies of that \
-         cell, 1σ = the standard error of that mean; units = formula units present, on average",
-        groundcount::counters::dilution::DEFAULT_REALISATIONS
+        "with vacancies: W per {unit} present, S0 per mole of {unit} present; exact rows are \
+         means over random realisations (see the note below)"
     )
 }
 
@@ -184,9 +181,7 @@ fn render(
         Format::Markdown => {
             let mut out = table.render_markdown();
             writeln!(out)?;
-            if c.is_diluted() {
-                writeln!(out, "{}\n", diluted_words(&unit))?;
-            }
+
             if s.checks.is_empty() {
                 writeln!(out, "cross-checks: none computed in this run\n")?;
             } else {
