@@ -891,8 +891,8 @@ mod tests {
     /// standard errors. Why: these cells are small (72 and 108 sites) and overshoot the
     /// infinite crystal; undiluted, 3x3x2 lies 12 % and 3x3x3 8.6 % above Pauling's
     /// (1/2) ln(3/2) (exact counts of spin-ice.yaml: 0.22734 and 0.22009 per Dy), while
-    /// the infinite crystal itself lies 1.4 % above it (Singh & Oitmaa 2012, Phys. Rev. B
-    /// 85, 144414, numerical linked clusters: 0.205507). Measured here: 0.1 on 3x3x2,
+    /// the infinite crystal itself lies 1.4 % above it (Singh & Oitmaa 2012, arXiv:1112.4439,
+    /// numerical linked clusters: 0.205507; the journal, Phys. Rev. B 85, 144414, from memory). Measured here: 0.1 on 3x3x2,
     /// 0.3 and 0.5 on 3x3x3 agreed to within 1–6 %.
     #[test]
     fn issue13_realisation_average_is_close_to_the_generalized_pauling_curve() {
