@@ -68,6 +68,13 @@ pub enum Progress {
     },
     /// One Monte Carlo replica (or Wang–Landau walk) finished.
     Replica,
+    /// One realisation of the vacancies of a diluted cell was counted.
+    Realisation {
+        /// Realisations counted.
+        done: usize,
+        /// Realisations asked for.
+        all: usize,
+    },
 }
 
 /// A callback told every [`Progress`] event, from whatever thread the work runs on.

@@ -54,6 +54,15 @@ pub enum Route {
         /// The cell, as written.
         cells: String,
     },
+    /// The Monte Carlo of the same realisations of the vacancies of a diluted cell (the
+    /// tolerance from the realisations' Monte Carlo errors alone, since both routes count
+    /// the same realisations).
+    MonteCarloRealisations {
+        /// The cell, as written.
+        cells: String,
+        /// Realisations compared.
+        realisations: usize,
+    },
 }
 
 /// One comparison of a value with a second route, both as ln W per formula unit (ln λ per

@@ -34,6 +34,8 @@ enum Read {
     Scope(usize),
     /// A pinned variable held at this state.
     Held(u32),
+    /// A vacant site: no variable, no value; the rule counts the members that remain.
+    Vacant,
 }
 
 /// One variable.
@@ -158,9 +160,42 @@ pub struct Model {
 }
 
 impl Model {
-    /// Compile a cluster's rules.
+    /// Compile a cluster's rules. A crystal with vacancies (a diluted crystal) is refused
+    /// ([`Error::Model`]): its cells are counted one realisation at a time
+    /// ([`Model::with_vacancies`]).
     pub fn new(cluster: &Cluster) -> Result<Model> {
+        if cluster.crystal.is_diluted() {
+            return Err(Error::Model(format!(
+                "{} has sites that may be vacant: a cell is counted one realisation of its \
+                 vacancies at a time, and the result is the average over realisations",
+                cluster.crystal.name
+            )));
+        }
+        Self::compile(cluster, &[])
+    }
+
+    /// Compile the rules of one realisation of a diluted cluster: `vacant[i]` says whether
+    /// the cluster's site `i` is empty. A vacant site keeps its place in the numbering but
+    /// holds one state (no freedom, nothing to ln Ω) and is read by no constraint; every
+    /// rule instance that reads it applies the crystal's `remaining` counts for the members
+    /// left ([`crate::crystal::Rule::allows_with_vacancies`]). `vacant` must have one entry
+    /// per cluster site ([`Error::Model`] otherwise).
+    pub fn with_vacancies(cluster: &Cluster, vacant: &[bool]) -> Result<Model> {
+        if vacant.len() != cluster.sites.len() {
+            return Err(Error::Model(format!(
+                "a realisation of vacancies names {} sites, but the cell {} has {}",
+                vacant.len(),
+                cluster.cells,
+                cluster.sites.len()
+            )));
+        }
+        Self::compile(cluster, vacant)
+    }
+
+    /// [`Model::new`] with the sites marked in `vacant` empty (none when it is empty).
+    fn compile(cluster: &Cluster, vacant: &[bool]) -> Result<Model> {
         let crystal = cluster.crystal;
+        let is_vacant = |i: usize| vacant.get(i).copied().unwrap_or(false);
         let site_var = crystal.site_variables.map(|k| k.states());
         let bond_var = crystal.bond_variables.map(|k| k.states());
         let mut variables = Vec::new();
@@ -185,7 +220,7 @@ impl Model {
             for (i, s) in cluster.sites.iter().enumerate() {
                 let h = held(Target::Sites, s.site);
                 variables.push(Variable {
-                    states: if h.is_some() { 1 } else { q },
+                    states: if h.is_some() || is_vacant(i) { 1 } else { q },
                     held: h,
                     weights: weights(Target::Sites, s.site, h),
                     position: cluster.site_position(i),
@@ -244,6 +279,12 @@ impl Model {
                     let mut local: Vec<(Read, u32)> = Vec::with_capacity(occ.len());
                     let mut repeats = false;
                     for &(v, w) in &occ {
+                        if site_offset.is_some_and(|o| v >= o && is_vacant(v - o))
+                            && rule.target == Target::Sites
+                        {
+                            local.push((Read::Vacant, w));
+                            continue;
+                        }
                         if let Some(h) = variables[v].held {
                             local.push((Read::Held(h), w));
                             continue;
@@ -387,6 +428,8 @@ fn compile_table(
     let mut bits = vec![0u64; size.div_ceil(64) as usize];
     let mut values = vec![0u32; radices.len()];
     let mut occ_values = vec![0u32; local.len()];
+    let vacant: Vec<bool> = local.iter().map(|&(r, _)| r == Read::Vacant).collect();
+    let diluted = vacant.iter().any(|&v| v);
     let mut allowed = 0;
     for index in 0..size {
         let mut rest = index;
@@ -398,9 +441,23 @@ fn compile_table(
             *o = match read {
                 Read::Scope(p) => values[p],
                 Read::Held(h) => h,
+                Read::Vacant => 0,
             };
         }
-        if rule.allows(&inward, &occ_values) {
+        let allows = if diluted {
+            rule.allows_with_vacancies(&vacant, &inward, &occ_values)
+                .ok_or_else(|| {
+                    format!(
+                        "rule '{}' at {label} keeps {} of its members here (vacancies and an open \
+                         boundary together); `remaining` has no entry for that number",
+                        rule.label,
+                        vacant.iter().filter(|v| !**v).count()
+                    )
+                })?
+        } else {
+            rule.allows(&inward, &occ_values)
+        };
+        if allows {
             bits[(index >> 6) as usize] |= 1 << (index & 63);
             allowed += 1;
         }

@@ -63,6 +63,10 @@ pub struct LatticeSpec {
     /// Fixed global fractions of a state over sets of sites or bonds (canonical).
     #[serde(default)]
     pub composition: Vec<CompositionSpec>,
+    /// Sites that may be vacant (a diluted crystal): each listed site independently empty
+    /// with the given probability in every realisation.
+    #[serde(default)]
+    pub vacancies: Vec<VacancySpec>,
 }
 
 /// One entry of `weights:`: the relative weights of the states of every variable on a site
@@ -111,6 +115,17 @@ pub struct CompositionSpec {
     /// The state whose fraction is fixed.
     pub state: Located<u32>,
     /// The fraction, between 0 and 1 exclusive.
+    pub fraction: Located<f64>,
+}
+
+/// One entry of `vacancies:`: every site of this id or species is vacant with probability
+/// `fraction` (0 ≤ fraction < 1), independently of every other site.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct VacancySpec {
+    /// Site id or species.
+    pub site: Located<String>,
+    /// Probability that such a site is vacant.
     pub fraction: Located<f64>,
 }
 
@@ -238,6 +253,10 @@ pub struct RuleSpec {
     /// Restrict an `at: sites` rule to these site ids or species.
     #[serde(default)]
     pub only: Option<Located<Vec<String>>>,
+    /// With `vacancies:`, the allowed counts for each number of members that remain when
+    /// some are vacant (`{3: [1, 2], 2: [1], 1: [0, 1]}`); `allowed` holds the full scope's.
+    #[serde(default)]
+    pub remaining: Option<Located<std::collections::BTreeMap<u32, Vec<u32>>>>,
 }
 
 /// What one formula unit is.

@@ -460,6 +460,10 @@ pub fn route_words(route: &Route) -> String {
         }
         Route::ExactCount { cells } => format!("exact count, {cells}"),
         Route::WangLandau { cells } => format!("Wang–Landau, {cells}"),
+        Route::MonteCarloRealisations {
+            cells,
+            realisations,
+        } => format!("Monte Carlo of the same {realisations} realisations, {cells}"),
         Route::NeighbourSectors { width } => {
             format!("≥ neighbouring sectors, width {width}")
         }
@@ -713,6 +717,13 @@ fn sector_words(s: &SectorWidths) -> String {
 /// ([`hint_words`], or the binary's words that name its commands).
 pub fn note_words(note: &Note, hint: &dyn Fn(Hint) -> String) -> String {
     match note {
+        Note::Diluted { realisations } => format!(
+            "with vacancies: values are per formula unit present (a vacant site is no formula \
+             unit, as in Ke et al. 2007); Pauling's row is the generalized Pauling estimate \
+             averaged over the vacancies; each exact row is the mean of ln W over \
+             {realisations} random realisations of the vacancies of that cell, its 1σ the \
+             standard error of that mean, its units the mean number of formula units present"
+        ),
         Note::BetheLeftOut { error } => format!("Bethe approximation left out: {error}"),
         Note::Unweighted { method } => format!(
             "{method} left out: it cannot yet take the weights, occupancies or compositions of this file"

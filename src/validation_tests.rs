@@ -1414,3 +1414,129 @@ fn issue11_formula_units_per_cell_between_0_01_and_1e6() {
     accepted(&per("cell, count: 0.01"));
     accepted(&per("cell, count: 1e6"));
 }
+
+/// [`SPIN_ICE`] with `remaining:` on its rule and the `vacancies:` entries given.
+fn diluted(remaining: &str, vacancies: &str) -> String {
+    with(
+        SPIN_ICE,
+        &[
+            ("allowed: [2]}", &format!("allowed: [2]{remaining}}}")),
+            (
+                "formula_unit: {name: Dy, per: sites}\n",
+                &format!("formula_unit: {{name: Dy, per: sites}}\nvacancies:\n{vacancies}"),
+            ),
+        ],
+    )
+}
+
+const REMAINING: &str = ", remaining: {3: [1, 2], 2: [1], 1: [0, 1]}";
+
+#[test]
+fn issue13_vacancy_fraction_from_0_up_to_but_not_including_1() {
+    for (x, shown) in [
+        ("-0.001", "-0.001"),
+        ("1", "1"),
+        ("1.5", "1.5"),
+        (".nan", "NaN (not a number)"),
+        (".inf", "infinity"),
+        ("-.inf", "-infinity"),
+    ] {
+        invalid(&diluted(
+            REMAINING,
+            &format!("  - {{site: Dy, fraction: {x}}}\n"),
+        ))
+        .at(&format!("fraction: »{x}"))
+        .found(&format!("vacancy fraction {shown} is out of range"))
+        .expected("expected a probability from 0 up to (not including) 1");
+    }
+    accepted(&diluted(REMAINING, "  - {site: Dy, fraction: 0}\n"));
+    accepted(&diluted(REMAINING, "  - {site: Dy, fraction: 0.999}\n"));
+    // Not a number at all: the parser's stage, in the file's words.
+    syntax(&diluted(REMAINING, "  - {site: Dy, fraction: many}\n"))
+        .at("fraction: »many")
+        .expected("expected a number");
+    syntax(&diluted(REMAINING, "  - {site: Dy, share: 0.1}\n"))
+        .expected("expected one of site, fraction");
+}
+
+#[test]
+fn issue13_vacancies_name_sites_that_carry_variables_once() {
+    invalid(&diluted(REMAINING, "  - {site: Ti, fraction: 0.1}\n"))
+        .at("site: »Ti")
+        .found("'Ti', which is no site id or species");
+    invalid(&diluted(
+        REMAINING,
+        "  - {site: Dy, fraction: 0.1}\n  - {site: M2, fraction: 0.2}\n",
+    ))
+    .at("{site: »M2, fraction: 0.2}")
+    .found("site 'M2' is listed in `vacancies` by an earlier entry")
+    .expected("expected one entry per site");
+    invalid(&with(
+        SQUARE_ICE,
+        &[(
+            "formula_unit: {name: H2O, per: sites}\n",
+            "formula_unit: {name: H2O, per: sites}\nvacancies: [{site: O, fraction: 0.1}]\n",
+        )],
+    ))
+    .at("site: »O, fraction")
+    .found("declares no variables on sites");
+}
+
+#[test]
+fn issue13_remaining_counts_for_every_number_of_members_that_can_remain() {
+    let v = "  - {site: Dy, fraction: 0.1}\n";
+    // None at all: pointed at the rule, with what is expected.
+    invalid(&diluted("", v))
+        .at("{kind: »inward, at: up")
+        .expected("expected `remaining:` with the allowed counts for 1, 2, 3 remaining members");
+    // One number missing, on both sides: 1 member and 3 members.
+    invalid(&diluted(", remaining: {3: [1, 2], 2: [1]}", v))
+        .at("remaining: »{3: [1, 2], 2: [1]}")
+        .found("no entry for 1 members")
+        .expected("expected entries for 1, 2, 3 members");
+    invalid(&diluted(", remaining: {2: [1], 1: [0, 1]}", v)).found("no entry for 3 members");
+    // Numbers that cannot be a remainder: 0 (imposes nothing) and the full scope (4).
+    invalid(&diluted(
+        ", remaining: {3: [1, 2], 2: [1], 1: [0, 1], 0: [0]}",
+        v,
+    ))
+    .found("an entry for 0 members");
+    invalid(&diluted(
+        ", remaining: {4: [2], 3: [1, 2], 2: [1], 1: [0, 1]}",
+        v,
+    ))
+    .found("an entry for 4 members, but the rule's scope has 4")
+    .expected("the full scope's counts are `allowed`");
+    // Counts from 0 to n: n is accepted, n + 1 refused; an empty list is refused.
+    accepted(&diluted(", remaining: {3: [3], 2: [2], 1: [1]}", v));
+    invalid(&diluted(", remaining: {3: [4], 2: [1], 1: [0, 1]}", v))
+        .found("allows the count 4 with 3 members")
+        .expected("expected counts from 0 to 3");
+    invalid(&diluted(", remaining: {3: [], 2: [1], 1: [0, 1]}", v)).found("is empty");
+    // Only one member of each tetrahedron may be vacant: only 3 members can remain.
+    accepted(&diluted(
+        ", remaining: {3: [1, 2]}",
+        "  - {site: M0, fraction: 0.1}\n",
+    ));
+    invalid(&diluted(REMAINING, "  - {site: M0, fraction: 0.1}\n"))
+        .found("an entry for 1 members, which cannot occur")
+        .expected("expected entries for 3 members");
+    // `remaining` on a rule whose members are never vacant.
+    invalid(&with(
+        SQUARE_ICE,
+        &[("allowed: [2]}", "allowed: [2], remaining: {1: [0, 1]}}")],
+    ))
+    .at("remaining: »{1: [0, 1]}")
+    .found("reads no site listed in `vacancies`");
+    // A rule kind with no counts to give for fewer members.
+    invalid(&with(
+        TRIANGLES,
+        &[(
+            "formula_unit: {name: spin, per: sites}\n",
+            "formula_unit: {name: spin, per: sites}\nvacancies: [{site: S, fraction: 0.1}]\n",
+        )],
+    ))
+    .at("{kind: »not-all-equal")
+    .found("reads sites that may be vacant")
+    .expected("counting rules (inward, occupied)");
+}

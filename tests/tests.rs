@@ -6,6 +6,7 @@ mod calorimetry;
 mod cif;
 mod cli_errors;
 mod counts;
+mod dilution;
 mod estimate;
 mod fuzz;
 mod json;

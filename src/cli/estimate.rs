@@ -128,6 +128,14 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     render(&args, &lattice, &s)
 }
 
+/// The header line of a diluted crystal's survey (the note below the table says more).
+fn diluted_words(unit: &str) -> String {
+    format!(
+        "with vacancies: W per {unit} present, S0 per mole of {unit} present; exact rows are \
+         means over random realisations (see the note below)"
+    )
+}
+
 /// The output of a finished (or interrupted) survey.
 fn render(
     args: &Args,
@@ -173,6 +181,7 @@ fn render(
         Format::Markdown => {
             let mut out = table.render_markdown();
             writeln!(out)?;
+
             if s.checks.is_empty() {
                 writeln!(out, "cross-checks: none computed in this run\n")?;
             } else {
@@ -198,6 +207,9 @@ fn render(
                  W = arrangements per {unit}; S0 = R ln W per mole of {unit}",
                 c.formula_unit.describe()
             )?;
+            if c.is_diluted() {
+                writeln!(out, "{}", diluted_words(&unit))?;
+            }
             writeln!(out)?;
             out += &table.render();
             writeln!(out)?;

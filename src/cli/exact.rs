@@ -45,6 +45,14 @@ pub struct Args {
     /// Largest number of partial states the counter may hold at once.
     #[arg(long, default_value_t = exact::DEFAULT_MAX_STATES)]
     max_states: usize,
+    /// For a lattice with vacancies: random realisations of the vacancies to count
+    /// (default 16); the result is the mean of ln W over them, with their spread.
+    #[arg(long, value_name = "N")]
+    realisations: Option<usize>,
+    /// For a lattice with vacancies: seed of the realisations (realisation r is the same on
+    /// any thread count).
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
     #[command(flatten)]
     common: Common,
 }
@@ -55,6 +63,26 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     let cells = super::words::cells("--cells", &args.cells, args.open.as_deref(), c.dimensions)?;
     // A cell too wide for the frontier is refused before it is built.
     exact::check_cell(c, &cells)?;
+    if c.is_diluted() {
+        return super::dilution::run(
+            &lattice,
+            &args.file,
+            &cells,
+            args.realisations
+                .unwrap_or(groundcount::counters::dilution::DEFAULT_REALISATIONS),
+            args.seed,
+            super::dilution::Counter::Exact {
+                max_states: args.max_states,
+            },
+            &args.common,
+        );
+    }
+    if args.realisations.is_some() {
+        anyhow::bail!(
+            "--realisations applies to a lattice with vacancies (`vacancies:` with a fraction above 0); {} has none",
+            args.file.display()
+        );
+    }
     // Pauling's estimate beside the count; a Pauling counter that cannot yet weigh is left
     // out of a weighted file's output rather than compared with a different quantity.
     let p = match super::pauling(c) {

@@ -340,11 +340,30 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         } else {
             format!(", allowed {:?}", r.counts)
         };
+        let remaining: Vec<String> = r
+            .remaining
+            .iter()
+            .rev()
+            .map(|(n, c)| format!("{} {c:?}", plural(*n as usize, "member")))
+            .collect();
+        let remaining = if remaining.is_empty() {
+            String::new()
+        } else {
+            format!("; with vacancies {}", remaining.join(", "))
+        };
         writeln!(
             out,
-            "rule: {}{allowed} ({} per cell)",
+            "rule: {}{allowed}{remaining} ({} per cell)",
             r.label,
             r.instances.len()
+        )?;
+    }
+    for v in &c.vacancies {
+        writeln!(
+            out,
+            "vacancies: site {} vacant with probability {}",
+            c.sites[v.site].id,
+            sig(v.fraction, 6)
         )?;
     }
     for p in &c.pinned {
@@ -387,9 +406,17 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         text::amount(units_per_cell)
     )?;
     writeln!(out)?;
+    let (which, present) = if c.is_diluted() {
+        (
+            "Generalized Pauling estimate (averaged over the vacancies; Ke et al. 2007)",
+            " present",
+        )
+    } else {
+        ("Pauling estimate", "")
+    };
     writeln!(
         out,
-        "Pauling estimate: W = {} per {unit}, S0 = {} R = {} J/(mol K) per mole of {unit}",
+        "{which}: W = {} per {unit}{present}, S0 = {} R = {} J/(mol K) per mole of {unit}{present}",
         sig(p.w_per_unit(), 10),
         sig(p.s_over_r(), 8),
         sig(p.s_j_per_mol_k(), 6)

@@ -7,6 +7,7 @@
 //! ([`Partial`]); so do `estimate` and `report` when interrupted.
 
 mod calorimetry;
+mod dilution;
 mod estimate;
 mod exact;
 mod import;

@@ -106,6 +106,15 @@ pub fn run(args: Args) -> anyhow::Result<String> {
     super::check_budget(args.budget)?;
     let lattice = load(args.file.as_deref(), args.block.as_deref())?;
     let c = &lattice.crystal;
+    if c.is_diluted() {
+        // The report's sentences speak of one exact count and of Pauling's estimate; a
+        // realisation average needs other words.
+        anyhow::bail!(
+            "report does not describe a crystal with vacancies yet; `groundcount estimate` and \
+             `groundcount exact` give the generalized Pauling estimate and the averages over \
+             realisations"
+        );
+    }
     let widths = match &args.widths {
         Some(w) => Some(super::strip::parse_widths(w, 1)?),
         None => None,

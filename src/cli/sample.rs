@@ -93,8 +93,46 @@ pub struct Args {
     /// The shard file to write (with --shard).
     #[arg(long, value_name = "FILE", requires = "shard")]
     out: Option<PathBuf>,
+    /// For a lattice with vacancies: random realisations of the vacancies to sample
+    /// (default 16); the result is the mean of ln W over them, with their spread.
+    #[arg(long, value_name = "N")]
+    realisations: Option<usize>,
     #[command(flatten)]
     common: Common,
+}
+
+/// `sample` on a diluted lattice: one cell, thermodynamic integration per realisation.
+fn diluted(
+    args: &Args,
+    lattice: &Lattice,
+    sizes: &[Cells],
+    config: sampling::SampleConfig,
+) -> anyhow::Result<String> {
+    if args.shard.is_some() {
+        anyhow::bail!(
+            "--shard does not split the realisations of a lattice with vacancies yet; run the cell whole"
+        );
+    }
+    if args.target_error.is_some() {
+        anyhow::bail!(
+            "--target-error does not apply to a lattice with vacancies: its error comes from the spread between realisations (raise --realisations)"
+        );
+    }
+    if sizes.len() > 1 {
+        anyhow::bail!(
+            "--cells: a lattice with vacancies is sampled one cell at a time (no extrapolation over sizes yet); give one size"
+        );
+    }
+    super::dilution::run(
+        lattice,
+        &args.file,
+        &sizes[0],
+        args.realisations
+            .unwrap_or(groundcount::counters::dilution::DEFAULT_REALISATIONS),
+        args.seed,
+        super::dilution::Counter::Sample(config),
+        &args.common,
+    )
 }
 
 pub fn run(args: Args) -> anyhow::Result<String> {
@@ -114,6 +152,11 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         anyhow::bail!("--target-error must be a positive number, not {t}");
     }
     if args.method == Sampler::WangLandau {
+        if c.is_diluted() {
+            anyhow::bail!(
+                "--method wang-landau does not take vacancies yet; a lattice with vacancies is sampled by thermodynamic integration"
+            );
+        }
         return run_wang_landau(&args, &lattice, &sizes);
     }
     let fields = fields_for(&args, c)?;
@@ -137,6 +180,15 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         max_extensions: args.max_extensions,
         fields,
     };
+    if c.is_diluted() {
+        return diluted(&args, &lattice, &sizes, config);
+    }
+    if args.realisations.is_some() {
+        anyhow::bail!(
+            "--realisations applies to a lattice with vacancies (`vacancies:` with a fraction above 0); {} has none",
+            args.file.display()
+        );
+    }
     let shown = Shown {
         file: args.file.display().to_string(),
         nodes: args.nodes,

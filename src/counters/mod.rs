@@ -25,6 +25,7 @@
 //! | strips | [`transfer::count`] | crystal | [`transfer::StripConfig`] | [`transfer::StripSeries`] |
 //! | Monte Carlo | [`sampling::count`] | model | [`sampling::SampleConfig`] | [`sampling::Sampled`] |
 //! | Wang–Landau | [`sampling::wang_landau::count`] | model | [`sampling::wang_landau::WangLandauConfig`] | [`sampling::wang_landau::WangLandau`] |
+//! | realisation average (diluted) | [`dilution::count`] | cluster | [`dilution::DilutionConfig`] | [`dilution::Realisations`] |
 //! | size extrapolation | [`sampling::size::count`] | sampled estimates | `()` | [`sampling::size::SizeFit`] |
 //!
 //! The conjugate fields of imposed means (`occupancy:`, `composition:`) are solved by
@@ -35,6 +36,7 @@
 
 pub mod bethe;
 pub mod brute;
+pub mod dilution;
 pub mod exact;
 mod exact_weighted;
 pub mod extrapolate;
@@ -127,5 +129,10 @@ mod tests {
         ) -> Result<Counted<sampling::wang_landau::WangLandau>> = sampling::wang_landau::count;
         let _: fn(&[Estimate], &(), &Context) -> Result<Counted<sampling::size::SizeFit>> =
             sampling::size::count;
+        let _: fn(
+            &crate::cluster::Cluster,
+            &dilution::DilutionConfig,
+            &Context,
+        ) -> Result<Counted<dilution::Realisations>> = dilution::count;
     }
 }

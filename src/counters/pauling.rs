@@ -44,6 +44,10 @@
 //! and fields included) and, per mean, the field and the mean reached (the target, up to
 //! the solver's tolerance).
 //!
+//! For a diluted crystal (`vacancies:`) the product is averaged over the vacancies: the
+//! generalized Pauling estimate of Ke et al. 2007 (Phys. Rev. Lett. 99, 137203), per
+//! formula unit present ([`super::dilution::generalized_pauling_ln_w`]).
+//!
 //! # Arguments and returns
 //!
 //! [`count`] takes a crystal (no settings) and returns an [`Estimate`] for the infinite
@@ -89,29 +93,36 @@ use crate::estimate::{Estimate, Method};
 /// ```
 pub fn count(crystal: &Crystal, _config: &(), _context: &Context) -> Result<Counted<()>> {
     let start = Instant::now();
-    let model = tree_free_model(crystal)?;
-    if model.is_weighted() {
-        // The fields put every variable independently at its target means; Pauling's form is
-        // then evaluated at those single-variable distributions.
-        let (entropy, weighing) = weighted_estimate(
-            &model,
-            &FieldsConfig::default(),
-            |lp| Ok(independent(lp)),
-            |lp| Ok(pauling_weighted(&model, lp)),
-        )?;
-        return Ok(Counted::plain(
-            Estimate::infinite(
-                Method::Pauling,
-                entropy,
-                None,
-                start.elapsed().as_secs_f64(),
-            )
-            .with_weighing(weighing),
-        ));
-    }
+    // A diluted crystal: the product averaged over the vacancies, per formula unit present
+    // (vacancies are not combined with weights: the crystal refuses the pair).
+    let ln_w = if crystal.is_diluted() {
+        super::dilution::generalized_pauling_ln_w(crystal)
+    } else {
+        let model = tree_free_model(crystal)?;
+        if model.is_weighted() {
+            // The fields put every variable independently at its target means; Pauling's
+            // form is then evaluated at those single-variable distributions.
+            let (entropy, weighing) = weighted_estimate(
+                &model,
+                &FieldsConfig::default(),
+                |lp| Ok(independent(lp)),
+                |lp| Ok(pauling_weighted(&model, lp)),
+            )?;
+            return Ok(Counted::plain(
+                Estimate::infinite(
+                    Method::Pauling,
+                    entropy,
+                    None,
+                    start.elapsed().as_secs_f64(),
+                )
+                .with_weighing(weighing),
+            ));
+        }
+        pauling_ln_w(&model)
+    };
     Ok(Counted::plain(Estimate::infinite(
         Method::Pauling,
-        pauling_ln_w(&model),
+        ln_w,
         None,
         start.elapsed().as_secs_f64(),
     )))

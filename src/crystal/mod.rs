@@ -11,17 +11,21 @@
 //! geometry (positions, distances, the bonds of a distance window, the largest shift in
 //! use); `rules.rs` the meaning of every rule kind ([`Rule::allows`]) and the expansion of a
 //! rule into its instances; `pins.rs` the variables held at one state (`pinned:`); `weights.rs` the
-//! weights of states and the means imposed on them (`weights:`, `occupancy:`, `composition:`).
+//! weights of states and the means imposed on them (`weights:`, `occupancy:`, `composition:`);
+//! `vacancies.rs` the sites that may be vacant (`vacancies:`) and each rule's allowed counts
+//! for fewer remaining members (`remaining:`).
 
 mod geometry;
 mod pins;
 mod rules;
 mod types;
+mod vacancies;
 mod validate;
 mod weights;
 
 pub use rules::Rule;
 pub use types::*;
+pub use vacancies::{MAX_VACANT_SLOTS, Vacancy};
 pub use validate::{
     LENGTH_RANGE, MAX_FRACTION, MAX_PROBE_ENTITIES, MAX_SHIFT, MAX_SITES, MAX_WINDOW_CANDIDATES,
     MAX_WINDOW_COORDINATION, UNITS_PER_CELL_RANGE, number_word,
@@ -62,6 +66,8 @@ pub struct Crystal {
     pub weights: Vec<Weight>,
     /// Means imposed on states (`occupancy:` and `composition:`), in file order.
     pub means: Vec<MeanTarget>,
+    /// Sites that may be vacant (`vacancies:`), sorted by site, at most one per site.
+    pub vacancies: Vec<Vacancy>,
 }
 
 impl Crystal {

@@ -29,6 +29,9 @@ pub struct Rule {
     pub position: Position,
     /// "inward at sites", for messages.
     pub label: String,
+    /// With vacancies: the allowed counts for each number of remaining members, below the
+    /// full scope (`remaining:` in the file; empty when the rule reads no vacant-able site).
+    pub remaining: std::collections::BTreeMap<u32, Vec<u32>>,
 }
 
 impl Rule {
@@ -450,6 +453,7 @@ impl Crystal {
             instances,
             position: position_of(&r.kind),
             label,
+            remaining: Default::default(),
         })
     }
 }

@@ -261,6 +261,7 @@ impl Crystal {
             pinned: Vec::new(),
             weights: Vec::new(),
             means: Vec::new(),
+            vacancies: Vec::new(),
         };
         let site_index = |name: &Located<String>| -> Result<usize> {
             crystal
@@ -639,6 +640,19 @@ impl Crystal {
         crystal.pinned = crystal.validate_pins(&spec.pinned, &ck)?;
         crystal.weights = crystal.validate_weights(&spec.weights, &ck)?;
         crystal.means = crystal.validate_means(&spec.occupancy, &spec.composition, &ck)?;
+        crystal.validate_vacancies(&spec, &ck)?;
+        if crystal.is_diluted() && crystal.is_weighted() {
+            let at = spec
+                .vacancies
+                .first()
+                .map(|v| crate::spec::position_of(&v.site))
+                .unwrap_or_default();
+            return ck.err(
+                at,
+                "`vacancies` cannot yet be combined with `weights`, `occupancy` or `composition`: \
+                 count the diluted crystal or the weighted one",
+            );
+        }
         crystal.check_probe_size(&spec, &ck)?;
         Ok(crystal)
     }

@@ -10,6 +10,7 @@
 //! - `weighing.rs`: [`Weighing`], ln Z and the fields of a weighted estimate.
 
 mod cite;
+mod dilution;
 mod note;
 mod schedule;
 mod survey;

@@ -43,6 +43,12 @@ pub struct SectorWidths {
 #[derive(Clone, Debug, PartialEq)]
 #[non_exhaustive]
 pub enum Note {
+    /// A diluted crystal: every exact row is a mean over random realisations of the
+    /// vacancies, per formula unit present; Pauling's row is the generalized estimate.
+    Diluted {
+        /// Realisations per cell.
+        realisations: usize,
+    },
     /// The Bethe approximation did not settle (the error in words).
     BetheLeftOut {
         /// Why.

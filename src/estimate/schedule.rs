@@ -70,6 +70,10 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
             config.budget
         )));
     }
+    // A diluted crystal: counts averaged over realisations of its vacancies.
+    if c.is_diluted() {
+        return super::dilution::survey(c, config, context);
+    }
     let tell = |p: Progress| context.tell(p);
     let pauling = pauling::count(c, &(), context)?.estimate;
     let mut notes = Vec::new();
