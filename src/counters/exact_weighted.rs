@@ -99,10 +99,7 @@ pub(super) fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
         )));
     }
     if model.contradiction.is_some() {
-        return Err(Error::Model(format!(
-            "no arrangement of {} satisfies the rules, so its weighted ensemble is empty",
-            model.cells
-        )));
+        return Err(empty(model));
     }
     let plan = checked_plan(model, config, None)?;
     let sizes: Vec<f64> = model
@@ -132,10 +129,7 @@ pub(super) fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
         (solved.fields, at)
     };
     if !at.ln_z.is_finite() {
-        return Err(Error::Model(format!(
-            "every arrangement of {} that the rules allow has weight 0",
-            model.cells
-        )));
+        return Err(empty(model));
     }
     let fu = model.formula_units;
     let s = at.ln_z - at.ln_w;
@@ -165,6 +159,16 @@ pub(super) fn count(model: &Model, config: &ExactConfig) -> Result<Estimate> {
     )
     .with_peak_states(Some(at.peak))
     .with_weighing(weighing))
+}
+
+/// The refusal of a cell whose weighted ensemble is empty.
+fn empty(model: &Model) -> Error {
+    Error::Model(format!(
+        "no arrangement of {} satisfies the rules with a nonzero weight (the plain count is 0, \
+         or every allowed arrangement holds a state of weight 0), so its weighted ensemble is \
+         empty and has no entropy",
+        model.cells
+    ))
 }
 
 /// The factors `[w, ln w, n_1, …]` of every state of every variable at fields `h`: the
@@ -326,6 +330,9 @@ fn run_moments<const K: usize>(
                 *a += b;
             }
         }
+    }
+    if total[0] <= 0.0 {
+        return Err(Failure::Stop(empty(model)));
     }
     // Free variables, in closed form: their factor sums multiply Z.
     let mut ln_z = total[0].ln() + ln_scale;
@@ -722,6 +729,15 @@ formula_unit: {name: site, per: sites}
             last = e.ln_w_per_unit;
         }
         assert!(last < 0.1, "{last}");
+        // An open ice cell has no arrangement (inward rules at cut sites): refused in words.
+        let text = format!("{SQUARE_ICE}\n{}", occ(0.6));
+        let l = Lattice::from_yaml(&text, "t.yaml").unwrap();
+        let open = Cells::parse("3x3", Some("a,b"), 2).unwrap();
+        let err = l.count_exact(&open, &ExactConfig::default()).unwrap_err();
+        assert!(
+            err.to_string().contains("no arrangement of 3x3 open"),
+            "{err}"
+        );
     }
 
     /// Hard squares at a fixed density (4 particles on the 4x4 torus) and square-lattice
