@@ -373,6 +373,43 @@ pub(crate) mod tests {
         assert!((o.ln_w_per_unit - p.ln_w_per_unit).abs() < 1e-8);
     }
 
+    /// A composition over both bond families of square ice at 0.7 and occupancies of 0.7 on
+    /// each family are the same ensemble here (the two families are alike, so the
+    /// maximum-entropy split of the fixed fraction is even): the same Pauling and Bethe
+    /// values, and Pauling's is the closed form above with a = b = 0.7.
+    #[test]
+    fn issue13_composition_and_occupancy_agree_in_the_infinite_crystal() {
+        let square = include_str!("../../lattices/square-ice.yaml");
+        let comp =
+            format!("{square}composition:\n  - {{bonds: [h, v], state: 1, fraction: 0.7}}\n");
+        let occ = format!(
+            "{square}occupancy:\n  - {{bond: h, state: 1, mean: 0.7}}\n  - {{bond: v, state: 1, mean: 0.7}}\n"
+        );
+        let (c, o) = (
+            Lattice::from_yaml(&comp, "c.yaml").unwrap(),
+            Lattice::from_yaml(&occ, "o.yaml").unwrap(),
+        );
+        let pc = estimate(&c.crystal).unwrap();
+        let po = estimate(&o.crystal).unwrap();
+        let a = 0.7f64;
+        let h = -a * a.ln() - (1.0 - a) * (1.0 - a).ln();
+        let p_o = 2.0 * (a * (1.0 - a)).powi(2) + (a * a + (1.0 - a).powi(2)).powi(2);
+        assert!((pc.ln_w_per_unit - (2.0 * h + p_o.ln())).abs() < 1e-9);
+        assert!((pc.ln_w_per_unit - po.ln_w_per_unit).abs() < 1e-9);
+        let w = pc.weighing.unwrap();
+        assert_eq!(w.fields[0].kind, crate::crystal::MeanKind::Composition);
+        assert!((w.fields[0].achieved - 0.7).abs() < 1e-9);
+        let bethe = |l: &Lattice| {
+            crate::counters::bethe::count(&l.crystal, &Default::default(), &Context::new())
+                .unwrap()
+                .estimate
+                .ln_w_per_unit
+        };
+        let (bc, bo) = (bethe(&c), bethe(&o));
+        assert!((bc - bo).abs() < 1e-8, "{bc} {bo}");
+        assert!(bc > 0.0 && bc < pc.ln_w_per_unit + 0.1);
+    }
+
     /// One tetrahedron of four spins with the rule "two up" and weights of the up state;
     /// each cell holds its own tetrahedron, so the crystal is a row of independent ones.
     pub(crate) const TETRAHEDRON: &str = "name: one tetrahedron\ndimensions: 1\n\
