@@ -360,6 +360,19 @@ fn run_moments<const K: usize>(
     })
 }
 
+/// Whether every composition of the model asks for a whole number of its variables in
+/// this cell (a cell that cannot hold the composition is refused by the count).
+pub(crate) fn composition_whole(model: &Model) -> bool {
+    model
+        .means
+        .iter()
+        .filter(|m| m.kind == crate::crystal::MeanKind::Composition)
+        .all(|m| {
+            let t = m.mean * m.variables.len() as f64;
+            !m.variables.is_empty() && (t - t.round()).abs() <= 1e-9 * m.variables.len() as f64
+        })
+}
+
 /// The exact count at one composition (no weights, no other mean).
 fn composition(model: &Model, config: &ExactConfig, start: Instant) -> Result<Estimate> {
     let mean = &model.means[0];

@@ -38,7 +38,7 @@ pub mod bethe;
 pub mod brute;
 pub mod dilution;
 pub mod exact;
-mod exact_weighted;
+pub(crate) mod exact_weighted;
 pub mod extrapolate;
 pub mod fields;
 pub(crate) mod frontier;

@@ -438,14 +438,15 @@ mod tests {
     }
 
     #[test]
-    fn issue13_counters_that_cannot_weigh_refuse() {
-        use crate::counters::{Context, exact};
+    fn issue13_wang_landau_refuses_weights_and_the_exact_count_weighs() {
+        use crate::counters::{Context, exact, sampling::wang_landau};
         let l = lattice("weights:\n  - {bond: h, states: [1, 2]}\n").unwrap();
         let ctx = Context::new();
-        let refused = |r: crate::error::Result<()>| matches!(r, Err(Error::Unweighted { .. }));
-        // Pauling's and Bethe's estimates weigh (counters/pauling.rs, bethe.rs).
         let cluster = Cluster::new(&l.crystal, Cells::parse("3x3", None, 2).unwrap()).unwrap();
         let m = Model::new(&cluster).unwrap();
+        // Wang–Landau cannot weigh: it refuses rather than count every arrangement once.
+        let r = wang_landau::count(&m, &Default::default(), &ctx);
+        assert!(matches!(r, Err(Error::Unweighted { .. })), "{:?}", r.err());
         // The exact counter weighs (counters/exact_weighted.rs).
         assert!(exact::count(&m, &Default::default(), &ctx).is_ok());
     }

@@ -42,6 +42,7 @@ use crate::counters::transfer::{self, StripConfig, StripSeries};
 use crate::counters::{Counted, bethe, exact, pauling};
 use crate::crosscheck::{CrossCheck, Route};
 use crate::crystal::Crystal;
+use crate::crystal::MeanKind;
 use crate::error::{Error, Result};
 use crate::estimate::{Estimate, ExactStop, Hint, Method, Note, SectorWidths, Stage};
 use crate::model::Model;
@@ -114,6 +115,10 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
         }
         let cluster = Cluster::new(c, cells.clone())?;
         let model = Model::new(&cluster)?;
+        // A cell that cannot hold a fixed composition (x·N not whole) is skipped.
+        if !crate::counters::exact_weighted::composition_whole(&model) {
+            continue;
+        }
         tell(Progress::Counting {
             cells: cells.to_string(),
         });
@@ -129,7 +134,9 @@ pub fn survey(c: &Crystal, config: &SurveyConfig, context: &Context) -> Result<S
                 // No constraint left on a cell too large for repeats: every variable is free
                 // (no rule, or rules that allow everything), and every larger cell gives the
                 // same W per formula unit.
-                if !model.has_repeats && model.constraints.is_empty() {
+                // (Not so at a fixed composition: ln C(N, xN)/N still grows with N.)
+                let canonical = model.means.iter().any(|m| m.kind == MeanKind::Composition);
+                if !model.has_repeats && model.constraints.is_empty() && !canonical {
                     stopped = Some(ExactStop::NothingRestricted);
                     break;
                 }
