@@ -210,59 +210,69 @@ pub fn count(
     config: &DilutionConfig,
     context: &Context,
 ) -> Result<Counted<Realisations>> {
-    if !(2..=MAX_REALISATIONS).contains(&config.realisations) {
+    over_realisations(
+        cluster,
+        config.realisations,
+        config.seed,
+        context,
+        |_, model| match exact::count(model, &config.exact, context) {
+            Ok(c) => Ok(Some((c.estimate, None))),
+            Err(Error::Interrupted { .. }) => Ok(None),
+            Err(e) => Err(e),
+        },
+    )
+}
+
+/// Run `one` on the model of each of `realisations` realisations of `cluster` in turn
+/// (realisation r has the vacancies [`vacancies`] draws from (`seed`, r)), and summarise ln
+/// W per formula unit present over those that finished. `one` returns the realisation's
+/// estimate and, for a sampled one, whether it equilibrated; `None` when it was interrupted,
+/// which ends the loop.
+fn over_realisations(
+    cluster: &Cluster,
+    realisations: usize,
+    seed: u64,
+    context: &Context,
+    mut one: impl FnMut(usize, &Model) -> Result<Option<(Estimate, Option<bool>)>>,
+) -> Result<Counted<Realisations>> {
+    if !(2..=MAX_REALISATIONS).contains(&realisations) {
         return Err(Error::Setting(format!(
             "the number of realisations must be from 2 (for a spread) to {MAX_REALISATIONS}, \
-             found {}",
-            config.realisations
+             found {realisations}"
         )));
     }
     let start = Instant::now();
-    let mut done = Vec::with_capacity(config.realisations);
+    let mut done = Vec::with_capacity(realisations);
     let mut interrupted = false;
-    for r in 0..config.realisations {
+    for r in 0..realisations {
         if context.interrupt.raised() {
             interrupted = true;
             break;
         }
-        let vacant = vacancies(cluster, config.seed, r);
+        let vacant = vacancies(cluster, seed, r);
         let model = Model::with_vacancies(cluster, &vacant)?;
-        let counted = match exact::count(&model, &config.exact, context) {
-            Ok(c) => c.estimate,
-            Err(Error::Interrupted { .. }) => {
-                interrupted = true;
-                break;
-            }
-            Err(e) => return Err(e),
+        let Some((e, equilibrated)) = one(r, &model)? else {
+            interrupted = true;
+            break;
         };
         let units = formula_units_present(cluster, &vacant);
+        let per = |x: f64| if units > 0.0 { x / units } else { 0.0 };
         done.push(Realisation {
             index: r,
             vacant: vacant.iter().filter(|v| **v).count(),
             formula_units: units,
-            ln_count: counted.ln_count,
-            ln_w_per_unit: if units > 0.0 {
-                counted.ln_count / units
-            } else {
-                0.0
-            },
-            count: counted.count,
-            sigma_ln_w: None,
-            equilibrated: None,
+            ln_count: e.ln_count,
+            ln_w_per_unit: per(e.ln_count),
+            sigma_ln_w: e.sigma_ln_w.map(|s| per(s * e.formula_units)),
+            count: e.count,
+            equilibrated,
         });
         context.tell(Progress::Realisation {
             done: done.len(),
-            all: config.realisations,
+            all: realisations,
         });
     }
-    summarise(
-        cluster,
-        done,
-        config.realisations,
-        config.seed,
-        interrupted,
-        start,
-    )
+    summarise(cluster, done, realisations, seed, interrupted, start)
 }
 
 /// The mean, spread and standard error of finished realisations; [`Error::Interrupted`]
@@ -353,63 +363,23 @@ pub fn sample(
     config: &DilutionSampleConfig,
     context: &Context,
 ) -> Result<Counted<Realisations>> {
-    if !(2..=MAX_REALISATIONS).contains(&config.realisations) {
-        return Err(Error::Setting(format!(
-            "the number of realisations must be from 2 (for a spread) to {MAX_REALISATIONS}, \
-             found {}",
-            config.realisations
-        )));
-    }
-    let start = Instant::now();
-    let mut done = Vec::with_capacity(config.realisations);
-    let mut interrupted = false;
-    for r in 0..config.realisations {
-        if context.interrupt.raised() {
-            interrupted = true;
-            break;
-        }
-        let vacant = vacancies(cluster, config.seed, r);
-        let model = Model::with_vacancies(cluster, &vacant)?;
-        let settings = super::sampling::SampleConfig {
-            seed: super::sampling::stream(config.seed ^ MONTE_CARLO_SALT, r).next_u64(),
-            ..config.sample.clone()
-        };
-        let (sampled, equilibrated) = match super::sampling::count(&model, &settings, context) {
-            Ok(s) if s.interrupted => {
-                interrupted = true;
-                break;
-            }
-            Ok(s) => (s.estimate.clone(), s.equilibrated),
-            Err(Error::Interrupted { .. }) => {
-                interrupted = true;
-                break;
-            }
-            Err(e) => return Err(e),
-        };
-        let units = formula_units_present(cluster, &vacant);
-        let per = |x: f64| if units > 0.0 { x / units } else { 0.0 };
-        done.push(Realisation {
-            index: r,
-            vacant: vacant.iter().filter(|v| **v).count(),
-            formula_units: units,
-            ln_count: sampled.ln_count,
-            ln_w_per_unit: per(sampled.ln_count),
-            count: None,
-            sigma_ln_w: sampled.sigma_ln_w.map(|s| per(s * sampled.formula_units)),
-            equilibrated: Some(equilibrated),
-        });
-        context.tell(Progress::Realisation {
-            done: done.len(),
-            all: config.realisations,
-        });
-    }
-    summarise(
+    over_realisations(
         cluster,
-        done,
         config.realisations,
         config.seed,
-        interrupted,
-        start,
+        context,
+        |r, model| {
+            let settings = super::sampling::SampleConfig {
+                seed: super::sampling::stream(config.seed ^ MONTE_CARLO_SALT, r).next_u64(),
+                ..config.sample.clone()
+            };
+            match super::sampling::count(model, &settings, context) {
+                Ok(s) if s.interrupted => Ok(None),
+                Ok(s) => Ok(Some((s.estimate.clone(), Some(s.equilibrated)))),
+                Err(Error::Interrupted { .. }) => Ok(None),
+                Err(e) => Err(e),
+            }
+        },
     )
 }
 
