@@ -1217,3 +1217,25 @@ fn issue13_hard_squares_at_a_fixed_density_two_methods_agree() {
     // the ideal lattice gas at the same density minus its exclusion cost: a sanity bound.
     assert!(a < 1.503_048_082f64.ln() && a > 0.0, "{a}");
 }
+
+/// A mean imposed on the flux the strip conserves (the partial-order demo: square ice with
+/// occupancy 0.6 on the arrows along the strip) is quantized per charge sector at every
+/// width: `strip` refuses, saying why, rather than report a value at some other mean.
+#[test]
+fn issue13_a_mean_on_a_conserved_flux_is_refused_with_the_reason() {
+    let file = lattice("demo-partial-order-ice.yaml");
+    let o = run(&[
+        "strip",
+        file.to_str().unwrap(),
+        "--widths",
+        "4..8",
+        "--step",
+        "2",
+    ]);
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("cannot be reached") && err.contains("conserves"),
+        "{err}"
+    );
+}

@@ -495,6 +495,23 @@ const SECTOR_ROUNDS: usize = 4;
 /// One width of a weighted crystal: the sector of the largest eigenvalue, the fields of the
 /// imposed means solved on it (and the sector checked again at those fields), and the
 /// entropy of the weighted ensemble with its derivative error.
+/// A field solve that failed in a charge sector: the fields ran off (the eigenvalue
+/// vanished) or stopped short of the targets. Within one sector a mean on a quantity the
+/// operator conserves (the flux of arrows along the strip) takes a single value, so such a
+/// target is out of reach at this width whatever the field; say so instead of the words of
+/// the failure it caused.
+fn unreachable_means(e: Error, width: usize) -> Error {
+    match e {
+        Error::Model(_) | Error::NotConverged { .. } => Error::Model(format!(
+            "the imposed means cannot be reached on a strip {width} cells wide ({e}); a mean \
+             on a quantity the strip conserves (such as the flux of arrows along the strip) \
+             takes one value per charge sector at each width, so count growing cells exactly \
+             instead"
+        )),
+        e => e,
+    }
+}
+
 pub(super) fn width(
     finder: &mut Finder,
     width: usize,
@@ -522,7 +539,8 @@ pub(super) fn width(
                     ln_z,
                     means: means.iter().zip(&sizes).map(|(m, n)| m / n).collect(),
                 })
-            })?;
+            })
+            .map_err(|e| unreachable_means(e, width))?;
             h = solved.fields;
             // The sector of the largest eigenvalue at the fields found (the checks made at
             // other fields are not about the values reported).
