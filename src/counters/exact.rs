@@ -107,6 +107,24 @@ pub const DEFAULT_MAX_STATES: usize = 1 << 24;
 /// A counting run in one integer type, returning the count as a big integer.
 type Runner = fn(&Model, &Plan, &ExactConfig) -> std::result::Result<(BigUint, usize), Failure>;
 
+/// Between two steps of a count: [`Error::Deadline`] past the deadline,
+/// [`Error::Interrupted`] once the interrupt is raised.
+pub(crate) fn stop_point(model: &Model, config: &ExactConfig) -> Result<()> {
+    if let Some(d) = config.deadline
+        && Instant::now() > d
+    {
+        return Err(Error::Deadline {
+            cells: model.cells.clone(),
+        });
+    }
+    if config.interrupt.raised() {
+        return Err(Error::Interrupted {
+            what: format!("counting {}", model.cells),
+        });
+    }
+    Ok(())
+}
+
 enum Failure {
     Overflow,
     Stop(Error),
@@ -401,18 +419,7 @@ fn run<C: Count>(
     let mut next: Vec<Piece<Vec<C>>> = Vec::new();
     let mut peak = 1usize;
     for (t, step) in steps.iter().enumerate() {
-        if let Some(d) = config.deadline
-            && Instant::now() > d
-        {
-            return Err(Failure::Stop(Error::Deadline {
-                cells: model.cells.clone(),
-            }));
-        }
-        if config.interrupt.raised() {
-            return Err(Failure::Stop(Error::Interrupted {
-                what: format!("counting {}", model.cells),
-            }));
-        }
+        stop_point(model, config).map_err(Failure::Stop)?;
         frontier
             .step(step, false, &mut next)
             .map_err(|_| Failure::Overflow)?;

@@ -247,18 +247,7 @@ where
     let mut next: Vec<Piece<P>> = Vec::new();
     let mut peak = 1usize;
     for (t, step) in steps.iter().enumerate() {
-        if let Some(d) = config.deadline
-            && Instant::now() > d
-        {
-            return Err(Failure::Stop(Error::Deadline {
-                cells: model.cells.clone(),
-            }));
-        }
-        if config.interrupt.raised() {
-            return Err(Failure::Stop(Error::Interrupted {
-                what: format!("counting {}", model.cells),
-            }));
-        }
+        super::exact::stop_point(model, config).map_err(Failure::Stop)?;
         for p in &mut frontier.pieces {
             prepare(t, &mut p.payload);
         }
