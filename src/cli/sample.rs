@@ -60,6 +60,14 @@ pub struct Args {
     /// Single-variable moves only (no loop moves).
     #[arg(long)]
     no_loops: bool,
+    /// No defect-focused moves at large β (for comparisons with the sampler without
+    /// them).
+    #[arg(long)]
+    no_defect_moves: bool,
+    /// Measure the number of violated constraints itself at small β, not its conditional
+    /// estimate (for comparisons).
+    #[arg(long)]
+    plain_estimator: bool,
     /// The conjugate field of every `occupancy:` entry of the file, in the file's order,
     /// separated by commas (the natural log of each state's activity, e.g. 0.4,-0.25).
     /// The output reports the mean each field reaches.
@@ -175,6 +183,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         nodes: args.nodes,
         beta_max: args.beta_max,
         loops: !args.no_loops,
+        defect_moves: !args.no_defect_moves,
+        conditional: !args.plain_estimator,
         target_error: args.target_error,
         max_replicas: args.max_replicas,
         max_extensions: args.max_extensions,

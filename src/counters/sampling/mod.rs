@@ -114,6 +114,12 @@ pub struct SampleConfig {
     pub beta_max: Option<f64>,
     /// Loop moves after every sweep, where the model allows them ([`loops`]).
     pub loops: bool,
+    /// Defect-focused moves after every sweep from β = [`DEFECT_MOVES_FROM_BETA`] on
+    /// ([`moves::Chain::focused`]): a quarter as many as there are variables.
+    pub defect_moves: bool,
+    /// Below β = [`CONDITIONAL_BELOW_BETA`], measure the conditional (Rao–Blackwell)
+    /// estimate of E instead of E itself ([`moves::Chain::conditional_energy`]).
+    pub conditional: bool,
     /// Keep adding batches of `replicas` replicas until the σ of ln W per formula unit is at
     /// most this, or `max_replicas` is reached.
     pub target_error: Option<f64>,
@@ -141,6 +147,8 @@ impl Default for SampleConfig {
             nodes: 41,
             beta_max: None,
             loops: true,
+            defect_moves: true,
+            conditional: true,
             target_error: None,
             max_replicas: 1024,
             max_extensions: 3,
@@ -364,6 +372,28 @@ pub fn student_factor(r: usize) -> f64 {
 
 /// Loop moves are attempted only from this β on.
 const LOOPS_FROM_BETA: f64 = 1.0;
+
+/// From this β on, every sweep is followed by defect-focused moves (when
+/// [`SampleConfig::defect_moves`]). Below it defects are dense and a sweep moves them as
+/// well; above it a sweep spends most of its updates far from the few defects, whose
+/// slow meeting sets the correlation time (measured on ice Ih 8×8×4, DEVELOPERS.md "How
+/// the Monte Carlo works": variance × time per node equal near β = 3, 4–10 times
+/// smaller with the moves from β = 5 on).
+pub const DEFECT_MOVES_FROM_BETA: f64 = 3.0;
+
+/// Below this β the conditional estimate of E is measured (when
+/// [`SampleConfig::conditional`]): there single variables fluctuate strongly, and
+/// averaging each constraint over the heat-bath distribution of one of its variables
+/// removes most of the variance (8 times at β = 0.25, 3 times at β = 1 on ice Ih, for
+/// the cost of about one sweep); above it the gain no longer pays for the pass.
+pub const CONDITIONAL_BELOW_BETA: f64 = 1.25;
+
+/// Most defect-focused moves after a sweep, per variable.
+const DEFECT_MOVES_PER_VARIABLE: f64 = 0.25;
+
+/// Defect-focused moves after a sweep per violated constraint at the start of a node
+/// (plus two, so that a node that starts defect-free still moves the pairs it creates).
+const DEFECT_MOVES_PER_DEFECT: usize = 32;
 
 /// What one replica returns: all a merge needs from it.
 #[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -1110,7 +1140,12 @@ fn replica(
     let mut walk = loops.map(|l| l.walk());
     let mut flipped = 0u64;
     let mut attempted = 0u64;
-    let mut step = |chain: &mut moves::Chain, beta: f64| {
+    let most_focused = if config.defect_moves {
+        (kernel.variables() as f64 * DEFECT_MOVES_PER_VARIABLE).ceil() as usize
+    } else {
+        0
+    };
+    let mut step = |chain: &mut moves::Chain, beta: f64, focused: usize| {
         chain.sweep(kernel, beta);
         // Below β = 1 single flips mix well and walks are long; loops only above.
         if let (Some(l), Some(w), true) = (loops, walk.as_mut(), beta >= LOOPS_FROM_BETA) {
@@ -1118,6 +1153,16 @@ fn replica(
                 flipped += l.attempt(kernel, chain, w) as u64;
             }
             attempted += attempts as u64;
+        }
+        if focused > 0 {
+            chain.focused(kernel, beta, focused);
+        }
+    };
+    let conditional = |chain: &moves::Chain, beta: f64| -> f64 {
+        if config.conditional && beta < CONDITIONAL_BELOW_BETA {
+            chain.conditional_energy(kernel, beta)
+        } else {
+            chain.energy() as f64
         }
     };
     let mut ground = observe.map(|o| o.start());
@@ -1127,22 +1172,31 @@ fn replica(
                     equilibrate: bool,
                     sweeps: usize| {
         let beta = betas[i];
+        // The number of focused moves per sweep is fixed for the node from the chain's
+        // state at its start (so the kernel of the node does not depend on the state it
+        // moves): enough for every defect to move many steps per sweep, never more than
+        // a quarter of a sweep's updates.
+        let focused = if beta >= DEFECT_MOVES_FROM_BETA {
+            most_focused.min(DEFECT_MOVES_PER_DEFECT * (chain.energy() as usize + 2))
+        } else {
+            0
+        };
         if equilibrate {
             for _ in 0..config.equilibration {
-                step(chain, beta);
+                step(chain, beta, focused);
             }
         }
-        let mut sum = 0u64;
+        let mut sum = 0.0;
         for _ in 0..sweeps {
-            step(chain, beta);
-            sum += chain.energy();
+            step(chain, beta, focused);
+            sum += conditional(chain, beta);
             if let (Some(o), Some(g), true) = (observe, ground.as_mut(), i == n - 1)
                 && chain.energy() == 0
             {
                 o.add(kernel, chain, g);
             }
         }
-        sum as f64 / sweeps as f64
+        sum / sweeps as f64
     };
     for (i, u) in up.iter_mut().enumerate().skip(1) {
         *u = node(&mut chain, &mut ground, i, true, measure_up);

@@ -72,6 +72,13 @@ pub struct Settings {
     pub beta_max: f64,
     /// Loop moves on.
     pub loops: bool,
+    /// Defect-focused moves on (absent, and off, in files written before them).
+    #[serde(default)]
+    pub defect_moves: bool,
+    /// The conditional estimate of E at small β (absent, and off, in files written
+    /// before it).
+    #[serde(default)]
+    pub conditional: bool,
     /// The conjugate field of every imposed mean (empty without imposed means; absent in
     /// version 2 files).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
@@ -163,7 +170,7 @@ impl Shard {
 
 /// The first setting in which two shards differ: (name, this value, that value).
 fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String, String)> {
-    let pairs: [(&'static str, String, String); 8] = [
+    let pairs: [(&'static str, String, String); 10] = [
         ("the seed", a.seed.to_string(), b.seed.to_string()),
         (
             "the number of replicas per shard",
@@ -187,6 +194,16 @@ fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String,
         ),
         ("β_max", a.beta_max.to_string(), b.beta_max.to_string()),
         ("loop moves", a.loops.to_string(), b.loops.to_string()),
+        (
+            "defect-focused moves",
+            a.defect_moves.to_string(),
+            b.defect_moves.to_string(),
+        ),
+        (
+            "conditional estimate",
+            a.conditional.to_string(),
+            b.conditional.to_string(),
+        ),
         (
             "the conjugate fields",
             format!("{:?}", a.fields),
@@ -218,6 +235,8 @@ fn config_of(settings: &Settings) -> SampleConfig {
         nodes: settings.nodes,
         beta_max: Some(settings.beta_max),
         loops: settings.loops,
+        defect_moves: settings.defect_moves,
+        conditional: settings.conditional,
         target_error: None,
         max_replicas: settings.replicas_per_shard,
         max_extensions: 0,
@@ -282,6 +301,8 @@ pub fn run_shard(
         nodes: config.nodes,
         beta_max: plan.beta_max(),
         loops: config.loops,
+        defect_moves: config.defect_moves,
+        conditional: config.conditional,
         fields: config.fields.clone(),
     };
     let out = Shard {
@@ -539,6 +560,8 @@ mod tests {
                 nodes,
                 beta_max,
                 loops: true,
+                defect_moves: true,
+                conditional: true,
                 fields: Vec::new(),
             },
             shard: 1,
