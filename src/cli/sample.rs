@@ -64,8 +64,8 @@ pub struct Args {
     /// them).
     #[arg(long)]
     no_defect_moves: bool,
-    /// Measure the number of violated constraints itself at small β, not its conditional
-    /// estimate (for comparisons).
+    /// Measure the number of violated constraints itself, not its conditional estimate
+    /// (for comparisons).
     #[arg(long)]
     plain_estimator: bool,
     /// The conjugate field of every `occupancy:` entry of the file, in the file's order,

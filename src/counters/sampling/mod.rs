@@ -32,7 +32,11 @@
 //! annealed through the nodes from β = 0 up to β_max and then back down, with
 //! `equilibration` heat-bath sweeps and then half the `sweeps` measured at each node on
 //! each pass ([`moves`]); from β = 1 on, every sweep is followed by loop moves that keep
-//! every constraint's count where the model allows them ([`loops`]). A chain that lags
+//! every constraint's count where the model allows them ([`loops`]), and from β = 3 on,
+//! on the same models, by defect-focused moves that spend their updates next to the few
+//! violated constraints ([`moves::Chain::focused`]). What is measured at each sweep is
+//! the conditional (Rao–Blackwell) estimate of E, whose mean is ⟨E⟩_β and whose variance
+//! is smaller ([`moves::Chain::sweep_conditional`]). A chain that lags
 //! behind the annealing carries too many violations on the way up and too few on the way
 //! down, so the mean of the two passes cancels the lag to first order, and their
 //! difference is the equilibration check: when it is significant (and would matter), the
@@ -115,10 +119,14 @@ pub struct SampleConfig {
     /// Loop moves after every sweep, where the model allows them ([`loops`]).
     pub loops: bool,
     /// Defect-focused moves after every sweep from β = [`DEFECT_MOVES_FROM_BETA`] on
-    /// ([`moves::Chain::focused`]): a quarter as many as there are variables.
+    /// ([`moves::Chain::focused`]), on models where loop moves apply (elsewhere the
+    /// setting has no effect): 32 per violated constraint at the start of each node (plus
+    /// 64), at most a quarter as many as there are variables.
     pub defect_moves: bool,
-    /// Below β = [`CONDITIONAL_BELOW_BETA`], measure the conditional (Rao–Blackwell)
-    /// estimate of E instead of E itself ([`moves::Chain::conditional_energy`]).
+    /// Measure the conditional (Rao–Blackwell) estimate of E instead of E itself
+    /// ([`moves::Chain::conditional_energy`]): at every β for two-state variables without
+    /// weights (gathered during the sweep), below β = [`CONDITIONAL_BELOW_BETA`] otherwise
+    /// (a pass after the sweep).
     pub conditional: bool,
     /// Keep adding batches of `replicas` replicas until the σ of ln W per formula unit is at
     /// most this, or `max_replicas` is reached.
@@ -377,12 +385,14 @@ const LOOPS_FROM_BETA: f64 = 1.0;
 /// [`SampleConfig::defect_moves`]). Below it defects are dense and a sweep moves them as
 /// well; above it a sweep spends most of its updates far from the few defects, whose
 /// slow meeting sets the correlation time (measured on ice Ih 8×8×4, DEVELOPERS.md "How
-/// the Monte Carlo works": variance × time per node equal near β = 3, 4–10 times
-/// smaller with the moves from β = 5 on).
+/// the Monte Carlo works": variance × time per node about equal at β = 3, two to three
+/// times smaller at β = 4–5, and from β = 7 on the correlation time falls from 100–500
+/// sweeps to under 10).
 pub const DEFECT_MOVES_FROM_BETA: f64 = 3.0;
 
-/// Below this β the conditional estimate of E is measured (when
-/// [`SampleConfig::conditional`]): there single variables fluctuate strongly, and
+/// Below this β the conditional estimate of E is measured by a pass after the sweep
+/// (when [`SampleConfig::conditional`] and the estimate cannot be gathered during the
+/// sweep: many states or weights): there single variables fluctuate strongly, and
 /// averaging each constraint over the heat-bath distribution of one of its variables
 /// removes most of the variance (8 times at β = 0.25, 3 times at β = 1 on ice Ih, for
 /// the cost of about one sweep); above it the gain no longer pays for the pass.
@@ -604,11 +614,17 @@ impl<'m> Plan<'m> {
         }
         check_fields(model, &config.fields)?;
         let kernel = Kernel::with_fields(model, &config.fields)?;
-        let loops = if config.loops {
-            loops::Loops::new(model)
-        } else {
-            None
+        // Defect-focused moves where defects are conserved charges that wander (the
+        // models loop moves apply to: ice and spin-ice rules, dimers): there they cut the
+        // correlation time at large β many times over. On the triangular antiferromagnet
+        // they gave no smaller σ (1.42e-3 against 1.48e-3 over 100 seeds on 6×6) and a
+        // pull spread of 1.16 against 0.94, so other models keep the sweeps alone.
+        let structure = loops::Loops::new(model);
+        let config = &SampleConfig {
+            defect_moves: config.defect_moves && structure.is_some(),
+            ..config.clone()
         };
+        let loops = if config.loops { structure } else { None };
         let attempts = loops
             .as_ref()
             .map_or(0, |_| (model.constraints.len() / 64).max(1));
@@ -1145,8 +1161,17 @@ fn replica(
     } else {
         0
     };
-    let mut step = |chain: &mut moves::Chain, beta: f64, focused: usize| {
-        chain.sweep(kernel, beta);
+    // The conditional estimate: gathered during the sweep at every β where that is cheap
+    // (two-state variables without weights), else a pass after it below
+    // CONDITIONAL_BELOW_BETA.
+    let fused = config.conditional && kernel.conditional_is_fused();
+    let mut step = |chain: &mut moves::Chain, beta: f64, focused: usize, measure: bool| -> f64 {
+        let during = if measure && fused {
+            Some(chain.sweep_conditional(kernel, beta))
+        } else {
+            chain.sweep(kernel, beta);
+            None
+        };
         // Below β = 1 single flips mix well and walks are long; loops only above.
         if let (Some(l), Some(w), true) = (loops, walk.as_mut(), beta >= LOOPS_FROM_BETA) {
             for _ in 0..attempts {
@@ -1157,12 +1182,12 @@ fn replica(
         if focused > 0 {
             chain.focused(kernel, beta, focused);
         }
-    };
-    let conditional = |chain: &moves::Chain, beta: f64| -> f64 {
-        if config.conditional && beta < CONDITIONAL_BELOW_BETA {
-            chain.conditional_energy(kernel, beta)
-        } else {
-            chain.energy() as f64
+        match during {
+            Some(e) => e,
+            None if measure && config.conditional && beta < CONDITIONAL_BELOW_BETA => {
+                chain.conditional_energy(kernel, beta)
+            }
+            None => chain.energy() as f64,
         }
     };
     let mut ground = observe.map(|o| o.start());
@@ -1183,13 +1208,12 @@ fn replica(
         };
         if equilibrate {
             for _ in 0..config.equilibration {
-                step(chain, beta, focused);
+                step(chain, beta, focused, false);
             }
         }
         let mut sum = 0.0;
         for _ in 0..sweeps {
-            step(chain, beta, focused);
-            sum += conditional(chain, beta);
+            sum += step(chain, beta, focused, true);
             if let (Some(o), Some(g), true) = (observe, ground.as_mut(), i == n - 1)
                 && chain.energy() == 0
             {

@@ -1,0 +1,81 @@
+#!/usr/bin/env python3
+"""The Monte Carlo figure of merit: σ(ln W per formula unit) · √(CPU seconds).
+
+A smaller figure is a better sampler: the error bar a run reaches in one CPU-second
+(σ falls as 1/√time at fixed settings, so the product does not depend on the run's
+length). For each lattice and cell below, the script runs `groundcount sample` on one
+thread over several seeds with the sampler as it was before the defect-focused moves and
+the conditional estimate (`--no-defect-moves --plain-estimator`, equilibration a quarter
+of the sweeps: the settings of that sampler) and as it is now (the defaults), and prints
+every run, the medians of the figure and their ratio.
+
+    cargo build --release
+    python3 scripts/merit.py              # 5 seeds, about 6 minutes on one core
+    python3 scripts/merit.py --seeds 3 --sweeps 200
+
+CPU time is the child's user + system time (getrusage), so a busy machine changes the
+wall time but little the figure. The σ is the run's whole reported σ of ln W per formula
+unit (statistical, quadrature, tail and equilibration parts).
+"""
+import argparse
+import json
+import math
+import os
+import resource
+import statistics
+import subprocess
+import sys
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+BINARY = os.path.join(ROOT, "target", "release", "groundcount")
+CASES = [
+    ("lattices/ice-ih.yaml", "8x8x4"),   # 1024 H2O, 2048 arrows
+    ("lattices/spin-ice.yaml", "8x8x8"),  # 2048 spins
+]
+
+
+def run(lattice, cells, seed, replicas, sweeps, before):
+    args = [BINARY, "sample", os.path.join(ROOT, lattice), "--cells", cells,
+            "--replicas", str(replicas), "--sweeps", str(sweeps), "--seed", str(seed),
+            "--threads", "1", "--format", "json"]
+    if before:
+        args += ["--no-defect-moves", "--plain-estimator", "--equilibration", str(sweeps // 4)]
+    start = resource.getrusage(resource.RUSAGE_CHILDREN)
+    out = subprocess.run(args, check=True, capture_output=True, text=True).stdout
+    end = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (end.ru_utime - start.ru_utime) + (end.ru_stime - start.ru_stime)
+    d = json.loads(out)
+    sigma = math.sqrt(sum(d[k] ** 2 for k in (
+        "sigma_ln_w_statistical", "sigma_ln_w_quadrature", "sigma_ln_w_tail",
+        "sigma_ln_w_equilibration")))
+    return d["s_over_r"], sigma, cpu, d["hysteresis_ln_w_per_unit"] / d["sigma_hysteresis"]
+
+
+def main():
+    p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    p.add_argument("--seeds", type=int, default=5)
+    p.add_argument("--replicas", type=int, default=16)
+    p.add_argument("--sweeps", type=int, default=400)
+    a = p.parse_args()
+    if not os.path.exists(BINARY):
+        sys.exit("build first: cargo build --release")
+    for lattice, cells in CASES:
+        medians = {}
+        for before in (True, False):
+            name = "before" if before else "now"
+            figures = []
+            for seed in range(1, a.seeds + 1):
+                value, sigma, cpu, hyst = run(lattice, cells, seed, a.replicas, a.sweeps, before)
+                figure = sigma * math.sqrt(cpu)
+                figures.append(figure)
+                print(f"{lattice} {cells} {name:6} seed {seed}: ln W per formula unit "
+                      f"{value:.6f} ± {sigma:.6f}, {cpu:6.1f} CPU s, σ·√s = {figure:.3e}, "
+                      f"up − down {hyst:+.1f}σ", flush=True)
+            medians[name] = statistics.median(figures)
+        print(f"{lattice} {cells}: median σ·√(CPU s) before {medians['before']:.3e}, "
+              f"now {medians['now']:.3e}, ratio {medians['before'] / medians['now']:.2f} "
+              f"(variance × time {(medians['before'] / medians['now']) ** 2:.1f})\n", flush=True)
+
+
+if __name__ == "__main__":
+    main()
