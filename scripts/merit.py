@@ -4,10 +4,11 @@
 A smaller figure is a better sampler: the error bar a run reaches in one CPU-second
 (σ falls as 1/√time at fixed settings, so the product does not depend on the run's
 length). For each lattice and cell below, the script runs `groundcount sample` on one
-thread over several seeds with the sampler as it was before the defect-focused moves and
-the conditional estimate (`--no-defect-moves --plain-estimator`, equilibration a quarter
-of the sweeps: the settings of that sampler) and as it is now (the defaults), and prints
-every run, the medians of the figure and their ratio.
+thread over several seeds with the sampler as it was before the defect-focused moves,
+the conditional estimate and the allocation of sweeps (`--no-defect-moves
+--plain-estimator --equal-sweeps`) and as it is now (the defaults), both with
+equilibration a quarter of the sweeps, and prints every run, the medians of the figure
+and their ratio.
 
     cargo build --release
     python3 scripts/merit.py              # 5 seeds, about 6 minutes on one core
@@ -38,8 +39,9 @@ def run(lattice, cells, seed, replicas, sweeps, before):
     args = [BINARY, "sample", os.path.join(ROOT, lattice), "--cells", cells,
             "--replicas", str(replicas), "--sweeps", str(sweeps), "--seed", str(seed),
             "--threads", "1", "--format", "json"]
+    args += ["--equilibration", str(sweeps // 4)]
     if before:
-        args += ["--no-defect-moves", "--plain-estimator", "--equilibration", str(sweeps // 4)]
+        args += ["--no-defect-moves", "--plain-estimator", "--equal-sweeps"]
     start = resource.getrusage(resource.RUSAGE_CHILDREN)
     out = subprocess.run(args, check=True, capture_output=True, text=True).stdout
     end = resource.getrusage(resource.RUSAGE_CHILDREN)

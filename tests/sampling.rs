@@ -222,8 +222,10 @@ fn sample_command_writes_the_documented_json() {
     assert_eq!(one["method"], "monte-carlo");
     assert_eq!(one["seed"], 9);
     assert_eq!(one["cells"], "4x4 periodic");
-    // 4 replicas × 40 sampled nodes × 100 sweeps.
-    assert_eq!(one["samples"], 16000);
+    // 4 replicas × 40 sampled nodes × 100 sweeps, shared among the nodes by the pilot's
+    // variance (issue 15): the total up to the rounding of each node to an even count.
+    let samples = one["samples"].as_f64().unwrap();
+    assert!((samples - 16000.0).abs() <= 0.05 * 16000.0, "{samples}");
     for key in [
         "w_per_unit",
         "w_uncertainty",

@@ -68,6 +68,10 @@ pub struct Args {
     /// (for comparisons).
     #[arg(long)]
     plain_estimator: bool,
+    /// The same measured sweeps at every node, not shared by the variance a pilot run
+    /// measures (for comparisons).
+    #[arg(long)]
+    equal_sweeps: bool,
     /// The conjugate field of every `occupancy:` entry of the file, in the file's order,
     /// separated by commas (the natural log of each state's activity, e.g. 0.4,-0.25).
     /// The output reports the mean each field reaches.
@@ -185,6 +189,8 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         loops: !args.no_loops,
         defect_moves: !args.no_defect_moves,
         conditional: !args.plain_estimator,
+        allocate: !args.equal_sweeps,
+        node_sweeps: Vec::new(),
         target_error: args.target_error,
         max_replicas: args.max_replicas,
         max_extensions: args.max_extensions,

@@ -78,6 +78,7 @@
 //! q_v states in d_v constraints; memory O(threads · (variables + constraints)) plus the
 //! shared tables.
 
+pub mod allocation;
 pub mod ground;
 pub(crate) mod integrate;
 pub mod loops;
@@ -123,6 +124,14 @@ pub struct SampleConfig {
     /// setting has no effect): 32 per violated constraint at the start of each node (plus
     /// 64), at most a quarter as many as there are variables.
     pub defect_moves: bool,
+    /// Share the measured sweeps among the nodes by the variance a short pilot run
+    /// measures there ([`allocation`]) instead of equally; ignored when `node_sweeps` is
+    /// given.
+    pub allocate: bool,
+    /// Measured sweeps at every node (index 0, β = 0, unused), each even and at least 2:
+    /// an allocation decided before (a shard's settings). Empty: equal, or allocated
+    /// when `allocate`.
+    pub node_sweeps: Vec<usize>,
     /// Measure the conditional (Rao–Blackwell) estimate of E instead of E itself
     /// ([`moves::Chain::conditional_energy`]): at every β for two-state variables without
     /// weights (gathered during the sweep), below β = [`CONDITIONAL_BELOW_BETA`] otherwise
@@ -157,6 +166,8 @@ impl Default for SampleConfig {
             loops: true,
             defect_moves: true,
             conditional: true,
+            allocate: true,
+            node_sweeps: Vec::new(),
             target_error: None,
             max_replicas: 1024,
             max_extensions: 3,
@@ -424,15 +435,18 @@ pub struct Run {
 }
 
 impl Run {
-    /// ⟨E⟩ at every node, both passes together (weighted by their measured sweeps, which
-    /// differ by at most one).
-    fn energy(&self, sweeps: usize) -> Vec<f64> {
-        let (a, b) = split(sweeps);
-        let (a, b) = (a as f64, b as f64);
+    /// ⟨E⟩ at every node, both passes together (weighted by their measured sweeps at that
+    /// node, which differ by at most one).
+    fn energy(&self, node_sweeps: &[usize]) -> Vec<f64> {
         self.up
             .iter()
             .zip(&self.down)
-            .map(|(u, d)| (a * u + b * d) / (a + b))
+            .zip(node_sweeps)
+            .map(|((u, d), &sweeps)| {
+                let (a, b) = split(sweeps.max(2));
+                let (a, b) = (a as f64, b as f64);
+                (a * u + b * d) / (a + b)
+            })
             .collect()
     }
 }
@@ -532,6 +546,7 @@ pub fn count(model: &Model, config: &SampleConfig, context: &Context) -> Result<
         extensions += 1;
         config.sweeps *= 2;
         config.equilibration *= 2;
+        config.node_sweeps.iter_mut().for_each(|n| *n *= 2);
     }
 }
 
@@ -554,6 +569,8 @@ pub struct Plan<'m> {
     impossible: bool,
     /// For a weighted model: what is measured in the defect-free ensemble.
     observables: Option<ground::Observables>,
+    /// Measured sweeps at every node (index 0 unused).
+    node_sweeps: Vec<usize>,
 }
 
 impl<'m> Plan<'m> {
@@ -662,7 +679,17 @@ impl<'m> Plan<'m> {
             .iter()
             .map(|&p| (p + (1.0 - p) * (-beta_max).exp()).ln() - p.ln())
             .sum();
-        Ok(Plan {
+        let given = !config.node_sweeps.is_empty();
+        if given
+            && (config.node_sweeps.len() != config.nodes
+                || config.node_sweeps[1..].iter().any(|&n| n < 2))
+        {
+            return Err(Error::Setting(format!(
+                "the measured sweeps per node must be given for all {} nodes, each at least 2",
+                config.nodes
+            )));
+        }
+        let mut plan = Plan {
             model,
             config: config.clone(),
             kernel,
@@ -675,7 +702,35 @@ impl<'m> Plan<'m> {
             beta_max,
             impossible,
             observables: model.is_weighted().then(|| ground::Observables::new(model)),
-        })
+            node_sweeps: if given {
+                config.node_sweeps.clone()
+            } else {
+                vec![config.sweeps; config.nodes]
+            },
+        };
+        if !given && config.allocate && !impossible {
+            plan.node_sweeps = allocation::allocate(&plan.pilot()?, config);
+        }
+        Ok(plan)
+    }
+
+    /// Measured sweeps at every node (index 0, β = 0, unused): the allocation the run
+    /// uses, which every shard of a split run must share.
+    pub fn node_sweeps(&self) -> &[usize] {
+        &self.node_sweeps
+    }
+
+    /// The pilot of an allocation: [`allocation::PILOT_REPLICAS`] replicas on streams of
+    /// their own, with a quarter of the sweeps, equal at every node; the ⟨E⟩ of each node
+    /// for each replica.
+    fn pilot(&self) -> Result<Vec<Vec<f64>>> {
+        let config = allocation::pilot_config(&self.config);
+        let pilot = Plan::new(self.model, &config)?;
+        let runs = pilot.run(0..config.replicas, &Context::new());
+        Ok(runs
+            .iter()
+            .map(|run| run.energy(&pilot.node_sweeps))
+            .collect())
     }
 
     /// The largest β sampled.
@@ -696,6 +751,7 @@ impl<'m> Plan<'m> {
                     return None;
                 }
                 let run = replica(
+                    &self.node_sweeps,
                     &self.kernel,
                     self.loops.as_ref(),
                     self.observables.as_ref(),
@@ -720,13 +776,12 @@ impl<'m> Plan<'m> {
         } else {
             0
         };
+        let measured: u64 = self.node_sweeps[1..].iter().map(|&n| n as u64).sum();
         (replicas as u64)
             .saturating_mul(
                 sampled_nodes
-                    .saturating_mul(
-                        (self.config.sweeps as u64)
-                            .saturating_add(2 * self.config.equilibration as u64),
-                    )
+                    .saturating_mul(2 * self.config.equilibration as u64)
+                    .saturating_add(measured)
                     .saturating_add(extra),
             )
             .saturating_mul(self.kernel.variables() as u64)
@@ -754,7 +809,7 @@ impl<'m> Plan<'m> {
         let units = self.model.formula_units;
         let width = self.beta_max;
         let last = self.config.nodes - 1;
-        let sweeps = self.config.sweeps;
+        let sweeps = &self.node_sweeps;
         let per_replica: Vec<f64> = runs
             .iter()
             .map(|run| self.ln_w(&run.energy(sweeps)))
@@ -837,8 +892,8 @@ impl<'m> Plan<'m> {
                 p += 1;
             }
         }
-        let measured =
-            runs.len() as f64 * (self.config.sweeps + ground_sweeps(&self.config)) as f64;
+        let measured = runs.len() as f64
+            * (self.node_sweeps[self.config.nodes - 1] + ground_sweeps(&self.config)) as f64;
         Some(GroundStats {
             entropy: mean - ln_w / units,
             sigma_entropy: se_entropy * widen,
@@ -896,10 +951,8 @@ impl<'m> Plan<'m> {
             (mean, total)
         };
         let replicas = runs.len();
-        let sampled_nodes = (config.nodes - 1) as u64;
         let samples = (replicas as u64)
-            .saturating_mul(sampled_nodes)
-            .saturating_mul(config.sweeps as u64);
+            .saturating_mul(self.node_sweeps[1..].iter().map(|&n| n as u64).sum::<u64>());
         let attempted: u64 = runs.iter().map(|r| r.attempted).sum();
         let mut estimate = Estimate::finite(
             Method::MonteCarlo,
@@ -1136,6 +1189,7 @@ pub(crate) fn default_beta_max(constraints: usize) -> f64 {
 /// no violated constraint is also a sample of the defect-free ensemble ([`ground`]).
 #[allow(clippy::too_many_arguments)]
 fn replica(
+    node_sweeps: &[usize],
     kernel: &Kernel,
     loops: Option<&loops::Loops>,
     observe: Option<&ground::Observables>,
@@ -1146,7 +1200,6 @@ fn replica(
     r: usize,
 ) -> Run {
     let n = betas.len();
-    let (measure_up, measure_down) = split(config.sweeps);
     let mut up = vec![0.0; n];
     let mut down = vec![0.0; n];
     // β = 0: every assignment equally likely, ⟨E⟩ = E_ref exactly.
@@ -1223,7 +1276,7 @@ fn replica(
         sum / sweeps as f64
     };
     for (i, u) in up.iter_mut().enumerate().skip(1) {
-        *u = node(&mut chain, &mut ground, i, true, measure_up);
+        *u = node(&mut chain, &mut ground, i, true, split(node_sweeps[i]).0);
     }
     // A weighted run samples the defect-free ensemble longer at the turn, on a copy of
     // the chain with a stream of its own: the chain that goes on down, and with it ⟨E⟩
@@ -1246,7 +1299,13 @@ fn replica(
     }
     // The chain is in equilibrium at β_max already: no equilibration at the turn.
     for i in (1..n).rev() {
-        down[i] = node(&mut chain, &mut ground, i, i != n - 1, measure_down);
+        down[i] = node(
+            &mut chain,
+            &mut ground,
+            i,
+            i != n - 1,
+            split(node_sweeps[i]).1,
+        );
     }
     Run {
         replica: r,

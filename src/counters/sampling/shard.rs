@@ -79,6 +79,10 @@ pub struct Settings {
     /// before it).
     #[serde(default)]
     pub conditional: bool,
+    /// Measured sweeps at every node (index 0 unused), as the pilot allocated them (absent
+    /// in files written before the allocation: equal sweeps).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub node_sweeps: Vec<usize>,
     /// The conjugate field of every imposed mean (empty without imposed means; absent in
     /// version 2 files).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
@@ -170,7 +174,7 @@ impl Shard {
 
 /// The first setting in which two shards differ: (name, this value, that value).
 fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String, String)> {
-    let pairs: [(&'static str, String, String); 10] = [
+    let pairs: [(&'static str, String, String); 11] = [
         ("the seed", a.seed.to_string(), b.seed.to_string()),
         (
             "the number of replicas per shard",
@@ -205,6 +209,11 @@ fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String,
             b.conditional.to_string(),
         ),
         (
+            "the measured sweeps per node",
+            format!("{:?}", a.node_sweeps),
+            format!("{:?}", b.node_sweeps),
+        ),
+        (
             "the conjugate fields",
             format!("{:?}", a.fields),
             format!("{:?}", b.fields),
@@ -237,6 +246,8 @@ fn config_of(settings: &Settings) -> SampleConfig {
         loops: settings.loops,
         defect_moves: settings.defect_moves,
         conditional: settings.conditional,
+        allocate: false,
+        node_sweeps: settings.node_sweeps.clone(),
         target_error: None,
         max_replicas: settings.replicas_per_shard,
         max_extensions: 0,
@@ -303,6 +314,7 @@ pub fn run_shard(
         loops: config.loops,
         defect_moves: config.defect_moves,
         conditional: config.conditional,
+        node_sweeps: plan.node_sweeps().to_vec(),
         fields: config.fields.clone(),
     };
     let out = Shard {
@@ -562,6 +574,7 @@ mod tests {
                 loops: true,
                 defect_moves: true,
                 conditional: true,
+                node_sweeps: Vec::new(),
                 fields: Vec::new(),
             },
             shard: 1,
