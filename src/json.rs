@@ -439,7 +439,8 @@ pub struct SizeFitRecord {
     pub sigma_fit: f64,
     /// The systematic allowance added to `sigma_ln_w`, in ln W per formula unit.
     pub systematic: f64,
-    /// The fitted coefficients, s∞ first.
+    /// The fitted coefficients after s∞: a, then b in the free three-term form (a only with
+    /// the flux law).
     pub coefficients: Vec<f64>,
     /// χ² of the fit.
     pub chi2: f64,
