@@ -933,4 +933,36 @@ mod tests {
         let fit = count(&cells, &config, &Context::new()).unwrap().details;
         assert!(fit.law.is_none() && !fit.not_one_shape);
     }
+
+    /// The two-dimensional case of the derivation: b = (d − 2)/(2d) = 0, so on square-ice
+    /// tori ln W − N s∞ tends to a constant. With s∞ = (3/2) ln(4/3) (Lieb 1967, Phys. Rev.
+    /// 162, 162) and the exact counts of the L×L tori (frontier counter; 2970 and
+    /// 2901094068042 for L = 4 and 8 are OEIS A054759), ln W − N s∞ is 1.0919, 1.0809 and
+    /// 1.0786 for L = 4, 6 and 8: it changes by less than 0.02 per unit of ln N, falling
+    /// (−0.014, then −0.004: corrections of higher order), where a term b ln N of the 3D size
+    /// would move it by 1/6 per unit.
+    #[test]
+    fn square_ice_tori_have_no_ln_n_term() {
+        use crate::counters::exact::{ExactConfig, count};
+        let s_inf = 1.5 * (4.0f64 / 3.0).ln();
+        let rest: Vec<(f64, f64)> = ["4x4", "6x6", "8x8"]
+            .iter()
+            .map(|cells| {
+                let m = model("square-ice.yaml", cells);
+                let e = count(&m, &ExactConfig::default(), &Context::new())
+                    .unwrap()
+                    .estimate;
+                (e.formula_units.ln(), e.ln_count - e.formula_units * s_inf)
+            })
+            .collect();
+        let slopes: Vec<f64> = rest
+            .windows(2)
+            .map(|w| (w[1].1 - w[0].1) / (w[1].0 - w[0].0))
+            .collect();
+        assert!(
+            slopes.iter().all(|s| s.abs() < 0.02),
+            "{rest:?}: {slopes:?}"
+        );
+        assert!(slopes[1].abs() < slopes[0].abs(), "{slopes:?}");
+    }
 }
