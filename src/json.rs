@@ -439,7 +439,8 @@ pub struct SizeFitRecord {
     pub sigma_fit: f64,
     /// The systematic allowance added to `sigma_ln_w`, in ln W per formula unit.
     pub systematic: f64,
-    /// The fitted coefficients, s∞ first.
+    /// The fitted coefficients after s∞: a, then b in the free three-term form (a only with
+    /// the flux law).
     pub coefficients: Vec<f64>,
     /// χ² of the fit.
     pub chi2: f64,
@@ -451,6 +452,14 @@ pub struct SizeFitRecord {
     pub alternative_ln_w_per_unit: Option<f64>,
     /// 1σ of `alternative_ln_w_per_unit`.
     pub alternative_sigma_ln_w: Option<f64>,
+    /// With a conserved flux on cells of one shape: b fixed at 1/6 and its test on the
+    /// data (absent otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub flux_law: Option<crate::counters::sampling::size::FluxLaw>,
+    /// `true` when the rule has a conserved flux but the cells are not of one shape, so b
+    /// was fitted (absent otherwise).
+    #[serde(skip_serializing_if = "std::ops::Not::not")]
+    pub not_one_shape: bool,
 }
 
 impl From<&SizeFit> for SizeFitRecord {
@@ -467,6 +476,8 @@ impl From<&SizeFit> for SizeFitRecord {
             alternative_form: f.alternative_form(),
             alternative_ln_w_per_unit: f.alternative.map(|t| t.0),
             alternative_sigma_ln_w: f.alternative.map(|t| t.1),
+            flux_law: f.law.clone(),
+            not_one_shape: f.not_one_shape,
         }
     }
 }

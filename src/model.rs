@@ -16,7 +16,7 @@
 
 use std::collections::HashMap;
 
-use crate::cluster::{Cluster, ClusterEntity};
+use crate::cluster::{Cells, Cluster, ClusterEntity};
 use crate::crystal::{MeanKind, Target, WhenCut};
 use crate::error::{Error, Result};
 
@@ -155,6 +155,8 @@ pub struct Model {
     pub has_repeats: bool,
     /// "4x4 periodic", for reports.
     pub cells: String,
+    /// The repetitions and boundaries the cluster was tiled with (`cells` in words).
+    pub tiling: Cells,
     /// Means imposed on states, in the crystal's order (`Crystal::means`).
     pub means: Vec<ImposedMean>,
 }
@@ -372,6 +374,7 @@ impl Model {
             contradiction,
             has_repeats,
             cells: cluster.cells.to_string(),
+            tiling: cluster.cells.clone(),
             means,
         })
     }

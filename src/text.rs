@@ -847,9 +847,11 @@ pub fn note_words(note: &Note, hint: &dyn Fn(Hint) -> String) -> String {
             systematic,
             alternative_form,
             alternative,
+            law,
+            not_one_shape,
         } => format!(
-            "Monte Carlo: {cells} cells extrapolated to the infinite crystal by the weighted fit {form} (χ² = {chi2:.3} for {dof} degrees of freedom{}); the other form {alternative_form} gives ln W = {} per formula unit",
-            if *systematic > 0.0 {
+            "Monte Carlo: {cells} cells extrapolated to the infinite crystal by the weighted fit {form} (χ² = {chi2:.3} for {dof} degrees of freedom{}); the other form {alternative_form} gives ln W = {} per formula unit{}",
+            if *systematic > 0.0 && law.is_none() {
                 format!(
                     "; the ln N/N term left out, its effect {} in ln W added to σ",
                     sig(*systematic, 2)
@@ -861,7 +863,9 @@ pub fn note_words(note: &Note, hint: &dyn Fn(Hint) -> String) -> String {
                 "{} ± {}",
                 sig(v, 6),
                 sig(s, 2)
-            ))
+            )),
+            size_law_words(law.as_ref(), *not_one_shape, *systematic)
+                .map_or(String::new(), |w| format!("; {w}"))
         ),
         Note::MonteCarloNoExtrapolation { error } => {
             format!("Monte Carlo: no extrapolation ({error})")
@@ -924,6 +928,38 @@ pub fn note_words(note: &Note, hint: &dyn Fn(Hint) -> String) -> String {
     }
 }
 
+/// What a size fit says about the ln N/N term of a conserved flux, in words: b fixed at 1/6
+/// and how the free fit bears it out (loudly when the data reject it), or that the cells are
+/// not one shape so b was fitted; `None` when the rule has no such flux.
+pub fn size_law_words(
+    law: Option<&crate::counters::sampling::size::FluxLaw>,
+    not_one_shape: bool,
+    systematic: f64,
+) -> Option<String> {
+    if let Some(l) = law {
+        let test = format!(
+            "the free fit gives b = {} ± {} (Δχ² = {} for one degree of freedom, probability {})",
+            sig(l.b_free, 3),
+            sig(l.sigma_b_free, 2),
+            sig(l.delta_chi2, 3),
+            sig(l.probability, 2)
+        );
+        Some(if l.rejected {
+            format!(
+                "b = 1/6 of the conserved flux was imposed, but THE DATA REJECT IT: {test}; the distance between the two fits' s∞, {} in ln W, is added to σ",
+                sig(systematic, 2)
+            )
+        } else {
+            format!(
+                "b = 1/6 is fixed by the conserved flux on cells of one shape; {test}, consistent with 1/6"
+            )
+        })
+    } else if not_one_shape {
+        Some("the rule has a conserved flux (b = 1/6 of ln N/N), but the cells are not one shape (their repetitions along a, b, c are not proportional) and the constant term depends on the shape, so b was fitted, not fixed; cells of one shape (2x2x2, 3x3x3, 4x4x4, …) allow the law".to_string())
+    } else {
+        None
+    }
+}
 #[cfg(test)]
 mod tests {
     use super::*;

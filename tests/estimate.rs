@@ -472,6 +472,8 @@ fn issue11_a_zero_degree_of_freedom_fit_is_not_cited() {
         chi2: 0.0,
         dof: 0,
         alternative: None,
+        law: None,
+        not_one_shape: false,
     };
     let estimate = Estimate::infinite(Method::MonteCarlo, fit.value, Some(fit.sigma), 1.0);
     s.extrapolated = Some(SizeExtrapolation::new(estimate, fit));

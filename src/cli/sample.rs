@@ -943,7 +943,8 @@ fn render_sizes(
     let unit = &c.formula_unit.name;
     let estimates: Vec<groundcount::Estimate> =
         results.iter().map(|(_, s)| s.estimate.clone()).collect();
-    let extrapolated = size::count(&estimates, &(), &Context::new());
+    let config = size::SizeConfig::of_models(results.iter().map(|(m, _)| m));
+    let extrapolated = size::count(&estimates, &config, &Context::new());
     let fit = extrapolated.as_ref().map(|x| &x.details);
     let infinite = extrapolated.as_ref().ok().map(|x| x.estimate.clone());
     let p = super::pauling(c)?;
@@ -1000,7 +1001,7 @@ fn render_sizes(
                         results.len(),
                         sig(fit.chi2, 3),
                         fit.dof,
-                        if fit.systematic > 0.0 {
+                        if fit.systematic > 0.0 && fit.law.is_none() {
                             format!(
                                 "; with three cells the ln N/N term is left out and its effect, {} in ln W, is added to σ as a systematic allowance",
                                 sig(fit.systematic, 2)
@@ -1016,6 +1017,11 @@ fn render_sizes(
                             fit.alternative_form(),
                             pm(v2.exp(), Some(v2.exp() * s2))
                         )?;
+                    }
+                    if let Some(words) =
+                        text::size_law_words(fit.law.as_ref(), fit.not_one_shape, fit.systematic)
+                    {
+                        writeln!(out, "{words}")?;
                     }
                 }
                 _ => {

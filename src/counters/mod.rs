@@ -26,7 +26,7 @@
 //! | Monte Carlo | [`sampling::count`] | model | [`sampling::SampleConfig`] | [`sampling::Sampled`] |
 //! | Wang–Landau | [`sampling::wang_landau::count`] | model | [`sampling::wang_landau::WangLandauConfig`] | [`sampling::wang_landau::WangLandau`] |
 //! | realisation average (diluted) | [`dilution::count`] | cluster | [`dilution::DilutionConfig`] | [`dilution::Realisations`] |
-//! | size extrapolation | [`sampling::size::count`] | sampled estimates | `()` | [`sampling::size::SizeFit`] |
+//! | size extrapolation | [`sampling::size::count`] | sampled estimates | [`sampling::size::SizeConfig`] | [`sampling::size::SizeFit`] |
 //!
 //! The conjugate fields of imposed means (`occupancy:`, `composition:`) are solved by
 //! [`fields::solve`] around whichever counter evaluates ln Z(h) deterministically.
@@ -127,8 +127,11 @@ mod tests {
             &sampling::wang_landau::WangLandauConfig,
             &Context,
         ) -> Result<Counted<sampling::wang_landau::WangLandau>> = sampling::wang_landau::count;
-        let _: fn(&[Estimate], &(), &Context) -> Result<Counted<sampling::size::SizeFit>> =
-            sampling::size::count;
+        let _: fn(
+            &[Estimate],
+            &sampling::size::SizeConfig,
+            &Context,
+        ) -> Result<Counted<sampling::size::SizeFit>> = sampling::size::count;
         let _: fn(
             &crate::cluster::Cluster,
             &dilution::DilutionConfig,

@@ -184,6 +184,10 @@ pub enum Note {
         alternative_form: &'static str,
         /// ln W per formula unit and its 1σ from the other form.
         alternative: Option<(f64, f64)>,
+        /// b fixed by a conserved flux and its test on the data, if it was fixed.
+        law: Option<crate::counters::sampling::size::FluxLaw>,
+        /// The rule has a conserved flux but the cells are not of one shape (b was fitted).
+        not_one_shape: bool,
     },
     /// The fit failed.
     MonteCarloNoExtrapolation {

@@ -517,6 +517,8 @@ fn monte_carlo(
         });
         Ok(SampledCell {
             cells: cells.to_string(),
+            repeats: cells.counts,
+            flux_components: size::flux_components(model),
             sampled: sampling::count(model, sample, context)?,
         })
     };
@@ -725,7 +727,17 @@ fn extrapolate_cells(results: &[SampledCell], notes: &mut Vec<Note>) -> Option<S
         return None;
     }
     let cells: Vec<Estimate> = results.iter().map(|r| r.sampled.estimate.clone()).collect();
-    match size::count(&cells, &(), &Context::new()) {
+    let fluxes: Vec<usize> = results.iter().map(|r| r.flux_components).collect();
+    let config = size::SizeConfig {
+        flux_components: if fluxes.windows(2).all(|w| w[0] == w[1]) {
+            fluxes[0]
+        } else {
+            0
+        },
+        dimensions: 3,
+        repeats: results.iter().map(|r| r.repeats).collect(),
+    };
+    match size::count(&cells, &config, &Context::new()) {
         Ok(x) => {
             let fit = &x.details;
             notes.push(Note::MonteCarloExtrapolated {
@@ -736,6 +748,8 @@ fn extrapolate_cells(results: &[SampledCell], notes: &mut Vec<Note>) -> Option<S
                 systematic: fit.systematic,
                 alternative_form: fit.alternative_form(),
                 alternative: fit.alternative,
+                law: fit.law.clone(),
+                not_one_shape: fit.not_one_shape,
             });
             Some(x)
         }

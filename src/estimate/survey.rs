@@ -44,6 +44,10 @@ impl Default for SurveyConfig {
 pub struct SampledCell {
     /// The cell, as written ("10x10x10 periodic").
     pub cells: String,
+    /// Its repetitions along a, b, c.
+    pub repeats: [usize; 3],
+    /// The conserved fluxes of its model ([`crate::counters::sampling::size::flux_components`]).
+    pub flux_components: usize,
     /// The run.
     pub sampled: Counted<Sampled>,
 }

@@ -64,7 +64,7 @@ pub struct Loops {
 }
 
 /// The orientation under which a two-state table depends only on the preferred count.
-fn orientation(table: &crate::model::Table) -> Option<u32> {
+pub(super) fn orientation(table: &crate::model::Table) -> Option<u32> {
     let k = table.radices.len();
     if k == 0 || k > MAX_SCOPE || table.radices.iter().any(|&q| q != 2) {
         return None;
