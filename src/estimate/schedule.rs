@@ -456,6 +456,16 @@ pub fn sample_candidates(per_cell: f64) -> Vec<Cells> {
         .collect()
 }
 
+/// Cubes of the cell, k×k×k from k = 2, of at least `SAMPLE_MIN_UNITS` and at most 1e8
+/// formula units: cells of one shape, as the flux law of [`size`] needs.
+pub fn cube_candidates(per_cell: f64) -> Vec<Cells> {
+    (2..)
+        .map_while(|k: usize| Cells::periodic(&[k, k, k]).ok())
+        .take_while(|c| c.total() as f64 * per_cell <= 1e8)
+        .filter(|c| c.total() as f64 * per_cell >= SAMPLE_MIN_UNITS)
+        .collect()
+}
+
 /// Up to `most` cells spread evenly in ln N from `candidates[0]` to `candidates[last]`
 /// (indices into `candidates`, increasing, the first and the last always included).
 fn spread(candidates: &[f64], last: usize, most: usize) -> Vec<usize> {
@@ -546,8 +556,16 @@ fn monte_carlo(
 
     let per_cell = c.formula_unit.per_cell(c);
     let units = |cells: &Cells| cells.total() as f64 * per_cell;
+    // A rule with a conserved flux in three dimensions extrapolates with b = 1/6 of
+    // ln N/N fixed, which needs cells of one shape: cubes of the cell (issue 15).
+    let cubes = cube_candidates(per_cell);
+    let flux = cubes
+        .first()
+        .and_then(|cells| build(cells).ok())
+        .map_or(0, |m| size::flux_components(&m));
     let candidates: Vec<Cells> = match &config.sample_cells {
         Some(cells) => vec![cells.clone()],
+        None if flux == 3 => cubes,
         None => sample_candidates(per_cell),
     };
     let Some(first_cells) = candidates.first() else {
@@ -976,6 +994,18 @@ mod tests {
     }
 
     /// The cells of an extrapolation are spread evenly in ln N between the smallest and the
+    /// Issue 15: the cells offered to a rule with a conserved flux are cubes of the cell
+    /// (one shape, as the law with b fixed needs), in increasing size, from the first of
+    /// at least SAMPLE_MIN_UNITS formula units.
+    #[test]
+    fn issue15_flux_cells_are_cubes() {
+        let c = cube_candidates(4.0);
+        assert_eq!(c[0].counts[..3], [3, 3, 3], "108 units is the first ≥ 100");
+        assert!(c.windows(2).all(|w| w[0].total() < w[1].total()));
+        assert!(c.iter().all(|x| x.counts[0] == x.counts[1] && x.counts[1] == x.counts[2]));
+        assert!(c.iter().all(|x| x.total() as f64 * 4.0 <= 1e8));
+    }
+
     /// chosen largest: first and last kept, increasing, at most `most`.
     #[test]
     fn spread_keeps_both_ends_and_spaces_the_rest_in_ln_n() {
