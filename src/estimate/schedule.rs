@@ -1002,7 +1002,10 @@ mod tests {
         let c = cube_candidates(4.0);
         assert_eq!(c[0].counts[..3], [3, 3, 3], "108 units is the first ≥ 100");
         assert!(c.windows(2).all(|w| w[0].total() < w[1].total()));
-        assert!(c.iter().all(|x| x.counts[0] == x.counts[1] && x.counts[1] == x.counts[2]));
+        assert!(
+            c.iter()
+                .all(|x| x.counts[0] == x.counts[1] && x.counts[1] == x.counts[2])
+        );
         assert!(c.iter().all(|x| x.total() as f64 * 4.0 <= 1e8));
     }
 
