@@ -21,7 +21,9 @@
 //! neighbours (four replicas give a spread to about 35 %), and every node keeps at least
 //! an eighth of the equal share (at least 2 sweeps), so that no node goes unmeasured where
 //! the pilot happened to see little. Counts are even, so that the passes up and down
-//! measure alike. The total stays the run's total (up to rounding). The allocation depends
+//! measure alike. The total stays the run's total (up to rounding). The last node keeps
+//! at least the equal share ([`super::Plan::new`]): with weights it also samples the
+//! defect-free ensemble, which the pilot does not see. The allocation depends
 //! only on the model and the settings, so it is the same on any thread count, and shards
 //! record it in their settings.
 //!

@@ -712,12 +712,10 @@ impl<'m> Plan<'m> {
             plan.node_sweeps = allocation::allocate(&plan.pilot()?, config);
             // With weights the last node also samples the defect-free ensemble (⟨ln w⟩
             // and the imposed means), whose variance the pilot's ⟨E⟩ does not see: it
-            // keeps at least the equal share.
-            if plan.observables.is_some() {
-                let last = config.nodes - 1;
-                plan.node_sweeps[last] =
-                    plan.node_sweeps[last].max(config.sweeps + config.sweeps % 2);
-            }
+            // keeps at least the equal share, on every model alike (so that zero fields
+            // give the unweighted numbers bit for bit).
+            let last = config.nodes - 1;
+            plan.node_sweeps[last] = plan.node_sweeps[last].max(config.sweeps + config.sweeps % 2);
         }
         Ok(plan)
     }
