@@ -850,17 +850,12 @@ formula_unit: {name: site, per: sites}
 "#;
 
     /// The same with the colours weighing 2.5, 1 and 0.5.
-    const WEIGHTED_COLOURS: &str = r#"
-name: triangle colourings
-dimensions: 1
-cell: {vectors: [[1.0]]}
-sites: [{id: A, at: [0.0]}]
-bonds: [{id: n, from: A, to: A, shift: [1]}]
-variables: [{on: sites, kind: color, states: 3}]
-rules: [{kind: distinct, at: bonds}]
-weights: [{site: A, states: [2.5, 1.0, 0.5]}]
-formula_unit: {name: site, per: sites}
-"#;
+    fn weighted_colours() -> String {
+        COLOURS.replace(
+            "formula_unit:",
+            "weights: [{site: A, states: [2.5, 1.0, 0.5]}]\nformula_unit:",
+        )
+    }
 
     /// Exact Boltzmann probabilities of every assignment of a tiny model, by enumeration,
     /// with the weights w(σ) = ∏ weight(v, σ_v) · e^{Σ_j h_j n_j(σ)} taken from the model
@@ -1062,7 +1057,7 @@ formula_unit: {name: site, per: sites}
     /// 2.5 and the last 0 on one site).
     #[test]
     fn issue13_weighted_many_states_satisfy_detailed_balance() {
-        let yaml = WEIGHTED_COLOURS;
+        let yaml = &weighted_colours();
         let m = model(yaml, "colour.yaml", "3", 1);
         check_weighted_balance(&m, &[], 0.9, 100_000, 2, false);
         let zero = yaml.replace("[2.5, 1.0, 0.5]", "[2.5, 1.0, 0.0]");
@@ -1095,7 +1090,7 @@ formula_unit: {name: site, per: sites}
         // moves alone cannot reach the assignments of one colour (the variable that
         // would complete one lies in no violated constraint), so they run between sweeps,
         // as in the sampler.
-        let colours = WEIGHTED_COLOURS;
+        let colours = &weighted_colours();
         let m = model(colours, "colour.yaml", "3", 1);
         check_moves(&m, &[], 0.9, 100_000, 2, Moves::SweepsAndFocused(3));
         check_moves(&m, &[], 2.5, 100_000, 2, Moves::SweepsAndFocused(3));
@@ -1109,7 +1104,7 @@ formula_unit: {name: site, per: sites}
     fn issue15_conditional_estimate_has_the_exact_mean() {
         let ice = include_str!("../../../lattices/square-ice.yaml");
         let weighted = format!("{ice}weights: [{{bond: h, states: [1.0, 3.0]}}]\n");
-        let colours = WEIGHTED_COLOURS;
+        let colours = &weighted_colours();
         let cases = [
             model(ice, "square-ice.yaml", "2x2", 2),
             model(&weighted, "w.yaml", "2x2", 2),
