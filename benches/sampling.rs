@@ -1,12 +1,19 @@
-//! The Monte Carlo kernels: one heat-bath sweep and one loop attempt on an ice Ih cell, and
-//! a short Wang–Landau run (the cross-check method) on a small one.
+//! The Monte Carlo kernels: one heat-bath sweep, one bit-sliced sweep of 64 chains and one
+//! loop attempt on an ice Ih cell, and a short Wang–Landau run (the cross-check method) on
+//! a small one.
 //!
-//! `cargo bench --bench sampling`. Throughput is reported in variable updates.
+//! `cargo bench --bench sampling`. Throughput is reported in variable updates (for the
+//! bit-sliced sweep, updates of all 64 chains).
 
 mod common;
 
 use criterion::{Criterion, Throughput, criterion_group, criterion_main};
-use groundcount::counters::sampling::{loops::Loops, moves::Kernel, stream, wang_landau};
+use groundcount::counters::sampling::{
+    lanes::{LANES, LaneKernel},
+    loops::Loops,
+    moves::Kernel,
+    stream, wang_landau,
+};
 
 fn sweeps(c: &mut Criterion) {
     let mut group = c.benchmark_group("sampling");
@@ -19,6 +26,18 @@ fn sweeps(c: &mut Criterion) {
         group.bench_function(format!("ice-ih 8x8x4 heat-bath sweep, beta {beta}"), |b| {
             b.iter(|| chain.sweep(&kernel, beta))
         });
+    }
+    let lane_kernel = LaneKernel::new(&model).expect("ice runs in lanes");
+    group.throughput(Throughput::Elements((kernel.variables() * LANES) as u64));
+    for beta in [0.5, 3.0] {
+        let mut lanes = lane_kernel.lanes(stream(1, 0));
+        for _ in 0..100 {
+            lanes.sweep(&lane_kernel, beta, false);
+        }
+        group.bench_function(
+            format!("ice-ih 8x8x4 sweep of 64 chains, beta {beta}"),
+            |b| b.iter(|| lanes.sweep(&lane_kernel, beta, true)),
+        );
     }
     let loops = Loops::new(&model).expect("loops apply to ice");
     let mut walk = loops.walk();

@@ -9,25 +9,36 @@
 //! cargo run --release --example node_variance -- lattices/ice-ih.yaml 8x8x4 4000 plain
 //! ```
 //!
+//! `lanes` runs 64 chains in the bits of machine words (the sampler's default on
+//! two-state models without weights): the quantity is then the mean over the 64 chains,
+//! and its variance × time compares directly with one chain's.
+//!
 //! `plain` measures E itself with sweeps and loop moves only (the sampler without the
 //! defect-focused moves and the conditional estimate); otherwise the chain also makes a
 //! quarter-sweep of defect-focused moves from β = 3 on (the sampler's most) and measures
 //! the conditional estimate of E. The numbers behind DEVELOPERS.md "Defect-focused moves"
 //! and "The conditional estimate of E".
-use groundcount::counters::sampling::{DEFECT_MOVES_FROM_BETA, loops::Loops, moves, stream};
+use groundcount::counters::sampling::{DEFECT_MOVES_FROM_BETA, lanes, loops::Loops, moves, stream};
 use groundcount::{Lattice, cluster, model};
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     let args: Vec<String> = std::env::args().collect();
     if args.len() < 4 {
-        return Err("usage: node_variance LATTICE.yaml CELLS SWEEPS [plain]".into());
+        return Err("usage: node_variance LATTICE.yaml CELLS SWEEPS [plain|lanes]".into());
     }
     let lattice = Lattice::from_file(std::path::Path::new(&args[1]))?;
     let cells = cluster::Cells::parse(&args[2], None, lattice.crystal.dimensions)?;
     let sweeps: usize = args[3].parse()?;
     let plain = args.get(4).is_some_and(|a| a == "plain");
+    let lane_mode = args.get(4).is_some_and(|a| a.starts_with("lanes"));
+    let plain = plain || args.get(4).is_some_and(|a| a == "lanes-plain");
     let m = model::Model::new(&cluster::Cluster::new(&lattice.crystal, cells)?)?;
     let k = moves::Kernel::new(&m)?;
+    let lk = if lane_mode {
+        Some(lanes::LaneKernel::new(&m).ok_or("the model does not run in lanes")?)
+    } else {
+        None
+    };
     let lo = Loops::new(&m);
     let attempts = (m.constraints.len() / 64).max(1);
     let n = m.constraints.len() as f64;
@@ -40,7 +51,13 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     for beta in (1..=40).map(|i| i as f64 * 0.25) {
         let mut c = k.chain(stream(7, (beta * 100.0) as usize));
         let mut w = lo.as_ref().map(|l| l.walk());
+        let mut ls = lk
+            .as_ref()
+            .map(|lk| lk.lanes(stream(7, (beta * 100.0) as usize)));
         let mut step = |c: &mut moves::Chain| -> f64 {
+            if let (Some(lk), Some(ls)) = (lk.as_ref(), ls.as_mut()) {
+                return ls.sweep(lk, beta, !plain) / lanes::LANES as f64;
+            }
             let x = if plain {
                 c.sweep(&k, beta);
                 None

@@ -283,13 +283,14 @@ fn sample_command_refuses_a_single_replica() {
 #[test]
 fn target_error_adds_replicas_until_reached() {
     let m = model("square-ice.yaml", "4x4");
+    // 4 replicas of 64 chains give σ ≈ 0.0005 here: the target needs more batches.
     let target = SampleConfig {
-        target_error: Some(0.002),
+        target_error: Some(0.0003),
         ..config(5, 4, 100)
     };
     let s = in_pool(2, || sampling::count(&m, &target, &Context::new())).unwrap();
     assert_eq!(s.target_reached, Some(true));
-    assert!(s.estimate.sigma_ln_w.unwrap() <= 0.002);
+    assert!(s.estimate.sigma_ln_w.unwrap() <= 0.0003);
     assert!(
         s.replicas > 4 && s.replicas % 4 == 0,
         "{} replicas",
@@ -307,7 +308,7 @@ fn target_error_adds_replicas_until_reached() {
     );
     // The 4×4 torus count 2970 (OEIS A054759).
     let exact = 2970f64.ln() / 16.0;
-    assert!((s.estimate.ln_w_per_unit - exact).abs() < 4.0 * 0.002);
+    assert!((s.estimate.ln_w_per_unit - exact).abs() < 4.0 * 0.0003);
 }
 
 /// `sample --cells` with several sizes extrapolates to the infinite crystal: square ice on

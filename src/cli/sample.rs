@@ -72,6 +72,11 @@ pub struct Args {
     /// measures (for comparisons).
     #[arg(long)]
     equal_sweeps: bool,
+    /// One chain per replica, with loop and defect-focused moves, instead of 64 chains in
+    /// the bits of machine words (for comparisons; weighted models and rules over more
+    /// than two states always run one).
+    #[arg(long)]
+    no_lanes: bool,
     /// The conjugate field of every `occupancy:` entry of the file, in the file's order,
     /// separated by commas (the natural log of each state's activity, e.g. 0.4,-0.25).
     /// The output reports the mean each field reaches.
@@ -189,6 +194,7 @@ pub fn run(args: Args) -> anyhow::Result<String> {
         loops: !args.no_loops,
         defect_moves: !args.no_defect_moves,
         conditional: !args.plain_estimator,
+        lanes: !args.no_lanes,
         allocate: !args.equal_sweeps,
         node_sweeps: Vec::new(),
         target_error: args.target_error,

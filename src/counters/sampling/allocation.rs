@@ -72,12 +72,17 @@ fn simpson_weight(k: usize, n: usize) -> f64 {
 }
 
 /// The measured sweeps at every node (index 0 unused, set to the run's sweeps) from the
-/// pilot's ⟨E⟩ per replica and node; equal sweeps when the pilot saw no spread anywhere.
-pub fn allocate(pilot: &[Vec<f64>], config: &SampleConfig) -> Vec<usize> {
+/// pilot's ⟨E⟩ per replica and node and the relative cost of a sweep at every node
+/// (`cost[k]`; all 1 when every sweep costs alike); equal sweeps when the pilot saw no
+/// spread anywhere. With costs c_k the allocation is n_k ∝ w_k σ_k / √c_k, at the cost of
+/// equal sweeps, Σ c_k n_k = Σ c_k · sweeps; the spreads are smoothed only over
+/// neighbours of the same cost (a replica's nodes of different cost are run by different
+/// numbers of chains, whose spreads differ many times over).
+pub fn allocate(pilot: &[Vec<f64>], config: &SampleConfig, cost: &[f64]) -> Vec<usize> {
     let n = config.nodes;
     let equal = vec![config.sweeps; n];
     let r = pilot.len();
-    if r < 2 || pilot.iter().any(|e| e.len() != n) {
+    if r < 2 || pilot.iter().any(|e| e.len() != n) || cost.len() != n {
         return equal;
     }
     let variance: Vec<f64> = (0..n)
@@ -92,20 +97,24 @@ pub fn allocate(pilot: &[Vec<f64>], config: &SampleConfig) -> Vec<usize> {
                 return 0.0;
             }
             let near: Vec<f64> = (k.saturating_sub(1).max(1)..=(k + 1).min(n - 1))
+                .filter(|&j| cost[j] == cost[k])
                 .map(|j| variance[j])
                 .collect();
             simpson_weight(k, n) * (near.iter().sum::<f64>() / near.len() as f64).sqrt()
+                / cost[k].sqrt()
         })
         .collect();
     let sum: f64 = share.iter().sum();
-    if !(sum > 0.0 && sum.is_finite()) {
+    if !(sum > 0.0 && sum.is_finite() && cost.iter().all(|&c| c > 0.0 && c.is_finite())) {
         return equal;
     }
-    let total = ((n - 1) * config.sweeps) as f64;
+    // n_k = λ a_k with Σ c_k n_k = Σ c_k · sweeps.
+    let budget: f64 = cost[1..].iter().sum::<f64>() * config.sweeps as f64;
+    let spent: f64 = share.iter().zip(cost).map(|(a, c)| a * c).sum();
     let floor = even(config.sweeps / 8);
     let mut out: Vec<usize> = share
         .iter()
-        .map(|&a| even((total * a / sum).round() as usize).max(floor))
+        .map(|&a| even((budget * a / spent).round() as usize).max(floor))
         .collect();
     out[0] = config.sweeps;
     out
@@ -134,7 +143,7 @@ mod tests {
             .iter()
             .map(|&z| s.iter().map(|&sk| 10.0 + z * sk).collect())
             .collect();
-        let n = allocate(&pilot, &c);
+        let n = allocate(&pilot, &c, &[1.0; 9]);
         assert_eq!(n.len(), 9);
         assert!(n[1..].iter().all(|&x| x % 2 == 0 && x >= 2), "{n:?}");
         // Node 2 (weight 2, neighbours 1, 1, 1) against node 5 (weight 4, 2, 2, 2).
@@ -146,11 +155,37 @@ mod tests {
         assert!((total as f64 - 1600.0).abs() < 0.05 * 1600.0, "{total}");
     }
 
+    /// Nodes whose sweeps cost four times as much get half the sweeps at equal spread
+    /// (n ∝ 1/√c), and the cost of the whole run is that of equal sweeps.
+    #[test]
+    fn dearer_sweeps_get_fewer() {
+        let c = config(9, 200);
+        let pilot: Vec<Vec<f64>> = [-1.5, -0.5, 0.5, 1.5]
+            .iter()
+            .map(|&z| vec![10.0 + z; 9])
+            .collect();
+        let cost = [1.0, 4.0, 4.0, 4.0, 4.0, 1.0, 1.0, 1.0, 1.0];
+        let n = allocate(&pilot, &c, &cost);
+        // Nodes 2 and 6 both have Simpson weight 2.
+        let ratio = n[6] as f64 / n[2] as f64;
+        assert!((ratio - 2.0).abs() < 0.05, "{n:?}");
+        let spent: f64 = n[1..]
+            .iter()
+            .zip(&cost[1..])
+            .map(|(&x, c)| x as f64 * c)
+            .sum();
+        let budget = 200.0 * cost[1..].iter().sum::<f64>();
+        assert!(
+            (spent - budget).abs() < 0.03 * budget,
+            "{spent} against {budget}"
+        );
+    }
+
     /// A pilot with no spread at all leaves the sweeps equal.
     #[test]
     fn no_spread_leaves_the_sweeps_equal() {
         let c = config(5, 100);
         let pilot = vec![vec![1.0; 5]; 4];
-        assert_eq!(allocate(&pilot, &c), vec![100; 5]);
+        assert_eq!(allocate(&pilot, &c, &[1.0; 5]), vec![100; 5]);
     }
 }

@@ -364,6 +364,15 @@ impl Kernel {
         let values: Vec<u8> = (0..self.states.len())
             .map(|v| self.draw(v, &mut rng))
             .collect();
+        self.chain_at(values, rng)
+    }
+}
+
+impl Kernel {
+    /// A chain in the assignment `values` (one value per variable, each within its
+    /// states), drawing from `rng`.
+    pub fn chain_at(&self, values: Vec<u8>, rng: Pcg64Mcg) -> Chain {
+        debug_assert_eq!(values.len(), self.states.len());
         let mut chain = Chain {
             values,
             index: vec![0; self.table_offset.len()],
@@ -827,14 +836,7 @@ impl Chain {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::Lattice;
-    use crate::cluster::{Cells, Cluster};
-
-    fn model(yaml: &str, name: &str, cells: &str, dims: usize) -> Model {
-        let l = Lattice::from_yaml(yaml, name).unwrap();
-        let cluster = Cluster::new(&l.crystal, Cells::parse(cells, None, dims).unwrap()).unwrap();
-        Model::new(&cluster).unwrap()
-    }
+    use crate::counters::sampling::testing::{boltzmann_weighted, model};
 
     /// Three colours on a ring of three sites (a triangle), every pair distinct: 27
     /// assignments.
@@ -855,50 +857,6 @@ formula_unit: {name: site, per: sites}
             "formula_unit:",
             "weights: [{site: A, states: [2.5, 1.0, 0.5]}]\nformula_unit:",
         )
-    }
-
-    /// Exact Boltzmann probabilities of every assignment of a tiny model, by enumeration,
-    /// with the weights w(σ) = ∏ weight(v, σ_v) · e^{Σ_j h_j n_j(σ)} taken from the model
-    /// directly (not from the kernel).
-    fn boltzmann_weighted(m: &Model, beta: f64, fields: &[f64]) -> Vec<f64> {
-        let q: Vec<u64> = m.variables.iter().map(|v| v.states as u64).collect();
-        let total: u64 = q.iter().product();
-        let mut w = Vec::with_capacity(total as usize);
-        for code in 0..total {
-            let mut rest = code;
-            let vals: Vec<u64> = q
-                .iter()
-                .map(|&qi| {
-                    let x = rest % qi;
-                    rest /= qi;
-                    x
-                })
-                .collect();
-            let mut e = 0;
-            for c in &m.constraints {
-                let t = &m.tables[c.table];
-                let mut idx = 0u64;
-                let mut stride = 1u64;
-                for &v in &c.scope {
-                    idx += vals[v] * stride;
-                    stride *= q[v];
-                }
-                if !t.allows(idx) {
-                    e += 1;
-                }
-            }
-            let mut lw: f64 = (0..q.len()).map(|v| m.weight(v, vals[v] as u32).ln()).sum();
-            for (mean, h) in m.means.iter().zip(fields) {
-                lw += h * mean
-                    .variables
-                    .iter()
-                    .filter(|&&v| vals[v] == mean.state as u64)
-                    .count() as f64;
-            }
-            w.push((lw - beta * e as f64).exp());
-        }
-        let z: f64 = w.iter().sum();
-        w.iter().map(|x| x / z).collect()
     }
 
     /// Sampled frequency of every full assignment against the exact Boltzmann weights

@@ -79,6 +79,10 @@ pub struct Settings {
     /// before it).
     #[serde(default)]
     pub conditional: bool,
+    /// Replicas as 64 chains in the bits of machine words (absent, and off, in files
+    /// written before them).
+    #[serde(default)]
+    pub lanes: bool,
     /// Measured sweeps at every node (index 0 unused), as the pilot allocated them (absent
     /// in files written before the allocation: equal sweeps).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
@@ -174,7 +178,7 @@ impl Shard {
 
 /// The first setting in which two shards differ: (name, this value, that value).
 fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String, String)> {
-    let pairs: [(&'static str, String, String); 11] = [
+    let pairs: [(&'static str, String, String); 12] = [
         ("the seed", a.seed.to_string(), b.seed.to_string()),
         (
             "the number of replicas per shard",
@@ -207,6 +211,11 @@ fn first_difference(a: &Settings, b: &Settings) -> Option<(&'static str, String,
             "conditional estimate",
             a.conditional.to_string(),
             b.conditional.to_string(),
+        ),
+        (
+            "chains per replica",
+            a.lanes.to_string(),
+            b.lanes.to_string(),
         ),
         (
             "the measured sweeps per node",
@@ -246,6 +255,7 @@ fn config_of(settings: &Settings) -> SampleConfig {
         loops: settings.loops,
         defect_moves: settings.defect_moves,
         conditional: settings.conditional,
+        lanes: settings.lanes,
         allocate: false,
         node_sweeps: settings.node_sweeps.clone(),
         target_error: None,
@@ -314,6 +324,7 @@ pub fn run_shard(
         loops: config.loops,
         defect_moves: config.defect_moves,
         conditional: config.conditional,
+        lanes: plan.chains_per_replica() > 1,
         node_sweeps: plan.node_sweeps().to_vec(),
         fields: config.fields.clone(),
     };
@@ -574,6 +585,7 @@ mod tests {
                 loops: true,
                 defect_moves: true,
                 conditional: true,
+                lanes: false,
                 node_sweeps: Vec::new(),
                 fields: Vec::new(),
             },
