@@ -360,6 +360,10 @@ pub struct SampledRecord {
     pub interrupted: bool,
     /// Largest inverse temperature sampled (in units of one violated constraint).
     pub beta_max: f64,
+    /// The largest β at which every replica ran 64 chains in machine words (absent when
+    /// each replica was one chain throughout).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub lanes_up_to_beta: Option<f64>,
     /// Loop moves attempted per sweep.
     pub loop_attempts_per_sweep: usize,
     /// Fraction of loop attempts that flipped a loop.
@@ -410,6 +414,7 @@ impl From<&Sampled> for SampledRecord {
             equilibration: s.equilibration,
             interrupted: s.interrupted,
             beta_max: s.beta_max,
+            lanes_up_to_beta: s.lanes_up_to_beta,
             loop_attempts_per_sweep: s.loop_attempts_per_sweep,
             loop_acceptance: s.loop_acceptance,
             target_reached: s.target_reached,

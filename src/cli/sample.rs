@@ -769,6 +769,20 @@ fn diagnostics(s: &Counted<Sampled>, shown: &Shown) -> String {
         s.updates,
         sig(s.estimate.seconds, 3)
     );
+    if let Some(b) = s.lanes_up_to_beta {
+        let _ = writeln!(
+            out,
+            "each replica: 64 chains in the bits of machine words{}",
+            if b >= s.beta_max {
+                " at every node (Metropolis sweeps)".to_string()
+            } else {
+                format!(
+                    " up to β = {}, then one chain with loop and defect-focused moves, started from the first of them",
+                    sig(b, 3)
+                )
+            }
+        );
+    }
     out += &equilibration_line(s);
     if s.interrupted {
         let _ = writeln!(

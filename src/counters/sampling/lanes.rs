@@ -23,9 +23,13 @@
 //! planes, one counter per lane: S = Σ_c (1 + a_c − b_c) ∈ [0, 2d], whose two bits per term
 //! are ¬(a ⊕ b) and a ∧ ¬b. The lanes where ΔE = e are then an equality test on the planes.
 //!
-//! *Metropolis acceptance with exact Bernoulli masks.* A lane with ΔE ≤ 0 flips; a lane
-//! with ΔE = e > 0 flips with probability e^{−βe} (Metropolis, Rosenbluth, Rosenbluth,
-//! Teller & Teller 1953, J. Chem. Phys. 21, 1087). The mask of those that flip compares a
+//! *Metropolis acceptance with exact Bernoulli masks.* A lane with ΔE < 0 flips, one with
+//! ΔE = 0 flips with probability 1/2, and a lane with ΔE = e > 0 flips with probability
+//! e^{−βe} (Metropolis, Rosenbluth, Rosenbluth, Teller & Teller 1953, J. Chem. Phys. 21,
+//! 1087; the acceptances A(Δ) keep A(Δ)/A(−Δ) = e^{−βΔ}, so each update satisfies detailed
+//! balance). Plain Metropolis flips at ΔE = 0 every time; in a sweep in fixed order the
+//! zero-energy moves of a ground state then run in fixed cycles, and on the triangular
+//! antiferromagnet the chains sampled too few of the ground states (a mean pull of −0.43). The mask of those that flip compares a
 //! uniform 64-bit number per lane with p = ⌊e^{−βe}·2⁶⁴⌋/2⁶⁴, bit by bit from the most
 //! significant, with one random word per bit for all lanes at once: where p's bit is 1 a
 //! lane whose random bit is 0 is decided (below p), where it is 0 a lane whose random bit
@@ -523,7 +527,13 @@ impl Lanes {
                 classes[e] = up;
                 uphill |= up;
             }
-            let mut accept = !uphill;
+            // ΔE = 0 flips with probability 1/2 (one random bit per lane): flipped every
+            // time, as plain Metropolis has it, the zero-energy moves of a ground state
+            // run in fixed cycles through a sweep in order, and the chains no longer
+            // sample all the ground states (measured: a mean pull of −0.43 on the
+            // triangular antiferromagnet 6×6 over 30 seeds).
+            let level = equal(&planes, d);
+            let mut accept = !uphill & !(level & rng.next_u64());
             if uphill != 0 {
                 let flips = acceptance.flips(&mut rng, &classes[..=d], uphill);
                 accept |= flips;

@@ -23,10 +23,20 @@
 //! ⟨E⟩ = E_ref exactly. Beyond β_max the reference part is analytic,
 //! ∫_{β_max}^∞ e_ref dβ = ln(p + (1 − p) e^{−β_max}) − ln p, and ∫_{β_max}^∞ ⟨E⟩ dβ lies
 //! between 0 and ⟨E⟩(β_max) when ⟨E⟩ ∝ e^{−kβ} with k ≥ 1 (every violation costs at least
-//! 1): it is taken as ⟨E⟩(β_max)/2 with a uniform-interval uncertainty ⟨E⟩(β_max)/(2√3).
+//! 1): it is taken as ⟨E⟩(β_max)/k with k the decay rate measured over the last nodes and
+//! a quarter of it (at least) as its uncertainty, or, where the rate cannot be measured,
+//! as ⟨E⟩(β_max)/2 with the uniform-interval uncertainty ⟨E⟩(β_max)/(2√3)
+//! ([`Plan::tail_rate`]).
 //! β_max grows with the cell (ln of the number of constraints, plus 3), so that only a
 //! handful of violations remain there. The discretisation error is
 //! Richardson's |S_n − S_(n+1)/2|/15 on the replica-mean integrand.
+//!
+//! On models whose variables all have two states and carry no weights (ice and spin-ice
+//! arrows, dimers, Ising spins), a replica is 64 chains in the bits of machine words
+//! ([`lanes`]), with Metropolis sweeps compiled to bit logic, and its ⟨E⟩ at a node is
+//! the mean of the 64; where loop moves apply, one chain takes over from lane 0 at
+//! [`LANES_BELOW_BETA`], for the few defects that single flips bring together slowly.
+//! Otherwise (and with `lanes` off) a replica is one chain as follows.
 //!
 //! Every replica starts from a uniformly random assignment (the exact β = 0 ensemble), is
 //! annealed through the nodes from β = 0 up to β_max and then back down, with
@@ -58,7 +68,9 @@
 //! # Parallelism and reproducibility
 //!
 //! Replicas run in parallel with rayon, in whatever pool the caller installs. Replica r
-//! draws from its own `Pcg64Mcg` stream seeded by SplitMix64 from seed ⊕ (r · 0xD1B5…),
+//! draws from its own `Pcg64Mcg` stream seeded by SplitMix64 from seed ⊕ (r · 0xD1B5…)
+//! (its 64 lanes draw from it together, and the chain that takes over from them from a
+//! salted stream of the same r),
 //! and the replica results are combined in replica order, so the same seed gives bitwise
 //! the same numbers on any number of threads.
 //!
@@ -236,6 +248,9 @@ pub struct Sampled {
     pub per_replica: Vec<f64>,
     /// Largest β sampled.
     pub beta_max: f64,
+    /// The largest β at which each replica ran 64 chains in machine words ([`lanes`]);
+    /// `None` when every replica was one chain throughout.
+    pub lanes_up_to_beta: Option<f64>,
     /// Loop moves attempted per sweep from β = 1 on (0 when they do not apply or are
     /// switched off).
     pub loop_attempts_per_sweep: usize,
@@ -1156,6 +1171,10 @@ impl<'m> Plan<'m> {
             per_replica,
             beta_max: self.beta_max,
             target_reached,
+            lanes_up_to_beta: match self.lane_nodes() {
+                0 | 1 => None,
+                k => Some(self.betas[k - 1]),
+            },
             loop_attempts_per_sweep: self.attempts,
             loop_acceptance: if self.attempts == 0 {
                 0.0
