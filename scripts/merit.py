@@ -4,14 +4,17 @@
 A smaller figure is a better sampler: the error bar a run reaches in one CPU-second
 (σ falls as 1/√time at fixed settings, so the product does not depend on the run's
 length). For each lattice and cell below, the script runs `groundcount sample` on one
-thread over several seeds with the sampler as it was before the defect-focused moves,
-the conditional estimate and the allocation of sweeps (`--no-defect-moves
---plain-estimator --equal-sweeps`) and as it is now (the defaults), both with
-equilibration a quarter of the sweeps, and prints every run, the medians of the figure
-and their ratio.
+thread over several seeds with three samplers, all with equilibration a quarter of the
+sweeps, and prints every run, the medians of the figure and their ratios to the first:
+
+- `before`: one chain per replica, without the defect-focused moves, the conditional
+  estimate and the allocation of sweeps (`--no-defect-moves --plain-estimator
+  --equal-sweeps --no-lanes`), the sampler before issue 15;
+- `one-chain`: one chain per replica with those three (`--no-lanes`);
+- `now`: the defaults (64 chains in machine words per replica below β = 6).
 
     cargo build --release
-    python3 scripts/merit.py              # 5 seeds, about 6 minutes on one core
+    python3 scripts/merit.py              # 5 seeds, about 25 minutes on one core
     python3 scripts/merit.py --seeds 3 --sweeps 200
 
 CPU time is the child's user + system time (getrusage), so a busy machine changes the
@@ -35,13 +38,19 @@ CASES = [
 ]
 
 
-def run(lattice, cells, seed, replicas, sweeps, before):
+VARIANTS = [
+    ("before", ["--no-defect-moves", "--plain-estimator", "--equal-sweeps", "--no-lanes"]),
+    ("one-chain", ["--no-lanes"]),
+    ("now", []),
+]
+
+
+def run(lattice, cells, seed, replicas, sweeps, flags):
     args = [BINARY, "sample", os.path.join(ROOT, lattice), "--cells", cells,
             "--replicas", str(replicas), "--sweeps", str(sweeps), "--seed", str(seed),
             "--threads", "1", "--format", "json"]
     args += ["--equilibration", str(sweeps // 4)]
-    if before:
-        args += ["--no-defect-moves", "--plain-estimator", "--equal-sweeps"]
+    args += flags
     start = resource.getrusage(resource.RUSAGE_CHILDREN)
     out = subprocess.run(args, check=True, capture_output=True, text=True).stdout
     end = resource.getrusage(resource.RUSAGE_CHILDREN)
@@ -63,20 +72,21 @@ def main():
         sys.exit("build first: cargo build --release")
     for lattice, cells in CASES:
         medians = {}
-        for before in (True, False):
-            name = "before" if before else "now"
+        for name, flags in VARIANTS:
             figures = []
             for seed in range(1, a.seeds + 1):
-                value, sigma, cpu, hyst = run(lattice, cells, seed, a.replicas, a.sweeps, before)
+                value, sigma, cpu, hyst = run(lattice, cells, seed, a.replicas, a.sweeps, flags)
                 figure = sigma * math.sqrt(cpu)
                 figures.append(figure)
-                print(f"{lattice} {cells} {name:6} seed {seed}: ln W per formula unit "
+                print(f"{lattice} {cells} {name:9} seed {seed}: ln W per formula unit "
                       f"{value:.6f} ± {sigma:.6f}, {cpu:6.1f} CPU s, σ·√s = {figure:.3e}, "
                       f"up − down {hyst:+.1f}σ", flush=True)
             medians[name] = statistics.median(figures)
-        print(f"{lattice} {cells}: median σ·√(CPU s) before {medians['before']:.3e}, "
-              f"now {medians['now']:.3e}, ratio {medians['before'] / medians['now']:.2f} "
-              f"(variance × time {(medians['before'] / medians['now']) ** 2:.1f})\n", flush=True)
+        base = medians["before"]
+        parts = ", ".join(
+            f"{name} {m:.3e} (ratio {base / m:.2f}, variance × time {(base / m) ** 2:.1f})"
+            for name, m in medians.items())
+        print(f"{lattice} {cells}: median σ·√(CPU s) {parts}\n", flush=True)
 
 
 if __name__ == "__main__":

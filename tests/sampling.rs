@@ -510,7 +510,7 @@ fn pull_statistics(p: &[f64]) -> (f64, f64) {
 }
 
 /// The calibration bounds of issue 11: an honest 1σ gives pulls of mean 0 and spread 1;
-/// over 50 seeds the mean must lie within ±0.3 and the spread within 0.8–1.25.
+/// over 50 seeds or more the mean must lie within ±0.3 and the spread within 0.8–1.25.
 fn assert_calibrated(what: &str, p: &[f64]) {
     let (mean, spread) = pull_statistics(p);
     assert!(
@@ -520,16 +520,19 @@ fn assert_calibrated(what: &str, p: &[f64]) {
     );
 }
 
-/// Issue 11, item 4: over 10 seeds the pulls had a spread of 1.3–1.4. Over 50 seeds the
-/// error bars must now be calibrated, on two cheap cells with exact counts: spin ice 2x2x2
-/// (loop moves) and the triangular antiferromagnet 6x6 (single flips only): 100 runs, in
-/// the slow tier. The heavier run over more cells, ice Ih among them, is
+/// Issue 11, item 4: over 10 seeds the pulls had a spread of 1.3–1.4. Over 100 seeds (50
+/// until issue 15) the error bars must now be calibrated, on two cheap cells with exact
+/// counts: spin ice 2x2x2 (loop moves) and the triangular antiferromagnet 6x6 (single
+/// flips only): 200 runs, in the slow tier. The heavier run over more cells, ice Ih among them, is
 /// `issue11_calibration_over_many_cells`.
 #[test]
 #[ignore = "slow tier: `cargo test --release -- --ignored`, run by .ci/run"]
 fn issue11_error_bars_are_calibrated() {
+    // 100 seeds: with 50 the spread's own standard error (0.10) put the bounds two of
+    // them from 1. With 64-chain replicas, spin ice 2x2x2 over seeds 1..=50 gave a spread
+    // of 0.74, over 1..=100 0.85 and over 101..=300 0.97 (0.94 with equal sweeps).
     for (file, cells) in [("spin-ice.yaml", "2x2x2"), ("triangular-afm.yaml", "6x6")] {
-        let p = in_pool(2, || pulls(&lattice(file), cells, 50));
+        let p = in_pool(2, || pulls(&lattice(file), cells, 100));
         assert_calibrated(&format!("{file} {cells}"), &p);
     }
 }
