@@ -435,10 +435,14 @@ pub const CONDITIONAL_BELOW_BETA: f64 = 1.25;
 /// On models with loop moves, replicas run as 64 chains in machine words ([`lanes`]) only
 /// at the nodes below this β, and as one chain with loop and defect-focused moves from
 /// it on. Measured on ice Ih 8×8×4 (`examples/node_variance.rs`, variance × time per
-/// node): the 64 chains are 6–18 times better up to β = 6, twice at 6.5, about equal at 7,
-/// and from 7.5 on they no longer even reach equilibrium in 500 sweeps (E/N 3e-4 against
-/// 1e-5), since Metropolis sweeps move the last few defects one step at a time.
-pub const LANES_BELOW_BETA: f64 = 6.0;
+/// node, in equilibrium): the 64 chains are 7–18 times better up to β = 4.5, 3–7 times at
+/// 5–6, equal at 7, and from 7.5 on they no longer even reach equilibrium in 500 sweeps
+/// (E/N 3e-4 against 1e-5), since Metropolis sweeps move the last few defects one step at
+/// a time. But annealed with few sweeps they lag from β = 4 on: with the switch at 6 the
+/// ice Ih 2x2x24 tube had a mean pull of −0.40 over 100 seeds (passes up and down
+/// −1.4σ apart on average; −0.13σ with the switch at 4), and square ice 6x6 with 50
+/// sweeps a σ 6.8 times that of 200 sweeps (`statistical_error_falls_as_one_over_root_samples`).
+pub const LANES_BELOW_BETA: f64 = 4.0;
 
 /// The cost of a sweep of 64 chains in machine words against one chain's sweep with loop
 /// and defect-focused moves, for the allocation of sweeps over nodes: a fixed number, so
