@@ -223,9 +223,15 @@ fn sample_command_writes_the_documented_json() {
     assert_eq!(one["seed"], 9);
     assert_eq!(one["cells"], "4x4 periodic");
     // 4 replicas × 40 sampled nodes × 100 sweeps, shared among the nodes by the pilot's
-    // variance (issue 15): the total up to the rounding of each node to an even count.
+    // variance and each node's cost (issue 15: a sweep of 64 chains below β = 4 costs 3,
+    // one chain's 1): the cost is kept, so the count of sweeps moves with the share of
+    // the cheaper nodes, here within a quarter.
     let samples = one["samples"].as_f64().unwrap();
-    assert!((samples - 16000.0).abs() <= 0.05 * 16000.0, "{samples}");
+    assert!((samples - 16000.0).abs() <= 0.25 * 16000.0, "{samples}");
+    assert_eq!(
+        one["lanes_up_to_beta"].as_f64().map(|b| b < 4.0),
+        Some(true)
+    );
     for key in [
         "w_per_unit",
         "w_uncertainty",
