@@ -223,14 +223,19 @@ fn sample_command_writes_the_documented_json() {
     assert_eq!(one["seed"], 9);
     assert_eq!(one["cells"], "4x4 periodic");
     // 4 replicas × 40 sampled nodes × 100 sweeps, shared among the nodes by the pilot's
-    // variance and each node's cost (issue 15: a sweep of 64 chains below β = 4 costs 3,
-    // one chain's 1): the cost is kept, so the count of sweeps moves with the share of
-    // the cheaper nodes, here within a quarter.
+    // variance and each node's cost (issue 15: a sweep of 64 chains costs 3, one chain's
+    // 1): the cost is kept, so the count of sweeps moves with the share of the cheaper
+    // nodes, here within a quarter; doubled by each extension of the run (with 4 replicas
+    // the equilibration check, a t statistic of 3 degrees of freedom, fails now and then:
+    // at this seed it read 5.4σ and the run was repeated once).
     let samples = one["samples"].as_f64().unwrap();
-    assert!((samples - 16000.0).abs() <= 0.25 * 16000.0, "{samples}");
+    let planned = 16000.0 * 2f64.powi(one["extensions"].as_i64().unwrap() as i32);
+    assert!((samples - planned).abs() <= 0.25 * planned, "{samples}");
+    // β_max is 5.77 on 16 vertices, below the hand-off at β = 6: 64 chains at every node.
     assert_eq!(
-        one["lanes_up_to_beta"].as_f64().map(|b| b < 4.0),
-        Some(true)
+        one["lanes_up_to_beta"].as_f64(),
+        one["beta_max"].as_f64(),
+        "{one}"
     );
     for key in [
         "w_per_unit",
@@ -794,10 +799,10 @@ fn interrupt_stops_starting_replicas_and_keeps_the_finished_ones() {
 /// the square of the ice Ic count in REFERENCES.md) is sampled too and agrees with its
 /// count (a `CrossCheck`); an extrapolation, when the budget allowed three cells, keeps a
 /// degree of freedom and agrees within 4σ with the value ice VII must share with ice Ic and
-/// ice Ih, W = 1.5071 per H2O (Berg, Muguruma & Okamoto 2007, Phys. Rev. B 75, 092202,
-/// 1.50738 ± 0.00016, and Nagle 1966, J. Math. Phys. 7, 1484, 1.50685 ± 0.00015, both
-/// from memory; their spread, 0.0003, is added to σ; Ih = Ic within 1e-5: Xu, Lin & Zhang,
-/// arXiv:2511.22477).
+/// ice Ih, W = 1.50742 per H2O: Nagle's series value (Nagle 1966, J. Math. Phys. 7, 1484,
+/// 1.50685 ± 0.00015, from memory) raised by the 0.038 % that Hayashi, Muguruma & Okamoto
+/// (arXiv:2009.11591, 2020) state their estimate lies from it (docs/validation.md, "The
+/// reference value of ice Ih"); Ih = Ic within 1e-5: Xu, Lin & Zhang, arXiv:2511.22477.
 #[test]
 fn issue11_survey_samples_by_formula_units_and_cross_checks() {
     use groundcount::crosscheck::Route;
@@ -832,10 +837,10 @@ fn issue11_survey_samples_by_formula_units_and_cross_checks() {
         Some(x) => {
             assert!(x.details.dof >= 1);
             let (w, sigma) = (x.estimate.ln_w_per_unit, x.estimate.sigma_ln_w.unwrap());
-            let published = 1.5071f64.ln();
+            let published = 1.50742f64.ln();
             assert!(
-                (w - published).abs() < 4.0 * sigma.hypot(0.0003 / 1.5071),
-                "ln W = {w} ± {sigma} against ln 1.5071 = {published}"
+                (w - published).abs() < 4.0 * sigma.hypot(1e-5 / 1.50742),
+                "ln W = {w} ± {sigma} against ln 1.50742 = {published}"
             );
         }
         None => assert!(

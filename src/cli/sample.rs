@@ -73,8 +73,8 @@ pub struct Args {
     #[arg(long)]
     equal_sweeps: bool,
     /// One chain per replica, with loop and defect-focused moves, instead of 64 chains in
-    /// the bits of machine words (for comparisons; weighted models and rules over more
-    /// than two states always run one).
+    /// the bits of machine words (for comparisons; weighted models, rules over more than
+    /// two states and models without loop moves always run one).
     #[arg(long)]
     no_lanes: bool,
     /// The conjugate field of every `occupancy:` entry of the file, in the file's order,

@@ -555,7 +555,7 @@ impl Lanes {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::counters::sampling::testing::{SQUARE_ICE, boltzmann, model};
+    use crate::counters::sampling::testing::{SQUARE_ICE, assert_frequencies, boltzmann, model};
 
     /// Every lane's assignment against the exact Boltzmann weights (enumeration), by a
     /// chi-square over all lanes' thinned samples.
@@ -583,18 +583,7 @@ mod tests {
             let fresh: u64 = lanes.lane_energies(&k).iter().sum();
             assert_eq!(fresh, lanes.energy(), "incremental energy drifted");
         }
-        let n = (samples * LANES) as f64;
-        let live = exact.iter().filter(|&&p| p > 0.0).count();
-        let chi2: f64 = counts
-            .iter()
-            .zip(&exact)
-            .map(|(&c, &p)| (c as f64 - p * n).powi(2) / (p * n))
-            .sum();
-        let dof = (live - 1) as f64;
-        assert!(
-            chi2 < dof + 6.0 * (2.0 * dof).sqrt() + 20.0,
-            "chi-square {chi2} for {dof} degrees of freedom"
-        );
+        assert_frequencies(&counts, &exact, (samples * LANES) as f64);
     }
 
     #[test]

@@ -438,11 +438,11 @@ pub const CONDITIONAL_BELOW_BETA: f64 = 1.25;
 /// node, in equilibrium): the 64 chains are 7–18 times better up to β = 4.5, 3–7 times at
 /// 5–6, equal at 7, and from 7.5 on they no longer even reach equilibrium in 500 sweeps
 /// (E/N 3e-4 against 1e-5), since Metropolis sweeps move the last few defects one step at
-/// a time. But annealed with few sweeps they lag from β = 4 on: with the switch at 6 the
-/// ice Ih 2x2x24 tube had a mean pull of −0.40 over 100 seeds (passes up and down
-/// −1.4σ apart on average; −0.13σ with the switch at 4), and square ice 6x6 with 50
-/// sweeps a σ 6.8 times that of 200 sweeps (`statistical_error_falls_as_one_over_root_samples`).
-pub const LANES_BELOW_BETA: f64 = 4.0;
+/// a time. Annealed, they lag from β = 4 on; what keeps that honest is the overshoot of
+/// `lane_replica` and [`LANE_EQUILIBRATION_FACTOR`]: on the ice Ih 2x2x24 tube (100 seeds,
+/// `examples/pulls.rs`) the mean pull was −0.40 without both, −0.20 ± 0.08 with the
+/// overshoot and twice the equilibration, and −0.09 ± 0.09 (spread 0.93) with four times.
+pub const LANES_BELOW_BETA: f64 = 6.0;
 
 /// The cost of a sweep of 64 chains in machine words against one chain's sweep with loop
 /// and defect-focused moves, for the allocation of sweeps over nodes: a fixed number, so
@@ -600,8 +600,6 @@ pub struct Plan<'m> {
     config: SampleConfig,
     kernel: Kernel,
     loops: Option<loops::Loops>,
-    /// Whether the model has loop moves (whether or not they are switched on).
-    loops_structure: bool,
     attempts: usize,
     betas: Vec<f64>,
     reference: Vec<f64>,
@@ -686,7 +684,7 @@ impl<'m> Plan<'m> {
         // 64-chain replicas only where loop moves apply (where one chain takes over at
         // large β): on the triangular antiferromagnet, lanes at every node left a mean
         // pull of −0.38 over 100 seeds (6×6), so models without loop moves run one chain.
-        let lane_kernel = if config.lanes && loops::Loops::new(model).is_some() {
+        let lane_kernel = if config.lanes && structure.is_some() {
             lanes::LaneKernel::new(model)
         } else {
             None
@@ -696,7 +694,6 @@ impl<'m> Plan<'m> {
             lanes: lane_kernel.is_some(),
             ..config.clone()
         };
-        let loops_structure = structure.is_some();
         let loops = if config.loops { structure } else { None };
         let attempts = loops
             .as_ref()
@@ -750,7 +747,6 @@ impl<'m> Plan<'m> {
             config: config.clone(),
             kernel,
             loops,
-            loops_structure,
             attempts,
             betas,
             reference,
@@ -830,6 +826,12 @@ impl<'m> Plan<'m> {
     /// runs 64).
     fn updates(&self, replicas: usize) -> u64 {
         let lanes = self.lane_nodes();
+        // The lanes' equilibration one node past their last (`lane_replica`).
+        let overshoot = if self.lanes.is_some() && lanes < self.betas.len() {
+            (lane_equilibration(&self.config, self.betas[lanes]) * lanes::LANES) as u64
+        } else {
+            0
+        };
         let extra = if self.observables.is_some() {
             ground_sweeps(&self.config) as u64
         } else {
@@ -839,29 +841,32 @@ impl<'m> Plan<'m> {
             .iter()
             .enumerate()
             .map(|(j, &n)| {
-                let chains = if j + 1 < lanes {
-                    lanes::LANES as u64
+                let (chains, equilibration) = if j + 1 < lanes {
+                    (
+                        lanes::LANES as u64,
+                        lane_equilibration(&self.config, self.betas[j + 1]),
+                    )
                 } else {
-                    1
+                    (1, self.config.equilibration)
                 };
                 (n as u64)
-                    .saturating_add(2 * self.config.equilibration as u64)
+                    .saturating_add(2 * equilibration as u64)
                     .saturating_mul(chains)
             })
             .fold(0u64, u64::saturating_add)
-            .saturating_add(extra);
+            .saturating_add(extra)
+            .saturating_add(overshoot);
         (replicas as u64)
             .saturating_mul(per_replica)
             .saturating_mul(self.kernel.variables() as u64)
     }
 
-    /// The nodes run as 64 chains in machine words: indices below this (all nodes when
-    /// the model has no loop moves, none without [`lanes`]).
+    /// The nodes run as 64 chains in machine words: indices below this (none without
+    /// [`lanes`], which run only on models with loop moves).
     fn lane_nodes(&self) -> usize {
-        match (&self.lanes, &self.loops_structure) {
-            (None, _) => 0,
-            (Some(_), false) => self.betas.len(),
-            (Some(_), true) => self
+        match &self.lanes {
+            None => 0,
+            Some(_) => self
                 .betas
                 .iter()
                 .position(|&b| b >= LANES_BELOW_BETA)
@@ -1334,6 +1339,29 @@ pub(crate) fn default_beta_max(constraints: usize) -> f64 {
     ((constraints.max(1) as f64).ln() + 3.0).clamp(5.0, 14.0)
 }
 
+/// The β from which 64-chain replicas equilibrate [`LANE_EQUILIBRATION_FACTOR`] times
+/// longer at each node.
+pub const LANE_LONG_EQUILIBRATION_FROM: f64 = 4.0;
+
+/// How many times `equilibration` the 64 chains sweep at a node from
+/// [`LANE_LONG_EQUILIBRATION_FROM`] on before measuring. Measured with
+/// `examples/node_variance.rs` (lanes, 3000 sweeps) on the ice Ih 2x2x24 tube, where
+/// defects meet slowest: the integrated correlation time of the 64-chain mean is 5–10
+/// sweeps up to β = 3.75 and 16–48 sweeps from 4 to 6, so 50 sweeps left about e^{−1} of
+/// the jump from the node before; four times that leaves about 2 %.
+pub const LANE_EQUILIBRATION_FACTOR: usize = 4;
+
+/// Equilibration sweeps of the 64 chains at β.
+fn lane_equilibration(config: &SampleConfig, beta: f64) -> usize {
+    if beta >= LANE_LONG_EQUILIBRATION_FROM {
+        config
+            .equilibration
+            .saturating_mul(LANE_EQUILIBRATION_FACTOR)
+    } else {
+        config.equilibration
+    }
+}
+
 /// One replica run as 64 chains in the bits of machine words ([`lanes`]): the same
 /// annealing as [`replica`], with Metropolis sweeps, ⟨E⟩ at each node the mean over the 64
 /// chains. On models where the one-chain sampler has loop moves (conserved defects), the
@@ -1350,7 +1378,7 @@ fn lane_replica(plan: &Plan, kernel: &lanes::LaneKernel, r: usize) -> Run {
     let node = |chains: &mut lanes::Lanes, i: usize, equilibrate: bool, sweeps: usize| {
         let beta = betas[i];
         if equilibrate {
-            for _ in 0..config.equilibration {
+            for _ in 0..lane_equilibration(config, beta) {
                 chains.sweep(kernel, beta, false);
             }
         }
@@ -1363,6 +1391,17 @@ fn lane_replica(plan: &Plan, kernel: &lanes::LaneKernel, r: usize) -> Run {
     let mut up = vec![0.0; n];
     for (i, u) in up.iter_mut().enumerate().take(switch).skip(1) {
         *u = node(&mut chains, i, true, split(plan.node_sweeps[i]).0);
+    }
+    // When one chain takes over, the lanes first go one node further (equilibration
+    // only), so that on the way down they reach their last node from above, as at every
+    // other node, and its lag cancels against the way up. Without it both passes there
+    // came from below and lagged alike: with the switch at β = 6 the ice Ih 2x2x24 tube
+    // had a mean pull of −0.40 over 100 seeds.
+    let overshoot = switch < n;
+    if overshoot {
+        for _ in 0..lane_equilibration(config, betas[switch]) {
+            chains.sweep(kernel, betas[switch], false);
+        }
     }
     let mut run = if switch < n {
         let values = chains.lane(0);
@@ -1383,12 +1422,13 @@ fn lane_replica(plan: &Plan, kernel: &lanes::LaneKernel, r: usize) -> Run {
     run.up[..switch].copy_from_slice(&up[..switch]);
     run.up[0] = plan.reference[0];
     run.down[0] = plan.reference[0];
-    // The chains are in equilibrium at the last node they ran: none there on the way down.
+    // Without the overshoot (lanes at every node) the chains are in equilibrium at the
+    // last node they ran, β_max: none there on the way down.
     for i in (1..switch).rev() {
         run.down[i] = node(
             &mut chains,
             i,
-            i != switch - 1,
+            overshoot || i != switch - 1,
             split(plan.node_sweeps[i]).1,
         );
     }

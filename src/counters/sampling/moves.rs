@@ -836,7 +836,7 @@ impl Chain {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::counters::sampling::testing::{boltzmann_weighted, model};
+    use crate::counters::sampling::testing::{assert_frequencies, boltzmann_weighted, model};
 
     /// Three colours on a ring of three sites (a triangle), every pair distinct: 27
     /// assignments.
@@ -946,23 +946,7 @@ formula_unit: {name: site, per: sites}
             counts.iter().zip(&exact).all(|(&c, &p)| p > 0.0 || c == 0),
             "an assignment of weight 0 was visited"
         );
-        let live = exact.iter().filter(|&&p| p > 0.0).count();
-        let chi2: f64 = counts
-            .iter()
-            .zip(&exact)
-            .filter(|&(_, &p)| p > 0.0)
-            .map(|(&c, &p)| {
-                let e = p * samples as f64;
-                (c as f64 - e).powi(2) / e
-            })
-            .sum();
-        let dof = (live - 1) as f64;
-        // Mean dof, standard deviation sqrt(2 dof); allow 6 of them plus some slack for
-        // the residual correlation between thinned samples.
-        assert!(
-            chi2 < dof + 6.0 * (2.0 * dof).sqrt() + 20.0,
-            "chi-square {chi2} for {dof} degrees of freedom"
-        );
+        assert_frequencies(&counts, &exact, samples as f64);
     }
 
     #[test]

@@ -78,3 +78,25 @@ pub fn boltzmann_weighted(m: &Model, beta: f64, fields: &[f64]) -> Vec<f64> {
     let z: f64 = w.iter().sum();
     w.iter().map(|x| x / z).collect()
 }
+
+/// Asserts that sampled `counts` of every assignment fit the exact probabilities `exact`
+/// over `samples` samples: a chi-square statistic over the assignments of non-zero
+/// probability must stay within its number of degrees of freedom plus six standard
+/// deviations (√(2·dof)) and some slack for the residual correlation of thinned samples.
+pub fn assert_frequencies(counts: &[u64], exact: &[f64], samples: f64) {
+    let live = exact.iter().filter(|&&p| p > 0.0).count();
+    let chi2: f64 = counts
+        .iter()
+        .zip(exact)
+        .filter(|&(_, &p)| p > 0.0)
+        .map(|(&c, &p)| {
+            let e = p * samples;
+            (c as f64 - e).powi(2) / e
+        })
+        .sum();
+    let dof = (live - 1) as f64;
+    assert!(
+        chi2 < dof + 6.0 * (2.0 * dof).sqrt() + 20.0,
+        "chi-square {chi2} for {dof} degrees of freedom"
+    );
+}
