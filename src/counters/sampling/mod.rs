@@ -1403,7 +1403,7 @@ fn lane_replica(plan: &Plan, kernel: &lanes::LaneKernel, r: usize) -> Run {
             chains.sweep(kernel, betas[switch], false);
         }
     }
-    let mut run = if switch < n {
+    let mut run = if overshoot {
         let values = chains.lane(0);
         let start = plan
             .kernel
