@@ -17,7 +17,7 @@ use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
 use groundcount::context::Context;
 use groundcount::counters::exact::{self, ExactConfig};
-use groundcount::counters::sampling::{self, SampleConfig};
+use groundcount::counters::sampling::{SampleConfig, calibration};
 use groundcount::model::Model;
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
@@ -48,33 +48,24 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         .estimate
         .ln_w_per_unit;
     let start = std::time::Instant::now();
-    let mut pulls = Vec::new();
-    let mut checks = Vec::new();
-    for seed in first..first + seeds {
-        let s = sampling::count(
-            &model,
-            &SampleConfig {
-                seed,
-                ..config.clone()
-            },
-            &Context::new(),
-        )?;
-        let sigma = s.estimate.sigma_ln_w.ok_or("no error bar")?;
-        pulls.push((s.estimate.ln_w_per_unit - exact) / sigma);
-        checks.push(s.hysteresis / s.sigma_hysteresis);
-    }
-    let n = pulls.len() as f64;
-    let mean = pulls.iter().sum::<f64>() / n;
-    let spread = (pulls.iter().map(|p| (p - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+    let p = calibration::pulls(
+        &model,
+        exact,
+        &config,
+        first..first + seeds,
+        &Context::new(),
+    )?;
     println!(
-        "{} {}: {} seeds from {first}: mean pull {mean:+.3} ± {:.3}, spread {spread:.3}, |pull| > 2: {}, > 3: {}; up − down {:+.2}σ on average; {:.0} s",
+        "{} {}: {} seeds from {first}: mean pull {:+.3} ± {:.3}, spread {:.3}, |pull| > 2: {}, > 3: {}; up − down {:+.2}σ on average; {:.0} s",
         args[1],
         args[2],
-        pulls.len(),
-        spread / n.sqrt(),
-        pulls.iter().filter(|p| p.abs() > 2.0).count(),
-        pulls.iter().filter(|p| p.abs() > 3.0).count(),
-        checks.iter().sum::<f64>() / n,
+        p.pulls.len(),
+        p.mean(),
+        p.standard_error(),
+        p.spread(),
+        p.beyond(2.0),
+        p.beyond(3.0),
+        p.mean_check(),
         start.elapsed().as_secs_f64()
     );
     Ok(())

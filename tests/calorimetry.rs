@@ -948,9 +948,7 @@ fn issue16_magnetic_error_bars_are_calibrated() {
         let m = r.magnetic.unwrap();
         pulls.push((m.released - exact) / m.released_sigma);
     }
-    let n = pulls.len() as f64;
-    let mean = pulls.iter().sum::<f64>() / n;
-    let spread = (pulls.iter().map(|p| (p - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+    let (mean, spread) = groundcount::counters::sampling::calibration::mean_and_spread(&pulls);
     eprintln!("pulls: mean {mean:.3}, spread {spread:.3}");
     assert!(mean.abs() < 0.4, "mean pull {mean}");
     assert!((0.75..1.3).contains(&spread), "spread of pulls {spread}");

@@ -5,7 +5,7 @@ use groundcount::Lattice;
 use groundcount::cluster::{Cells, Cluster};
 use groundcount::context::Context;
 use groundcount::counters::exact::{self, ExactConfig};
-use groundcount::counters::sampling::{self, SampleConfig, Sampled};
+use groundcount::counters::sampling::{self, SampleConfig, Sampled, calibration};
 use groundcount::model::Model;
 
 use crate::util::lattice;
@@ -488,7 +488,7 @@ fn ice_ih_extrapolation_agrees_with_nagle() {
 /// Pulls (sampled − exact)/σ of ln W per formula unit over seeds 1..=`seeds` at the
 /// default settings of `sample` (8 replicas × 200 sweeps per node), against the exact
 /// frontier count of the same cell (an independent method). Returns the pulls.
-fn pulls(path: &std::path::Path, cells: &str, seeds: u64) -> Vec<f64> {
+fn pulls(path: &std::path::Path, cells: &str, seeds: u64) -> calibration::Pulls {
     let l = Lattice::from_file(path).unwrap();
     let cells = Cells::parse(cells, None, l.crystal.dimensions).unwrap();
     let m = Model::new(&Cluster::new(&l.crystal, cells).unwrap()).unwrap();
@@ -496,38 +496,25 @@ fn pulls(path: &std::path::Path, cells: &str, seeds: u64) -> Vec<f64> {
         .unwrap()
         .estimate
         .ln_w_per_unit;
-    (1..=seeds)
-        .map(|seed| {
-            let s = sampling::count(
-                &m,
-                &SampleConfig {
-                    seed,
-                    ..SampleConfig::default()
-                },
-                &Context::new(),
-            )
-            .unwrap();
-            (s.estimate.ln_w_per_unit - exact) / s.estimate.sigma_ln_w.unwrap()
-        })
-        .collect()
-}
-
-/// Mean and spread (standard deviation) of pulls.
-fn pull_statistics(p: &[f64]) -> (f64, f64) {
-    let n = p.len() as f64;
-    let mean = p.iter().sum::<f64>() / n;
-    let spread = (p.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
-    (mean, spread)
+    calibration::pulls(
+        &m,
+        exact,
+        &SampleConfig::default(),
+        1..seeds + 1,
+        &Context::new(),
+    )
+    .unwrap()
 }
 
 /// The calibration bounds of issue 11: an honest 1σ gives pulls of mean 0 and spread 1;
 /// over 50 seeds or more the mean must lie within ±0.3 and the spread within 0.8–1.25.
-fn assert_calibrated(what: &str, p: &[f64]) {
-    let (mean, spread) = pull_statistics(p);
+fn assert_calibrated(what: &str, p: &calibration::Pulls) {
     assert!(
-        mean.abs() <= 0.3 && (0.8..=1.25).contains(&spread),
-        "{what}: mean pull {mean:+.3}, spread {spread:.3} over {} seeds",
-        p.len()
+        p.calibrated(),
+        "{what}: mean pull {:+.3}, spread {:.3} over {} seeds",
+        p.mean(),
+        p.spread(),
+        p.pulls.len()
     );
 }
 
@@ -569,15 +556,16 @@ fn issue11_calibration_over_many_cells() {
     for (path, cells) in &cases {
         let start = std::time::Instant::now();
         let p = pulls(path, cells, 100);
-        let (mean, spread) = pull_statistics(&p);
         let name = format!("{} {cells}", path.file_name().unwrap().to_string_lossy());
         println!(
-            "{name:<32} 100 seeds: mean pull {mean:+.3}, spread {spread:.3}, |pull| > 2: {}, > 3: {} ({:.0} s)",
-            p.iter().filter(|x| x.abs() > 2.0).count(),
-            p.iter().filter(|x| x.abs() > 3.0).count(),
+            "{name:<32} 100 seeds: mean pull {:+.3}, spread {:.3}, |pull| > 2: {}, > 3: {} ({:.0} s)",
+            p.mean(),
+            p.spread(),
+            p.beyond(2.0),
+            p.beyond(3.0),
             start.elapsed().as_secs_f64()
         );
-        if !(mean.abs() <= 0.3 && (0.8..=1.25).contains(&spread)) {
+        if !p.calibrated() {
             failures.push(name);
         }
     }

@@ -725,10 +725,11 @@ mod tests {
                 (r.mean - reference) / r.standard_error
             })
             .collect();
-        let n = pulls.len() as f64;
-        let mean = pulls.iter().sum::<f64>() / n;
-        let spread = (pulls.iter().map(|p| (p - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
-        eprintln!("realisation pulls: mean {mean:+.3}, spread {spread:.3} over {n} seeds");
+        let (mean, spread) = crate::counters::sampling::calibration::mean_and_spread(&pulls);
+        eprintln!(
+            "realisation pulls: mean {mean:+.3}, spread {spread:.3} over {} seeds",
+            pulls.len()
+        );
         assert!(mean.abs() < 0.3, "mean pull {mean}");
         assert!((0.8..1.35).contains(&spread), "spread of pulls {spread}");
     }

@@ -91,6 +91,7 @@
 //! shared tables.
 
 pub mod allocation;
+pub mod calibration;
 pub mod ground;
 pub(crate) mod integrate;
 pub mod lanes;
@@ -823,39 +824,38 @@ impl<'m> Plan<'m> {
     }
 
     /// Single-variable updates of `replicas` replicas (of every chain, where a replica
-    /// runs 64).
+    /// runs 64): the sweeps [`lane_replica`] and [`replica`] run, counted from the same
+    /// [`LaneSchedule`] they follow.
     fn updates(&self, replicas: usize) -> u64 {
-        let lanes = self.lane_nodes();
-        // The lanes' equilibration one node past their last (`lane_replica`).
-        let overshoot = if self.lanes.is_some() && lanes < self.betas.len() {
-            (lane_equilibration(&self.config, self.betas[lanes]) * lanes::LANES) as u64
-        } else {
-            0
-        };
+        let schedule = self.lane_schedule();
+        let n = self.betas.len();
+        let lanes = lanes::LANES as u64;
         let extra = if self.observables.is_some() {
             ground_sweeps(&self.config) as u64
         } else {
             0
         };
-        let per_replica: u64 = self.node_sweeps[1..]
-            .iter()
-            .enumerate()
-            .map(|(j, &n)| {
-                let (chains, equilibration) = if j + 1 < lanes {
-                    (
-                        lanes::LANES as u64,
-                        lane_equilibration(&self.config, self.betas[j + 1]),
-                    )
+        let mut per_replica = extra;
+        for i in 1..n {
+            let measured = self.node_sweeps[i] as u64;
+            let sweeps = if i < schedule.switch {
+                (measured + (schedule.equilibration(i) + schedule.down_equilibration(i)) as u64)
+                    .saturating_mul(lanes)
+            } else {
+                // One chain: no equilibration at the turn (β_max) on the way down.
+                let down = if i + 1 == n {
+                    0
                 } else {
-                    (1, self.config.equilibration)
+                    self.config.equilibration
                 };
-                (n as u64)
-                    .saturating_add(2 * equilibration as u64)
-                    .saturating_mul(chains)
-            })
-            .fold(0u64, u64::saturating_add)
-            .saturating_add(extra)
-            .saturating_add(overshoot);
+                measured + (self.config.equilibration + down) as u64
+            };
+            per_replica = per_replica.saturating_add(sweeps);
+        }
+        if schedule.overshoot() {
+            per_replica = per_replica
+                .saturating_add((schedule.equilibration(schedule.switch) as u64) * lanes);
+        }
         (replicas as u64)
             .saturating_mul(per_replica)
             .saturating_mul(self.kernel.variables() as u64)
@@ -871,6 +871,16 @@ impl<'m> Plan<'m> {
                 .iter()
                 .position(|&b| b >= LANES_BELOW_BETA)
                 .unwrap_or(self.betas.len()),
+        }
+    }
+
+    /// What the 64 chains of a replica run: the one place [`lane_replica`] and
+    /// [`Plan::updates`] read it from.
+    fn lane_schedule(&self) -> LaneSchedule<'_> {
+        LaneSchedule {
+            switch: self.lane_nodes(),
+            betas: &self.betas,
+            equilibration: self.config.equilibration,
         }
     }
 
@@ -1351,14 +1361,43 @@ pub const LANE_LONG_EQUILIBRATION_FROM: f64 = 4.0;
 /// the jump from the node before; four times that leaves about 2 %.
 pub const LANE_EQUILIBRATION_FACTOR: usize = 4;
 
-/// Equilibration sweeps of the 64 chains at β.
-fn lane_equilibration(config: &SampleConfig, beta: f64) -> usize {
-    if beta >= LANE_LONG_EQUILIBRATION_FROM {
-        config
-            .equilibration
-            .saturating_mul(LANE_EQUILIBRATION_FACTOR)
-    } else {
-        config.equilibration
+/// The schedule of a replica's 64 chains ([`lane_replica`]): nodes `1..switch` run as
+/// 64 chains, the others as one chain. When one chain takes over (`switch` below the
+/// node count) the lanes first equilibrate at node `switch` too, the overshoot, so that on
+/// the way down they reach their last node from above.
+struct LaneSchedule<'a> {
+    switch: usize,
+    betas: &'a [f64],
+    equilibration: usize,
+}
+
+impl LaneSchedule<'_> {
+    /// Whether one chain takes over from the lanes (and they overshoot by one node);
+    /// never without lanes (`switch` 0: one chain throughout).
+    fn overshoot(&self) -> bool {
+        self.switch > 0 && self.switch < self.betas.len()
+    }
+
+    /// Equilibration sweeps of the 64 chains at node `i` on the way up (and at the
+    /// overshoot node): [`LANE_EQUILIBRATION_FACTOR`] times longer from
+    /// [`LANE_LONG_EQUILIBRATION_FROM`] on.
+    fn equilibration(&self, i: usize) -> usize {
+        if self.betas[i] >= LANE_LONG_EQUILIBRATION_FROM {
+            self.equilibration.saturating_mul(LANE_EQUILIBRATION_FACTOR)
+        } else {
+            self.equilibration
+        }
+    }
+
+    /// Equilibration sweeps at node `i` on the way down: as on the way up, except at the
+    /// last lane node when there is no overshoot (lanes at every node), where the chains
+    /// are in equilibrium already.
+    fn down_equilibration(&self, i: usize) -> usize {
+        if self.overshoot() || i + 1 != self.switch {
+            self.equilibration(i)
+        } else {
+            0
+        }
     }
 }
 
@@ -1372,15 +1411,14 @@ fn lane_replica(plan: &Plan, kernel: &lanes::LaneKernel, r: usize) -> Run {
     let config = &plan.config;
     let betas = &plan.betas[..];
     let n = betas.len();
-    let switch = plan.lane_nodes();
+    let schedule = plan.lane_schedule();
+    let switch = schedule.switch;
     let mut chains = kernel.lanes(stream(config.seed, r));
     let conditional = config.conditional;
-    let node = |chains: &mut lanes::Lanes, i: usize, equilibrate: bool, sweeps: usize| {
+    let node = |chains: &mut lanes::Lanes, i: usize, equilibration: usize, sweeps: usize| {
         let beta = betas[i];
-        if equilibrate {
-            for _ in 0..lane_equilibration(config, beta) {
-                chains.sweep(kernel, beta, false);
-            }
+        for _ in 0..equilibration {
+            chains.sweep(kernel, beta, false);
         }
         let mut sum = 0.0;
         for _ in 0..sweeps {
@@ -1390,16 +1428,21 @@ fn lane_replica(plan: &Plan, kernel: &lanes::LaneKernel, r: usize) -> Run {
     };
     let mut up = vec![0.0; n];
     for (i, u) in up.iter_mut().enumerate().take(switch).skip(1) {
-        *u = node(&mut chains, i, true, split(plan.node_sweeps[i]).0);
+        *u = node(
+            &mut chains,
+            i,
+            schedule.equilibration(i),
+            split(plan.node_sweeps[i]).0,
+        );
     }
     // When one chain takes over, the lanes first go one node further (equilibration
     // only), so that on the way down they reach their last node from above, as at every
     // other node, and its lag cancels against the way up. Without it both passes there
     // came from below and lagged alike: with the switch at β = 6 the ice Ih 2x2x24 tube
     // had a mean pull of −0.40 over 100 seeds.
-    let overshoot = switch < n;
+    let overshoot = schedule.overshoot();
     if overshoot {
-        for _ in 0..lane_equilibration(config, betas[switch]) {
+        for _ in 0..schedule.equilibration(switch) {
             chains.sweep(kernel, betas[switch], false);
         }
     }
@@ -1422,13 +1465,11 @@ fn lane_replica(plan: &Plan, kernel: &lanes::LaneKernel, r: usize) -> Run {
     run.up[..switch].copy_from_slice(&up[..switch]);
     run.up[0] = plan.reference[0];
     run.down[0] = plan.reference[0];
-    // Without the overshoot (lanes at every node) the chains are in equilibrium at the
-    // last node they ran, β_max: none there on the way down.
     for i in (1..switch).rev() {
         run.down[i] = node(
             &mut chains,
             i,
-            overshoot || i != switch - 1,
+            schedule.down_equilibration(i),
             split(plan.node_sweeps[i]).1,
         );
     }
@@ -1565,5 +1606,51 @@ fn replica(plan: &Plan, first: usize, start: Option<moves::Chain>, r: usize) -> 
         flipped,
         attempted,
         ground,
+    }
+}
+
+#[cfg(test)]
+mod schedule_tests {
+    use super::*;
+
+    /// The three shapes of a schedule: one chain throughout (no lanes), lanes at every
+    /// node, and lanes handing over to one chain (with the overshoot node).
+    #[test]
+    fn lane_schedule_shapes() {
+        let betas = [0.0, 2.0, 4.0, 6.0, 7.0];
+        let one_chain = LaneSchedule {
+            switch: 0,
+            betas: &betas,
+            equilibration: 50,
+        };
+        // Without lanes there is nothing to overshoot (the updates count once added 64
+        // chains' equilibration to every one-chain run).
+        assert!(!one_chain.overshoot());
+        let everywhere = LaneSchedule {
+            switch: betas.len(),
+            betas: &betas,
+            equilibration: 50,
+        };
+        assert!(!everywhere.overshoot());
+        assert_eq!(everywhere.equilibration(1), 50);
+        assert_eq!(everywhere.equilibration(2), 50 * LANE_EQUILIBRATION_FACTOR);
+        // At β_max the chains arrive in equilibrium: none there on the way down.
+        assert_eq!(everywhere.down_equilibration(4), 0);
+        assert_eq!(
+            everywhere.down_equilibration(3),
+            50 * LANE_EQUILIBRATION_FACTOR
+        );
+        let handover = LaneSchedule {
+            switch: 3,
+            betas: &betas,
+            equilibration: 50,
+        };
+        assert!(handover.overshoot());
+        // The lanes come back down to their last node from the overshoot: equilibrated.
+        assert_eq!(
+            handover.down_equilibration(2),
+            50 * LANE_EQUILIBRATION_FACTOR
+        );
+        assert_eq!(handover.equilibration(3), 50 * LANE_EQUILIBRATION_FACTOR);
     }
 }
