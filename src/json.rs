@@ -465,6 +465,10 @@ pub struct SizeFitRecord {
     /// was fitted (absent otherwise).
     #[serde(skip_serializing_if = "std::ops::Not::not")]
     pub not_one_shape: bool,
+    /// The cited form refitted with c/N² added and c tested, where the cells leave that a
+    /// degree of freedom (absent otherwise).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub next_term: Option<crate::counters::sampling::size::NextTerm>,
 }
 
 impl From<&SizeFit> for SizeFitRecord {
@@ -483,6 +487,7 @@ impl From<&SizeFit> for SizeFitRecord {
             alternative_sigma_ln_w: f.alternative.map(|t| t.1),
             flux_law: f.law.clone(),
             not_one_shape: f.not_one_shape,
+            next_term: f.next_term.clone(),
         }
     }
 }

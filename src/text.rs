@@ -849,8 +849,9 @@ pub fn note_words(note: &Note, hint: &dyn Fn(Hint) -> String) -> String {
             alternative,
             law,
             not_one_shape,
+            next_term,
         } => format!(
-            "Monte Carlo: {cells} cells extrapolated to the infinite crystal by the weighted fit {form} (χ² = {chi2:.3} for {dof} degrees of freedom{}); the other form {alternative_form} gives ln W = {} per formula unit{}",
+            "Monte Carlo: {cells} cells extrapolated to the infinite crystal by the weighted fit {form} (χ² = {chi2:.3} for {dof} degrees of freedom{}); the other form {alternative_form} gives ln W = {} per formula unit{}{}",
             if *systematic > 0.0 && law.is_none() {
                 format!(
                     "; the ln N/N term left out, its effect {} in ln W added to σ",
@@ -865,7 +866,8 @@ pub fn note_words(note: &Note, hint: &dyn Fn(Hint) -> String) -> String {
                 sig(s, 2)
             )),
             size_law_words(law.as_ref(), *not_one_shape, *systematic)
-                .map_or(String::new(), |w| format!("; {w}"))
+                .map_or(String::new(), |w| format!("; {w}")),
+            next_term_words(next_term.as_ref()).map_or(String::new(), |w| format!("; {w}"))
         ),
         Note::MonteCarloNoExtrapolation { error } => {
             format!("Monte Carlo: no extrapolation ({error})")
@@ -960,6 +962,29 @@ pub fn size_law_words(
         None
     }
 }
+/// The check of the next finite-size term, c/N², in words (ln W per formula unit), when
+/// the cells allowed it.
+pub fn next_term_words(next: Option<&crate::counters::sampling::size::NextTerm>) -> Option<String> {
+    let t = next?;
+    let test = format!(
+        "with a c/N² term added s∞ = {} ± {} in ln W per formula unit, c = {} ± {} (Δχ² = {} for one degree of freedom, probability {})",
+        sig(t.ln_w_per_unit, 7),
+        sig(t.sigma_ln_w, 2),
+        sig(t.c, 3),
+        sig(t.sigma_c, 2),
+        sig(t.delta_chi2, 3),
+        sig(t.probability, 2)
+    );
+    Some(if t.needed {
+        format!(
+            "THE DATA CALL FOR A 1/N² TERM the cited form leaves out: {test}; the distance between the two fits' s∞, {} in ln W, is added to σ",
+            sig(t.allowance, 2)
+        )
+    } else {
+        format!("{test}: the data do not call for it")
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -474,6 +474,7 @@ fn issue11_a_zero_degree_of_freedom_fit_is_not_cited() {
         alternative: None,
         law: None,
         not_one_shape: false,
+        next_term: None,
     };
     let estimate = Estimate::infinite(Method::MonteCarlo, fit.value, Some(fit.sigma), 1.0);
     s.extrapolated = Some(SizeExtrapolation::new(estimate, fit));

@@ -1043,6 +1043,9 @@ fn render_sizes(
                     {
                         writeln!(out, "{words}")?;
                     }
+                    if let Some(words) = text::next_term_words(fit.next_term.as_ref()) {
+                        writeln!(out, "{words}")?;
+                    }
                 }
                 _ => {
                     let why = fit.as_ref().err().map_or(String::new(), |e| e.to_string());

@@ -188,6 +188,8 @@ pub enum Note {
         law: Option<crate::counters::sampling::size::FluxLaw>,
         /// The rule has a conserved flux but the cells are not of one shape (b was fitted).
         not_one_shape: bool,
+        /// The fit with c/N² added and its test, where the cells allowed it.
+        next_term: Option<crate::counters::sampling::size::NextTerm>,
     },
     /// The fit failed.
     MonteCarloNoExtrapolation {

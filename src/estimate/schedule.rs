@@ -433,6 +433,28 @@ pub const SAMPLE_MIN_UNITS: f64 = 96.0;
 /// Most cells the Monte Carlo extrapolation samples.
 pub const SAMPLE_MAX_CELLS: usize = 5;
 
+/// Formula units above which the Monte Carlo takes no larger cell once four cells lie
+/// below; a longer budget goes into replicas and sweeps instead. Measured on ice Ih
+/// (2026-12-04, two cores): `estimate --budget 3600` without the cap took cubes up to
+/// 23 328 molecules, spent 97 % of its time on the largest, whose equilibration check
+/// failed once, and gave σ(W∞)·√(CPU s) = 2.4e-3; `sample` on four cells of 128 to 2000
+/// molecules gave 9.1e-4 (docs/performance.md).
+pub const SAMPLE_PRECISION_UNITS: f64 = 2500.0;
+
+/// The index of the largest candidate (`sizes` in formula units, increasing) the Monte
+/// Carlo may take: the last of at most [`SAMPLE_PRECISION_UNITS`], or the fourth when fewer
+/// lie below (an extrapolation needs three cells and one to spare).
+fn last_candidate(sizes: &[f64]) -> usize {
+    let below = sizes
+        .iter()
+        .take_while(|&&u| u <= SAMPLE_PRECISION_UNITS)
+        .count();
+    below
+        .max(size::MIN_CELLS + 1)
+        .min(sizes.len())
+        .saturating_sub(1)
+}
+
 /// Share of the time left that each cell's settings are raised to fill (its part in
 /// proportion to its size); the pace is measured again after every cell.
 const FILL_SHARE: f64 = 0.95;
@@ -496,7 +518,8 @@ fn spread(candidates: &[f64], last: usize, most: usize) -> Vec<usize> {
 ///
 /// With a fixed cell (`sample_cells`), that cell alone. Otherwise cells chosen by formula
 /// units ([`sample_candidates`]): the smallest (about a hundred formula units) runs first
-/// with the configured settings and times the sampler; then the largest cell is chosen for
+/// with the configured settings and times the sampler; then the largest cell (of at most
+/// [`SAMPLE_PRECISION_UNITS`] once four lie below, [`last_candidate`]) is chosen for
 /// which up to [`SAMPLE_MAX_CELLS`] cells spread evenly in ln N between the two fit twice
 /// over in the time left, and every cell gets a share of it in proportion to its size,
 /// filled by twice the replicas, then more sweeps, then up to 8 times the replicas. The cells are extrapolated to the infinite crystal when at least three ran
@@ -614,7 +637,7 @@ fn monte_carlo(
     // and twice over gives too few for an extrapolation.
     let largest = |times: f64| {
         let mut chosen = vec![0];
-        for last in 1..candidates.len() {
+        for last in 1..=last_candidate(&sizes) {
             let set = spread(&sizes, last, SAMPLE_MAX_CELLS);
             if times * base_cost(&set[1..]) > left {
                 break;
@@ -768,6 +791,7 @@ fn extrapolate_cells(results: &[SampledCell], notes: &mut Vec<Note>) -> Option<S
                 alternative: fit.alternative,
                 law: fit.law.clone(),
                 not_one_shape: fit.not_one_shape,
+                next_term: fit.next_term.clone(),
             });
             Some(x)
         }
@@ -997,6 +1021,24 @@ mod tests {
     /// Issue 15: the cells offered to a rule with a conserved flux are cubes of the cell
     /// (one shape, as the law with b fixed needs), in increasing size, from the first of
     /// at least SAMPLE_MIN_UNITS formula units.
+    #[test]
+    fn issue15_largest_cell_is_capped_for_precision() {
+        let units = |per: f64| -> Vec<f64> {
+            cube_candidates(per)
+                .iter()
+                .map(|c| per * c.total() as f64)
+                .collect()
+        };
+        // Ice Ih, 4 molecules a cell: 3³ … 8³ (108 … 2048), not 9³ = 2916.
+        let ih = units(4.0);
+        assert_eq!(ih[last_candidate(&ih)], 2048.0);
+        // A 136-water cell: only 2³ = 1088 lies below, so four cubes (to 5³ = 17000).
+        let s2 = units(136.0);
+        assert_eq!(last_candidate(&s2), 3);
+        // Fewer candidates than four: all of them.
+        assert_eq!(last_candidate(&[100.0, 300.0]), 1);
+    }
+
     #[test]
     fn issue15_flux_cells_are_cubes() {
         let c = cube_candidates(4.0);

@@ -19,8 +19,9 @@ pub struct SurveyConfig {
     pub max_exact_units: Option<f64>,
     /// Strip widths to compute (2D); `None` grows the width from 2 until the budget ends.
     pub widths: Option<Vec<usize>>,
-    /// The Monte Carlo cell (3D); `None` samples up to four cubes, the largest of about
-    /// 1000 formula units, and extrapolates them to the infinite crystal.
+    /// The Monte Carlo cell (3D); `None` samples up to five cells from about a hundred
+    /// formula units to the largest the budget affords (cubes of the cell when the rule
+    /// has a conserved flux) and extrapolates them to the infinite crystal.
     pub sample_cells: Option<Cells>,
     /// Monte Carlo settings.
     pub sample: SampleConfig,

@@ -73,6 +73,17 @@
 //!   of the three-term form through the same three points, added in quadrature.
 //! * Fewer cells: refused.
 //!
+//! # The next term, c/N²
+//!
+//! Where the cells leave it a degree of freedom (four cells with the flux law, five with
+//! the free three-term form), the cited form is fitted again with c/N² added and c tested
+//! like b: Δχ² = (ĉ/σ(ĉ))², one degree of freedom ([`NextTerm`]). When the data call for
+//! the term (probability below [`LAW_REJECTED_BELOW`]), the distance between the two fits'
+//! s∞ is added to σ; otherwise the value with the term is shown beside as a check. Why: at
+//! σ(s∞) near 1e-5 the truncation of the series is no longer small by assumption. On ice Ih
+//! (cubes of 128 to 2000 molecules, σ(s∞) 1.2e-5 in ln W, 2026-12-04) the two fits differ
+//! by 1.1e-5 and ĉ = −1.7 ± 2.6: the data do not call for the term.
+//!
 //! # Uncertainty
 //!
 //! The covariance (XᵀWX)⁻¹ of the fit, W = diag(1/σ²), gives σ(s∞); it is scaled by
@@ -305,6 +316,33 @@ pub struct SizeFit {
     pub law: Option<FluxLaw>,
     /// The rule has the flux law but the cells are not of one shape, so b was not fixed.
     pub not_one_shape: bool,
+    /// The cited form with c/N² added, and its test, where the cells leave it a degree of
+    /// freedom.
+    pub next_term: Option<NextTerm>,
+}
+
+/// The cited form refitted with c/N² added (serialised as the `next_term` of a size fit in
+/// JSON, docs/json.md).
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct NextTerm {
+    /// s∞ of the fit with c/N², ln W per formula unit.
+    pub ln_w_per_unit: f64,
+    /// Its 1σ (scaled by √(χ²/dof) when above 1).
+    pub sigma_ln_w: f64,
+    /// ĉ, the coefficient of 1/N².
+    pub c: f64,
+    /// Its 1σ from the cells' error bars (not scaled by χ²).
+    pub sigma_c: f64,
+    /// (ĉ/σ(ĉ))²: χ² without the term minus χ² with it, one degree of freedom when the
+    /// cited form holds.
+    pub delta_chi2: f64,
+    /// Probability of a Δχ² at least as large when the cited form holds.
+    pub probability: f64,
+    /// Whether the data call for the term (probability below [`LAW_REJECTED_BELOW`]).
+    pub needed: bool,
+    /// What was added to σ for it, in quadrature: the distance between the two fits' s∞
+    /// when the term is needed, 0 otherwise.
+    pub allowance: f64,
 }
 
 /// b fixed by a conserved flux, and how the data bear it out (serialised as the
@@ -425,6 +463,9 @@ fn inverse(n: f64) -> f64 {
 fn log_over(n: f64) -> f64 {
     n.ln() / n
 }
+fn inverse_square(n: f64) -> f64 {
+    1.0 / (n * n)
+}
 
 /// A basis function of the fit, of the formula units N.
 type Basis = fn(f64) -> f64;
@@ -488,6 +529,7 @@ pub fn extrapolate_with(points: &[SizePoint], law: Option<f64>) -> Result<SizeFi
             .collect();
         let fixed = fit(&shifted, &two)?;
         let free = fit(points, &three)?;
+        let next_term = next_term(&shifted, &[one, inverse, inverse_square], &fixed, &fit)?;
         let (b_free, sigma_b_free) = (free.coef[2], free.var[2].sqrt());
         let delta_chi2 = ((b_free - b) / sigma_b_free).powi(2);
         let probability = chi2_one_tail(delta_chi2);
@@ -497,9 +539,10 @@ pub fn extrapolate_with(points: &[SizePoint], law: Option<f64>) -> Result<SizeFi
         } else {
             0.0
         };
+        let allowance = next_term.as_ref().map_or(0.0, |t| t.allowance);
         return Ok(SizeFit {
             value: fixed.coef[0],
-            sigma: fixed.sigma.hypot(systematic),
+            sigma: fixed.sigma.hypot(systematic).hypot(allowance),
             sigma_fit: fixed.sigma,
             systematic,
             coefficients: fixed.coef[1..].to_vec(),
@@ -515,6 +558,7 @@ pub fn extrapolate_with(points: &[SizePoint], law: Option<f64>) -> Result<SizeFi
                 rejected,
             }),
             not_one_shape: false,
+            next_term,
         });
     }
     let (main, other): (&[Basis], &[Basis]) = if points.len() > 3 {
@@ -522,16 +566,28 @@ pub fn extrapolate_with(points: &[SizePoint], law: Option<f64>) -> Result<SizeFi
     } else {
         (&two, &three)
     };
+    let three_terms = main.len() == 3;
     let main = fit(points, main)?;
     let other = fit(points, other)?;
+    let next_term = if three_terms {
+        next_term(
+            points,
+            &[one, inverse, log_over, inverse_square],
+            &main,
+            &fit,
+        )?
+    } else {
+        None
+    };
     let systematic = if main.coef.len() == 2 {
         (main.coef[0] - other.coef[0]).abs()
     } else {
         0.0
     };
+    let allowance = next_term.as_ref().map_or(0.0, |t| t.allowance);
     Ok(SizeFit {
         value: main.coef[0],
-        sigma: main.sigma.hypot(systematic),
+        sigma: main.sigma.hypot(systematic).hypot(allowance),
         sigma_fit: main.sigma,
         systematic,
         coefficients: main.coef[1..].to_vec(),
@@ -540,8 +596,45 @@ pub fn extrapolate_with(points: &[SizePoint], law: Option<f64>) -> Result<SizeFi
         alternative: Some((other.coef[0], other.sigma)),
         law: None,
         not_one_shape: false,
+        next_term,
     })
 }
+
+/// The cited fit `cited` refitted on `basis` (its basis and 1/N² last), when the points
+/// leave that a degree of freedom; `None` otherwise.
+fn next_term(
+    points: &[SizePoint],
+    basis: &[Basis],
+    cited: &Fitted,
+    fit: &FitFn,
+) -> Result<Option<NextTerm>> {
+    if points.len() <= basis.len() {
+        return Ok(None);
+    }
+    let with = fit(points, basis)?;
+    let last = basis.len() - 1;
+    let (c, sigma_c) = (with.coef[last], with.var[last].sqrt());
+    let delta_chi2 = (c / sigma_c).powi(2);
+    let probability = chi2_one_tail(delta_chi2);
+    let needed = probability < LAW_REJECTED_BELOW;
+    Ok(Some(NextTerm {
+        ln_w_per_unit: with.coef[0],
+        sigma_ln_w: with.sigma,
+        c,
+        sigma_c,
+        delta_chi2,
+        probability,
+        needed,
+        allowance: if needed {
+            (with.coef[0] - cited.coef[0]).abs()
+        } else {
+            0.0
+        },
+    }))
+}
+
+/// A weighted least-squares fit of `points` on `basis`.
+type FitFn<'a> = dyn Fn(&[SizePoint], &[Basis]) -> Result<Fitted> + 'a;
 
 /// One weighted least-squares fit.
 struct Fitted {
@@ -902,6 +995,45 @@ mod tests {
         assert_eq!(flux_components(&model("square-dimers.yaml", "4x4")), 0);
         assert_eq!(flux_components(&model("hard-squares.yaml", "4x4")), 0);
         assert_eq!(flux_components(&model("triangular-afm.yaml", "4x4")), 0);
+    }
+
+    /// The next term: on exact points of s∞ + a/N + (1/6) ln N/N + c/N² (cubes of 8 k³
+    /// units, k = 2 … 5) the fit with c/N² returns s∞ exactly; with c = 0 it finds no
+    /// term and adds nothing, with c = 40 and σ = 1e-6 the data call for it and the distance
+    /// to the cited fit is added to σ.
+    #[test]
+    fn next_term_is_tested_and_allowed_for() {
+        let s_inf = 0.41;
+        let points = |c: f64| -> Vec<SizePoint> {
+            [2usize, 3, 4, 5]
+                .iter()
+                .map(|&k| {
+                    let n = (8 * k * k * k) as f64;
+                    SizePoint {
+                        units: n,
+                        value: s_inf - 0.6 / n + FLUX_B * n.ln() / n + c / (n * n),
+                        sigma: 1e-6,
+                    }
+                })
+                .collect()
+        };
+        let clean = extrapolate_with(&points(0.0), Some(FLUX_B)).unwrap();
+        let t = clean.next_term.clone().unwrap();
+        assert!(!t.needed && t.allowance == 0.0);
+        assert!((t.ln_w_per_unit - s_inf).abs() < 1e-9);
+        assert!((clean.sigma - clean.sigma_fit).abs() < 1e-15);
+        let curved = extrapolate_with(&points(40.0), Some(FLUX_B)).unwrap();
+        let t = curved.next_term.clone().unwrap();
+        assert!(t.needed && t.probability < LAW_REJECTED_BELOW);
+        assert!((t.ln_w_per_unit - s_inf).abs() < 1e-9);
+        assert!((t.c - 40.0).abs() < 1e-3);
+        assert!((t.allowance - (curved.value - s_inf).abs()).abs() < 1e-12);
+        assert!(curved.sigma >= t.allowance && t.allowance > 1e-5);
+        // Three cells leave the term no degree of freedom: no check.
+        let three = extrapolate_with(&points(40.0)[..3], Some(FLUX_B)).unwrap();
+        assert!(three.next_term.is_none());
+        // The free three-term form needs five cells for it.
+        assert!(extrapolate(&points(0.0)).unwrap().next_term.is_none());
     }
 
     /// `count` fixes b only for cells of one shape with the flux; cells of several shapes
