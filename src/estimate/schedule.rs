@@ -1018,9 +1018,8 @@ mod tests {
     }
 
     /// The cells of an extrapolation are spread evenly in ln N between the smallest and the
-    /// Issue 15: the cells offered to a rule with a conserved flux are cubes of the cell
-    /// (one shape, as the law with b fixed needs), in increasing size, from the first of
-    /// at least SAMPLE_MIN_UNITS formula units.
+    /// Issue 15: the largest Monte Carlo cell is the last candidate of at most
+    /// SAMPLE_PRECISION_UNITS formula units, or the fourth when fewer lie below.
     #[test]
     fn issue15_largest_cell_is_capped_for_precision() {
         let units = |per: f64| -> Vec<f64> {
@@ -1032,12 +1031,16 @@ mod tests {
         // Ice Ih, 4 molecules a cell: 3³ … 8³ (108 … 2048), not 9³ = 2916.
         let ih = units(4.0);
         assert_eq!(ih[last_candidate(&ih)], 2048.0);
-        // A 136-water cell: only 2³ = 1088 lies below, so four cubes (to 5³ = 17000).
+        // A 136-water cell: only 1³ and 2³ = 1088 lie below, so four cubes (to 4³ = 8704).
         let s2 = units(136.0);
         assert_eq!(last_candidate(&s2), 3);
         // Fewer candidates than four: all of them.
         assert_eq!(last_candidate(&[100.0, 300.0]), 1);
     }
+
+    /// Issue 15: the cells offered to a rule with a conserved flux are cubes of the cell
+    /// (one shape, as the law with b fixed needs), in increasing size, from the first of
+    /// at least SAMPLE_MIN_UNITS formula units.
 
     #[test]
     fn issue15_flux_cells_are_cubes() {
