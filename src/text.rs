@@ -940,11 +940,10 @@ pub fn size_law_words(
 ) -> Option<String> {
     if let Some(l) = law {
         let test = format!(
-            "the free fit gives b = {} ± {} (Δχ² = {} for one degree of freedom, probability {})",
+            "the free fit gives b = {} ± {} {}",
             sig(l.b_free, 3),
             sig(l.sigma_b_free, 2),
-            sig(l.delta_chi2, 3),
-            sig(l.probability, 2)
+            one_term_test(l.delta_chi2, l.probability)
         );
         Some(if l.rejected {
             format!(
@@ -962,18 +961,28 @@ pub fn size_law_words(
         None
     }
 }
+
+/// The test of one added term of a fit, in words: its Δχ² and the probability of one as
+/// large without it.
+fn one_term_test(delta_chi2: f64, probability: f64) -> String {
+    format!(
+        "(Δχ² = {} for one degree of freedom, probability {})",
+        sig(delta_chi2, 3),
+        sig(probability, 2)
+    )
+}
+
 /// The check of the next finite-size term, c/N², in words (ln W per formula unit), when
 /// the cells allowed it.
 pub fn next_term_words(next: Option<&crate::counters::sampling::size::NextTerm>) -> Option<String> {
     let t = next?;
     let test = format!(
-        "with a c/N² term added s∞ = {} ± {} in ln W per formula unit, c = {} ± {} (Δχ² = {} for one degree of freedom, probability {})",
+        "with a c/N² term added s∞ = {} ± {} in ln W per formula unit, c = {} ± {} {}",
         sig(t.ln_w_per_unit, 7),
         sig(t.sigma_ln_w, 2),
         sig(t.c, 3),
         sig(t.sigma_c, 2),
-        sig(t.delta_chi2, 3),
-        sig(t.probability, 2)
+        one_term_test(t.delta_chi2, t.probability)
     );
     Some(if t.needed {
         format!(
