@@ -71,8 +71,9 @@ pub struct Args {
     #[arg(long)]
     max_exact_units: Option<f64>,
     /// Monte Carlo cell for a 3D lattice, e.g. 3x3x3; default: up to five cells, from
-    /// about 100 formula units to the largest the budget affords (cubes when the rule has a
-    /// conserved flux), extrapolated to the infinite crystal.
+    /// about 100 formula units to the largest the budget affords, at most about 2500 once
+    /// four smaller ones are available (cubes when the rule has a conserved flux),
+    /// extrapolated to the infinite crystal.
     #[arg(long)]
     sample_cells: Option<String>,
     /// Seed of the Monte Carlo streams.

@@ -20,8 +20,10 @@ pub struct SurveyConfig {
     /// Strip widths to compute (2D); `None` grows the width from 2 until the budget ends.
     pub widths: Option<Vec<usize>>,
     /// The Monte Carlo cell (3D); `None` samples up to five cells from about a hundred
-    /// formula units to the largest the budget affords (cubes of the cell when the rule
-    /// has a conserved flux) and extrapolates them to the infinite crystal.
+    /// formula units to the largest the budget affords, at most
+    /// 2500 (`SAMPLE_PRECISION_UNITS`) once four smaller ones are
+    /// available (cubes of the cell when the rule has a conserved flux), and extrapolates
+    /// them to the infinite crystal.
     pub sample_cells: Option<Cells>,
     /// Monte Carlo settings.
     pub sample: SampleConfig,
