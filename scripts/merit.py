@@ -46,17 +46,24 @@ VARIANTS = [
 ]
 
 
+def timed_json(args):
+    """Run the binary with `args` (JSON output): the parsed document and the child's CPU
+    seconds (user + system)."""
+    start = resource.getrusage(resource.RUSAGE_CHILDREN)
+    out = subprocess.run([BINARY] + args, cwd=ROOT, check=True, capture_output=True,
+                         text=True).stdout
+    end = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (end.ru_utime - start.ru_utime) + (end.ru_stime - start.ru_stime)
+    return json.loads(out), cpu
+
+
 def run(lattice, cells, seed, replicas, sweeps, flags):
-    args = [BINARY, "sample", os.path.join(ROOT, lattice), "--cells", cells,
+    args = ["sample", os.path.join(ROOT, lattice), "--cells", cells,
             "--replicas", str(replicas), "--sweeps", str(sweeps), "--seed", str(seed),
             "--threads", "1", "--format", "json"]
     args += ["--equilibration", str(sweeps // 4)]
     args += flags
-    start = resource.getrusage(resource.RUSAGE_CHILDREN)
-    out = subprocess.run(args, check=True, capture_output=True, text=True).stdout
-    end = resource.getrusage(resource.RUSAGE_CHILDREN)
-    cpu = (end.ru_utime - start.ru_utime) + (end.ru_stime - start.ru_stime)
-    d = json.loads(out)
+    d, cpu = timed_json(args)
     sigma = math.sqrt(sum(d[k] ** 2 for k in (
         "sigma_ln_w_statistical", "sigma_ln_w_quadrature", "sigma_ln_w_tail",
         "sigma_ln_w_equilibration")))

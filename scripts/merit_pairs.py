@@ -22,34 +22,24 @@ ratio to about ±25 %; twenty-odd give it to about ±10 %.
 CPU time is the child's user + system time (getrusage); the runs use `--threads 2`.
 """
 import argparse
-import json
 import math
 import os
 import random
-import resource
 import statistics
-import subprocess
 import sys
 
-ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-BINARY = os.path.join(ROOT, "target", "release", "groundcount")
+from merit import BINARY, VARIANTS, timed_json
+
 FLAGS = {
-    "before": ["--replicas", "16", "--sweeps", "1000", "--no-defect-moves",
-               "--plain-estimator", "--equal-sweeps", "--no-lanes"],
+    "before": ["--replicas", "16", "--sweeps", "1000"] + dict(VARIANTS)["before"],
     "now": ["--replicas", "8", "--sweeps", "400"],
 }
 
 
 def run(lattice, cells, flags, seed):
     """One run: (W∞, σ(W∞), CPU s) of the fit this sampler is judged by."""
-    before = resource.getrusage(resource.RUSAGE_CHILDREN)
-    out = subprocess.run(
-        [BINARY, "sample", lattice, "--cells", cells, "--threads", "2", "--seed",
-         str(seed), "--format", "json", "-q"] + FLAGS[flags],
-        cwd=ROOT, check=True, capture_output=True, text=True).stdout
-    after = resource.getrusage(resource.RUSAGE_CHILDREN)
-    cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
-    d = json.loads(out)
+    d, cpu = timed_json(["sample", lattice, "--cells", cells, "--threads", "2", "--seed",
+                         str(seed), "--format", "json", "-q"] + FLAGS[flags])
     fit = d.get("fit")
     if not fit or (flags == "before" and fit.get("alternative_ln_w_per_unit") is None):
         sys.exit(f"{lattice} --cells {cells}: no size fit with b free to compare; give at "

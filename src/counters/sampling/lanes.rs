@@ -375,6 +375,7 @@ impl Acceptance {
     /// `D` = 0 as many as `classes` holds.
     #[inline(always)]
     fn flips<const D: usize>(&self, rng: &mut Pcg64Mcg, classes: &[u64], uphill: u64) -> u64 {
+        // A constant length for the compiler to unroll by (the caller's slice has it too).
         let classes = if D == 0 { classes } else { &classes[..=D] };
         let mut below = 0u64;
         let mut bitwise = uphill;
