@@ -44,7 +44,9 @@
 //! each pass ([`moves`]); from β = 1 on, every sweep is followed by loop moves that keep
 //! every constraint's count where the model allows them ([`loops`]), and from β = 3 on,
 //! on the same models, by defect-focused moves that spend their updates next to the few
-//! violated constraints ([`moves::Chain::focused`]). What is measured at each sweep is
+//! violated constraints ([`moves::Chain::focused`]); where few variables touch a violation
+//! on ice-rule models, the sweep jumps over the others by geometric draws
+//! ([`moves::Chain::sweep_skipping`], the same transition). What is measured at each sweep is
 //! the conditional (Rao–Blackwell) estimate of E, whose mean is ⟨E⟩_β and whose variance
 //! is smaller ([`moves::Chain::sweep_conditional`]). A chain that lags
 //! behind the annealing carries too many violations on the way up and too few on the way

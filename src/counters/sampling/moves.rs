@@ -861,7 +861,7 @@ impl Chain {
     }
 
     /// Whether [`Chain::sweep_skipping`] applies and pays: the model has the shape
-    /// ([`Quiet`]) and at most one variable in [`SKIP_WHEN_NEAR_FRACTION`] can touch a
+    /// (`Quiet`) and at most one variable in [`SKIP_WHEN_NEAR_FRACTION`] can touch a
     /// violated constraint (each violation marks its scope).
     pub fn skipping_pays(&self, k: &Kernel) -> bool {
         k.quiet.is_some()
@@ -872,7 +872,8 @@ impl Chain {
     /// One heat-bath sweep in variable order at inverse temperature `beta`, the same
     /// transition as [`Chain::sweep_conditional`] and returning the same conditional
     /// estimate of E, but with work only next to the violations, on models of the
-    /// [`Quiet`] shape. A variable whose constraints all hold ("quiet") flips with the
+    /// `Quiet` shape (two-state, unweighted, one degree, no allowed assignment one flip
+    /// from another). A variable whose constraints all hold ("quiet") flips with the
     /// one probability p = 1/(1 + e^{βD}) (every one of its D constraints would break), so
     /// the quiet variables of a sweep are Bernoulli(p) trials in order: a geometric draw
     /// ⌊ln u / ln(1 − p)⌋ says how many of them pass before the next flip, and the count
