@@ -330,16 +330,7 @@ struct Acceptance {
 impl Acceptance {
     fn new(beta: f64, d_max: usize) -> Acceptance {
         let p: Vec<f64> = (0..=d_max).map(|e| (-beta * e as f64).exp()).collect();
-        let threshold = p
-            .iter()
-            .map(|&p| {
-                if p >= 1.0 {
-                    u64::MAX
-                } else {
-                    (p * 18446744073709551616.0) as u64
-                }
-            })
-            .collect();
+        let threshold = p.iter().map(|&p| super::moves::threshold_of(p)).collect();
         let skip: Vec<bool> = p
             .iter()
             .enumerate()

@@ -495,6 +495,26 @@ pub struct Chain {
     near: Vec<u64>,
 }
 
+/// A probability p as a threshold on a uniform u64: `next_u64() < threshold_of(p)` with
+/// probability p (to 2⁻⁶⁴).
+pub(crate) fn threshold_of(p: f64) -> u64 {
+    if p >= 1.0 {
+        u64::MAX
+    } else {
+        (p * 18446744073709551616.0) as u64
+    }
+}
+
+/// The heat-bath flip probability 1/(1 + e^{βΔE}) of a two-state variable for ΔE = −m…m,
+/// and the same as thresholds ([`threshold_of`]).
+fn heat_bath(beta: f64, m: i32) -> (Vec<f64>, Vec<u64>) {
+    let flip: Vec<f64> = (-m..=m)
+        .map(|de| 1.0 / (1.0 + (beta * de as f64).exp()))
+        .collect();
+    let threshold = flip.iter().map(|&p| threshold_of(p)).collect();
+    (flip, threshold)
+}
+
 /// `Chain::slot` of a constraint that is satisfied.
 const NOT_VIOLATED: u32 = u32::MAX;
 
@@ -805,12 +825,7 @@ impl Chain {
             for a in 0..2 {
                 let gain = lw[1 - a] - lw[a];
                 for de in -m..=m {
-                    let p = 1.0 / (1.0 + (beta * de as f64 - gain).exp());
-                    threshold.push(if p >= 1.0 {
-                        u64::MAX
-                    } else {
-                        (p * 18446744073709551616.0) as u64
-                    });
+                    threshold.push(threshold_of(1.0 / (1.0 + (beta * de as f64 - gain).exp())));
                 }
             }
         }
@@ -835,19 +850,7 @@ impl Chain {
             return self.conditional_energy(k, beta);
         }
         let m = k.max_degree as i32;
-        let flip: Vec<f64> = (-m..=m)
-            .map(|de| 1.0 / (1.0 + (beta * de as f64).exp()))
-            .collect();
-        let threshold: Vec<u64> = flip
-            .iter()
-            .map(|&p| {
-                if p >= 1.0 {
-                    u64::MAX
-                } else {
-                    (p * 18446744073709551616.0) as u64
-                }
-            })
-            .collect();
+        let (flip, threshold) = heat_bath(beta, m);
         let mut total = 0.0;
         for v in 0..k.variables() {
             let (de, now, then) = self.flip_terms(k, v);
@@ -886,19 +889,7 @@ impl Chain {
         let quiet = k.quiet.expect("sweep_skipping needs the quiet shape");
         let n = k.variables();
         let m = k.max_degree as i32;
-        let flip: Vec<f64> = (-m..=m)
-            .map(|de| 1.0 / (1.0 + (beta * de as f64).exp()))
-            .collect();
-        let threshold: Vec<u64> = flip
-            .iter()
-            .map(|&p| {
-                if p >= 1.0 {
-                    u64::MAX
-                } else {
-                    (p * 18446744073709551616.0) as u64
-                }
-            })
-            .collect();
+        let (flip, threshold) = heat_bath(beta, m);
         let p_quiet = flip[(quiet.degree as i32 + m) as usize];
         let ln_stay = (-p_quiet).ln_1p();
         self.near.clear();
@@ -1007,17 +998,7 @@ impl Chain {
 
     fn sweep_binary(&mut self, k: &Kernel, beta: f64) {
         let m = k.max_degree as i32;
-        // Probability 1/(1 + e^{βΔE}) of flipping, as a threshold on a uniform u64.
-        let threshold: Vec<u64> = (-m..=m)
-            .map(|de| {
-                let p = 1.0 / (1.0 + (beta * de as f64).exp());
-                if p >= 1.0 {
-                    u64::MAX
-                } else {
-                    (p * 18446744073709551616.0) as u64
-                }
-            })
-            .collect();
+        let (_, threshold) = heat_bath(beta, m);
         for v in 0..k.variables() {
             let de = self.flip_delta(k, v);
             if self.rng.next_u64() < threshold[(de + m) as usize] {
