@@ -689,8 +689,14 @@ mod tests {
     use super::*;
 
     fn points(ns: &[f64], f: impl Fn(f64) -> f64, sigma: f64) -> Vec<SizePoint> {
+        points_with(ns, f, &vec![sigma; ns.len()])
+    }
+
+    /// Points on the curve `f` at the sizes `ns`, each with its own σ.
+    fn points_with(ns: &[f64], f: impl Fn(f64) -> f64, sigmas: &[f64]) -> Vec<SizePoint> {
         ns.iter()
-            .map(|&n| SizePoint {
+            .zip(sigmas)
+            .map(|(&n, &sigma)| SizePoint {
                 units: n,
                 value: f(n),
                 sigma,
@@ -772,15 +778,11 @@ mod tests {
     fn large_cells_are_not_taken_for_equal_ones() {
         let (s, a) = (0.20511, 0.85);
         let f = |n: f64| s + a / n + FLUX_B * n.ln() / n;
-        let pts: Vec<SizePoint> = [864.0, 1372.0, 2048.0, 2916.0]
-            .iter()
-            .zip([4e-5, 3e-5, 2.5e-5, 2e-5])
-            .map(|(&n, sigma)| SizePoint {
-                units: n,
-                value: f(n),
-                sigma,
-            })
-            .collect();
+        let pts = points_with(
+            &[864.0, 1372.0, 2048.0, 2916.0],
+            f,
+            &[4e-5, 3e-5, 2.5e-5, 2e-5],
+        );
         let fit = extrapolate_with(&pts, Some(FLUX_B)).unwrap();
         assert!((fit.value - s).abs() < 1e-10, "{}", fit.value);
         let law = fit.law.clone().unwrap();
@@ -799,15 +801,7 @@ mod tests {
         let f = |n: f64| s + a / n + FLUX_B * n.ln() / n;
         let ns = [64.0, 216.0, 512.0, 1000.0, 1728.0];
         let sig = [1e-3, 6e-4, 4e-4, 3e-4, 2e-4];
-        let pts: Vec<SizePoint> = ns
-            .iter()
-            .zip(sig)
-            .map(|(&n, sigma)| SizePoint {
-                units: n,
-                value: f(n),
-                sigma,
-            })
-            .collect();
+        let pts = points_with(&ns, f, &sig);
         let fit = extrapolate_with(&pts, Some(FLUX_B)).unwrap();
         assert_eq!(fit.form(), "s(N) = s∞ + a/N + (1/6) ln N/N");
         assert_eq!(fit.alternative_form(), "s(N) = s∞ + a/N + b ln N/N");
