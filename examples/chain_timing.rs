@@ -8,7 +8,7 @@
 //! cargo run --release --example chain_timing -- lattices/ice-ih.yaml 8x8x4
 //! ```
 use groundcount::cluster::{Cells, Cluster};
-use groundcount::counters::sampling::{loops::Loops, moves::Kernel, stream};
+use groundcount::counters::sampling::{self, loops::Loops, moves::Kernel, stream};
 use groundcount::{Lattice, model::Model};
 
 fn main() {
@@ -24,7 +24,7 @@ fn main() {
     let kernel = Kernel::new(&model).expect("a kernel");
     let loops = Loops::new(&model);
     let attempts = (model.constraints.len() / 64).max(1);
-    let focused = (kernel.variables() / 4).min(32 * 4 + 64);
+    let focused = sampling::defect_moves_per_sweep(kernel.variables());
     for beta in [5.0, 6.0, 6.5, 7.0, 8.0] {
         for skip in [false, true] {
             let mut chain = kernel.chain(stream(7, 1));

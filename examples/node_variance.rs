@@ -14,17 +14,22 @@
 //! and its variance × time compares directly with one chain's.
 //!
 //! `plain` measures E itself with sweeps and loop moves only (the sampler without the
-//! defect-focused moves and the conditional estimate); otherwise the chain also makes a
-//! quarter-sweep of defect-focused moves from β = 3 on (the sampler's most) and measures
-//! the conditional estimate of E. The numbers behind DEVELOPERS.md "Defect-focused moves"
+//! defect-focused moves and the conditional estimate); otherwise the chain also makes the
+//! sampler's defect-focused moves from β = 3 on (one per variable, or N with `moves=N`),
+//! sweeps over the quiet variables by skipping where the sampler does, and measures the
+//! conditional estimate of E. The numbers behind DEVELOPERS.md "Defect-focused moves"
 //! and "The conditional estimate of E".
-use groundcount::counters::sampling::{DEFECT_MOVES_FROM_BETA, lanes, loops::Loops, moves, stream};
+use groundcount::counters::sampling::{
+    DEFECT_MOVES_FROM_BETA, defect_moves_per_sweep, lanes, loops::Loops, moves, stream,
+};
 use groundcount::{Lattice, cluster, model};
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     let args: Vec<String> = std::env::args().collect();
     if args.len() < 4 {
-        return Err("usage: node_variance LATTICE.yaml CELLS SWEEPS [plain|lanes]".into());
+        return Err(
+            "usage: node_variance LATTICE.yaml CELLS SWEEPS [plain|lanes] [moves=N]".into(),
+        );
     }
     let lattice = Lattice::from_file(std::path::Path::new(&args[1]))?;
     let cells = cluster::Cells::parse(&args[2], None, lattice.crystal.dimensions)?;
@@ -42,10 +47,14 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let lo = Loops::new(&m);
     let attempts = (m.constraints.len() / 64).max(1);
     let n = m.constraints.len() as f64;
+    // `moves=N` sets the focused moves per sweep (default: the sampler's).
+    let moves_arg = args.iter().skip(4).find_map(|a| a.strip_prefix("moves="));
     let focused = if plain || lo.is_none() {
         0
+    } else if let Some(n) = moves_arg {
+        n.parse()?
     } else {
-        m.variables.len() / 4
+        defect_moves_per_sweep(m.variables.len())
     };
     println!("beta   E/N       var/N     tau     var*2tau/N  us/sweep  var*2tau*us/N");
     for beta in (1..=40).map(|i| i as f64 * 0.25) {
@@ -61,6 +70,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             let x = if plain {
                 c.sweep(&k, beta);
                 None
+            } else if c.skipping_pays(&k) {
+                Some(c.sweep_skipping(&k, beta))
             } else {
                 Some(c.sweep_conditional(&k, beta))
             };

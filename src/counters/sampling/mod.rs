@@ -44,7 +44,8 @@
 //! each pass ([`moves`]); from β = 1 on, every sweep is followed by loop moves that keep
 //! every constraint's count where the model allows them ([`loops`]), and from β = 3 on,
 //! on the same models, by defect-focused moves that spend their updates next to the few
-//! violated constraints ([`moves::Chain::focused`]); where few variables touch a violation
+//! violated constraints, one per variable ([`moves::Chain::focused`],
+//! [`DEFECT_MOVES_PER_VARIABLE`]); where few variables touch a violation
 //! on ice-rule models, the sweep jumps over the others by geometric draws
 //! ([`moves::Chain::sweep_skipping`], the same transition). What is measured at each sweep is
 //! the conditional (Rao–Blackwell) estimate of E, whose mean is ⟨E⟩_β and whose variance
@@ -139,8 +140,8 @@ pub struct SampleConfig {
     pub loops: bool,
     /// Defect-focused moves after every sweep from β = [`DEFECT_MOVES_FROM_BETA`] on
     /// ([`moves::Chain::focused`]), on models where loop moves apply (elsewhere the
-    /// setting has no effect): 32 per violated constraint at the start of each node (plus
-    /// 64), at most a quarter as many as there are variables.
+    /// setting has no effect): as many as there are variables
+    /// ([`DEFECT_MOVES_PER_VARIABLE`]).
     pub defect_moves: bool,
     /// Share the measured sweeps among the nodes by the variance a short pilot run
     /// measures there ([`allocation`]) instead of equally; ignored when `node_sweeps` is
@@ -449,19 +450,32 @@ pub const LANES_BELOW_BETA: f64 = 6.0;
 
 /// The cost of a sweep of 64 chains in machine words against one chain's sweep with loop
 /// and defect-focused moves, for the allocation of sweeps over nodes: a fixed number, so
-/// that the allocation does not depend on the clock. Measured on ice Ih 8×8×4 with
-/// `cargo bench --bench sampling` and `examples/node_variance.rs`: about 130–150 µs
-/// against 45 µs. The sweeps compiled for the rules' shape (`lanes`) brought it nearer
-/// 2.5; left at 3, since an allocation 10 % off in its sweeps costs under 1 % in
-/// variance × time, and changing it would change every sampled number for no gain.
-const LANE_SWEEP_COST: f64 = 3.0;
+/// that the allocation does not depend on the clock. Measured on ice Ih 8×8×4, quiet
+/// machine, 2026-12-04 (`examples/lane_timing.rs`, `examples/chain_timing.rs`, best of
+/// 8 × 300 sweeps): 60–64 µs per sweep of 64 chains at β = 5, against 105, 91, 61 and 50 µs
+/// for one chain's step (the skipping sweep and one focused move per variable) at β = 6,
+/// 6.5, 7 and 8. It was 3 while the one chain made a few dozen focused moves per sweep.
+const LANE_SWEEP_COST: f64 = 0.8;
 
-/// Most defect-focused moves after a sweep, per variable.
-const DEFECT_MOVES_PER_VARIABLE: f64 = 0.25;
+/// Defect-focused moves after every sweep, per variable, at every node from
+/// [`DEFECT_MOVES_FROM_BETA`] on: a fixed number per node, so that the kernel of a node
+/// never depends on the state it moves. At large β the few defects of a 3D ice must find
+/// each other across the cell, which takes moves in proportion to its size, whatever
+/// their number. Measured on ice Ih 8×8×4 (2048 variables; `examples/node_variance.rs`,
+/// one chain, 40 000 sweeps per β, variance × 2τ × time per sweep summed over β = 6.25 to
+/// 7.25, 2026-12-04): 19.3 with 64 moves (what the earlier rule, 32 per violated
+/// constraint at the start of the node plus 64, made at a node that starts without
+/// defects; at most 150 or so there), 8.2 with 512, 5.2 with 1024, 4.1 with
+/// 2048 and 3.8 with 4096 (one move costs about 40 ns, the skipping sweep 20 µs); equal
+/// within the noise between 512 and 2048 at β = 3–5.5. Spin ice 6×6×6: 2–4 times smaller
+/// at β = 5.5–8 with one move per variable than with 96.
+pub const DEFECT_MOVES_PER_VARIABLE: f64 = 1.0;
 
-/// Defect-focused moves after a sweep per violated constraint at the start of a node
-/// (plus two, so that a node that starts defect-free still moves the pairs it creates).
-const DEFECT_MOVES_PER_DEFECT: usize = 32;
+/// Defect-focused moves after each sweep of a model with `variables` variables
+/// ([`DEFECT_MOVES_PER_VARIABLE`]).
+pub fn defect_moves_per_sweep(variables: usize) -> usize {
+    (variables as f64 * DEFECT_MOVES_PER_VARIABLE).ceil() as usize
+}
 
 /// What one replica returns: all a merge needs from it.
 #[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -1505,8 +1519,8 @@ fn replica(plan: &Plan, first: usize, start: Option<moves::Chain>, r: usize) -> 
     let mut walk = loops.map(|l| l.walk());
     let mut flipped = 0u64;
     let mut attempted = 0u64;
-    let most_focused = if config.defect_moves {
-        (kernel.variables() as f64 * DEFECT_MOVES_PER_VARIABLE).ceil() as usize
+    let focused_moves = if config.defect_moves {
+        defect_moves_per_sweep(kernel.variables())
     } else {
         0
     };
@@ -1551,12 +1565,10 @@ fn replica(plan: &Plan, first: usize, start: Option<moves::Chain>, r: usize) -> 
                     equilibrate: bool,
                     sweeps: usize| {
         let beta = betas[i];
-        // The number of focused moves per sweep is fixed for the node from the chain's
-        // state at its start (so the kernel of the node does not depend on the state it
-        // moves): enough for every defect to move many steps per sweep, never more than
-        // a quarter of a sweep's updates.
+        // A fixed number of focused moves per sweep at every node from
+        // DEFECT_MOVES_FROM_BETA on: the kernel of a node does not depend on the state.
         let focused = if beta >= DEFECT_MOVES_FROM_BETA {
-            most_focused.min(DEFECT_MOVES_PER_DEFECT * (chain.energy() as usize + 2))
+            focused_moves
         } else {
             0
         };

@@ -31,8 +31,10 @@
 //! many constraints are violated before and after), so each move leaves w(σ) e^{−βE}
 //! invariant (Hastings 1970, Biometrika 57, 97); mixed with sweeps the chain stays
 //! ergodic (alone it is not always: on three colours of a triangle it cannot reach the
-//! one-colour assignments). Tested against exact enumeration. With them the correlation
-//! time at β ≥ 7 falls below 10 sweeps.
+//! one-colour assignments). Tested against exact enumeration. The sampler makes one per
+//! variable after each sweep: the defects must find each other across the cell, which
+//! takes moves in proportion to its size; with them the correlation time of the estimate
+//! of E on ice Ih 8×8×4 is under 3 sweeps from β = 6 on.
 //!
 //! # Sweeps that skip the quiet variables
 //!
